@@ -33,6 +33,7 @@ fi
 if [ "$status" -eq 0 ] && ! git diff --quiet -- testdata/reference; then
 	echo "regen.sh: only the R version line changed ($(Rscript -e 'cat(R.version.string)')); values match"
 	git checkout -- testdata/reference
+elif [ "$status" -eq 0 ]; then
+	echo "regen.sh: reference values unchanged"
 fi
-[ "$status" -eq 0 ] && echo "regen.sh: reference values unchanged"
 exit "$status"
