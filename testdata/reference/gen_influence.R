@@ -1,7 +1,8 @@
 # gen_influence.R writes the reference values that engine/rgolden_test.go
 # checks plumb's fit and influence measures against.
 #
-# Oracle: R (Debian's r-base-core), functions lm, summary.lm, hatvalues,
+# Oracle: R (Debian's r-base-core), functions lm, summary.lm, confint,
+# residuals, hatvalues,
 # rstandard, rstudent, cooks.distance, dffits, dfbetas and covratio from the
 # stats package, on published data sets shipped in R's datasets package and
 # on three small data sets of our own, generated here with set.seed in an
@@ -75,7 +76,7 @@ write_case <- function(name, source, data, formula, response, terms,
   add <- function(...) L <<- c(L, paste0(...))
   add("{")
   add("  \"source\": ", jstr(source), ",")
-  add("  \"oracle\": ", jstr("R stats: lm, summary.lm, confint, hatvalues, rstandard, rstudent, cooks.distance, dffits, dfbetas, covratio"), ",")
+  add("  \"oracle\": ", jstr("R stats: lm, summary.lm, confint, residuals, hatvalues, rstandard, rstudent, cooks.distance, dffits, dfbetas, covratio"), ",")
   add("  \"r_version\": ", jstr(R.version.string), ",")
   add("  \"dataset\": ", jstr(name), ",")
   add("  \"formula\": ", jstr(paste(deparse(formula, width.cutoff = 500L), collapse = " ")), ",")
@@ -112,6 +113,7 @@ write_case <- function(name, source, data, formula, response, terms,
   if (!is.null(vif)) {
     add("  \"vif\": {", paste(paste0(vapply(terms, jstr, ""), ": ", jnum(vif)), collapse = ", "), "},")
   }
+  add("  \"residuals\": ", jarr(residuals(fit)), ",")
   add("  \"hat\": ", jarr(h), ",")
   add("  \"rstandard\": ", jarr(rs), ",")
   add("  \"rstudent\": ", jarr(rt), ",")
