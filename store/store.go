@@ -1,0 +1,292 @@
+// Package store keeps plumb's history: every observation with its provenance
+// (file, line, raw values) and its diagnostics at arrival, every fit, the
+// later changes of each observation's verdict, the quarantine of rows that
+// could not be read, the per-file read positions, and the alert ledger with
+// its delivery outbox.
+//
+// The Store interface is what the rest of plumb uses. The SQLite
+// implementation lives in the subpackage sqlite; a PostgreSQL backend for
+// shared history across many daemons would be a sibling subpackage that
+// satisfies the same interface.
+//
+// Exactly-once ingest rests on one rule: the rows read from a file and the
+// read position they advance to are committed in one transaction (Ingest).
+// After a crash the daemon resumes from the stored position, so no row is
+// lost and none is counted twice.
+//
+// Storage grows with rows ingested, not with rows x fits: an observation's
+// diagnostics are stored once, at arrival; a refit stores the fit summary
+// and only the verdicts that changed.
+//
+// A Store is safe for use by multiple goroutines.
+package store
+
+import (
+	"context"
+	"errors"
+	"time"
+)
+
+// ErrNotFound is returned (wrapped) when a requested record does not exist.
+var ErrNotFound = errors.New("store: not found")
+
+// Store is the history backend. Every method takes a context that bounds
+// the call; errors name the operation that failed.
+type Store interface {
+	// Sources returns the read state of every file the model has read.
+	Sources(ctx context.Context, model string) ([]Source, error)
+	// Ingest commits, in one transaction, the batch's observations, its
+	// quarantined rows and the source's new read state. It returns the ids
+	// assigned to b.Observations, in order. If b.Source.Offset does not
+	// advance past the stored offset for the same (model, path, generation),
+	// Ingest stores nothing and returns ErrStale (wrapped), so a batch
+	// delivered twice is never counted twice.
+	Ingest(ctx context.Context, b Batch) ([]int64, error)
+	// Observations returns the model's observations in arrival order
+	// (ascending id), starting after the id AfterID, at most Limit of them
+	// (Limit <= 0: all).
+	Observations(ctx context.Context, model string, q ObsQuery) ([]Observation, error)
+	// Observation returns one observation by model, file and line.
+	ObservationAt(ctx context.Context, model, path string, line int) (Observation, error)
+	// CountObservations returns how many observations the model holds.
+	CountObservations(ctx context.Context, model string) (int64, error)
+
+	// RecordFit stores a fit summary and the verdict changes it caused, in
+	// one transaction, and returns the fit id.
+	RecordFit(ctx context.Context, f FitRecord, changes []VerdictChange) (int64, error)
+	// Fits returns the model's fits, oldest first, at most limit (<= 0: all),
+	// starting after the fit id afterID.
+	Fits(ctx context.Context, model string, afterID int64, limit int) ([]FitRecord, error)
+	// LastFit returns the model's most recent fit, or ErrNotFound.
+	LastFit(ctx context.Context, model string) (FitRecord, error)
+	// VerdictChanges returns the verdict history of one observation.
+	VerdictChanges(ctx context.Context, obsID int64) ([]VerdictChange, error)
+	// CurrentVerdicts returns the latest verdict of every observation of the
+	// model that has one different from its arrival verdict, by obs id.
+	CurrentVerdicts(ctx context.Context, model string) (map[int64]string, error)
+
+	// Quarantined returns quarantined rows of the model (model "" for all),
+	// newest last, paginated by id.
+	Quarantined(ctx context.Context, model string, afterID int64, limit int) ([]QuarantineRow, error)
+	// CountQuarantined returns how many rows of the model are quarantined.
+	CountQuarantined(ctx context.Context, model string) (int64, error)
+
+	// SetModelState records the model's current state (waiting, judging,
+	// blocked) with its reason.
+	SetModelState(ctx context.Context, s ModelState) error
+	// ModelStates returns the recorded state of every model.
+	ModelStates(ctx context.Context) ([]ModelState, error)
+
+	// Alert ledger and outbox.
+
+	// PutAlert inserts or updates the alert with a.ID and, in the same
+	// transaction, enqueues the given deliveries.
+	PutAlert(ctx context.Context, a AlertRecord, deliveries []Delivery) error
+	// Alert returns one alert by id.
+	Alert(ctx context.Context, id string) (AlertRecord, error)
+	// Alerts lists alerts, newest first by LastSeen.
+	Alerts(ctx context.Context, q AlertQuery) ([]AlertRecord, error)
+	// DueDeliveries returns pending deliveries whose NextAttempt <= now,
+	// oldest first, at most limit.
+	DueDeliveries(ctx context.Context, now time.Time, limit int) ([]Delivery, error)
+	// UpdateDelivery stores a delivery's new status after an attempt.
+	UpdateDelivery(ctx context.Context, d Delivery) error
+	// Deliveries lists deliveries (all states), for status: filter by state
+	// ("" for all), newest first, at most limit.
+	Deliveries(ctx context.Context, state DeliveryState, limit int) ([]Delivery, error)
+
+	// Close releases the store.
+	Close() error
+}
+
+// ErrStale is returned (wrapped) by Ingest for a batch whose offset does
+// not advance the stored read position.
+var ErrStale = errors.New("store: batch does not advance the read position")
+
+// Source is the read state of one file for one model.
+type Source struct {
+	Model string
+	// Path is the file's path relative to the model's folder, with '/'.
+	Path string
+	// Generation counts rotations and truncations: each time the file is
+	// found replaced or truncated, reading starts again at offset 0 with
+	// Generation+1. Rows of earlier generations stay in the history.
+	Generation int
+	Inode      uint64
+	// Size is the file size seen when Offset was reached.
+	Size int64
+	// Offset is the byte offset just past the last consumed record.
+	Offset int64
+	// Line is the number of the last line consumed (1-based; 0 before any).
+	Line int
+	// Fingerprint is a hash of the file's first bytes (up to 1 KiB) used to
+	// tell a rewritten file from an appended one.
+	Fingerprint string
+	// FingerprintLen is how many bytes the fingerprint covers.
+	FingerprintLen int
+	// Header is the header row as read (column names), joined with '\x1f'.
+	Header string
+	// Rows and Quarantined count what this source has contributed.
+	Rows        int64
+	Quarantined int64
+	UpdatedAt   time.Time
+}
+
+// Batch is one commit unit of ingest.
+type Batch struct {
+	Source       Source
+	Observations []Observation
+	Quarantine   []QuarantineRow
+}
+
+// Observation is one accepted data row of one model.
+type Observation struct {
+	ID         int64
+	Model      string
+	Path       string
+	Generation int
+	Line       int
+	// Raw is the record's text as it stood in the file (without the line
+	// terminator).
+	Raw string
+	// Values are the numbers the model uses: the response first, then each
+	// predictor column in the model's column order.
+	Values []float64
+	// Time is the value of the model's timestamp column, if it has one.
+	Time      time.Time
+	ArrivedAt time.Time
+	// Arrival holds the diagnostics computed when the row arrived, against
+	// the fit that included it. Nil when the model was not yet judging.
+	Arrival *Diagnostics
+}
+
+// Diagnostics are one observation's influence measures against one fit.
+// Undefined values (for instance at leverage 1) are NaN.
+type Diagnostics struct {
+	Leverage            float64
+	Residual            float64
+	StudentizedInternal float64
+	StudentizedExternal float64
+	CooksDistance       float64
+	DFFITS              float64
+	DFBETAS             []float64
+	COVRATIO            float64
+	OutlierPBonferroni  float64
+	// Verdict is one of "ordinary", "notable", "outlier", "influential",
+	// "suspect" (outlier and influential).
+	Verdict string
+	// Flags is the JSON array of cutoffs crossed, as the engine reports them.
+	Flags string
+}
+
+// ObsQuery selects observations.
+type ObsQuery struct {
+	AfterID int64
+	Limit   int
+	Path    string // "" for all files
+}
+
+// FitRecord is the summary of one fit.
+type FitRecord struct {
+	ID    int64
+	Model string
+	At    time.Time
+	N     int
+	P     int
+	// Terms names the coefficients, "intercept" first when present.
+	Terms     []string
+	Estimates []float64
+	StdErrors []float64
+	Sigma     float64
+	RSquared  float64
+	// Fragility is the fragility index, or -1 when no removal of up to
+	// FragilityK rows breaks a conclusion, or -2 when not computed.
+	Fragility  int
+	FragilityK int
+	// Detail is a JSON document with whatever else the fit summary carries
+	// (fragility detail, suggestions, largest Cook's distance).
+	Detail string
+	// LastObsID is the id of the newest observation included in the fit.
+	LastObsID int64
+}
+
+// VerdictChange records that a refit changed an observation's verdict.
+type VerdictChange struct {
+	ObsID int64
+	FitID int64
+	At    time.Time
+	From  string
+	To    string
+	// Flags is the JSON array of cutoffs crossed under the new fit.
+	Flags string
+}
+
+// QuarantineRow is a row that could not be read, kept with its reason.
+type QuarantineRow struct {
+	ID         int64
+	Model      string
+	Path       string
+	Generation int
+	Line       int
+	Column     int
+	Raw        string
+	Reason     string
+	At         time.Time
+}
+
+// ModelState is a model's current state.
+type ModelState struct {
+	Model  string
+	State  string // "waiting", "judging", "blocked"
+	Reason string
+	At     time.Time
+}
+
+// AlertRecord is one alert in the ledger. One alert exists per (Model,
+// Kind, Subject); its updates change LastSeen, State and Doc.
+type AlertRecord struct {
+	ID        string
+	Model     string
+	Kind      string
+	Subject   string
+	Severity  string
+	State     string // "open", "acknowledged", "resolved"
+	FirstSeen time.Time
+	LastSeen  time.Time
+	// Doc is the alert's full JSON document as the alerts package made it.
+	Doc string
+}
+
+// AlertQuery selects alerts.
+type AlertQuery struct {
+	State   string // "" for all
+	Model   string // "" for all
+	Kind    string
+	Subject string
+	Limit   int
+	Offset  int
+}
+
+// DeliveryState is the state of one outbox entry.
+type DeliveryState string
+
+const (
+	DeliveryPending   DeliveryState = "pending"
+	DeliveryDelivered DeliveryState = "delivered"
+	DeliveryDead      DeliveryState = "dead"
+)
+
+// Delivery is one outbox entry: one alert event for one route.
+type Delivery struct {
+	ID          int64
+	AlertID     string
+	Route       string
+	EventID     string
+	Payload     []byte
+	State       DeliveryState
+	Attempts    int
+	NextAttempt time.Time
+	LastError   string
+	CreatedAt   time.Time
+	UpdatedAt   time.Time
+}
