@@ -1,0 +1,314 @@
+// Package viewtest provides an in-memory view.Source for tests of the web
+// server, the report writer and anything else that consumes views.
+//
+// A Fake holds models, fit history, observations, quarantine and alerts
+// that a test puts in; it implements the alert lifecycle (open ->
+// acknowledged -> resolved) and records every Ack and Resolve call.
+//
+// StraightLine builds a realistic ModelDetail for a one-predictor model
+// y = b0 + b1 x from data, with the exact closed-form diagnostics of simple
+// linear regression, so that charts and tables have true numbers to show.
+package viewtest
+
+import (
+	"cmp"
+	"context"
+	"fmt"
+	"slices"
+	"sync"
+	"time"
+
+	"plumb/cmd/plumb/internal/view"
+)
+
+// Fake is an in-memory view.Source. The zero value is not usable; call New.
+// A Fake is safe for use by multiple goroutines.
+type Fake struct {
+	mu       sync.Mutex
+	models   map[string]view.ModelDetail
+	fits     map[string][]view.FitView
+	obs      map[string][]view.ObservationView
+	quar     []view.QuarantineView
+	alerts   map[string]view.AlertView
+	readyErr error
+	calls    []Call
+	// Err, when set, is returned by every method (to test error paths).
+	err error
+}
+
+// Call records one Ack or Resolve.
+type Call struct {
+	Op   string // "ack" or "resolve"
+	ID   string
+	Note string
+	Who  string
+}
+
+var _ view.Source = (*Fake)(nil)
+
+// New returns an empty, ready Fake.
+func New() *Fake {
+	return &Fake{
+		models: map[string]view.ModelDetail{},
+		fits:   map[string][]view.FitView{},
+		obs:    map[string][]view.ObservationView{},
+		alerts: map[string]view.AlertView{},
+	}
+}
+
+// SetModel adds or replaces a model's picture.
+func (f *Fake) SetModel(d view.ModelDetail) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	f.models[d.Name] = d
+}
+
+// AddFit appends to a model's fit history; a zero ID is assigned.
+func (f *Fake) AddFit(model string, fv view.FitView) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if fv.ID == 0 {
+		fv.ID = int64(len(f.fits[model]) + 1)
+	}
+	f.fits[model] = append(f.fits[model], fv)
+}
+
+// AddObservation appends an accepted row; a zero ID is assigned.
+func (f *Fake) AddObservation(model string, o view.ObservationView) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if o.ID == 0 {
+		o.ID = int64(len(f.obs[model]) + 1)
+	}
+	f.obs[model] = append(f.obs[model], o)
+}
+
+// AddQuarantine appends a quarantined row; a zero ID is assigned.
+func (f *Fake) AddQuarantine(q view.QuarantineView) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if q.ID == 0 {
+		q.ID = int64(len(f.quar) + 1)
+	}
+	f.quar = append(f.quar, q)
+}
+
+// PutAlert adds or replaces an alert.
+func (f *Fake) PutAlert(a view.AlertView) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	f.alerts[a.ID] = a
+}
+
+// SetReady sets what Ready returns.
+func (f *Fake) SetReady(err error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	f.readyErr = err
+}
+
+// FailWith makes every method but Ready return err (nil to stop).
+func (f *Fake) FailWith(err error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	f.err = err
+}
+
+// Calls returns the Ack and Resolve calls made so far.
+func (f *Fake) Calls() []Call {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	return slices.Clone(f.calls)
+}
+
+// Ready implements view.Source.
+func (f *Fake) Ready(ctx context.Context) error {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	return f.readyErr
+}
+
+// Models implements view.Source.
+func (f *Fake) Models(ctx context.Context) ([]view.ModelSummary, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return nil, f.err
+	}
+	out := make([]view.ModelSummary, 0, len(f.models))
+	for _, d := range f.models {
+		s := d.ModelSummary
+		s.OpenAlerts = f.openAlerts(d.Name)
+		s.Fits = int64(max(int(s.Fits), len(f.fits[d.Name])))
+		out = append(out, s)
+	}
+	slices.SortFunc(out, func(a, b view.ModelSummary) int { return cmp.Compare(a.Name, b.Name) })
+	return out, nil
+}
+
+func (f *Fake) openAlerts(model string) int {
+	n := 0
+	for _, a := range f.alerts {
+		if a.Model == model && a.State == view.AlertOpen {
+			n++
+		}
+	}
+	return n
+}
+
+// Model implements view.Source.
+func (f *Fake) Model(ctx context.Context, name string) (view.ModelDetail, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return view.ModelDetail{}, f.err
+	}
+	d, ok := f.models[name]
+	if !ok {
+		return view.ModelDetail{}, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	}
+	d.OpenAlerts = f.openAlerts(name)
+	return d, nil
+}
+
+func page[T any](items []T, id func(T) int64, after int64, limit int) []T {
+	var out []T
+	for _, it := range items {
+		if id(it) <= after {
+			continue
+		}
+		if limit > 0 && len(out) == limit {
+			break
+		}
+		out = append(out, it)
+	}
+	return out
+}
+
+// Fits implements view.Source.
+func (f *Fake) Fits(ctx context.Context, name string, after int64, limit int) ([]view.FitView, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return nil, f.err
+	}
+	if _, ok := f.models[name]; !ok {
+		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	}
+	return page(f.fits[name], func(v view.FitView) int64 { return v.ID }, after, limit), nil
+}
+
+// Observations implements view.Source.
+func (f *Fake) Observations(ctx context.Context, name string, after int64, limit int) ([]view.ObservationView, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return nil, f.err
+	}
+	if _, ok := f.models[name]; !ok {
+		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	}
+	return page(f.obs[name], func(v view.ObservationView) int64 { return v.ID }, after, limit), nil
+}
+
+// Quarantine implements view.Source.
+func (f *Fake) Quarantine(ctx context.Context, model string, after int64, limit int) ([]view.QuarantineView, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return nil, f.err
+	}
+	var sel []view.QuarantineView
+	for _, q := range f.quar {
+		if model == "" || q.Model == model {
+			sel = append(sel, q)
+		}
+	}
+	return page(sel, func(v view.QuarantineView) int64 { return v.ID }, after, limit), nil
+}
+
+// Alerts implements view.Source.
+func (f *Fake) Alerts(ctx context.Context, q view.AlertFilter) ([]view.AlertView, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return nil, f.err
+	}
+	var sel []view.AlertView
+	for _, a := range f.alerts {
+		if (q.State == "" || a.State == q.State) && (q.Model == "" || a.Model == q.Model) && (q.Kind == "" || a.Kind == q.Kind) {
+			sel = append(sel, a)
+		}
+	}
+	slices.SortFunc(sel, func(a, b view.AlertView) int {
+		if c := b.LastSeen.Compare(a.LastSeen); c != 0 {
+			return c
+		}
+		return cmp.Compare(a.ID, b.ID)
+	})
+	if q.Offset > 0 {
+		if q.Offset >= len(sel) {
+			return nil, nil
+		}
+		sel = sel[q.Offset:]
+	}
+	if q.Limit > 0 && len(sel) > q.Limit {
+		sel = sel[:q.Limit]
+	}
+	return sel, nil
+}
+
+// Alert implements view.Source.
+func (f *Fake) Alert(ctx context.Context, id string) (view.AlertView, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return view.AlertView{}, f.err
+	}
+	a, ok := f.alerts[id]
+	if !ok {
+		return view.AlertView{}, fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+	}
+	return a, nil
+}
+
+// Ack implements view.Source.
+func (f *Fake) Ack(ctx context.Context, id, note, who string) error {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return f.err
+	}
+	f.calls = append(f.calls, Call{Op: "ack", ID: id, Note: note, Who: who})
+	a, ok := f.alerts[id]
+	if !ok {
+		return fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+	}
+	if a.State != view.AlertOpen {
+		return fmt.Errorf("acknowledge alert %q (%s): %w", id, a.State, view.ErrState)
+	}
+	a.State, a.Note, a.By = view.AlertAcknowledged, note, who
+	f.alerts[id] = a
+	return nil
+}
+
+// Resolve implements view.Source.
+func (f *Fake) Resolve(ctx context.Context, id, note string) error {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return f.err
+	}
+	f.calls = append(f.calls, Call{Op: "resolve", ID: id, Note: note})
+	a, ok := f.alerts[id]
+	if !ok {
+		return fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+	}
+	if a.State == view.AlertResolved {
+		return fmt.Errorf("resolve alert %q: %w", id, view.ErrState)
+	}
+	a.State, a.Note = view.AlertResolved, note
+	a.LastSeen = a.LastSeen.Add(time.Second)
+	f.alerts[id] = a
+	return nil
+}
