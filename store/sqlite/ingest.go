@@ -1,0 +1,433 @@
+package sqlite
+
+import (
+	"context"
+	"database/sql"
+	"errors"
+	"fmt"
+	"strings"
+
+	"plumb/store"
+)
+
+// obsCols are the columns written per observation, in bind order.
+const obsCols = "id, model_id, source_id, generation, line, raw, vals, t, arrived_at, " +
+	"leverage, residual, student_int, student_ext, cooks, dffits, dfbetas, covratio, outlier_p, verdict, flags"
+
+const nObsCols = 20
+
+// obsChunks are the row counts of the prepared multi-row INSERTs; a batch
+// is written greedily with the largest that fits.
+var obsChunks = [...]int{128, 32, 8, 1}
+
+type ingestStmts struct {
+	insertObs [len(obsChunks)]*sql.Stmt
+}
+
+func (s *ingestStmts) close() {
+	for _, st := range s.insertObs {
+		if st != nil {
+			st.Close()
+		}
+	}
+}
+
+func (db *DB) ingestStatements() (*ingestStmts, error) {
+	db.stmtOnce.Do(func() {
+		s := &ingestStmts{}
+		one := "(" + strings.TrimSuffix(strings.Repeat("?,", nObsCols), ",") + ")"
+		for i, n := range obsChunks {
+			q := "INSERT INTO observations (" + obsCols + ") VALUES " +
+				strings.TrimSuffix(strings.Repeat(one+",", n), ",")
+			st, err := db.db.PrepareContext(context.Background(), q)
+			if err != nil {
+				s.close()
+				db.stmtErr = err
+				return
+			}
+			s.insertObs[i] = st
+		}
+		db.stmts = s
+	})
+	return db.stmts, db.stmtErr
+}
+
+// Ingest commits the batch's observations, its quarantined rows and the
+// source's new read state in one IMMEDIATE transaction.
+//
+// The stored Rows and Quarantined counts of the source are maintained by
+// the store (the stored counts plus this batch's); the values in b.Source
+// are ignored. Observations and quarantined rows may leave Model, Path and
+// Generation zero, which means those of b.Source; any other value is an
+// error. A batch whose generation is lower than the stored one, or equal
+// with an offset that does not advance, stores nothing and returns an
+// error wrapping store.ErrStale.
+func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
+	src := b.Source
+	fail := func(err error) ([]int64, error) {
+		return nil, fmt.Errorf("store: ingest %s/%s: %w", src.Model, src.Path, err)
+	}
+	if src.Model == "" || src.Path == "" {
+		return fail(errors.New("source needs a model and a path"))
+	}
+	updatedAt := src.UpdatedAt
+	if updatedAt.IsZero() {
+		updatedAt = db.now()
+	}
+	updated, err := encTime(updatedAt)
+	if err != nil {
+		return fail(fmt.Errorf("source updated at: %w", err))
+	}
+
+	// Encode outside the write lock; ids are filled in inside.
+	args := make([]any, len(b.Observations)*nObsCols)
+	for i := range b.Observations {
+		o := &b.Observations[i]
+		if err := checkProvenance(src, o.Model, o.Path, o.Generation); err != nil {
+			return fail(fmt.Errorf("observation line %d: %w", o.Line, err))
+		}
+		a := args[i*nObsCols : (i+1)*nObsCols]
+		a[3] = int64(src.Generation)
+		a[4] = int64(o.Line)
+		a[5] = o.Raw
+		a[6] = encFloats(o.Values)
+		if a[7], err = encTime(o.Time); err != nil {
+			return fail(fmt.Errorf("observation line %d time: %w", o.Line, err))
+		}
+		if a[8], err = encTime(o.ArrivedAt); err != nil {
+			return fail(fmt.Errorf("observation line %d arrived at: %w", o.Line, err))
+		}
+		if d := o.Arrival; d != nil {
+			a[9] = encReal(d.Leverage)
+			a[10] = encReal(d.Residual)
+			a[11] = encReal(d.StudentizedInternal)
+			a[12] = encReal(d.StudentizedExternal)
+			a[13] = encReal(d.CooksDistance)
+			a[14] = encReal(d.DFFITS)
+			a[15] = encFloats(d.DFBETAS)
+			a[16] = encReal(d.COVRATIO)
+			a[17] = encReal(d.OutlierPBonferroni)
+			a[18] = d.Verdict
+			a[19] = d.Flags
+		}
+	}
+	qargs := make([][]any, len(b.Quarantine))
+	for i := range b.Quarantine {
+		q := &b.Quarantine[i]
+		if err := checkProvenance(src, q.Model, q.Path, q.Generation); err != nil {
+			return fail(fmt.Errorf("quarantined line %d: %w", q.Line, err))
+		}
+		at, err := encTime(q.At)
+		if err != nil {
+			return fail(fmt.Errorf("quarantined line %d time: %w", q.Line, err))
+		}
+		qargs[i] = []any{int64(src.Generation), int64(q.Line), int64(q.Column), q.Raw, q.Reason, at}
+	}
+
+	stmts, err := db.ingestStatements()
+	if err != nil {
+		return fail(fmt.Errorf("prepare: %w", err))
+	}
+
+	ids := make([]int64, len(b.Observations))
+	var modelID int64
+	var newModel bool
+	err = db.write(ctx, func(tx *sql.Tx) error {
+		var err error
+		modelID, newModel, err = db.ensureModel(ctx, tx, src.Model)
+		if err != nil {
+			return err
+		}
+		var (
+			sid         int64
+			gen, off    int64
+			rows, quar  int64
+			nObs, nQuar = int64(len(b.Observations)), int64(len(b.Quarantine))
+			stateArgs   = []any{int64(src.Generation), encInode(src.Inode), src.Size, src.Offset, int64(src.Line), src.Fingerprint, int64(src.FingerprintLen), src.Header}
+		)
+		err = tx.QueryRowContext(ctx,
+			"SELECT id, generation, read_offset, rows_total, quarantined FROM sources WHERE model_id = ? AND path = ?",
+			modelID, src.Path).Scan(&sid, &gen, &off, &rows, &quar)
+		switch {
+		case errors.Is(err, sql.ErrNoRows):
+			res, err := tx.ExecContext(ctx, `INSERT INTO sources (model_id, path, generation, inode, size, read_offset, line,
+				fingerprint, fingerprint_len, header, rows_total, quarantined, updated_at)
+				VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`,
+				append(append([]any{modelID, src.Path}, stateArgs...), nObs, nQuar, updated)...)
+			if err != nil {
+				return err
+			}
+			if sid, err = res.LastInsertId(); err != nil {
+				return err
+			}
+		case err != nil:
+			return err
+		default:
+			g := int64(src.Generation)
+			if g < gen || (g == gen && src.Offset <= off) {
+				return fmt.Errorf("generation %d offset %d, stored generation %d offset %d: %w",
+					src.Generation, src.Offset, gen, off, store.ErrStale)
+			}
+			if _, err := tx.ExecContext(ctx, `UPDATE sources SET generation = ?, inode = ?, size = ?, read_offset = ?, line = ?,
+				fingerprint = ?, fingerprint_len = ?, header = ?, rows_total = ?, quarantined = ?, updated_at = ?
+				WHERE id = ?`,
+				append(stateArgs, rows+nObs, quar+nQuar, updated, sid)...); err != nil {
+				return err
+			}
+		}
+
+		if len(ids) > 0 {
+			var base int64
+			if err := tx.QueryRowContext(ctx, "SELECT COALESCE(MAX(id), 0) FROM observations").Scan(&base); err != nil {
+				return err
+			}
+			for i := range ids {
+				ids[i] = base + 1 + int64(i)
+				a := args[i*nObsCols:]
+				a[0], a[1], a[2] = ids[i], modelID, sid
+			}
+			if err := insertChunks(ctx, tx, stmts, args); err != nil {
+				return err
+			}
+		}
+		if len(qargs) > 0 {
+			st, err := tx.PrepareContext(ctx, `INSERT INTO quarantine (model_id, source_id, generation, line, col, raw, reason, at)
+				VALUES (?, ?, ?, ?, ?, ?, ?, ?)`)
+			if err != nil {
+				return err
+			}
+			defer st.Close()
+			for _, q := range qargs {
+				if _, err := st.ExecContext(ctx, append([]any{modelID, sid}, q...)...); err != nil {
+					return err
+				}
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return fail(err)
+	}
+	if newModel {
+		db.cacheModelID(src.Model, modelID)
+	}
+	return ids, nil
+}
+
+// insertChunks writes the observation rows in args with the prepared
+// multi-row statements, largest first.
+func insertChunks(ctx context.Context, tx *sql.Tx, stmts *ingestStmts, args []any) error {
+	rows := len(args) / nObsCols
+	for k, n := range obsChunks {
+		if rows < n {
+			continue
+		}
+		st := tx.StmtContext(ctx, stmts.insertObs[k])
+		for rows >= n {
+			if _, err := st.ExecContext(ctx, args[:n*nObsCols]...); err != nil {
+				if strings.Contains(err.Error(), "UNIQUE") {
+					return fmt.Errorf("observation already stored (same file, generation and line): %w", err)
+				}
+				return err
+			}
+			args = args[n*nObsCols:]
+			rows -= n
+		}
+	}
+	return nil
+}
+
+// checkProvenance accepts the zero value (meaning: the batch's source) or
+// the source's own model, path and generation.
+func checkProvenance(src store.Source, model, path string, gen int) error {
+	if model != "" && model != src.Model {
+		return fmt.Errorf("model %q differs from the batch's %q", model, src.Model)
+	}
+	if path != "" && path != src.Path {
+		return fmt.Errorf("path %q differs from the batch's %q", path, src.Path)
+	}
+	if gen != 0 && gen != src.Generation {
+		return fmt.Errorf("generation %d differs from the batch's %d", gen, src.Generation)
+	}
+	return nil
+}
+
+// Sources returns the read state of every file the model has read, by path.
+func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error) {
+	rows, err := db.db.QueryContext(ctx, `SELECT s.path, s.generation, s.inode, s.size, s.read_offset, s.line,
+		s.fingerprint, s.fingerprint_len, s.header, s.rows_total, s.quarantined, s.updated_at
+		FROM sources s JOIN models m ON m.id = s.model_id WHERE m.name = ? ORDER BY s.path`, model)
+	if err != nil {
+		return nil, fmt.Errorf("store: sources %s: %w", model, err)
+	}
+	defer rows.Close()
+	var out []store.Source
+	for rows.Next() {
+		s := store.Source{Model: model}
+		var inode int64
+		var updated sql.NullInt64
+		if err := rows.Scan(&s.Path, &s.Generation, &inode, &s.Size, &s.Offset, &s.Line,
+			&s.Fingerprint, &s.FingerprintLen, &s.Header, &s.Rows, &s.Quarantined, &updated); err != nil {
+			return nil, fmt.Errorf("store: sources %s: %w", model, err)
+		}
+		s.Inode = decInode(inode)
+		s.UpdatedAt = decTime(updated)
+		out = append(out, s)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("store: sources %s: %w", model, err)
+	}
+	return out, nil
+}
+
+// obsSelect reads the columns scanObs expects.
+const obsSelect = `SELECT id, source_id, generation, line, raw, vals, t, arrived_at,
+	leverage, residual, student_int, student_ext, cooks, dffits, dfbetas, covratio, outlier_p, verdict, flags
+	FROM observations `
+
+type scanner interface{ Scan(dest ...any) error }
+
+func scanObs(sc scanner, o *store.Observation, sourceID *int64) error {
+	var (
+		vals, dfb                 []byte
+		t, arrived                sql.NullInt64
+		lev, res, si, se, ck, dff sql.NullFloat64
+		cov, outp                 sql.NullFloat64
+		verdict, flags            sql.NullString
+	)
+	if err := sc.Scan(&o.ID, sourceID, &o.Generation, &o.Line, &o.Raw, &vals, &t, &arrived,
+		&lev, &res, &si, &se, &ck, &dff, &dfb, &cov, &outp, &verdict, &flags); err != nil {
+		return err
+	}
+	var err error
+	if o.Values, err = decFloats(vals); err != nil {
+		return fmt.Errorf("observation %d values: %w", o.ID, err)
+	}
+	o.Time = decTime(t)
+	o.ArrivedAt = decTime(arrived)
+	o.Arrival = nil
+	if verdict.Valid {
+		d := &store.Diagnostics{
+			Leverage:            decReal(lev),
+			Residual:            decReal(res),
+			StudentizedInternal: decReal(si),
+			StudentizedExternal: decReal(se),
+			CooksDistance:       decReal(ck),
+			DFFITS:              decReal(dff),
+			COVRATIO:            decReal(cov),
+			OutlierPBonferroni:  decReal(outp),
+			Verdict:             verdict.String,
+			Flags:               flags.String,
+		}
+		if d.DFBETAS, err = decFloats(dfb); err != nil {
+			return fmt.Errorf("observation %d DFBETAS: %w", o.ID, err)
+		}
+		o.Arrival = d
+	}
+	return nil
+}
+
+// sourcePaths maps the model's source ids to their paths.
+func (db *DB) sourcePaths(ctx context.Context, modelID int64) (map[int64]string, error) {
+	rows, err := db.db.QueryContext(ctx, "SELECT id, path FROM sources WHERE model_id = ?", modelID)
+	if err != nil {
+		return nil, err
+	}
+	defer rows.Close()
+	m := make(map[int64]string)
+	for rows.Next() {
+		var id int64
+		var p string
+		if err := rows.Scan(&id, &p); err != nil {
+			return nil, err
+		}
+		m[id] = p
+	}
+	return m, rows.Err()
+}
+
+// Observations returns the model's observations in ascending id order,
+// after q.AfterID, at most q.Limit (<= 0: all), of one file when q.Path is
+// set. An unknown model or path gives an empty result.
+func (db *DB) Observations(ctx context.Context, model string, q store.ObsQuery) ([]store.Observation, error) {
+	out, err := db.observations(ctx, model, q)
+	if err != nil {
+		return nil, fmt.Errorf("store: observations %s: %w", model, err)
+	}
+	return out, nil
+}
+
+func (db *DB) observations(ctx context.Context, model string, q store.ObsQuery) ([]store.Observation, error) {
+	mid, ok, err := db.lookupModel(ctx, db.db, model)
+	if err != nil || !ok {
+		return nil, err
+	}
+	paths, err := db.sourcePaths(ctx, mid)
+	if err != nil {
+		return nil, err
+	}
+	limit := int64(q.Limit)
+	if limit <= 0 {
+		limit = -1
+	}
+	var rows *sql.Rows
+	if q.Path == "" {
+		rows, err = db.db.QueryContext(ctx, obsSelect+"WHERE model_id = ? AND id > ? ORDER BY id LIMIT ?", mid, q.AfterID, limit)
+	} else {
+		sid := int64(-1)
+		for id, p := range paths {
+			if p == q.Path {
+				sid = id
+			}
+		}
+		if sid < 0 {
+			return nil, nil
+		}
+		rows, err = db.db.QueryContext(ctx, obsSelect+"WHERE model_id = ? AND id > ? AND source_id = ? ORDER BY id LIMIT ?",
+			mid, q.AfterID, sid, limit)
+	}
+	if err != nil {
+		return nil, err
+	}
+	defer rows.Close()
+	var out []store.Observation
+	for rows.Next() {
+		o := store.Observation{Model: model}
+		var sid int64
+		if err := scanObs(rows, &o, &sid); err != nil {
+			return nil, err
+		}
+		o.Path = paths[sid]
+		out = append(out, o)
+	}
+	return out, rows.Err()
+}
+
+// ObservationAt returns the observation at the file's line in its newest
+// generation holding that line, or an error wrapping store.ErrNotFound.
+func (db *DB) ObservationAt(ctx context.Context, model, path string, line int) (store.Observation, error) {
+	o := store.Observation{Model: model, Path: path}
+	var sid int64
+	row := db.db.QueryRowContext(ctx, obsSelect+`WHERE source_id = (SELECT s.id FROM sources s JOIN models m ON m.id = s.model_id
+		WHERE m.name = ? AND s.path = ?) AND line = ? ORDER BY generation DESC LIMIT 1`, model, path, line)
+	err := scanObs(row, &o, &sid)
+	if errors.Is(err, sql.ErrNoRows) {
+		return store.Observation{}, fmt.Errorf("store: observation %s/%s:%d: %w", model, path, line, store.ErrNotFound)
+	}
+	if err != nil {
+		return store.Observation{}, fmt.Errorf("store: observation %s/%s:%d: %w", model, path, line, err)
+	}
+	return o, nil
+}
+
+// CountObservations returns how many observations the model holds (0 for
+// an unknown model).
+func (db *DB) CountObservations(ctx context.Context, model string) (int64, error) {
+	var n int64
+	err := db.db.QueryRowContext(ctx, `SELECT COALESCE(SUM(s.rows_total), 0) FROM sources s JOIN models m ON m.id = s.model_id
+		WHERE m.name = ?`, model).Scan(&n)
+	if err != nil {
+		return 0, fmt.Errorf("store: count observations %s: %w", model, err)
+	}
+	return n, nil
+}
