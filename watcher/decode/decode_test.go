@@ -92,7 +92,7 @@ func TestFeed(t *testing.T) {
 		{name: "embedded delimiter", num: []string{"a"}, text: []string{"t"}, in: "t,a\n\"x,y\",1\n",
 			want: []wantRec{{line: 2, values: []float64{1}, text: []string{"x,y"}}}},
 		{name: "decimal comma", dialect: Dialect{Delimiter: ';', DecimalComma: true}, num: []string{"a", "b"},
-			in: "a;b\n3,14;-2\n1.5;2\n",
+			in:   "a;b\n3,14;-2\n1.5;2\n",
 			want: []wantRec{{line: 2, values: []float64{3.14, -2}}, {line: 3, err: ErrNotNumber, errPos: [2]int{3, 1}}}},
 		{name: "trimmed header names", num: []string{" emf_mv"}, in: " t , emf_mv \n1, 2.5 \n",
 			want: []wantRec{{line: 2, values: []float64{2.5}}}},
