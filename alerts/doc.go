@@ -1,0 +1,72 @@
+// Package alerts decides when plumb tells someone about a model, keeps one
+// alert per thing worth telling, and delivers its events through an outbox.
+//
+// # The model
+//
+// The daemon reports conditions; the Manager decides. A condition is what
+// the daemon saw after a row arrived or a refit ran:
+//
+//	mgr.Point(ctx, alerts.PointCondition{Model: "bench-b", File: "feed.csv", Line: 212, ...})
+//	mgr.Fragility(ctx, alerts.FragilityCondition{Model: "bench-b", Index: 1, ...})
+//	mgr.Drift(ctx, alerts.DriftCondition{Model: "bench-b", Measures: ...})
+//	mgr.Blocked(ctx, alerts.BlockedCondition{Model: "bench-b", Blocked: true, Reason: "..."})
+//	mgr.Activity(ctx, "bench-b", arrivedAt)   // the feed is alive
+//	mgr.Tick(ctx, now)                        // silence and reminders
+//
+// Each call is judged against the Rules for the alert's kind:
+//
+//	suspect_point  a new row that is an outlier (Bonferroni test, or Grubbs
+//	               when configured) and influential (Cook's distance or
+//	               DFFITS beyond its cutoff); either alone raises nothing
+//	fragile_fit    the fragility index is at or below the configured limit
+//	drift          a coefficient or checkpoint prediction has moved more than
+//	               k standard errors, or a tolerance in units, from baseline
+//	blocked        the model cannot be fitted, or its feed has been silent
+//	               longer than the configured time
+//
+// # One alert per thing
+//
+// An alert is identified by (model, kind, subject). Its id is deterministic:
+// a readable kind prefix and the first 16 hex digits of a SHA-256 over the
+// three, for instance "sp-5a1f0c2e9b7d3a41". A condition that repeats
+// updates the alert (count, last seen) and sends nothing. The alert's life:
+//
+//	(none) --condition--> open --Ack--> acknowledged
+//	open, acknowledged --condition clears or Resolve--> resolved
+//	resolved --condition again--> open (same id, notified again)
+//
+// An open alert is re-notified (event "reminder") only by Tick and only
+// when its rule's Renotify interval has passed since the last notification.
+// Acknowledged alerts are not re-notified.
+//
+// # Delivery
+//
+// Every notification becomes one outbound event per selected route. The
+// Manager writes the alert and its events in one Ledger.PutAlert call, the
+// outbox pattern: an event is either stored with the alert or not at all.
+// A Dispatcher polls due deliveries and sends them through Routes (log,
+// file, webhook, command), with a per-route token-bucket rate limit,
+// exponential backoff with jitter, a bounded number of attempts and then a
+// dead-letter state visible through Ledger.Deliveries(ctx, DeliveryDead, n).
+//
+// Delivery is at least once. Each event is a CloudEvents 1.0 event in
+// structured JSON mode. Its id is the alert id, "-", and the alert's event
+// sequence number (1, 2, ...): the idempotency key a receiver dedupes on; a
+// retried event carries the same id and the same bytes. The extension
+// attribute "plumbalertid" carries the alert id alone, so a receiver can
+// group all events of one alert. The webhook route also sends the event id
+// in an Idempotency-Key header and, when a secret is configured, signs the
+// body (see Sign and VerifySignature).
+//
+// # Caution
+//
+// plumb flags; it alters no data. Every alert document carries the caution
+// line Caution: the decision to keep, correct, re-measure or exclude a
+// value belongs to qualified staff under local quality procedures.
+//
+// # Storage
+//
+// Ledger mirrors the alert part of plumb's store one-to-one, so the daemon
+// adapts the store with plain field copies; alerts and store never import
+// each other.
+package alerts

@@ -1,0 +1,475 @@
+package alerts
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"sort"
+	"sync"
+	"time"
+)
+
+// ErrNotOpen is returned (wrapped) by Ack and Resolve for an alert that is
+// already resolved.
+var ErrNotOpen = errors.New("alerts: alert is resolved")
+
+// Config configures a Manager.
+type Config struct {
+	// Rules apply to every model without an entry in ModelRules.
+	Rules      Rules
+	ModelRules map[string]Rules
+	// Routes are the configured routes (only their names and filters are
+	// used here; the Dispatcher sends). ModelRoutes names a model's own
+	// routes; a model without an entry uses every route.
+	Routes      []RouteConfig
+	ModelRoutes map[string][]string
+	// Host, when set, goes into the event source ("plumb://<host>/<model>").
+	Host string
+	// DataSchema is the dataschema attribute; "" means SchemaID.
+	DataSchema string
+	// Now is the clock; nil means time.Now.
+	Now func() time.Time
+	// OnEnqueue, when set, is called after events were stored (for
+	// instance Dispatcher.Wake). It must not block.
+	OnEnqueue func()
+}
+
+// Manager applies the rules to reported conditions and keeps the alerts'
+// lifecycle. It is safe for use by multiple goroutines; calls are
+// serialised. Every change of an alert must go through its Manager (it
+// caches the open alerts).
+type Manager struct {
+	ledger Ledger
+	cfg    Config
+
+	mu       sync.Mutex
+	loaded   bool
+	open     map[string]string // id -> doc of every alert not resolved
+	lastData map[string]time.Time
+}
+
+// NewManager validates the configuration and returns a Manager. It does not
+// touch the ledger; the open alerts are loaded on first use.
+func NewManager(l Ledger, c Config) (*Manager, error) {
+	if l == nil {
+		panic("alerts: NewManager with nil Ledger")
+	}
+	if err := c.Rules.Validate(); err != nil {
+		return nil, err
+	}
+	for model, r := range c.ModelRules {
+		if err := r.Validate(); err != nil {
+			var ce *ConfigError
+			if errors.As(err, &ce) {
+				ce.Section = fmt.Sprintf("model %q %s", model, ce.Section)
+			}
+			return nil, err
+		}
+	}
+	if err := ValidateRoutes(c.Routes); err != nil {
+		return nil, err
+	}
+	for model, names := range c.ModelRoutes {
+		for _, n := range names {
+			found := false
+			for _, r := range c.Routes {
+				found = found || r.Name == n
+			}
+			if !found {
+				return nil, cfgErr(fmt.Sprintf("model %q", model), "routes", ErrInvalid, "no route is named %q", n)
+			}
+		}
+	}
+	if c.DataSchema == "" {
+		c.DataSchema = SchemaID
+	}
+	if c.Now == nil {
+		c.Now = time.Now
+	}
+	return &Manager{ledger: l, cfg: c, open: make(map[string]string), lastData: make(map[string]time.Time)}, nil
+}
+
+func (m *Manager) rules(model string) Rules {
+	if r, ok := m.cfg.ModelRules[model]; ok {
+		return r
+	}
+	return m.cfg.Rules
+}
+
+// load reads every alert that is not resolved into the cache, once.
+func (m *Manager) load(ctx context.Context) error {
+	if m.loaded {
+		return nil
+	}
+	const page = 500
+	for _, st := range []State{StateOpen, StateAcknowledged} {
+		for off := 0; ; off += page {
+			recs, err := m.ledger.Alerts(ctx, AlertQuery{State: string(st), Limit: page, Offset: off})
+			if err != nil {
+				return fmt.Errorf("alerts: load %s alerts: %w", st, err)
+			}
+			for _, r := range recs {
+				if State(r.State) != StateResolved {
+					m.open[r.ID] = r.Doc
+				}
+			}
+			if len(recs) < page {
+				break
+			}
+		}
+	}
+	m.loaded = true
+	return nil
+}
+
+// find returns the alert with the id: from the cache of unresolved alerts,
+// or (when ask is set) from the ledger by (model, kind, subject). It
+// returns nil when there is none.
+func (m *Manager) find(ctx context.Context, id, model string, kind Kind, subject string, ask bool) (*Alert, error) {
+	if doc, ok := m.open[id]; ok {
+		return decodeDoc(id, doc)
+	}
+	if !ask {
+		return nil, nil
+	}
+	recs, err := m.ledger.Alerts(ctx, AlertQuery{Model: model, Kind: string(kind), Subject: subject, Limit: 1})
+	if err != nil {
+		return nil, fmt.Errorf("alerts: look up %s: %w", id, err)
+	}
+	for _, r := range recs {
+		if r.ID == id {
+			return decodeDoc(id, r.Doc)
+		}
+	}
+	return nil, nil
+}
+
+func decodeDoc(id, doc string) (*Alert, error) {
+	a, err := DecodeAlert([]byte(doc))
+	if err != nil {
+		return nil, fmt.Errorf("alerts: alert %s: stored document: %w", id, err)
+	}
+	return a, nil
+}
+
+// change is one condition report, ready to apply.
+type change struct {
+	model   string
+	kind    Kind
+	subject string
+	active  bool
+	// fill writes the condition's detail into a (on open, reopen, update).
+	fill func(a *Alert)
+	// note says why the condition cleared (on auto-resolve).
+	note string
+}
+
+// apply runs the lifecycle for one report and returns the alert as stored
+// (nil when there is none).
+func (m *Manager) apply(ctx context.Context, now time.Time, c change) (*Alert, error) {
+	if err := m.load(ctx); err != nil {
+		return nil, err
+	}
+	rule := m.rules(c.model).rule(c.kind)
+	id := ID(c.model, c.kind, c.subject)
+	a, err := m.find(ctx, id, c.model, c.kind, c.subject, c.active && rule.Enabled)
+	if err != nil {
+		return nil, err
+	}
+	if !c.active {
+		if a == nil || a.State == StateResolved {
+			return a, nil
+		}
+		a.State = StateResolved
+		a.Resolution = &ResolutionInfo{At: now, Auto: true, Note: c.note}
+		a.Summary = "Resolved: " + a.Summary
+		return a, m.put(ctx, now, a, Resolved)
+	}
+	if !rule.Enabled {
+		return a, nil
+	}
+	var t Transition
+	switch {
+	case a == nil:
+		a = &Alert{ID: id, Model: c.model, Kind: c.kind, Subject: c.subject, State: StateOpen,
+			FirstSeen: now, LastSeen: now, Count: 1}
+		t = Opened
+	case a.State == StateResolved:
+		a.State, a.Ack, a.Resolution = StateOpen, nil, nil
+		a.Count++
+		a.LastSeen = now
+		t = Reopened
+	default:
+		a.Count++
+		a.LastSeen = now
+	}
+	a.Severity = rule.Severity
+	a.Caution = Caution
+	c.fill(a)
+	if a.Measures == nil {
+		a.Measures = []Measure{}
+	}
+	return a, m.put(ctx, now, a, t)
+}
+
+// put stores the alert and, when t is set, its next event for every route
+// that takes it.
+func (m *Manager) put(ctx context.Context, now time.Time, a *Alert, t Transition) error {
+	var ds []Delivery
+	if t != "" {
+		a.Sequence++
+		a.Event = t
+		a.NotifiedAt = now
+		payload, err := newEvent(a, m.cfg.Host, m.cfg.DataSchema)
+		if err != nil {
+			return fmt.Errorf("alerts: alert %s: encode event: %w", a.ID, err)
+		}
+		eid := EventID(a.ID, a.Sequence)
+		for _, r := range m.routesFor(a) {
+			ds = append(ds, Delivery{AlertID: a.ID, Route: r, EventID: eid, Payload: payload,
+				State: DeliveryPending, NextAttempt: now, CreatedAt: now, UpdatedAt: now})
+		}
+	}
+	doc, err := json.Marshal(a)
+	if err != nil {
+		return fmt.Errorf("alerts: alert %s: encode: %w", a.ID, err)
+	}
+	rec := AlertRecord{ID: a.ID, Model: a.Model, Kind: string(a.Kind), Subject: a.Subject,
+		Severity: string(a.Severity), State: string(a.State), FirstSeen: a.FirstSeen, LastSeen: a.LastSeen,
+		Doc: string(doc)}
+	if err := m.ledger.PutAlert(ctx, rec, ds); err != nil {
+		return fmt.Errorf("alerts: store alert %s: %w", a.ID, err)
+	}
+	if len(ds) > 0 && m.cfg.OnEnqueue != nil {
+		m.cfg.OnEnqueue()
+	}
+	if a.State == StateResolved {
+		delete(m.open, a.ID)
+	} else {
+		m.open[a.ID] = string(doc)
+	}
+	return nil
+}
+
+// routesFor names the routes that take the alert's events.
+func (m *Manager) routesFor(a *Alert) []string {
+	own, hasOwn := m.cfg.ModelRoutes[a.Model]
+	var names []string
+	for _, r := range m.cfg.Routes {
+		if hasOwn && !contains(own, r.Name) {
+			continue
+		}
+		if r.takes(a.Model, a.Kind, a.Severity) {
+			names = append(names, r.Name)
+		}
+	}
+	return names
+}
+
+// Point reports a newly judged row. It opens (or updates, or reopens) a
+// suspect_point alert when the row is both an outlier and influential under
+// the rule, and resolves the row's alert when it no longer is.
+//
+// Point, Fragility, Drift and Blocked return the alert they opened,
+// updated or resolved, or nil when nothing changed (no alert, or a
+// resolved one whose condition stays clear).
+func (m *Manager) Point(ctx context.Context, c PointCondition) (*Alert, error) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	rule := m.rules(c.Model).SuspectPoint
+	out, infl := rule.suspect(c)
+	return m.apply(ctx, m.cfg.Now(), change{
+		model: c.Model, kind: KindSuspectPoint, subject: PointSubject(c.Model, c.File, c.Line),
+		active: out && infl,
+		note:   "the row is no longer both an outlier and influential under the current fit",
+		fill:   func(a *Alert) { fillPoint(a, c, rule) },
+	})
+}
+
+// Fragility reports a fit's fragility index. The model's fragile_fit alert
+// opens when 1 <= Index <= the rule's Limit and resolves when the index
+// rises above it or no removal changes the conclusion (Index <= 0).
+func (m *Manager) Fragility(ctx context.Context, c FragilityCondition) (*Alert, error) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	rule := m.rules(c.Model).FragileFit
+	active := c.Index >= 1 && c.Index <= rule.Limit
+	note := fmt.Sprintf("the fragility index rose to %d, above the limit %d", c.Index, rule.Limit)
+	if c.Index <= 0 {
+		note = "no removal of a few rows changes the conclusion any more"
+	}
+	return m.apply(ctx, m.cfg.Now(), change{
+		model: c.Model, kind: KindFragileFit, subject: c.Model, active: active, note: note,
+		fill: func(a *Alert) { fillFragility(a, c, rule) },
+	})
+}
+
+// Drift reports a refit compared with the baseline. The model's drift
+// alert opens while any measure is out of its band and resolves when all
+// are back inside.
+func (m *Manager) Drift(ctx context.Context, c DriftCondition) (*Alert, error) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	rule := m.rules(c.Model).Drift
+	ms := append([]DriftMeasure(nil), c.Measures...)
+	active := false
+	for i := range ms {
+		rule.band(&ms[i])
+		active = active || !ms[i].InBand
+	}
+	c.Measures = ms
+	return m.apply(ctx, m.cfg.Now(), change{
+		model: c.Model, kind: KindDrift, subject: c.Model, active: active,
+		note: "every compared quantity is back inside its band",
+		fill: func(a *Alert) { fillDrift(a, c, rule) },
+	})
+}
+
+// Blocked reports whether a model can be fitted.
+func (m *Manager) Blocked(ctx context.Context, c BlockedCondition) (*Alert, error) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	if c.Cause == "" {
+		c.Cause = CauseNotFittable
+	}
+	return m.apply(ctx, m.cfg.Now(), change{
+		model: c.Model, kind: KindBlocked, subject: c.Model, active: c.Blocked,
+		note: "the model can be fitted again",
+		fill: func(a *Alert) { fillBlocked(a, c) },
+	})
+}
+
+// Activity records that the model's feed delivered a row at the given time
+// (call it per batch, and once at start with the last stored arrival so
+// silence is measured across restarts). It resolves an open silence alert.
+func (m *Manager) Activity(ctx context.Context, model string, at time.Time) error {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	if at.After(m.lastData[model]) {
+		m.lastData[model] = at
+	}
+	_, err := m.apply(ctx, m.cfg.Now(), change{
+		model: model, kind: KindBlocked, subject: SilenceSubject(model), active: false,
+		note: "rows arrive again",
+	})
+	return err
+}
+
+// Tick opens blocked alerts for feeds silent longer than their rule's
+// Silence and sends a reminder for every open alert whose rule's Renotify
+// interval has passed since its last notification. Call it periodically
+// (every minute or so); it does nothing between due times.
+func (m *Manager) Tick(ctx context.Context, now time.Time) error {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	if err := m.load(ctx); err != nil {
+		return err
+	}
+	var errs []error
+	models := make([]string, 0, len(m.lastData))
+	for model := range m.lastData {
+		models = append(models, model)
+	}
+	sort.Strings(models)
+	for _, model := range models {
+		last := m.lastData[model]
+		rule := m.rules(model).Blocked
+		if !rule.Enabled || rule.Silence <= 0 || now.Sub(last) <= rule.Silence {
+			continue
+		}
+		sid := ID(model, KindBlocked, SilenceSubject(model))
+		if _, open := m.open[sid]; open {
+			continue
+		}
+		c := BlockedCondition{Model: model, Blocked: true, Cause: CauseSilent,
+			Reason: fmt.Sprintf("no row for %s (limit %s)", now.Sub(last).Round(time.Second), rule.Silence)}
+		_, err := m.apply(ctx, now, change{model: model, kind: KindBlocked, subject: SilenceSubject(model),
+			active: true, fill: func(a *Alert) { fillSilence(a, c, last, rule.Silence) }})
+		errs = append(errs, err)
+	}
+	ids := make([]string, 0, len(m.open))
+	for id := range m.open {
+		ids = append(ids, id)
+	}
+	sort.Strings(ids)
+	for _, id := range ids {
+		a, err := decodeDoc(id, m.open[id])
+		if err != nil {
+			errs = append(errs, err)
+			continue
+		}
+		every := m.rules(a.Model).rule(a.Kind).Renotify
+		if a.State != StateOpen || every <= 0 || now.Sub(a.NotifiedAt) < every {
+			continue
+		}
+		errs = append(errs, m.put(ctx, now, a, Reminder))
+	}
+	return errors.Join(errs...)
+}
+
+// byID returns an alert by id, from the cache or the ledger.
+func (m *Manager) byID(ctx context.Context, id string) (*Alert, error) {
+	if err := m.load(ctx); err != nil {
+		return nil, err
+	}
+	if doc, ok := m.open[id]; ok {
+		return decodeDoc(id, doc)
+	}
+	rec, err := m.ledger.Alert(ctx, id)
+	if err != nil {
+		return nil, fmt.Errorf("alerts: alert %s: %w", id, err)
+	}
+	return decodeDoc(id, rec.Doc)
+}
+
+// Get returns an alert by id. A missing id gives the ledger's not-found
+// error, wrapped.
+func (m *Manager) Get(ctx context.Context, id string) (*Alert, error) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	return m.byID(ctx, id)
+}
+
+// Ack acknowledges an open alert: who has seen it and is on it. It sends an
+// "acknowledged" event; reminders stop. Acknowledging an acknowledged alert
+// updates the note and sends nothing; a resolved alert gives ErrNotOpen.
+func (m *Manager) Ack(ctx context.Context, id, note, who string) (*Alert, error) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	a, err := m.byID(ctx, id)
+	if err != nil {
+		return nil, err
+	}
+	now := m.cfg.Now()
+	switch a.State {
+	case StateResolved:
+		return a, fmt.Errorf("alerts: acknowledge %s: %w", id, ErrNotOpen)
+	case StateAcknowledged:
+		a.Ack = &AckInfo{By: who, Note: note, At: now}
+		return a, m.put(ctx, now, a, "")
+	}
+	a.State = StateAcknowledged
+	a.Ack = &AckInfo{By: who, Note: note, At: now}
+	return a, m.put(ctx, now, a, Acknowledged)
+}
+
+// Resolve resolves an alert by hand and sends a "resolved" event. If its
+// condition is reported again later, the alert reopens under the same id.
+// A resolved alert gives ErrNotOpen.
+func (m *Manager) Resolve(ctx context.Context, id, note string) (*Alert, error) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	a, err := m.byID(ctx, id)
+	if err != nil {
+		return nil, err
+	}
+	if a.State == StateResolved {
+		return a, fmt.Errorf("alerts: resolve %s: %w", id, ErrNotOpen)
+	}
+	now := m.cfg.Now()
+	a.State = StateResolved
+	a.Resolution = &ResolutionInfo{At: now, Note: note}
+	a.Summary = "Resolved: " + a.Summary
+	return a, m.put(ctx, now, a, Resolved)
+}
