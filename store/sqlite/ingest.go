@@ -20,17 +20,33 @@ const nObsCols = 20
 // is written greedily with the largest that fits.
 var obsChunks = [...]int{128, 32, 8, 1}
 
+// ingestStmts are prepared once per DB (and by database/sql once per
+// pooled connection), then bound to each write transaction.
 type ingestStmts struct {
-	insertObs [len(obsChunks)]*sql.Stmt
+	insertObs                 [len(obsChunks)]*sql.Stmt
+	selSource, insSource      *sql.Stmt
+	updSource, maxObs, insQrn *sql.Stmt
 }
 
 func (s *ingestStmts) close() {
-	for _, st := range s.insertObs {
+	for _, st := range append(s.insertObs[:], s.selSource, s.insSource, s.updSource, s.maxObs, s.insQrn) {
 		if st != nil {
 			st.Close()
 		}
 	}
 }
+
+const (
+	selSourceSQL = "SELECT id, generation, read_offset, rows_total, quarantined FROM sources WHERE model_id = ? AND path = ?"
+	insSourceSQL = `INSERT INTO sources (generation, inode, size, read_offset, line, fingerprint, fingerprint_len, header,
+		rows_total, quarantined, updated_at, model_id, path) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
+	updSourceSQL = `UPDATE sources SET generation = ?, inode = ?, size = ?, read_offset = ?, line = ?,
+		fingerprint = ?, fingerprint_len = ?, header = ?, rows_total = ?, quarantined = ?, updated_at = ?
+		WHERE id = ?`
+	maxObsSQL = "SELECT COALESCE(MAX(id), 0) FROM observations"
+	insQrnSQL = `INSERT INTO quarantine (model_id, source_id, generation, line, col, raw, reason, at)
+		VALUES (?, ?, ?, ?, ?, ?, ?, ?)`
+)
 
 func (db *DB) ingestStatements() (*ingestStmts, error) {
 	db.stmtOnce.Do(func() {
@@ -46,6 +62,19 @@ func (db *DB) ingestStatements() (*ingestStmts, error) {
 				return
 			}
 			s.insertObs[i] = st
+		}
+		for _, p := range []struct {
+			dst **sql.Stmt
+			q   string
+		}{{&s.selSource, selSourceSQL}, {&s.insSource, insSourceSQL}, {&s.updSource, updSourceSQL},
+			{&s.maxObs, maxObsSQL}, {&s.insQrn, insQrnSQL}} {
+			st, err := db.db.PrepareContext(context.Background(), p.q)
+			if err != nil {
+				s.close()
+				db.stmtErr = err
+				return
+			}
+			*p.dst = st
 		}
 		db.stmts = s
 	})
@@ -145,15 +174,11 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 			nObs, nQuar = int64(len(b.Observations)), int64(len(b.Quarantine))
 			stateArgs   = []any{int64(src.Generation), encInode(src.Inode), src.Size, src.Offset, int64(src.Line), src.Fingerprint, int64(src.FingerprintLen), src.Header}
 		)
-		err = tx.QueryRowContext(ctx,
-			"SELECT id, generation, read_offset, rows_total, quarantined FROM sources WHERE model_id = ? AND path = ?",
-			modelID, src.Path).Scan(&sid, &gen, &off, &rows, &quar)
+		err = tx.StmtContext(ctx, stmts.selSource).QueryRowContext(ctx, modelID, src.Path).Scan(&sid, &gen, &off, &rows, &quar)
 		switch {
 		case errors.Is(err, sql.ErrNoRows):
-			res, err := tx.ExecContext(ctx, `INSERT INTO sources (model_id, path, generation, inode, size, read_offset, line,
-				fingerprint, fingerprint_len, header, rows_total, quarantined, updated_at)
-				VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`,
-				append(append([]any{modelID, src.Path}, stateArgs...), nObs, nQuar, updated)...)
+			res, err := tx.StmtContext(ctx, stmts.insSource).ExecContext(ctx,
+				append(stateArgs, nObs, nQuar, updated, modelID, src.Path)...)
 			if err != nil {
 				return err
 			}
@@ -168,9 +193,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 				return fmt.Errorf("generation %d offset %d, stored generation %d offset %d: %w",
 					src.Generation, src.Offset, gen, off, store.ErrStale)
 			}
-			if _, err := tx.ExecContext(ctx, `UPDATE sources SET generation = ?, inode = ?, size = ?, read_offset = ?, line = ?,
-				fingerprint = ?, fingerprint_len = ?, header = ?, rows_total = ?, quarantined = ?, updated_at = ?
-				WHERE id = ?`,
+			if _, err := tx.StmtContext(ctx, stmts.updSource).ExecContext(ctx,
 				append(stateArgs, rows+nObs, quar+nQuar, updated, sid)...); err != nil {
 				return err
 			}
@@ -178,7 +201,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 
 		if len(ids) > 0 {
 			var base int64
-			if err := tx.QueryRowContext(ctx, "SELECT COALESCE(MAX(id), 0) FROM observations").Scan(&base); err != nil {
+			if err := tx.StmtContext(ctx, stmts.maxObs).QueryRowContext(ctx).Scan(&base); err != nil {
 				return err
 			}
 			for i := range ids {
@@ -191,12 +214,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 			}
 		}
 		if len(qargs) > 0 {
-			st, err := tx.PrepareContext(ctx, `INSERT INTO quarantine (model_id, source_id, generation, line, col, raw, reason, at)
-				VALUES (?, ?, ?, ?, ?, ?, ?, ?)`)
-			if err != nil {
-				return err
-			}
-			defer st.Close()
+			st := tx.StmtContext(ctx, stmts.insQrn)
 			for _, q := range qargs {
 				if _, err := st.ExecContext(ctx, append([]any{modelID, sid}, q...)...); err != nil {
 					return err

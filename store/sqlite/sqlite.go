@@ -332,3 +332,7 @@ type queryer interface {
 	QueryRowContext(ctx context.Context, query string, args ...any) *sql.Row
 	QueryContext(ctx context.Context, query string, args ...any) (*sql.Rows, error)
 }
+
+// DB returns the underlying *sql.DB for read-only queries by operators'
+// tools and tests. Writing through it bypasses the store's invariants.
+func (db *DB) DB() *sql.DB { return db.db }
