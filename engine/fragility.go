@@ -1,0 +1,930 @@
+package engine
+
+// Fragility of a fit: the fewest observations whose removal changes a
+// conclusion that users of the fit rely on.
+//
+// # Conclusions
+//
+// A Conclusions value lists what is relied on. Unless it is switched off,
+// that is the sign of each non-intercept coefficient and whether it is
+// significant at Alpha (two-sided t test). A model may add bands (a
+// coefficient must stay within K standard errors of its full-data value)
+// and checkpoints (the prediction at a named point must stay within a
+// tolerance, in the response's units).
+//
+// # Removing rows without refitting
+//
+// For a set S of m rows with design rows X_S, residuals e_S, C = (X'X)^-1
+// and H_SS = X_S C X_S' (m x m), the fit without S is, exactly,
+//
+//	b_(S)     = b - C X_S' (I - H_SS)^-1 e_S
+//	RSS_(S)   = RSS - e_S' (I - H_SS)^-1 e_S
+//	C_(S)     = C + C X_S' (I - H_SS)^-1 X_S C          (Woodbury)
+//	s²_(S)    = RSS_(S) / (n - m - p)
+//
+// so each subset costs O(m p² + m³) after C x_i is known, not a refit.
+// A subset whose removal leaves X_(S) singular (I - H_SS has a pivot below
+// 1e-8 in its Cholesky factor, that is det(X_(S)'X_(S))/det(X'X) =
+// det(I - H_SS) is numerically zero) or leaves n - m <= p rows is
+// skipped: the reduced fit does not exist, so it cannot state a
+// conclusion. Skipped subsets are counted in FragilityResult.Skipped.
+//
+// # Search
+//
+// Sizes m = 1, 2, ..., MaxRemoved are tried in turn and the first size
+// with a breaking subset is the index. For each size the search is
+// exhaustive when the number of subsets C(n, m) fits in what is left of
+// Budget (a count of subsets, so that results do not depend on the
+// machine); otherwise it runs over all m-subsets of the Candidates rows
+// ranked most influential (round robin over the rankings by Cook's
+// distance, leverage, |DFBETAS| of each coefficient and |external
+// studentized residual|), shrinking the candidate list until C(L, m) fits
+// the budget. FragilityResult.Searched says which was done. Within a
+// size, subsets are visited in lexicographic order of their (0-based)
+// rows and the first breaking one is reported; when it breaks several
+// conclusions, the first in the order signs, significance, bands,
+// checkpoints (coefficients in model order) is reported.
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+	"strconv"
+	"strings"
+)
+
+// ErrConclusion marks a Conclusions value that does not fit the model: an
+// unknown term, a checkpoint without a column the model needs, a
+// non-positive K or tolerance, or Alpha outside (0, 1). The error is a
+// *ConclusionError.
+var ErrConclusion = errors.New("engine: invalid conclusion")
+
+// ConclusionError reports an invalid conclusion. Conclusion names it (as
+// in FragilityResult.Conclusion, as far as it can be built); it wraps
+// ErrConclusion, and Err, when set, gives the underlying cause (such as a
+// *DataError from building a checkpoint's design row).
+type ConclusionError struct {
+	Conclusion string
+	Msg        string
+	Err        error
+}
+
+func (e *ConclusionError) Error() string {
+	s := fmt.Sprintf("engine: conclusion %q: %s", e.Conclusion, e.Msg)
+	if e.Err != nil {
+		s += ": " + e.Err.Error()
+	}
+	return s
+}
+
+// Unwrap returns ErrConclusion and the cause.
+func (e *ConclusionError) Unwrap() []error {
+	if e.Err != nil {
+		return []error{ErrConclusion, e.Err}
+	}
+	return []error{ErrConclusion}
+}
+
+// Conclusions lists what users of a fit rely on. The zero value means the
+// defaults: the sign and the significance at 0.05 of every non-intercept
+// coefficient (as DefaultConclusions).
+type Conclusions struct {
+	// Alpha is the level of the two-sided t test of significance;
+	// 0 means 0.05.
+	Alpha float64
+	// Signs and Significance switch on the sign and significance
+	// conclusions for the coefficients named in Terms (all non-intercept
+	// coefficients when Terms is empty). When both are false and there
+	// are no bands or checkpoints, the defaults apply.
+	Signs, Significance bool
+	// Terms restricts Signs and Significance to these coefficient names
+	// (Term.Text, or "intercept").
+	Terms []string
+	// Coefficients are bands: the coefficient must stay within K
+	// full-data standard errors of its full-data estimate.
+	Coefficients []CoefBand
+	// Checkpoints are predictions that must stay within Tolerance of
+	// their full-data value.
+	Checkpoints []Checkpoint
+}
+
+// CoefBand requires coefficient Term to stay within K standard errors
+// (of the full-data fit) of its full-data estimate.
+type CoefBand struct {
+	Term string
+	K    float64
+}
+
+// Checkpoint requires the prediction at At (predictor column values; every
+// column of the model must be given) to stay within Tolerance, in the
+// response's units, of its full-data value. Name, when set, is used in
+// messages instead of the list of values.
+type Checkpoint struct {
+	Name      string
+	At        map[string]float64
+	Tolerance float64
+}
+
+// DefaultConclusions returns the sign and the significance at 0.05 of
+// every non-intercept coefficient.
+func DefaultConclusions() Conclusions {
+	return Conclusions{Alpha: 0.05, Signs: true, Significance: true}
+}
+
+// FragilityOptions tunes Fragility. Zero fields take the defaults.
+type FragilityOptions struct {
+	// MaxRemoved is the largest number of rows removed together
+	// (default 3).
+	MaxRemoved int
+	// Limit: the fit is fragile when its index is at most Limit
+	// (default 2).
+	Limit int
+	// Budget is the most subsets evaluated over all sizes
+	// (default 5,000,000).
+	Budget int
+	// Candidates is the length of the ranked list of rows searched when
+	// a size cannot be searched exhaustively (default 50).
+	Candidates int
+}
+
+// Defaults of FragilityOptions.
+const (
+	DefaultMaxRemoved = 3
+	DefaultLimit      = 2
+	DefaultBudget     = 5_000_000
+	DefaultCandidates = 50
+)
+
+func (o FragilityOptions) withDefaults() FragilityOptions {
+	if o.MaxRemoved <= 0 {
+		o.MaxRemoved = DefaultMaxRemoved
+	}
+	if o.Limit <= 0 {
+		o.Limit = DefaultLimit
+	}
+	if o.Budget <= 0 {
+		o.Budget = DefaultBudget
+	}
+	if o.Candidates <= 0 {
+		o.Candidates = DefaultCandidates
+	}
+	return o
+}
+
+// SearchStep records how one size of removal set was searched.
+type SearchStep struct {
+	Removed    int // m, the size of the removed sets
+	Candidates int // rows the sets were drawn from (N when exhaustive)
+	Exhaustive bool
+	Subsets    int // subsets evaluated (skipped ones included)
+}
+
+// FragilityResult is the outcome of Fragility.
+type FragilityResult struct {
+	// Index is the smallest number of rows whose removal breaks a
+	// conclusion, or 0 when none was found up to MaxRemoved.
+	Index int
+	// Searched is "exhaustive" when every size tried was searched
+	// exhaustively, "top L candidates" when none was, and e.g.
+	// "exhaustive for 1-2 removed, top 50 candidates for 3" otherwise.
+	Searched string
+	// Steps details the search of each size tried.
+	Steps []SearchStep
+	// RemovedRows are the removed rows, 1-based data rows, ascending.
+	RemovedRows []int
+	// Conclusion names what broke: "sign of x", "significance of x at
+	// 0.05", "x within 2 SE" or "prediction at x=48.2 within 0.5".
+	Conclusion string
+	// Kind is "sign", "significance", "band" or "checkpoint"; Term is the
+	// coefficient concerned (empty for a checkpoint).
+	Kind, Term string
+	// Before and After are the coefficient (sign, band), the p-value
+	// (significance) or the prediction (checkpoint) with all rows and
+	// with RemovedRows left out.
+	Before, After float64
+	// Fragile is Index > 0 && Index <= Limit.
+	Fragile bool
+	// MaxRemoved and Limit are the options in force.
+	MaxRemoved, Limit int
+	// Evaluated counts the subsets evaluated, Skipped those whose
+	// removal left no fit (singular design or too few rows).
+	Evaluated, Skipped int
+}
+
+// Fragility returns the fragility index of f under conclusions c: the
+// smallest m (1 <= m <= opt.MaxRemoved) such that removing some m rows
+// breaks a conclusion. Removal is computed as a rank-m downdate of the fit
+// (see the file documentation), never by refitting. inf ranks rows for
+// the non-exhaustive search; when nil it is computed with Diagnose.
+// Errors are *ConclusionError (wrapping ErrConclusion).
+func Fragility(f *Fit, inf *Influence, c Conclusions, opt FragilityOptions) (FragilityResult, error) {
+	opt = opt.withDefaults()
+	checks, err := fgCompile(f, c)
+	if err != nil {
+		return FragilityResult{}, err
+	}
+	s := fgBaseSearch(f)
+	var ranked []int
+	if fgNeedsRanking(f.N, opt) {
+		if inf == nil {
+			inf = Diagnose(f)
+		}
+		ranked = fgRankRows(inf, s.b, opt.Candidates)
+	}
+	return s.searchRanked(checks, ranked, opt), nil
+}
+
+// needsRanking reports whether some size cannot be searched exhaustively.
+func fgNeedsRanking(n int, opt FragilityOptions) bool {
+	left := opt.Budget
+	for m := 1; m <= opt.MaxRemoved; m++ {
+		k := fgBinom(n, m)
+		if k > float64(left) {
+			return true
+		}
+		left -= int(k)
+	}
+	return false
+}
+
+// checkKind enumerates conclusion kinds in reporting order.
+type fragKind int
+
+const (
+	fgKindSign fragKind = iota
+	fgKindSig
+	fgKindBand
+	fgKindCheckpoint
+)
+
+var fragKindNames = [...]string{"sign", "significance", "band", "checkpoint"}
+
+// check is one conclusion, compiled into absolute terms against the
+// full-data fit.
+type fragCheck struct {
+	kind  fragKind
+	j     int       // coefficient index (sign, significance, band)
+	term  string    // coefficient name
+	text  string    // as reported
+	half  float64   // band half-width K*SE, or checkpoint tolerance
+	x0    []float64 // checkpoint design row
+	alpha float64
+}
+
+// compileConclusions validates c against f and lists the checks.
+func fgCompile(f *Fit, c Conclusions) ([]fragCheck, error) {
+	alpha := c.Alpha
+	if alpha == 0 {
+		alpha = 0.05
+	}
+	if !(alpha > 0 && alpha < 1) {
+		return nil, &ConclusionError{Conclusion: "significance", Msg: fmt.Sprintf("alpha %v is not in (0, 1)", c.Alpha)}
+	}
+	if !c.Signs && !c.Significance && len(c.Coefficients) == 0 && len(c.Checkpoints) == 0 {
+		c.Signs, c.Significance = true, true
+	}
+	names := f.Model.Names()
+	index := func(term string) int {
+		for j, nm := range names {
+			if nm == term {
+				return j
+			}
+		}
+		return -1
+	}
+	var sel []int
+	if len(c.Terms) > 0 {
+		for _, t := range c.Terms {
+			j := index(t)
+			if j < 0 {
+				return nil, &ConclusionError{Conclusion: "sign of " + t, Msg: "the model has no such term"}
+			}
+			sel = append(sel, j)
+		}
+		sort.Ints(sel)
+	} else {
+		for j := range names {
+			if f.Model.Intercept && j == 0 {
+				continue
+			}
+			sel = append(sel, j)
+		}
+	}
+	var out []fragCheck
+	if c.Signs {
+		for _, j := range sel {
+			out = append(out, fragCheck{kind: fgKindSign, j: j, term: names[j], text: "sign of " + names[j]})
+		}
+	}
+	if c.Significance {
+		for _, j := range sel {
+			out = append(out, fragCheck{kind: fgKindSig, j: j, term: names[j], alpha: alpha,
+				text: "significance of " + names[j] + " at " + fgNum(alpha)})
+		}
+	}
+	for _, b := range c.Coefficients {
+		text := b.Term + " within " + fgNum(b.K) + " SE"
+		j := index(b.Term)
+		if j < 0 {
+			return nil, &ConclusionError{Conclusion: text, Msg: "the model has no such term"}
+		}
+		if !(b.K > 0) || math.IsInf(b.K, 0) {
+			return nil, &ConclusionError{Conclusion: text, Msg: "K must be positive and finite"}
+		}
+		out = append(out, fragCheck{kind: fgKindBand, j: j, term: names[j], text: text, half: b.K * f.Coef[j].StdError})
+	}
+	cols := f.Model.Columns()
+	for _, cp := range c.Checkpoints {
+		label := cp.Name
+		if label == "" {
+			parts := make([]string, 0, len(cols))
+			for _, col := range cols {
+				if v, ok := cp.At[col]; ok {
+					parts = append(parts, col+"="+fgNum(v))
+				}
+			}
+			label = strings.Join(parts, ", ")
+		}
+		text := "prediction at " + label + " within " + fgNum(cp.Tolerance)
+		if !(cp.Tolerance > 0) || math.IsInf(cp.Tolerance, 0) {
+			return nil, &ConclusionError{Conclusion: text, Msg: "tolerance must be positive and finite"}
+		}
+		for _, col := range cols {
+			if _, ok := cp.At[col]; !ok {
+				return nil, &ConclusionError{Conclusion: text, Msg: fmt.Sprintf("no value for column %q", col)}
+			}
+		}
+		x0 := make([]float64, f.P)
+		if err := f.Model.DesignRow(x0, func(col string) float64 { return cp.At[col] }); err != nil {
+			return nil, &ConclusionError{Conclusion: text, Msg: "cannot build its design row", Err: err}
+		}
+		out = append(out, fragCheck{kind: fgKindCheckpoint, j: -1, text: text, half: cp.Tolerance, x0: x0})
+	}
+	return out, nil
+}
+
+// fmtNum formats a user-given number in its shortest exact form.
+func fgNum(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+
+// searcher holds a fit in the form the downdate needs. It may describe
+// the recorded fit or the fit after hypothetical readings were added on
+// the fitted surface (see Suggest): removable rows are always the
+// recorded rows 0..n-1.
+type fragSearch struct {
+	n, p int
+	rows func(i int) []float64 // design row i
+	e    []float64             // residuals of the recorded rows
+	c    []float64             // (X'X)^-1, p x p row-major
+	b    []float64             // coefficients
+	rss  float64
+	df   int // residual degrees of freedom with nothing removed
+
+	// Baseline the conclusions are held to (the recorded fit's values).
+	base *Fit
+}
+
+func fgBaseSearch(f *Fit) *fragSearch {
+	X := f.X()
+	p := f.P
+	c := make([]float64, p*p)
+	C := f.Unscaled()
+	for j := 0; j < p; j++ {
+		for k := 0; k < p; k++ {
+			c[j*p+k] = C.At(j, k)
+		}
+	}
+	b := make([]float64, p)
+	for j := range b {
+		b[j] = f.Coef[j].Estimate
+	}
+	return &fragSearch{
+		n: f.N, p: p,
+		rows: X.RawRowView,
+		e:    f.Residuals,
+		c:    c, b: b, rss: f.RSS, df: f.N - p,
+		base: f,
+	}
+}
+
+// evaluator evaluates removal sets against compiled checks. It owns its
+// scratch space; one evaluator per goroutine.
+type fragEval struct {
+	s      *fragSearch
+	checks []fragCheck
+	m      int
+
+	// per-check constants
+	center []float64 // full-data value (coefficient or prediction)
+	before []float64 // reported value with nothing removed
+	sig    []bool    // significance baseline
+	tcrit  float64   // t critical value at df - m
+	g      [][]float64
+
+	// row data for the rows in play: u[i] = C x_i, keyed by position
+	// in the pool.
+	pool []int
+	u    [][]float64
+	h    []float64
+
+	// scratch
+	mm, l  []float64 // m x m
+	w, es  []float64 // m
+	db, cs []float64 // p
+	v      []float64 // m
+}
+
+func (s *fragSearch) newEvaluator(checks []fragCheck, pool []int) *fragEval {
+	ev := &fragEval{s: s, checks: checks, pool: pool}
+	p := s.p
+	ev.center = make([]float64, len(checks))
+	ev.sig = make([]bool, len(checks))
+	ev.before = make([]float64, len(checks))
+	ev.g = make([][]float64, len(checks))
+	for k, ch := range checks {
+		switch ch.kind {
+		case fgKindSign, fgKindBand:
+			ev.center[k] = s.base.Coef[ch.j].Estimate
+			ev.before[k] = ev.center[k]
+		case fgKindSig:
+			ev.center[k] = s.base.Coef[ch.j].Estimate
+			se := math.Sqrt(s.rss / float64(s.df) * s.c[ch.j*p+ch.j])
+			ev.before[k] = TTail2(s.b[ch.j]/se, float64(s.df))
+			ev.sig[k] = ev.before[k] < ch.alpha
+		case fgKindCheckpoint:
+			ev.center[k] = fgDot(ch.x0, fgCoefs(s.base))
+			ev.before[k] = ev.center[k]
+			ev.g[k] = make([]float64, len(pool))
+		}
+	}
+	ev.u = make([][]float64, len(pool))
+	ev.h = make([]float64, len(pool))
+	buf := make([]float64, len(pool)*p)
+	for a, i := range pool {
+		ev.u[a] = buf[a*p : (a+1)*p]
+		x := s.rows(i)
+		fgMatVec(ev.u[a], s.c, x, p)
+		ev.h[a] = fgDot(x, ev.u[a])
+		for k, ch := range checks {
+			if ch.kind == fgKindCheckpoint {
+				ev.g[k][a] = fgDot(ch.x0, ev.u[a])
+			}
+		}
+	}
+	return ev
+}
+
+// fgCoefs returns the estimates of f.
+func fgCoefs(f *Fit) []float64 {
+	b := make([]float64, len(f.Coef))
+	for j := range b {
+		b[j] = f.Coef[j].Estimate
+	}
+	return b
+}
+
+// setSize prepares for removal sets of size m.
+func (ev *fragEval) setSize(m int) {
+	ev.m = m
+	ev.mm = make([]float64, m*m)
+	ev.l = make([]float64, m*m)
+	ev.w = make([]float64, m)
+	ev.es = make([]float64, m)
+	ev.v = make([]float64, m)
+	ev.db = make([]float64, ev.s.p)
+	ev.cs = make([]float64, ev.s.p)
+	ev.tcrit = math.NaN()
+	for _, ch := range ev.checks {
+		if ch.kind == fgKindSig {
+			if df := ev.s.df - m; df > 0 {
+				ev.tcrit = TQuantile(1-ch.alpha/2, float64(df))
+			}
+			break
+		}
+	}
+}
+
+// singularPivot is the smallest Cholesky pivot of I - H_SS accepted (see
+// the file documentation).
+const fgSingularPivot = 1e-8
+
+// outcome of one subset.
+const (
+	fgHolds = iota
+	fgBreaks
+	fgSkipped
+)
+
+// eval evaluates removing the pool positions set (length ev.m). On a
+// break it returns the index of the first broken check and its value
+// after removal.
+func (ev *fragEval) eval(set []int) (int, int, float64) {
+	s, m, p := ev.s, ev.m, ev.s.p
+	if s.df-m <= 0 {
+		return fgSkipped, -1, 0
+	}
+	// M = I - H_SS, lower Cholesky factor in l.
+	for a := 0; a < m; a++ {
+		xa := s.rows(ev.pool[set[a]])
+		for b := 0; b <= a; b++ {
+			var v float64
+			if a == b {
+				v = 1 - ev.h[set[a]]
+			} else {
+				v = -fgDot(xa, ev.u[set[b]])
+			}
+			ev.mm[a*m+b] = v
+		}
+		ev.es[a] = s.e[ev.pool[set[a]]]
+	}
+	for a := 0; a < m; a++ {
+		for b := 0; b <= a; b++ {
+			sum := ev.mm[a*m+b]
+			for k := 0; k < b; k++ {
+				sum -= ev.l[a*m+k] * ev.l[b*m+k]
+			}
+			if a == b {
+				if !(sum > fgSingularPivot) {
+					return fgSkipped, -1, 0
+				}
+				ev.l[a*m+a] = math.Sqrt(sum)
+			} else {
+				ev.l[a*m+b] = sum / ev.l[b*m+b]
+			}
+		}
+	}
+	// w = M^-1 e_S via forward (into v) and back substitution.
+	for a := 0; a < m; a++ {
+		sum := ev.es[a]
+		for k := 0; k < a; k++ {
+			sum -= ev.l[a*m+k] * ev.v[k]
+		}
+		ev.v[a] = sum / ev.l[a*m+a]
+	}
+	rss := s.rss - fgDot(ev.v, ev.v) // e'M^-1 e = |L^-1 e|²
+	if rss < 0 {
+		rss = 0
+	}
+	for a := m - 1; a >= 0; a-- {
+		sum := ev.v[a]
+		for k := a + 1; k < m; k++ {
+			sum -= ev.l[k*m+a] * ev.w[k]
+		}
+		ev.w[a] = sum / ev.l[a*m+a]
+	}
+	// Δb = U_S w.
+	for j := 0; j < p; j++ {
+		ev.db[j] = 0
+	}
+	for a := 0; a < m; a++ {
+		u, wa := ev.u[set[a]], ev.w[a]
+		for j := 0; j < p; j++ {
+			ev.db[j] += u[j] * wa
+		}
+	}
+	df := s.df - m
+	s2 := rss / float64(df)
+	for k, ch := range ev.checks {
+		switch ch.kind {
+		case fgKindSign:
+			after := s.b[ch.j] - ev.db[ch.j]
+			if fgSign(after) != fgSign(ev.center[k]) {
+				return fgBreaks, k, after
+			}
+		case fgKindBand:
+			after := s.b[ch.j] - ev.db[ch.j]
+			if math.Abs(after-ev.center[k]) > ch.half {
+				return fgBreaks, k, after
+			}
+		case fgKindSig:
+			after := s.b[ch.j] - ev.db[ch.j]
+			cjj := s.c[ch.j*p+ch.j] + ev.quadU(set, ch.j)
+			t := after / math.Sqrt(s2*cjj)
+			sig := math.Abs(t) > ev.tcrit
+			if sig != ev.sig[k] {
+				pv := TTail2(t, float64(df))
+				// Confirm with the p-value itself at the boundary.
+				if (pv < ch.alpha) != ev.sig[k] {
+					return fgBreaks, k, pv
+				}
+			}
+		case fgKindCheckpoint:
+			var dy float64
+			for a := 0; a < m; a++ {
+				dy += ev.g[k][set[a]] * ev.w[a]
+			}
+			after := fgDot(ch.x0, s.b) - dy
+			if math.Abs(after-ev.center[k]) > ch.half {
+				return fgBreaks, k, after
+			}
+		}
+	}
+	return fgHolds, -1, 0
+}
+
+// quadU returns (U_S M^-1 U_S')_jj = |L^-1 U_S[:, j]|².
+func (ev *fragEval) quadU(set []int, j int) float64 {
+	m := ev.m
+	var q float64
+	for a := 0; a < m; a++ {
+		sum := ev.u[set[a]][j]
+		for k := 0; k < a; k++ {
+			sum -= ev.l[a*m+k] * ev.cs[k]
+		}
+		ev.cs[a] = sum / ev.l[a*m+a]
+		q += ev.cs[a] * ev.cs[a]
+	}
+	return q
+}
+
+func fgSign(v float64) int {
+	switch {
+	case v > 0:
+		return 1
+	case v < 0:
+		return -1
+	}
+	return 0
+}
+
+// searchRanked runs the size-by-size search; ranked (0-based rows, most
+// influential first) is used for sizes that cannot be searched
+// exhaustively, and may be nil when every size can.
+func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt FragilityOptions) FragilityResult {
+	res := FragilityResult{MaxRemoved: opt.MaxRemoved, Limit: opt.Limit}
+	left := opt.Budget
+	all := make([]int, s.n)
+	for i := range all {
+		all[i] = i
+	}
+	var evAll, evTop *fragEval
+	for m := 1; m <= opt.MaxRemoved && m < s.df; m++ {
+		var ev *fragEval
+		step := SearchStep{Removed: m}
+		if k := fgBinom(s.n, m); k <= float64(left) {
+			if evAll == nil {
+				evAll = s.newEvaluator(checks, all)
+			}
+			ev = evAll
+			step.Exhaustive, step.Candidates = true, s.n
+		} else {
+			L := min(len(ranked), opt.Candidates)
+			for L >= m && fgBinom(L, m) > float64(left) {
+				L--
+			}
+			if L < m {
+				break
+			}
+			pool := append([]int(nil), ranked[:L]...)
+			sort.Ints(pool)
+			if evTop == nil || len(evTop.pool) != L {
+				evTop = s.newEvaluator(checks, pool)
+			}
+			ev = evTop
+			step.Candidates = L
+		}
+		ev.setSize(m)
+		set := make([]int, m)
+		for a := range set {
+			set[a] = a
+		}
+		np := len(ev.pool)
+		found := false
+		for {
+			out, k, after := ev.eval(set)
+			step.Subsets++
+			switch out {
+			case fgSkipped:
+				res.Skipped++
+			case fgBreaks:
+				found = true
+				ch := checks[k]
+				res.Index = m
+				res.RemovedRows = make([]int, m)
+				for a := range set {
+					res.RemovedRows[a] = ev.pool[set[a]] + 1
+				}
+				res.Conclusion, res.Kind, res.Term = ch.text, fragKindNames[ch.kind], ch.term
+				res.After = after
+				res.Before = ev.before[k]
+			}
+			if found || !fgNextComb(set, np) {
+				break
+			}
+		}
+		left -= step.Subsets
+		res.Evaluated += step.Subsets
+		res.Steps = append(res.Steps, step)
+		if found {
+			break
+		}
+	}
+	res.Searched = fgDescribe(res.Steps)
+	res.Fragile = res.Index > 0 && res.Index <= res.Limit
+	return res
+}
+
+// nextCombination advances set to the next m-subset of 0..n-1 in
+// lexicographic order; false when set was the last.
+func fgNextComb(set []int, n int) bool {
+	m := len(set)
+	a := m - 1
+	for a >= 0 && set[a] == n-m+a {
+		a--
+	}
+	if a < 0 {
+		return false
+	}
+	set[a]++
+	for b := a + 1; b < m; b++ {
+		set[b] = set[b-1] + 1
+	}
+	return true
+}
+
+// binom returns C(n, k) as a float (exact while below 2^53).
+func fgBinom(n, k int) float64 {
+	if k < 0 || k > n {
+		return 0
+	}
+	r := 1.0
+	for i := 1; i <= k; i++ {
+		r = r * float64(n-k+i) / float64(i)
+	}
+	return math.Round(r)
+}
+
+func fgDescribe(steps []SearchStep) string {
+	if len(steps) == 0 {
+		return "none (too few rows)"
+	}
+	var ex, top []int
+	cands := map[int]bool{}
+	for _, st := range steps {
+		if st.Exhaustive {
+			ex = append(ex, st.Removed)
+		} else {
+			top = append(top, st.Removed)
+			cands[st.Candidates] = true
+		}
+	}
+	if len(top) == 0 {
+		return "exhaustive"
+	}
+	var tops []string
+	if len(cands) == 1 {
+		tops = []string{fmt.Sprintf("top %d candidates", steps[len(steps)-1].Candidates)}
+	} else {
+		for _, st := range steps {
+			if !st.Exhaustive {
+				tops = append(tops, fmt.Sprintf("top %d candidates for %d", st.Candidates, st.Removed))
+			}
+		}
+	}
+	if len(ex) == 0 {
+		return strings.Join(tops, ", ")
+	}
+	exs := fmt.Sprintf("exhaustive for %s removed", fgSpan(ex))
+	if len(cands) == 1 {
+		return exs + ", " + tops[0] + " for " + fgSpan(top)
+	}
+	return exs + ", " + strings.Join(tops, ", ")
+}
+
+func fgSpan(ms []int) string {
+	if len(ms) == 1 {
+		return strconv.Itoa(ms[0])
+	}
+	return fmt.Sprintf("%d-%d", ms[0], ms[len(ms)-1])
+}
+
+// rankRows returns up to k rows (0-based) taken round robin from the
+// rankings by Cook's distance, leverage, |DFBETAS_j| for each coefficient
+// and |external studentized residual|, most influential first. NaN values
+// rank last.
+func fgRankRows(inf *Influence, b []float64, k int) []int {
+	rows := inf.Rows
+	n := len(rows)
+	if k > n {
+		k = n
+	}
+	var keys []func(o *Obs) float64
+	keys = append(keys,
+		func(o *Obs) float64 { return o.Cook },
+		func(o *Obs) float64 { return o.Leverage },
+		func(o *Obs) float64 { return math.Abs(o.StudentExternal) },
+	)
+	for j := range b {
+		keys = append(keys, func(o *Obs) float64 {
+			if j < len(o.DFBETAS) {
+				return math.Abs(o.DFBETAS[j])
+			}
+			return math.NaN()
+		})
+	}
+	lists := make([][]int, len(keys))
+	for q, key := range keys {
+		lists[q] = fgTopK(n, k, func(i int) float64 { return key(&rows[i]) })
+	}
+	out := make([]int, 0, k)
+	seen := make(map[int]bool, k)
+	for pos := 0; len(out) < k; pos++ {
+		progress := false
+		for _, l := range lists {
+			if pos < len(l) {
+				progress = true
+				if i := l[pos]; !seen[i] {
+					seen[i] = true
+					out = append(out, i)
+					if len(out) == k {
+						break
+					}
+				}
+			}
+		}
+		if !progress {
+			break
+		}
+	}
+	return out
+}
+
+// topK returns the indices of the k largest values of val over 0..n-1,
+// largest first (ties by lower index; NaN lowest).
+func fgTopK(n, k int, val func(i int) float64) []int {
+	if k <= 0 {
+		return nil
+	}
+	type item struct {
+		v float64
+		i int
+	}
+	less := func(a, b item) bool { // a ranks below b
+		if a.v != b.v {
+			return a.v < b.v
+		}
+		return a.i > b.i
+	}
+	h := make([]item, 0, k) // min-heap on rank
+	down := func(a int) {
+		for {
+			l := 2*a + 1
+			if l >= len(h) {
+				return
+			}
+			c := l
+			if r := l + 1; r < len(h) && less(h[r], h[l]) {
+				c = r
+			}
+			if !less(h[c], h[a]) {
+				return
+			}
+			h[a], h[c] = h[c], h[a]
+			a = c
+		}
+	}
+	for i := 0; i < n; i++ {
+		v := val(i)
+		if math.IsNaN(v) {
+			v = math.Inf(-1)
+		}
+		it := item{v, i}
+		if len(h) < k {
+			h = append(h, it)
+			for c := len(h) - 1; c > 0; {
+				par := (c - 1) / 2
+				if !less(h[c], h[par]) {
+					break
+				}
+				h[c], h[par] = h[par], h[c]
+				c = par
+			}
+			continue
+		}
+		if less(h[0], it) {
+			h[0] = it
+			down(0)
+		}
+	}
+	sort.Slice(h, func(a, b int) bool { return less(h[b], h[a]) })
+	out := make([]int, len(h))
+	for a, it := range h {
+		out[a] = it.i
+	}
+	return out
+}
+
+func fgDot(a, b []float64) float64 {
+	var s float64
+	for i := range a {
+		s += a[i] * b[i]
+	}
+	return s
+}
+
+// matVec sets dst = A x for a p x p row-major A.
+func fgMatVec(dst, a, x []float64, p int) {
+	for j := 0; j < p; j++ {
+		dst[j] = fgDot(a[j*p:(j+1)*p], x)
+	}
+}

@@ -1,0 +1,670 @@
+package engine
+
+// Where to collect more data.
+//
+// Suggest ranks candidate points of the operating region by what adding
+// readings there would do. Candidates live in the space of the predictor
+// columns (not of the terms): each is turned into a design row z by
+// Model.DesignRow, so x, x^2 and log(x) of one column move together.
+//
+// A new reading is assumed to land on the current fit: its residual is 0,
+// the coefficients and the residual sum of squares do not change, and the
+// residual degrees of freedom grow by one per reading. With C = (X'X)^-1,
+// u = C z and d = z'u = z'(X'X)^-1 z, r readings at z give
+//
+//	det(X'X + r zz') / det(X'X) = 1 + r d            (D-optimal gain)
+//	C_new = C - r u u' / (1 + r d)                   (Sherman-Morrison)
+//	h_i,new = h_i - r (x_i'u)² / (1 + r d)
+//
+// so r readings exactly at a row with leverage h leave it h/(1 + r h).
+// Cook's distance of row i becomes e_i² h_i,new / (p s²_new (1-h_i,new)²)
+// with s²_new = RSS/(n + r - p). The fragility index after the readings
+// is searched as by Fragility, on the downdated fit with the r readings
+// added, removal sets drawn from the recorded rows only; bands and
+// checkpoints keep their full-data centres and widths, and significance
+// is judged against the augmented fit's own verdict.
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"sort"
+	"strconv"
+	"strings"
+)
+
+// ErrRegion marks an operating region that cannot be used: a column of
+// the model missing, a bound that is not finite, or lo > hi. The error is
+// a *RegionError.
+var ErrRegion = errors.New("engine: invalid operating region")
+
+// RegionError reports a problem with one column of a Region. It wraps
+// ErrRegion.
+type RegionError struct {
+	Column string
+	Msg    string
+}
+
+func (e *RegionError) Error() string {
+	return fmt.Sprintf("engine: region, column %q: %s", e.Column, e.Msg)
+}
+
+func (e *RegionError) Unwrap() error { return ErrRegion }
+
+// Region is the operating region: for each predictor column, the closed
+// interval [lo, hi] of values where readings may be taken.
+type Region map[string][2]float64
+
+// RegionOf returns the observed range of each predictor column of m in
+// cols (non-finite values ignored).
+func RegionOf(m Model, cols map[string][]float64) (Region, error) {
+	reg := Region{}
+	for _, c := range m.Columns() {
+		v, ok := cols[c]
+		if !ok {
+			return nil, &RegionError{Column: c, Msg: "column missing from the data"}
+		}
+		lo, hi := math.Inf(1), math.Inf(-1)
+		for _, x := range v {
+			if math.IsNaN(x) || math.IsInf(x, 0) {
+				continue
+			}
+			lo, hi = math.Min(lo, x), math.Max(hi, x)
+		}
+		if lo > hi {
+			return nil, &RegionError{Column: c, Msg: "no finite values"}
+		}
+		reg[c] = [2]float64{lo, hi}
+	}
+	return reg, nil
+}
+
+// ObservedRegion recovers the observed range of each predictor column from
+// the design of f. A column can be recovered when some term is that
+// column alone, its log, or an odd power of either; otherwise the error
+// (a *RegionError) asks for an explicit Region (see RegionOf).
+func ObservedRegion(f *Fit) (Region, error) {
+	X := f.X()
+	off := 0
+	if f.Model.Intercept {
+		off = 1
+	}
+	reg := Region{}
+	for _, c := range f.Model.Columns() {
+		found := false
+		for k, t := range f.Model.Terms {
+			if len(t.Factors) != 1 || t.Factors[0].Column != c || t.Factors[0].Power%2 == 0 {
+				continue
+			}
+			fc := t.Factors[0]
+			lo, hi := math.Inf(1), math.Inf(-1)
+			for i := 0; i < f.N; i++ {
+				v := X.At(i, off+k)
+				if fc.Power != 1 {
+					v = math.Copysign(math.Pow(math.Abs(v), 1/float64(fc.Power)), v)
+				}
+				if fc.Log {
+					v = math.Exp(v)
+				}
+				lo, hi = math.Min(lo, v), math.Max(hi, v)
+			}
+			reg[c] = [2]float64{lo, hi}
+			found = true
+			break
+		}
+		if !found {
+			return nil, &RegionError{Column: c, Msg: "its range cannot be recovered from the terms; pass a Region (RegionOf)"}
+		}
+	}
+	return reg, nil
+}
+
+// Criterion orders candidate points.
+type Criterion int
+
+const (
+	// CriterionAuto uses CriterionInfluence when Judge flagged some row
+	// as influential or as notable by leverage, else CriterionDOptimal.
+	CriterionAuto Criterion = iota
+	// CriterionDOptimal ranks by d(z) = z'(X'X)^-1 z, the sequential
+	// D-optimal rule (largest det(X'X) gain).
+	CriterionDOptimal
+	// CriterionInfluence ranks by the total drop in Cook's distance of the
+	// watched rows (by the drop in their leverage when all their
+	// residuals are zero), ties broken by d(z).
+	CriterionInfluence
+)
+
+// SuggestOptions tunes Suggest. Zero fields take the defaults.
+type SuggestOptions struct {
+	// Replicates is the number r of readings proposed per point
+	// (default 3).
+	Replicates int
+	// MaxReplicates bounds the search for the smallest r that ends the
+	// fragility (default 20).
+	MaxReplicates int
+	// Top is the number of suggestions (default 3).
+	Top int
+	// Grid is the number of grid points per axis for up to three
+	// predictor columns (default 201, 41 and 21 for 1, 2 and 3 columns).
+	Grid int
+	// Points is the size of the space-filling set used beyond three
+	// columns (default 2000): a Halton sequence shifted by Seed
+	// (Cranley-Patterson rotation; Seed 0 leaves it unshifted), plus the
+	// region's corners when there are at most Points/2 of them.
+	Points int
+	Seed   uint64
+	// Separation is the least distance between two suggestions, in
+	// region coordinates scaled to [0, 1] per column (default 0.25).
+	Separation float64
+	// Criterion orders the candidates (default CriterionAuto).
+	Criterion Criterion
+	// Conclusions and Fragility are used for the fragility index.
+	Conclusions Conclusions
+	Fragility   FragilityOptions
+	// Label names a 1-based data row in the text (default "row 212").
+	Label func(row int) string
+}
+
+// RowEffect is the effect of the proposed readings on one watched row
+// (1-based data row).
+type RowEffect struct {
+	Row                           int
+	LeverageBefore, LeverageAfter float64
+	CookBefore, CookAfter         float64
+}
+
+// Effect is what the proposed readings would do.
+type Effect struct {
+	// DetRatio is det(X'X) after the readings over det(X'X) now: 1 + r d.
+	DetRatio float64
+	// Rows are the watched rows: those Judge marked influential or
+	// notable by leverage (at most 10, largest Cook's distance first), or
+	// the three of highest leverage when none was marked.
+	Rows []RowEffect
+	// FragilityBefore and FragilityAfter are the fragility indices now
+	// and after the readings (0: none found up to MaxRemoved);
+	// FragileBefore and FragileAfter say whether each is at most Limit.
+	FragilityBefore, FragilityAfter int
+	FragileBefore, FragileAfter     bool
+	// EndsFragility is the smallest number of readings at this point,
+	// up to MaxReplicates, after which the fit is no longer fragile; 0
+	// when the fit is not fragile now or no such number was found.
+	EndsFragility int
+	// Searched is how the fragility search after the readings was done.
+	Searched string
+}
+
+// Suggestion is one proposed point.
+type Suggestion struct {
+	// At gives the predictor columns' values.
+	At map[string]float64
+	// Replicates is the number of readings proposed there.
+	Replicates int
+	// D is d(z) = z'(X'X)^-1 z, the variance of the fitted value there
+	// in units of sigma²; DGain = 1 + D is the det(X'X) gain of one
+	// reading.
+	D, DGain float64
+	Effect   Effect
+	// Text says it in words, e.g. "add 3 readings near emf_mv = 47.5:
+	// leverage of row 212 falls 0.41 -> 0.17, ...".
+	Text string
+}
+
+// suggestion defaults
+const (
+	DefaultReplicates    = 3
+	DefaultMaxReplicates = 20
+	DefaultTop           = 3
+	DefaultPoints        = 2000
+	DefaultSeparation    = 0.25
+	maxWatched           = 10
+)
+
+// Suggest proposes where in region to take more readings, best first (see
+// the file documentation). inf and v may be nil (then Diagnose and Judge
+// with DefaultCutoffs are used); region nil means ObservedRegion(f).
+// Errors: *RegionError, *ConclusionError.
+func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOptions) ([]Suggestion, error) {
+	if opt.Replicates <= 0 {
+		opt.Replicates = DefaultReplicates
+	}
+	if opt.MaxReplicates <= 0 {
+		opt.MaxReplicates = DefaultMaxReplicates
+	}
+	if opt.Top <= 0 {
+		opt.Top = DefaultTop
+	}
+	if opt.Points <= 0 {
+		opt.Points = DefaultPoints
+	}
+	if opt.Separation <= 0 {
+		opt.Separation = DefaultSeparation
+	}
+	if opt.Label == nil {
+		opt.Label = func(row int) string { return "row " + strconv.Itoa(row) }
+	}
+	fopt := opt.Fragility.withDefaults()
+	checks, err := fgCompile(f, opt.Conclusions)
+	if err != nil {
+		return nil, err
+	}
+	cols := f.Model.Columns()
+	if len(cols) == 0 {
+		return nil, &RegionError{Column: "", Msg: "the model has no predictor columns"}
+	}
+	if region == nil {
+		if region, err = ObservedRegion(f); err != nil {
+			return nil, err
+		}
+	}
+	lo, hi := make([]float64, len(cols)), make([]float64, len(cols))
+	for k, c := range cols {
+		b, ok := region[c]
+		if !ok {
+			return nil, &RegionError{Column: c, Msg: "not in the region"}
+		}
+		if math.IsNaN(b[0]) || math.IsNaN(b[1]) || math.IsInf(b[0], 0) || math.IsInf(b[1], 0) {
+			return nil, &RegionError{Column: c, Msg: "bounds must be finite"}
+		}
+		if b[0] > b[1] {
+			return nil, &RegionError{Column: c, Msg: fmt.Sprintf("lower bound %v above upper bound %v", b[0], b[1])}
+		}
+		lo[k], hi[k] = b[0], b[1]
+	}
+	if inf == nil {
+		inf = Diagnose(f)
+	}
+	if v == nil {
+		v = Judge(inf, DefaultCutoffs())
+	}
+	watched, flagged := sgWatched(inf, v)
+	crit := opt.Criterion
+	if crit == CriterionAuto {
+		crit = CriterionDOptimal
+		if flagged {
+			crit = CriterionInfluence
+		}
+	}
+
+	base := fgBaseSearch(f)
+	p := f.P
+	r := float64(opt.Replicates)
+	s2new := f.RSS / float64(f.N+opt.Replicates-p)
+	var sumCook float64
+	for _, i := range watched {
+		if c := inf.Rows[i].Cook; !math.IsNaN(c) {
+			sumCook += c
+		}
+	}
+
+	// Score every candidate.
+	pts := sgCandidates(lo, hi, opt)
+	colIdx := make(map[string]int, len(cols))
+	for k, c := range cols {
+		colIdx[c] = k
+	}
+	type scored struct {
+		pt         []float64
+		d, primary float64
+	}
+	var cands []scored
+	z := make([]float64, p)
+	u := make([]float64, p)
+	for _, pt := range pts {
+		if err := f.Model.DesignRow(z, func(col string) float64 { return pt[colIdx[col]] }); err != nil {
+			continue // outside the domain of a term (log of a non-positive value)
+		}
+		fgMatVec(u, base.c, z, p)
+		d := fgDot(z, u)
+		sc := scored{pt: pt, d: d}
+		if crit == CriterionInfluence {
+			for _, i := range watched {
+				o := inf.Rows[i]
+				q := fgDot(base.rows(i), u)
+				hn := o.Leverage - r*q*q/(1+r*d)
+				if sumCook > 0 {
+					sc.primary += sgCook(o.Cook) - sgCook(o.Residual*o.Residual*hn/(float64(p)*s2new*(1-hn)*(1-hn)))
+				} else {
+					sc.primary += o.Leverage - hn
+				}
+			}
+		} else {
+			sc.primary = d
+		}
+		cands = append(cands, sc)
+	}
+	sort.SliceStable(cands, func(a, b int) bool {
+		if cands[a].primary != cands[b].primary {
+			return cands[a].primary > cands[b].primary
+		}
+		return cands[a].d > cands[b].d
+	})
+
+	// Pick distinct regions.
+	var picks []scored
+	for _, c := range cands {
+		if len(picks) == opt.Top {
+			break
+		}
+		far := true
+		for _, q := range picks {
+			var dist float64
+			for k := range cols {
+				if hi[k] > lo[k] {
+					dk := (c.pt[k] - q.pt[k]) / (hi[k] - lo[k])
+					dist += dk * dk
+				}
+			}
+			if math.Sqrt(dist) < opt.Separation {
+				far = false
+				break
+			}
+		}
+		if far {
+			picks = append(picks, c)
+		}
+	}
+
+	var ranked []int
+	if fgNeedsRanking(f.N, fopt) {
+		ranked = fgRankRows(inf, base.b, fopt.Candidates)
+	}
+	before := base.searchRanked(checks, ranked, fopt)
+
+	out := make([]Suggestion, 0, len(picks))
+	for _, c := range picks {
+		if err := f.Model.DesignRow(z, func(col string) float64 { return c.pt[colIdx[col]] }); err != nil {
+			continue
+		}
+		sg := Suggestion{At: make(map[string]float64, len(cols)), Replicates: opt.Replicates, D: c.d, DGain: 1 + c.d}
+		for k, col := range cols {
+			sg.At[col] = c.pt[k]
+		}
+		fgMatVec(u, base.c, z, p)
+		ef := Effect{DetRatio: 1 + r*c.d, FragilityBefore: before.Index, FragileBefore: before.Fragile}
+		for _, i := range watched {
+			o := inf.Rows[i]
+			q := fgDot(base.rows(i), u)
+			hn := o.Leverage - r*q*q/(1+r*c.d)
+			ef.Rows = append(ef.Rows, RowEffect{
+				Row: i + 1, LeverageBefore: o.Leverage, LeverageAfter: hn,
+				CookBefore: o.Cook, CookAfter: o.Residual * o.Residual * hn / (float64(p) * s2new * (1 - hn) * (1 - hn)),
+			})
+		}
+		after := base.augmented(z, opt.Replicates).searchRanked(checks, ranked, fopt)
+		ef.FragilityAfter, ef.FragileAfter, ef.Searched = after.Index, after.Fragile, after.Searched
+		if before.Fragile {
+			if !after.Fragile {
+				ef.EndsFragility = opt.Replicates
+				for rr := 1; rr < opt.Replicates; rr++ {
+					if !base.augmented(z, rr).searchRanked(checks, ranked, fopt).Fragile {
+						ef.EndsFragility = rr
+						break
+					}
+				}
+			} else {
+				for rr := opt.Replicates + 1; rr <= opt.MaxReplicates; rr++ {
+					if !base.augmented(z, rr).searchRanked(checks, ranked, fopt).Fragile {
+						ef.EndsFragility = rr
+						break
+					}
+				}
+			}
+		}
+		sg.Effect = ef
+		sg.Text = sgText(cols, sg, fopt, opt)
+		out = append(out, sg)
+	}
+	return out, nil
+}
+
+// sgCook maps an undefined Cook's distance (h = 1) to +Inf so that a drop
+// from it counts as large.
+func sgCook(c float64) float64 {
+	if math.IsNaN(c) {
+		return math.MaxFloat64
+	}
+	return c
+}
+
+// sgWatched returns the rows to watch (0-based) and whether Judge flagged
+// any of them.
+func sgWatched(inf *Influence, v []Verdict) ([]int, bool) {
+	var w []int
+	for i := range v {
+		if i >= len(inf.Rows) {
+			break
+		}
+		if v[i].Influential {
+			w = append(w, i)
+			continue
+		}
+		if v[i].Notable {
+			for _, fl := range v[i].Flags {
+				if fl.Measure == "leverage" {
+					w = append(w, i)
+					break
+				}
+			}
+		}
+	}
+	flagged := len(w) > 0
+	if !flagged {
+		w = fgTopK(len(inf.Rows), 3, func(i int) float64 { return inf.Rows[i].Leverage })
+		return w, false
+	}
+	sort.SliceStable(w, func(a, b int) bool {
+		return sgCook(inf.Rows[w[a]].Cook) > sgCook(inf.Rows[w[b]].Cook)
+	})
+	if len(w) > maxWatched {
+		w = w[:maxWatched]
+	}
+	return w, true
+}
+
+// augmented returns the searcher of the fit with r readings added at
+// design row z on the fitted surface.
+func (s *fragSearch) augmented(z []float64, r int) *fragSearch {
+	p := s.p
+	u := make([]float64, p)
+	fgMatVec(u, s.c, z, p)
+	d := fgDot(z, u)
+	k := float64(r) / (1 + float64(r)*d)
+	c := make([]float64, p*p)
+	for j := 0; j < p; j++ {
+		for l := 0; l < p; l++ {
+			c[j*p+l] = s.c[j*p+l] - k*u[j]*u[l]
+		}
+	}
+	a := *s
+	a.c = c
+	a.df = s.df + r
+	return &a
+}
+
+// sgCandidates lists candidate points (one value per column).
+func sgCandidates(lo, hi []float64, opt SuggestOptions) [][]float64 {
+	k := len(lo)
+	axis := func(j, g int) []float64 {
+		if hi[j] == lo[j] || g < 2 {
+			return []float64{lo[j]}
+		}
+		v := make([]float64, g)
+		for i := range v {
+			v[i] = lo[j] + (hi[j]-lo[j])*float64(i)/float64(g-1)
+		}
+		v[g-1] = hi[j]
+		return v
+	}
+	if k <= 3 {
+		g := opt.Grid
+		if g <= 0 {
+			g = [...]int{201, 41, 21}[k-1]
+		}
+		axes := make([][]float64, k)
+		total := 1
+		for j := range axes {
+			axes[j] = axis(j, g)
+			total *= len(axes[j])
+		}
+		pts := make([][]float64, 0, total)
+		idx := make([]int, k)
+		for {
+			pt := make([]float64, k)
+			for j := range pt {
+				pt[j] = axes[j][idx[j]]
+			}
+			pts = append(pts, pt)
+			j := k - 1
+			for j >= 0 {
+				idx[j]++
+				if idx[j] < len(axes[j]) {
+					break
+				}
+				idx[j] = 0
+				j--
+			}
+			if j < 0 {
+				return pts
+			}
+		}
+	}
+	var pts [][]float64
+	if k < 62 && 1<<k <= opt.Points/2 {
+		for mask := 0; mask < 1<<k; mask++ {
+			pt := make([]float64, k)
+			for j := range pt {
+				pt[j] = lo[j]
+				if mask&(1<<j) != 0 {
+					pt[j] = hi[j]
+				}
+			}
+			pts = append(pts, pt)
+		}
+	}
+	shift := make([]float64, k)
+	if opt.Seed != 0 {
+		rng := rand.New(rand.NewPCG(opt.Seed, 0x9e3779b97f4a7c15))
+		for j := range shift {
+			shift[j] = rng.Float64()
+		}
+	}
+	primes := sgPrimes(k)
+	for i := 1; len(pts) < opt.Points; i++ {
+		pt := make([]float64, k)
+		for j := range pt {
+			t := sgRadicalInverse(i, primes[j]) + shift[j]
+			if t >= 1 {
+				t--
+			}
+			pt[j] = lo[j] + (hi[j]-lo[j])*t
+		}
+		pts = append(pts, pt)
+	}
+	return pts
+}
+
+// sgRadicalInverse is the van der Corput radical inverse of i in base b.
+func sgRadicalInverse(i, b int) float64 {
+	var v float64
+	f := 1 / float64(b)
+	for w := f; i > 0; i /= b {
+		v += float64(i%b) * w
+		w *= f
+	}
+	return v
+}
+
+func sgPrimes(k int) []int {
+	var ps []int
+	for c := 2; len(ps) < k; c++ {
+		prime := true
+		for _, q := range ps {
+			if q*q > c {
+				break
+			}
+			if c%q == 0 {
+				prime = false
+				break
+			}
+		}
+		if prime {
+			ps = append(ps, c)
+		}
+	}
+	return ps
+}
+
+// sgText says the suggestion in words.
+func sgText(cols []string, sg Suggestion, fopt FragilityOptions, opt SuggestOptions) string {
+	var b strings.Builder
+	word := "readings"
+	if sg.Replicates == 1 {
+		word = "reading"
+	}
+	fmt.Fprintf(&b, "add %d %s near ", sg.Replicates, word)
+	for k, c := range cols {
+		if k > 0 {
+			b.WriteString(", ")
+		}
+		fmt.Fprintf(&b, "%s = %s", c, sgNum(sg.At[c], 5))
+	}
+	ef := sg.Effect
+	fmt.Fprintf(&b, " (det(X'X) x %s)", sgNum(ef.DetRatio, 3))
+	var parts []string
+	rows := append([]RowEffect(nil), ef.Rows...)
+	sort.SliceStable(rows, func(a, c int) bool {
+		return rows[a].LeverageBefore-rows[a].LeverageAfter > rows[c].LeverageBefore-rows[c].LeverageAfter
+	})
+	for k, re := range rows {
+		if k == 2 {
+			break
+		}
+		s := fmt.Sprintf("leverage of %s falls %s -> %s", opt.Label(re.Row), sgNum(re.LeverageBefore, 2), sgNum(re.LeverageAfter, 2))
+		if !math.IsNaN(re.CookBefore) {
+			s += fmt.Sprintf(", Cook's distance %s -> %s", sgNum(re.CookBefore, 2), sgNum(re.CookAfter, 2))
+		}
+		parts = append(parts, s)
+	}
+	idx := func(i int) string {
+		if i == 0 {
+			return fmt.Sprintf("none up to %d", fopt.MaxRemoved)
+		}
+		return strconv.Itoa(i)
+	}
+	switch {
+	case ef.FragilityBefore == 0 && ef.FragilityAfter == 0:
+		parts = append(parts, fmt.Sprintf("no set of up to %d rows changes a conclusion, before or after", fopt.MaxRemoved))
+	case ef.FragilityAfter == 0:
+		parts = append(parts, fmt.Sprintf("fragility index rises %d -> %s", ef.FragilityBefore, idx(0)))
+	case ef.FragilityBefore == 0 || ef.FragilityAfter < ef.FragilityBefore:
+		parts = append(parts, fmt.Sprintf("fragility index falls %s -> %d", idx(ef.FragilityBefore), ef.FragilityAfter))
+	case ef.FragilityAfter > ef.FragilityBefore:
+		parts = append(parts, fmt.Sprintf("fragility index rises %d -> %d", ef.FragilityBefore, ef.FragilityAfter))
+	default:
+		parts = append(parts, fmt.Sprintf("fragility index stays %d", ef.FragilityBefore))
+	}
+	if ef.FragileBefore {
+		switch {
+		case ef.EndsFragility == 0:
+			parts = append(parts, fmt.Sprintf("up to %d readings here do not end the fragility", opt.MaxReplicates))
+		case ef.EndsFragility != sg.Replicates:
+			parts = append(parts, fmt.Sprintf("%d readings here end the fragility", ef.EndsFragility))
+		}
+	}
+	if len(parts) > 0 {
+		b.WriteString(": ")
+		b.WriteString(strings.Join(parts, "; "))
+	}
+	return b.String()
+}
+
+// sgNum formats v with sig significant digits.
+func sgNum(v float64, sig int) string {
+	if v == 0 {
+		return "0"
+	}
+	return strconv.FormatFloat(v, 'g', sig, 64)
+}
