@@ -66,7 +66,8 @@ type Record struct {
 	// terminator (or past its last byte at the end of the file).
 	EndOffset int64
 	// Raw is the record's text as it stood in the file, without the line
-	// terminator. For ErrLineTooLong it is only the first 1 KiB.
+	// terminator. For ErrLineTooLong it is only the first
+	// min(MaxRecordBytes+1, 1024) bytes.
 	Raw string
 	// Values holds the selected number columns, in the order given to
 	// Select. Nil when Err is set.
@@ -627,8 +628,9 @@ done:
 // makes the cut independent of how the input was split into Feeds.
 func (d *Decoder) tooLong(b []byte, atEOF bool, rec Record) (Record, int, status) {
 	max := d.maxRec()
-	raw := b[:min(len(b), rawErrorLimit)]
-	rec.Raw = d.intern(raw)
+	// Raw: the record's first bytes, never past the limit (so the same
+	// whatever the chunking).
+	rec.Raw = d.intern(b[:min(max+1, rawErrorLimit)])
 	// Position of the limit: the byte at index max.
 	rec.Err = d.posErr(b[:max+1], rec.Line, max, 0, "",
 		withDetail(ErrLineTooLong, "longer than %d bytes", max))
