@@ -1,0 +1,698 @@
+package engine
+
+import (
+	"fmt"
+	"math"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// Coefficient is one estimated coefficient with its standard error, t
+// statistic (Estimate/StdError), two-sided p-value on DF degrees of freedom
+// and 95% confidence interval Estimate ± t(0.975, DF)·StdError.
+type Coefficient struct {
+	Term     string
+	Estimate float64
+	StdError float64
+	T        float64
+	P        float64
+	Lower95  float64
+	Upper95  float64
+}
+
+// Fit is an ordinary least-squares fit of y on X.
+//
+// With an intercept, TSS = Σ(y-ȳ)² and RSquared = 1 - RSS/TSS; without
+// one, TSS = Σy² (uncentred, as for the NIST StRD no-intercept data) and R²
+// is uncentred too. AdjRSquared = 1 - (1-R²)(n-k)/(n-p) with k = 1 with an
+// intercept, 0 without. The overall F test compares the model with the
+// intercept-only model (with an intercept: FDF1 = p-1) or with the empty
+// model (without: FDF1 = p); FStat and FP are NaN when there is nothing to
+// test. Condition is the 2-norm condition number of the design after
+// centring (with an intercept) and scaling each column to unit length.
+// VIF holds each non-intercept term's variance inflation factor (centred
+// with an intercept, uncentred without), nil with fewer than two such terms.
+//
+// When the fit is exact (RSS = 0) Sigma and the standard errors are 0 and
+// the t statistics are ±Inf.
+//
+// The fit keeps references to X and y (no copy); the caller must not
+// change them while the fit is in use. A Fit is safe for concurrent reads.
+type Fit struct {
+	Model       Model
+	N, P        int
+	Coef        []Coefficient
+	Sigma       float64
+	DF          int
+	RSS, TSS    float64
+	RSquared    float64
+	AdjRSquared float64
+	FStat, FP   float64
+	FDF1, FDF2  int
+	Condition   float64
+	VIF         map[string]float64
+	Residuals   []float64
+	Fitted      []float64
+
+	x   *mat.Dense
+	y   []float64
+	sc  scaling
+	r   []float64 // p x p upper triangular R of the scaled design, row-major
+	ri  []float64 // R^-1, row-major
+	m   []float64 // M = T^-1 R^-1, row-major: (X'X)^-1 = M M'
+	rss dd        // RSS in double-double
+}
+
+// Limits used by Refit.
+const (
+	// rankTol: a scaled column whose distance from the span of the
+	// columns before it is below rankTol is collinear with them.
+	rankTol = 1e-13
+	// maxCondition: a scaled design with a larger condition number is
+	// refused with ErrIllConditioned.
+	maxCondition = 1e12
+	// maxRefine bounds the refinement steps.
+	maxRefine = 10
+)
+
+// scaling maps the design X to the scaled design W = X T^-1 whose columns
+// are centred (with an intercept) and of unit length:
+// w_ij = (x_ij - mean_j)/scale_j, mean_0 = 0 and scale_0 = √n for the
+// intercept column. T = D·[[1, mean'], [0, I]] with D = diag(scale).
+type scaling struct {
+	p         int
+	intercept bool
+	mean      []float64
+	scale     []float64
+}
+
+// toW returns w = T^-T x for a design row x.
+func (s *scaling) toW(w, x []float64) {
+	if s.intercept {
+		w[0] = x[0] / s.scale[0]
+		for j := 1; j < s.p; j++ {
+			w[j] = (x[j] - s.mean[j]*x[0]) / s.scale[j]
+		}
+		return
+	}
+	for j := 0; j < s.p; j++ {
+		w[j] = x[j] / s.scale[j]
+	}
+}
+
+// fromW returns b = T^-1 c (b and c may not alias).
+func (s *scaling) fromW(b, c []float64) {
+	if s.intercept {
+		b0 := c[0] / s.scale[0]
+		for j := 1; j < s.p; j++ {
+			b[j] = c[j] / s.scale[j]
+			b0 -= s.mean[j] * b[j]
+		}
+		b[0] = b0
+		return
+	}
+	for j := 0; j < s.p; j++ {
+		b[j] = c[j] / s.scale[j]
+	}
+}
+
+// Refit fits y = Xb + e by least squares. X is the design built by
+// m.Design (column 0 all ones when m.Intercept). The method:
+//
+//   - centre each non-intercept column (with an intercept) and scale every
+//     column to unit length: W = X T^-1;
+//   - Householder QR of W over chunks of rows, the chunk R factors stacked
+//     and factored again (TSQR), never the normal equations;
+//   - iterative refinement of the augmented system [I X; X' 0][r; b] =
+//     [y; 0] (Björck 1967), with the residuals y - r - Xb and X'r
+//     accumulated in double-double arithmetic against the original X and
+//     the corrections solved with the QR factors.
+//
+// Errors: ErrTooFewRows when n <= p; *DataError wrapping ErrNonFinite;
+// ErrZeroResponse; *ColumnError wrapping ErrConstantColumn for a constant
+// term (or response, with an intercept); *CollinearError; and, when the
+// scaled design has condition number above 1e12, an error wrapping both
+// ErrIllConditioned and the mat.Condition value. A shape mismatch between
+// m, X and y is a caller bug and panics.
+func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
+	n, p := X.Dims()
+	if p != m.P() {
+		panic(fmt.Sprintf("engine: Refit: X has %d columns, model has %d coefficients", p, m.P()))
+	}
+	if len(y) != n {
+		panic(fmt.Sprintf("engine: Refit: X has %d rows, y has %d values", n, len(y)))
+	}
+	if n <= p {
+		return nil, fmt.Errorf("%w: %d rows, %d coefficients", ErrTooFewRows, n, p)
+	}
+	names := m.Names()
+	raw := X.RawMatrix()
+	stride := raw.Stride
+	xd := raw.Data
+	ch := newChunking(n, p)
+
+	// Pass 1: finiteness, constant columns, means.
+	type stat struct {
+		sum, min, max []float64
+		ysum          float64
+		ymin, ymax    float64
+		badRow        int
+		badCol        int
+		badOne        bool
+	}
+	stats := make([]stat, ch.nc)
+	ch.run(func(c int) {
+		lo, hi := ch.bounds(c)
+		st := stat{sum: make([]float64, p), min: make([]float64, p), max: make([]float64, p),
+			ymin: math.Inf(1), ymax: math.Inf(-1), badRow: -1}
+		for j := range st.min {
+			st.min[j] = math.Inf(1)
+			st.max[j] = math.Inf(-1)
+		}
+		for i := lo; i < hi; i++ {
+			row := xd[i*stride : i*stride+p]
+			for j, v := range row {
+				if v-v != 0 {
+					if st.badRow < 0 {
+						st.badRow, st.badCol = i, j
+					}
+					continue
+				}
+				st.sum[j] += v
+				st.min[j] = math.Min(st.min[j], v)
+				st.max[j] = math.Max(st.max[j], v)
+			}
+			if m.Intercept && row[0] != 1 {
+				st.badOne = true
+			}
+			v := y[i]
+			if v-v != 0 {
+				if st.badRow < 0 {
+					st.badRow, st.badCol = i, p
+				}
+				continue
+			}
+			st.ysum += v
+			st.ymin = math.Min(st.ymin, v)
+			st.ymax = math.Max(st.ymax, v)
+		}
+		stats[c] = st
+	})
+	sum := make([]float64, p)
+	mn := make([]float64, p)
+	mx := make([]float64, p)
+	for j := range mn {
+		mn[j], mx[j] = math.Inf(1), math.Inf(-1)
+	}
+	ysum, ymin, ymax := 0.0, math.Inf(1), math.Inf(-1)
+	for _, st := range stats {
+		if st.badOne {
+			panic("engine: Refit: model has an intercept but column 0 of X is not all ones")
+		}
+		if st.badRow >= 0 {
+			col := m.Response
+			if st.badCol < p {
+				col = names[st.badCol]
+			}
+			return nil, &DataError{Row: st.badRow, Column: col, Err: ErrNonFinite}
+		}
+		for j := 0; j < p; j++ {
+			sum[j] += st.sum[j]
+			mn[j] = math.Min(mn[j], st.min[j])
+			mx[j] = math.Max(mx[j], st.max[j])
+		}
+		ysum += st.ysum
+		ymin = math.Min(ymin, st.ymin)
+		ymax = math.Max(ymax, st.ymax)
+	}
+	if ymin == 0 && ymax == 0 {
+		return nil, ErrZeroResponse
+	}
+	first := 0
+	if m.Intercept {
+		first = 1
+	}
+	for j := first; j < p; j++ {
+		if mn[j] == mx[j] && (m.Intercept || mn[j] == 0) {
+			return nil, &ColumnError{Term: names[j], Err: ErrConstantColumn}
+		}
+	}
+	if m.Intercept && ymin == ymax {
+		return nil, &ColumnError{Term: m.Response, Err: ErrConstantColumn}
+	}
+	sc := scaling{p: p, intercept: m.Intercept, mean: make([]float64, p), scale: make([]float64, p)}
+	if m.Intercept {
+		for j := 1; j < p; j++ {
+			sc.mean[j] = sum[j] / float64(n)
+		}
+	}
+	ybar := ysum / float64(n)
+
+	// Pass 2: QR of each chunk of the centred design (unscaled; scaling
+	// commutes with QR and is applied to R afterwards), y carried along.
+	k := p + 1
+	blocks := make([]float64, n*k)
+	taus := make([]float64, ch.nc*p)
+	sm := ch.nc * p
+	S := make([]float64, sm*k) // stacked chunk R factors, column-major
+	ch.run(func(c int) {
+		lo, hi := ch.bounds(c)
+		mr := hi - lo
+		a := blocks[lo*k : hi*k]
+		for i := lo; i < hi; i++ {
+			row := xd[i*stride : i*stride+p]
+			ii := i - lo
+			for j, v := range row {
+				a[j*mr+ii] = v - sc.mean[j]
+			}
+			a[p*mr+ii] = y[i]
+		}
+		houseQR(a, mr, p, k, taus[c*p:(c+1)*p])
+		for j := 0; j < k; j++ {
+			top := j + 1
+			if top > p {
+				top = p
+			}
+			for i := 0; i < top; i++ {
+				S[j*sm+c*p+i] = a[j*mr+i]
+			}
+		}
+	})
+	tauS := make([]float64, p)
+	houseQR(S, sm, p, k, tauS)
+
+	// Scale R to unit columns.
+	for j := 0; j < p; j++ {
+		ss := 0.0
+		for i := 0; i <= j; i++ {
+			ss += S[j*sm+i] * S[j*sm+i]
+		}
+		sc.scale[j] = math.Sqrt(ss)
+		if sc.scale[j] == 0 {
+			return nil, &ColumnError{Term: names[j], Err: ErrConstantColumn}
+		}
+	}
+	R := make([]float64, p*p)
+	for i := 0; i < p; i++ {
+		for j := i; j < p; j++ {
+			R[i*p+j] = S[j*sm+i] / sc.scale[j]
+		}
+	}
+	if err := checkRank(R, p, names); err != nil {
+		return nil, err
+	}
+	cond := conditionUpper(R, p)
+	if cond > maxCondition || math.IsNaN(cond) {
+		return nil, fmt.Errorf("%w: %w", ErrIllConditioned, mat.Condition(cond))
+	}
+
+	// Initial solution from Q'y.
+	c0 := make([]float64, p)
+	for i := 0; i < p; i++ {
+		c0[i] = S[p*sm+i]
+	}
+	solveUpper(R, p, c0)
+	b := make([]float64, p)
+	sc.fromW(b, c0)
+	cvec := c0
+
+	// Refinement.
+	r := make([]float64, n)
+	s := make([]float64, sm)
+	gpart := make([]dd, ch.nc*p)
+	dc := make([]float64, p)
+	db := make([]float64, p)
+	h := make([]float64, p)
+	prev := math.Inf(1)
+	for it := 0; it < maxRefine; it++ {
+		bb := b
+		ch.run(func(c int) {
+			lo, hi := ch.bounds(c)
+			mr := hi - lo
+			a := blocks[lo*k : hi*k]
+			tau := taus[c*p : (c+1)*p]
+			z := a[p*mr : k*mr]
+			if it > 0 {
+				copy(z[:p], s[c*p:(c+1)*p])
+				applyQ(a, mr, p, tau, z)
+				for i := range z {
+					r[lo+i] += z[i]
+				}
+			}
+			g := gpart[c*p : (c+1)*p]
+			for j := range g {
+				g[j] = dd{}
+			}
+			for i := lo; i < hi; i++ {
+				row := xd[i*stride : i*stride+p]
+				ri := r[i]
+				acc := dd{y[i], 0}.add(-ri)
+				for j, v := range row {
+					acc = acc.addProd(-v, bb[j])
+				}
+				z[i-lo] = acc.float()
+				if it > 0 {
+					for j, v := range row {
+						g[j] = g[j].addProd(v, ri)
+					}
+				}
+			}
+			applyQT(a, mr, p, tau, z)
+			copy(s[c*p:(c+1)*p], z[:p])
+		})
+		applyQT(S, sm, p, tauS, s)
+		// g = X'r, gW = T^-T g, h = -R^-T gW.
+		for j := 0; j < p; j++ {
+			h[j] = 0
+		}
+		if it > 0 {
+			gs := make([]dd, p)
+			for c := 0; c < ch.nc; c++ {
+				for j := 0; j < p; j++ {
+					gs[j] = gs[j].addDD(gpart[c*p+j])
+				}
+			}
+			for j := 0; j < p; j++ {
+				v := gs[j]
+				if sc.intercept && j > 0 {
+					v = v.addDD(gs[0].mulDD(dd{-sc.mean[j], 0}))
+				}
+				h[j] = -v.float() / sc.scale[j]
+			}
+			solveUpperT(R, p, h)
+		}
+		for j := 0; j < p; j++ {
+			dc[j] = s[j] - h[j]
+		}
+		solveUpper(R, p, dc)
+		sc.fromW(db, dc)
+		// Componentwise relative size of the correction.
+		cmax := 0.0
+		for j := 0; j < p; j++ {
+			b[j] += db[j]
+			cvec[j] += dc[j]
+			cmax = math.Max(cmax, math.Abs(cvec[j]))
+		}
+		nd := 0.0
+		for j := 0; j < p; j++ {
+			den := math.Max(math.Abs(cvec[j]), 0x1p-52*cmax)
+			if den > 0 {
+				nd = math.Max(nd, math.Abs(dc[j])/den)
+			}
+		}
+		if debugRefine {
+			fmt.Println("refine", it, nd, b)
+		}
+		const eps = 0x1p-52
+		if nd <= eps {
+			break
+		}
+		// Step 0 is the classical correction; the full augmented step
+		// starts at step 1, so progress is judged from step 2 on.
+		if it > 1 {
+			ratio := nd / prev
+			if ratio > 0.5 {
+				break // no further progress
+			}
+			// Stop when the next correction is predicted to be below
+			// rounding level.
+			if ratio*nd <= eps/2 {
+				break
+			}
+		}
+		prev = nd
+		copy(s[:p], h)
+		applyQ(S, sm, p, tauS, s)
+	}
+	blocks, S = nil, nil
+
+	// Final pass: residuals, fitted values, RSS in double-double, TSS.
+	fitted := make([]float64, n)
+	res := r
+	rssPart := make([]dd, ch.nc)
+	tssPart := make([]float64, 2*ch.nc)
+	ch.run(func(c int) {
+		lo, hi := ch.bounds(c)
+		var rs dd
+		var t1, t2 float64
+		for i := lo; i < hi; i++ {
+			row := xd[i*stride : i*stride+p]
+			var acc dd
+			for j, v := range row {
+				acc = acc.addProd(v, b[j])
+			}
+			fitted[i] = acc.float()
+			e := acc.neg().add(y[i]).float()
+			res[i] = e
+			rs = rs.addProd(e, e)
+			var d float64
+			if m.Intercept {
+				d = y[i] - ybar
+			} else {
+				d = y[i]
+			}
+			t1 += d
+			t2 += d * d
+		}
+		rssPart[c] = rs
+		tssPart[2*c], tssPart[2*c+1] = t1, t2
+	})
+	var rss dd
+	t1, t2 := 0.0, 0.0
+	for c := 0; c < ch.nc; c++ {
+		rss = rss.addDD(rssPart[c])
+		t1 += tssPart[2*c]
+		t2 += tssPart[2*c+1]
+	}
+	tss := t2
+	if m.Intercept {
+		tss = t2 - t1*t1/float64(n)
+	}
+
+	f := &Fit{
+		Model: m, N: n, P: p, DF: n - p,
+		RSS: rss.float(), TSS: tss,
+		Condition: cond,
+		Residuals: res, Fitted: fitted,
+		x: X, y: y, sc: sc, r: R, rss: rss,
+	}
+	f.finish(b, names)
+	return f, nil
+}
+
+// finish computes the inverse factors, coefficient table and summary
+// statistics from the refined coefficients b.
+func (f *Fit) finish(b []float64, names []string) {
+	p, n := f.P, f.N
+	ri := invertUpper(f.r, p)
+	f.ri = ri
+	// M = T^-1 R^-1.
+	M := make([]float64, p*p)
+	for j := 0; j < p; j++ {
+		for l := 0; l < p; l++ {
+			M[j*p+l] = ri[j*p+l] / f.sc.scale[j]
+		}
+	}
+	if f.sc.intercept {
+		for j := 1; j < p; j++ {
+			for l := 0; l < p; l++ {
+				M[l] -= f.sc.mean[j] * M[j*p+l]
+			}
+		}
+	}
+	f.m = M
+	df := float64(f.DF)
+	f.Sigma = math.Sqrt(f.RSS / df)
+	tq := -TQuantile(0.025, df)
+	f.Coef = make([]Coefficient, p)
+	for j := 0; j < p; j++ {
+		cjj := 0.0
+		for l := j; l < p; l++ {
+			cjj += M[j*p+l] * M[j*p+l]
+		}
+		se := f.Sigma * math.Sqrt(cjj)
+		t := b[j] / se
+		f.Coef[j] = Coefficient{
+			Term: names[j], Estimate: b[j], StdError: se, T: t, P: TTail2(t, df),
+			Lower95: b[j] - tq*se, Upper95: b[j] + tq*se,
+		}
+	}
+	k := 0.0
+	if f.Model.Intercept {
+		k = 1
+	}
+	if f.TSS > 0 {
+		f.RSquared = 1 - f.RSS/f.TSS
+	} else {
+		f.RSquared = math.NaN()
+	}
+	f.AdjRSquared = 1 - (1-f.RSquared)*(float64(n)-k)/df
+	f.FDF1 = p - int(k)
+	f.FDF2 = f.DF
+	f.FStat, f.FP = math.NaN(), math.NaN()
+	if f.FDF1 > 0 {
+		f.FStat = ((f.TSS - f.RSS) / float64(f.FDF1)) / (f.RSS / df)
+		f.FP = FSurvival(f.FStat, float64(f.FDF1), df)
+		if f.RSS == 0 {
+			f.FStat, f.FP = math.Inf(1), 0
+		}
+	} else {
+		f.FDF1 = 0
+	}
+	first := int(k)
+	if p-first >= 2 {
+		f.VIF = make(map[string]float64, p-first)
+		for j := first; j < p; j++ {
+			g := 0.0
+			for l := j; l < p; l++ {
+				g += ri[j*p+l] * ri[j*p+l]
+			}
+			f.VIF[names[j]] = g
+		}
+	}
+}
+
+// X returns the design the fit was computed from.
+func (f *Fit) X() *mat.Dense { return f.x }
+
+// Y returns the response the fit was computed from.
+func (f *Fit) Y() []float64 { return f.y }
+
+// Unscaled returns (X'X)^-1, computed as (T^-1 R^-1)(T^-1 R^-1)' from the
+// factors of the scaled design. Multiply by Sigma² for the covariance of
+// the estimates.
+func (f *Fit) Unscaled() *mat.SymDense {
+	p := f.P
+	c := mat.NewSymDense(p, nil)
+	for i := 0; i < p; i++ {
+		for j := i; j < p; j++ {
+			s := 0.0
+			for l := j; l < p; l++ {
+				s += f.m[i*p+l] * f.m[j*p+l]
+			}
+			c.SetSym(i, j, s)
+		}
+	}
+	return c
+}
+
+// Leverage returns x'(X'X)^-1 x for any design row x (length P), computed
+// as |R^-T T^-T x|². For a row of X it is that row's hat value h_ii.
+func (f *Fit) Leverage(x []float64) float64 {
+	if len(x) != f.P {
+		panic(fmt.Sprintf("engine: Leverage: row has length %d, fit has %d coefficients", len(x), f.P))
+	}
+	w := make([]float64, f.P)
+	f.sc.toW(w, x)
+	solveUpperT(f.r, f.P, w)
+	h := 0.0
+	for _, v := range w {
+		h += v * v
+	}
+	return h
+}
+
+// Predict returns the fitted mean at design row x, yhat = x'b, and its
+// standard error se = Sigma·sqrt(x'(X'X)^-1 x).
+func (f *Fit) Predict(x []float64) (yhat, se float64) {
+	if len(x) != f.P {
+		panic(fmt.Sprintf("engine: Predict: row has length %d, fit has %d coefficients", len(x), f.P))
+	}
+	var acc dd
+	for j, v := range x {
+		acc = acc.addProd(v, f.Coef[j].Estimate)
+	}
+	return acc.float(), f.Sigma * math.Sqrt(f.Leverage(x))
+}
+
+// checkRank returns a *CollinearError when a scaled column lies within
+// rankTol of the span of the columns before it, naming that column and the
+// earlier columns that make up the combination.
+func checkRank(R []float64, p int, names []string) error {
+	for k := 0; k < p; k++ {
+		if math.Abs(R[k*p+k]) >= rankTol {
+			continue
+		}
+		// Solve R[:k,:k] a = R[:k,k].
+		a := make([]float64, k)
+		for i := 0; i < k; i++ {
+			a[i] = R[i*p+k]
+		}
+		for i := k - 1; i >= 0; i-- {
+			s := a[i]
+			for j := i + 1; j < k; j++ {
+				s -= R[i*p+j] * a[j]
+			}
+			a[i] = s / R[i*p+i]
+		}
+		big := 0.0
+		for _, v := range a {
+			big = math.Max(big, math.Abs(v))
+		}
+		var terms []string
+		for i, v := range a {
+			if math.Abs(v) > 1e-8*big {
+				terms = append(terms, names[i])
+			}
+		}
+		terms = append(terms, names[k])
+		return &CollinearError{Terms: terms}
+	}
+	return nil
+}
+
+// conditionUpper returns the 2-norm condition number of the p x p upper
+// triangular R.
+func conditionUpper(R []float64, p int) float64 {
+	var svd mat.SVD
+	if !svd.Factorize(mat.NewDense(p, p, append([]float64(nil), R...)), mat.SVDNone) {
+		return math.Inf(1)
+	}
+	v := svd.Values(nil)
+	if v[p-1] == 0 {
+		return math.Inf(1)
+	}
+	return v[0] / v[p-1]
+}
+
+// solveUpper overwrites x with R^-1 x.
+func solveUpper(R []float64, p int, x []float64) {
+	for i := p - 1; i >= 0; i-- {
+		s := x[i]
+		row := R[i*p : (i+1)*p]
+		for j := i + 1; j < p; j++ {
+			s -= row[j] * x[j]
+		}
+		x[i] = s / row[i]
+	}
+}
+
+// solveUpperT overwrites x with R^-T x.
+func solveUpperT(R []float64, p int, x []float64) {
+	for i := 0; i < p; i++ {
+		s := x[i]
+		for j := 0; j < i; j++ {
+			s -= R[j*p+i] * x[j]
+		}
+		x[i] = s / R[i*p+i]
+	}
+}
+
+// invertUpper returns R^-1 (upper triangular, row-major).
+func invertUpper(R []float64, p int) []float64 {
+	inv := make([]float64, p*p)
+	col := make([]float64, p)
+	for j := 0; j < p; j++ {
+		for i := range col {
+			col[i] = 0
+		}
+		col[j] = 1
+		solveUpper(R, p, col)
+		for i := 0; i < p; i++ {
+			inv[i*p+j] = col[i]
+		}
+	}
+	return inv
+}
+
+var debugRefine = false

@@ -1,0 +1,150 @@
+package engine
+
+import (
+	"math"
+	"runtime"
+	"sync"
+	"sync/atomic"
+)
+
+// Householder QR kernels on column-major blocks, and the row-chunk layout
+// used by Refit and Diagnose (a "tall skinny" QR: each chunk of rows is
+// factored on its own and the stacked chunk R factors are factored again).
+
+// chunkRows is the target number of rows per chunk: small enough that a
+// chunk of a design with a few columns stays in cache.
+const chunkRows = 2048
+
+// parallelRows is the smallest number of rows worth splitting over
+// goroutines.
+const parallelRows = 1 << 15
+
+// houseQR factors the first p columns of the m x k column-major block a
+// (leading dimension m, k >= p, m >= p) in place: on return the upper
+// triangle of the first p columns holds R, the part below the diagonal the
+// Householder vectors v_j (with implicit v_j[j] = 1), and tau[j] the
+// reflector scalars, so that H_j = I - tau_j v_j v_j'. Columns p..k-1 are
+// only transformed (they become Q' times themselves).
+func houseQR(a []float64, m, p, k int, tau []float64) {
+	for j := 0; j < p; j++ {
+		col := a[j*m : (j+1)*m]
+		alpha := col[j]
+		ss := 0.0
+		for _, v := range col[j+1:] {
+			ss += v * v
+		}
+		if ss == 0 {
+			tau[j] = 0
+			continue
+		}
+		beta := -math.Copysign(math.Sqrt(alpha*alpha+ss), alpha)
+		tau[j] = (beta - alpha) / beta
+		scal := 1 / (alpha - beta)
+		for i := j + 1; i < m; i++ {
+			col[i] *= scal
+		}
+		col[j] = beta
+		t := tau[j]
+		v := col[j+1:]
+		for c := j + 1; c < k; c++ {
+			ac := a[c*m : (c+1)*m]
+			rest := ac[j+1:]
+			rest = rest[:len(v)]
+			w := ac[j]
+			for i, vi := range v {
+				w += vi * rest[i]
+			}
+			w *= t
+			ac[j] -= w
+			for i, vi := range v {
+				rest[i] -= w * vi
+			}
+		}
+	}
+}
+
+// applyQT overwrites x (length m) with Q'x for the reflectors stored in the
+// m x p block a.
+func applyQT(a []float64, m, p int, tau []float64, x []float64) {
+	for j := 0; j < p; j++ {
+		applyH(a[j*m+j+1:(j+1)*m], tau[j], x[j:])
+	}
+}
+
+// applyQ overwrites x (length m) with Qx.
+func applyQ(a []float64, m, p int, tau []float64, x []float64) {
+	for j := p - 1; j >= 0; j-- {
+		applyH(a[j*m+j+1:(j+1)*m], tau[j], x[j:])
+	}
+}
+
+// applyH applies I - tau [1;v][1;v]' to x.
+func applyH(v []float64, tau float64, x []float64) {
+	if tau == 0 {
+		return
+	}
+	rest := x[1 : len(v)+1]
+	w := x[0]
+	for i, vi := range v {
+		w += vi * rest[i]
+	}
+	w *= tau
+	x[0] -= w
+	for i, vi := range v {
+		rest[i] -= w * vi
+	}
+}
+
+// chunking splits n rows into nc chunks of at least max(chunkRows, p) rows
+// each (one chunk when n is smaller).
+type chunking struct {
+	n, nc int
+}
+
+func newChunking(n, p int) chunking {
+	size := chunkRows
+	if size < 2*p {
+		size = 2 * p
+	}
+	nc := n / size
+	if nc < 1 {
+		nc = 1
+	}
+	return chunking{n: n, nc: nc}
+}
+
+// bounds returns the rows [lo, hi) of chunk c.
+func (ch chunking) bounds(c int) (lo, hi int) {
+	return c * ch.n / ch.nc, (c + 1) * ch.n / ch.nc
+}
+
+// run calls fn(c) for every chunk, on up to GOMAXPROCS goroutines when the
+// problem is large, and returns when all calls have returned. Results that
+// fn stores per chunk are combined by the caller in chunk order, so the
+// outcome does not depend on the number of goroutines.
+func (ch chunking) run(fn func(c int)) {
+	workers := runtime.GOMAXPROCS(0)
+	if workers > ch.nc {
+		workers = ch.nc
+	}
+	if ch.n < parallelRows || workers <= 1 {
+		for c := 0; c < ch.nc; c++ {
+			fn(c)
+		}
+		return
+	}
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Go(func() {
+			for {
+				c := int(next.Add(1) - 1)
+				if c >= ch.nc {
+					return
+				}
+				fn(c)
+			}
+		})
+	}
+	wg.Wait()
+}
