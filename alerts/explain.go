@@ -21,7 +21,7 @@ var measureWords = map[string]string{
 	"grubbs":               "Grubbs statistic",
 }
 
-// describe renders one crossed measure, e.g. "Cook's distance 3.419 (cutoff 1)".
+// describe renders one crossed measure, e.g. "Cook's distance 3.42, above 1".
 func describe(m Measure) string {
 	name := measureWords[m.Name]
 	if name == "" {
@@ -30,10 +30,16 @@ func describe(m Measure) string {
 	if m.Term != "" {
 		name += " for " + m.Term
 	}
-	if m.Name == "outlier_p_bonferroni" {
-		return fmt.Sprintf("%s %s (at or below %s)", name, fmtNum(m.Value), fmtNum(m.Cutoff))
+	v := m.Value
+	switch m.Name {
+	case "outlier_p_bonferroni":
+		return fmt.Sprintf("%s %s, at most %s", name, fmtNum(v), fmtNum(m.Cutoff))
+	case "covratio":
+		return fmt.Sprintf("%s %s, cutoff %s", name, fmtNum(v), fmtNum(m.Cutoff))
+	case "dffits", "dfbetas":
+		name, v = "|"+name+"|", math.Abs(v)
 	}
-	return fmt.Sprintf("%s %s (cutoff %s)", name, fmtNum(m.Value), fmtNum(m.Cutoff))
+	return fmt.Sprintf("%s %s, above %s", name, fmtNum(v), fmtNum(m.Cutoff))
 }
 
 func describeAll(ms []Measure, keep func(Measure) bool) string {
@@ -88,7 +94,7 @@ func fillFragility(a *Alert, c FragilityCondition, rule FragilityRule) {
 	}
 	fmt.Fprintf(&b, " changes the conclusion %q", c.Conclusion)
 	if c.Before != "" || c.After != "" {
-		fmt.Fprintf(&b, " (with them: %s; without them: %s)", c.Before, c.After)
+		fmt.Fprintf(&b, " (with: %s; without: %s)", c.Before, c.After)
 	}
 	fmt.Fprintf(&b, ". The fragility index %d is at or below the limit %d. ", c.Index, rule.Limit)
 	b.WriteString("When so few rows carry a conclusion, one mistaken measurement can reverse it. " +

@@ -4,6 +4,8 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"log/slog"
+	"math"
 	"sort"
 	"sync"
 	"testing"
@@ -179,3 +181,7 @@ func eventTypes(es []*Event) []string {
 	}
 	return out
 }
+
+func discardLogger() *slog.Logger { return slog.New(slog.DiscardHandler) }
+
+func nan() float64 { return math.NaN() }
