@@ -428,10 +428,11 @@ type fragEval struct {
 	h    []float64
 
 	// scratch
-	mm, l  []float64 // m x m
-	w, es  []float64 // m
-	db, cs []float64 // p
-	v      []float64 // m
+	mm, l []float64 // m x m
+	w, es []float64 // m
+	db    []float64 // p
+	cs    []float64 // m
+	v     []float64 // m
 }
 
 func (s *fragSearch) newEvaluator(checks []fragCheck, pool []int) *fragEval {
@@ -492,7 +493,7 @@ func (ev *fragEval) setSize(m int) {
 	ev.es = make([]float64, m)
 	ev.v = make([]float64, m)
 	ev.db = make([]float64, ev.s.p)
-	ev.cs = make([]float64, ev.s.p)
+	ev.cs = make([]float64, m)
 	ev.tcrit = math.NaN()
 	for _, ch := range ev.checks {
 		if ch.kind == fgKindSig {
