@@ -14,7 +14,7 @@ import (
 // sits far from the line at a high pressure: an outlier with leverage.
 var (
 	DemoX = []float64{10, 15, 20, 25, 30, 35, 40, 45, 50, 55, 60, 65, 70, 75, 80, 85, 130, 90, 95, 100}
-	DemoY = []float64{20.9, 30.6, 41.3, 50.8, 61.2, 70.7, 81.5, 90.6, 101.4, 110.9, 121.2, 130.8, 141.6, 150.7, 161.3, 170.9, 243.0, 181.2, 190.6, 201.3}
+	DemoY = []float64{20.9, 30.6, 41.3, 50.8, 61.2, 70.7, 81.5, 90.6, 101.4, 110.9, 121.2, 130.8, 141.6, 150.7, 161.3, 170.9, 252.0, 181.2, 190.6, 201.3}
 )
 
 // Demo returns a Fake holding three models in the three states, a fit

@@ -1,0 +1,118 @@
+// plumb dashboard: live refresh and alert actions. No libraries.
+(function () {
+  "use strict";
+  var body = document.body;
+  var refresh = parseInt(body.dataset.refresh, 10) || 3000;
+  var version = body.dataset.version || "";
+  var etag = "";
+  var live = document.getElementById("live");
+  var liveText = document.getElementById("live-text");
+  var statusEl = document.getElementById("status");
+  var tokenEl = document.getElementById("token");
+  var whoEl = document.getElementById("who");
+  var busy = false;
+
+  function store(key, el) {
+    if (!el) return;
+    try { el.value = sessionStorage.getItem(key) || ""; } catch (e) { /* storage off */ }
+    el.addEventListener("change", function () {
+      try { sessionStorage.setItem(key, el.value); } catch (e) { /* storage off */ }
+    });
+  }
+  store("plumb.token", tokenEl);
+  store("plumb.by", whoEl);
+
+  function say(msg, isErr) {
+    statusEl.textContent = msg;
+    statusEl.classList.toggle("err", !!isErr);
+  }
+
+  function clock() {
+    var d = new Date();
+    return d.toISOString().slice(11, 19) + "Z";
+  }
+
+  // reload fetches the page again and swaps its main content in place.
+  function reload() {
+    return fetch(location.href, { headers: { "Accept": "text/html" }, cache: "no-store" })
+      .then(function (r) { return r.text(); })
+      .then(function (html) {
+        var doc = new DOMParser().parseFromString(html, "text/html");
+        var next = doc.getElementById("main");
+        if (!next) return;
+        // keep notes being typed
+        var typing = document.activeElement && document.activeElement.closest && document.activeElement.closest("#main form");
+        if (typing) return;
+        document.getElementById("main").replaceWith(next);
+        version = doc.body.dataset.version || version;
+        body.dataset.version = version;
+        live.classList.add("flash");
+        setTimeout(function () { live.classList.remove("flash"); }, 600);
+        liveText.textContent = "updated " + clock();
+      });
+  }
+
+  function poll() {
+    var headers = {};
+    if (etag) headers["If-None-Match"] = etag;
+    fetch("/api/v1/version", { headers: headers, cache: "no-store" })
+      .then(function (r) {
+        live.classList.remove("stale");
+        if (r.status === 304) return null;
+        if (!r.ok) throw new Error("status " + r.status);
+        etag = r.headers.get("ETag") || "";
+        return r.json();
+      })
+      .then(function (v) {
+        if (v && v.version && v.version !== version && !busy) return reload();
+      })
+      .catch(function () {
+        live.classList.add("stale");
+        liveText.textContent = "no contact " + clock();
+      })
+      .finally(function () { setTimeout(poll, refresh); });
+  }
+  setTimeout(poll, refresh);
+
+  document.addEventListener("click", function (ev) {
+    var btn = ev.target.closest && ev.target.closest("button[data-act]");
+    if (!btn) return;
+    ev.preventDefault();
+    var id = btn.dataset.id;
+    var act = btn.dataset.act;
+    var form = btn.closest("form");
+    var note = form && form.elements.note ? form.elements.note.value : "";
+    var headers = { "Content-Type": "application/json" };
+    var token = tokenEl ? tokenEl.value.trim() : "";
+    if (token) headers["Authorization"] = "Bearer " + token;
+    busy = true;
+    btn.disabled = true;
+    fetch("/api/v1/alerts/" + encodeURIComponent(id) + "/" + act, {
+      method: "POST",
+      headers: headers,
+      body: JSON.stringify({ note: note, by: whoEl ? whoEl.value : "" })
+    })
+      .then(function (r) {
+        return r.json().then(function (j) { return { ok: r.ok, status: r.status, body: j }; });
+      })
+      .then(function (res) {
+        if (!res.ok) {
+          if (res.status === 401) {
+            document.querySelector(".tok").classList.remove("hidden");
+            tokenEl.focus();
+          }
+          say((act === "ack" ? "Acknowledge" : "Resolve") + " refused: " + (res.body.error || res.status), true);
+          btn.disabled = false;
+          return;
+        }
+        say("Alert " + id + " is now " + res.body.state + ".", false);
+        if (document.activeElement) document.activeElement.blur();
+        return reload();
+      })
+      .catch(function (e) {
+        say("Could not reach plumb: " + e.message, true);
+        btn.disabled = false;
+      })
+      .finally(function () { busy = false; });
+  });
+})();
