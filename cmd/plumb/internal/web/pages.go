@@ -37,7 +37,7 @@ var pages = template.Must(template.New("").Funcs(template.FuncMap{
 		}
 		return strings.Join(parts, " · ")
 	},
-	"pct":  func(v view.Float) string { return num(v*100) + " %" },
+	"pct": func(v view.Float) string { return num(v*100) + " %" },
 	"join": func(s []string, sep string) string {
 		out := ""
 		for i, v := range s {
