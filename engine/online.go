@@ -212,7 +212,7 @@ func (o *Online) exactDiag() {
 // residuals, Cook's distance, DFFITS, DFBETAS, COVRATIO and the outlier
 // p-values (Bonferroni with n = N()). The DFBETAS slice is owned by o and
 // overwritten by the next Add; copy it to keep it. Values that are
-// undefined (h = 1) are NaN. The second result is false, and Obs is zero,
+// undefined (h = 1, taken as 1 - h < 2^-46 as in Diagnose) are NaN. The second result is false, and Obs is zero,
 // while N() <= P()+1 or the rows so far do not determine the fit.
 //
 // A non-finite value is not added and gives false. A design row of the
@@ -270,8 +270,13 @@ func (o *Online) Add(x []float64, y float64) (Obs, bool) {
 	df := n - float64(p)
 	rss := o.RSS()
 	s2 := rss / df
+	if h > 1 {
+		h = 1
+	}
 	ob := Obs{Leverage: h, Residual: e, DFBETAS: o.dfb}
-	if !(h < 1) {
+	// Like Diagnose: with 1 - h below 2^-46 the row is, to working
+	// precision, fitted exactly and its deletion measures are undefined.
+	if 1-h < 0x1p-46 {
 		nan := math.NaN()
 		ob.StudentInternal, ob.StudentExternal, ob.Cook, ob.DFFITS = nan, nan, nan, nan
 		ob.COVRATIO, ob.OutlierP, ob.BonferroniP = nan, nan, nan
