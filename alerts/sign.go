@@ -33,9 +33,10 @@ var (
 	ErrStaleSignature = errors.New("alerts: signature timestamp outside tolerance")
 )
 
-func mac(secret []byte, ts int64, body []byte) []byte {
+// mac is HMAC-SHA256 over ts + "." + body, ts as written in the header.
+func mac(secret []byte, ts string, body []byte) []byte {
 	h := hmac.New(sha256.New, secret)
-	h.Write([]byte(strconv.FormatInt(ts, 10)))
+	h.Write([]byte(ts))
 	h.Write([]byte{'.'})
 	h.Write(body)
 	return h.Sum(nil)
@@ -43,8 +44,8 @@ func mac(secret []byte, ts int64, body []byte) []byte {
 
 // Sign returns the SignatureHeader value for body sent at time t.
 func Sign(secret Secret, t time.Time, body []byte) string {
-	ts := t.Unix()
-	return "t=" + strconv.FormatInt(ts, 10) + ",v1=" + hex.EncodeToString(mac(secret.bytes(), ts, body))
+	ts := strconv.FormatInt(t.Unix(), 10)
+	return "t=" + ts + ",v1=" + hex.EncodeToString(mac(secret.bytes(), ts, body))
 }
 
 // VerifySignature checks a SignatureHeader value against the raw body. It
@@ -57,6 +58,7 @@ func VerifySignature(secret []byte, header string, body []byte, now time.Time, t
 	}
 	var (
 		ts    int64
+		tsRaw string
 		haveT bool
 		sigs  [][]byte
 	)
@@ -68,10 +70,10 @@ func VerifySignature(secret []byte, header string, body []byte, now time.Time, t
 		switch k {
 		case "t":
 			n, err := strconv.ParseInt(v, 10, 64)
-			if err != nil || haveT {
+			if err != nil || haveT || v == "" || v[0] < '0' || v[0] > '9' {
 				return ErrNoSignature
 			}
-			ts, haveT = n, true
+			ts, tsRaw, haveT = n, v, true
 		case "v1":
 			b, err := hex.DecodeString(v)
 			if err != nil {
@@ -83,7 +85,7 @@ func VerifySignature(secret []byte, header string, body []byte, now time.Time, t
 	if !haveT || len(sigs) == 0 {
 		return ErrNoSignature
 	}
-	want := mac(secret, ts, body)
+	want := mac(secret, tsRaw, body)
 	match := false
 	for _, s := range sigs {
 		if hmac.Equal(s, want) {
