@@ -179,8 +179,12 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 					continue
 				}
 				st.sum[j] += v
-				st.min[j] = math.Min(st.min[j], v)
-				st.max[j] = math.Max(st.max[j], v)
+				if v < st.min[j] {
+					st.min[j] = v
+				}
+				if v > st.max[j] {
+					st.max[j] = v
+				}
 			}
 			if m.Intercept && row[0] != 1 {
 				st.badOne = true
@@ -193,8 +197,12 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 				continue
 			}
 			st.ysum += v
-			st.ymin = math.Min(st.ymin, v)
-			st.ymax = math.Max(st.ymax, v)
+			if v < st.ymin {
+				st.ymin = v
+			}
+			if v > st.ymax {
+				st.ymax = v
+			}
 		}
 		stats[c] = st
 	})
@@ -407,8 +415,10 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 		if nd <= eps {
 			break
 		}
-		// Step 0 is the classical correction; the full augmented step
-		// starts at step 1, so progress is judged from step 2 on.
+		// Step 0 is the classical correction of the QR solution, which
+		// cannot reach full accuracy when the residuals are large; the
+		// augmented steps start at step 1, so progress is judged from
+		// step 2 on.
 		if it > 1 {
 			ratio := nd / prev
 			if ratio > 0.5 {
