@@ -1,0 +1,340 @@
+// Package report writes what plumb knows about one model as a file a
+// person can keep, mail or attach to a deviation record: one
+// self-contained HTML page (styles inline, charts inline as SVG drawn with
+// gonum/plot, no external resource of any kind), or a single chart as SVG
+// or PNG.
+//
+//	err := report.Write(f, detail, fits, alerts, report.Options{})
+//	err := report.Chart(f, detail, report.ChartCooks, "png")
+//
+// The page holds the fit (coefficients with intervals, σ, R²), the charts
+// (data and fitted curve with the suggested collection points, residual
+// against leverage with its cutoffs, Cook's distance with its cutoffs, each
+// coefficient's history with its drift band), the notable rows of the
+// influence table with their provenance, the fragility of the fit, where
+// to collect more data, the alert history and the caution.
+//
+// Report and the dashboard consume the same view.ModelDetail: the numbers
+// are the daemon's, nothing is computed here but layout.
+package report
+
+import (
+	"cmp"
+	"fmt"
+	"html/template"
+	"io"
+	"math"
+	"slices"
+	"strconv"
+	"strings"
+	"time"
+
+	"gonum.org/v1/plot/vg"
+
+	"plumb/cmd/plumb/internal/view"
+)
+
+// Options tune the report. The zero value is ready to use.
+type Options struct {
+	// Title heads the page (default "plumb report: <model>").
+	Title string
+	// Generated is the time printed as the report's date (default now).
+	Generated time.Time
+	// Predictor chooses the column of the data-and-fit chart (default the
+	// model's first predictor).
+	Predictor string
+	// MaxRows bounds the rows of the influence table (default 50).
+	MaxRows int
+	// HistoryKeep bounds how many of the latest fits the history charts
+	// show (default 300).
+	HistoryKeep int
+}
+
+type figure struct {
+	Name    string
+	Caption string
+	SVG     template.HTML
+}
+
+type pageData struct {
+	Title       string
+	Generated   string
+	Caution     string
+	D           view.ModelDetail
+	Figures     []figure
+	History     []figure
+	Notable     []view.Point
+	NotableMore int
+	Counts      string
+	Alerts      []view.AlertView
+	FitCount    int
+}
+
+// Write writes the model's report as one self-contained HTML document.
+// fits is the fit history, oldest first; alerts are the model's alerts
+// (any order; shown newest first).
+func Write(w io.Writer, d view.ModelDetail, fits []view.FitView, alerts []view.AlertView, opts Options) error {
+	if opts.Title == "" {
+		opts.Title = "plumb report: " + d.Name
+	}
+	if opts.Generated.IsZero() {
+		opts.Generated = time.Now()
+	}
+	if opts.MaxRows <= 0 {
+		opts.MaxRows = 50
+	}
+	if opts.HistoryKeep <= 0 {
+		opts.HistoryKeep = 300
+	}
+	if len(fits) > opts.HistoryKeep {
+		fits = fits[len(fits)-opts.HistoryKeep:]
+	}
+	pd := pageData{
+		Title: opts.Title, Generated: opts.Generated.UTC().Format("2006-01-02 15:04:05Z"),
+		Caution: view.Caution, D: d, FitCount: len(fits),
+	}
+	predictor := opts.Predictor
+	if !slices.Contains(d.Predictors, predictor) {
+		predictor = firstPredictor(d)
+	}
+	if len(d.Points) > 0 {
+		const wd, ht = 6.6 * vg.Inch, 3.9 * vg.Inch
+		if predictor != "" {
+			p, err := fitPlot(d, predictor)
+			if err != nil {
+				return fmt.Errorf("report: fit chart: %w", err)
+			}
+			s, err := inlineSVG(p, ChartFit, wd, ht)
+			if err != nil {
+				return err
+			}
+			pd.Figures = append(pd.Figures, figure{ChartFit, "The response against " + predictor +
+				" with the fitted mean and its 95 % confidence band. Triangles on the bottom edge mark where one more row would help the fit most.", template.HTML(s)})
+		}
+		p, err := influencePlot(d)
+		if err != nil {
+			return fmt.Errorf("report: influence chart: %w", err)
+		}
+		s, err := inlineSVG(p, ChartInfluence, wd, ht)
+		if err != nil {
+			return err
+		}
+		pd.Figures = append(pd.Figures, figure{ChartInfluence, fmt.Sprintf(
+			"Externally studentized residual against leverage. Dashed: 2p/n = %s. Dotted: ±%s, the Bonferroni critical |t| at α = %s.",
+			num(d.Cutoffs.Leverage), num(d.Cutoffs.TCritical), num(d.Cutoffs.Alpha)), template.HTML(s)})
+		p, err = cooksPlot(d)
+		if err != nil {
+			return fmt.Errorf("report: Cook's chart: %w", err)
+		}
+		s, err = inlineSVG(p, ChartCooks, wd, ht)
+		if err != nil {
+			return err
+		}
+		pd.Figures = append(pd.Figures, figure{ChartCooks, fmt.Sprintf(
+			"Cook's distance by row of the fit. Dashed: 4/n = %s. Dotted: the absolute cutoff %s.",
+			num(d.Cutoffs.CookSizeAdjusted), num(d.Cutoffs.CookAbsolute)), template.HTML(s)})
+	}
+	for _, term := range d.Terms {
+		p, err := historyPlot(fits, term, driftOf(d, term))
+		if err != nil {
+			continue // the term is new or the history is empty
+		}
+		s, err := inlineSVG(p, "history", 4.6*vg.Inch, 2.8*vg.Inch)
+		if err != nil {
+			return err
+		}
+		pd.History = append(pd.History, figure{"history", term, template.HTML(s)})
+	}
+	counts := map[string]int{}
+	for _, p := range d.Points {
+		counts[p.Verdict]++
+		if p.Verdict != "" && p.Verdict != view.VerdictOrdinary {
+			pd.Notable = append(pd.Notable, p)
+		}
+	}
+	slices.SortStableFunc(pd.Notable, func(a, b view.Point) int {
+		if c := cmp.Compare(rank(b.Verdict), rank(a.Verdict)); c != 0 {
+			return c
+		}
+		return cmp.Compare(float64(b.Cook), float64(a.Cook))
+	})
+	if len(pd.Notable) > opts.MaxRows {
+		pd.NotableMore = len(pd.Notable) - opts.MaxRows
+		pd.Notable = pd.Notable[:opts.MaxRows]
+	}
+	var parts []string
+	for _, k := range []string{view.VerdictSuspect, view.VerdictOutlier, view.VerdictInfluential, view.VerdictNotable, view.VerdictOrdinary} {
+		if counts[k] > 0 {
+			parts = append(parts, fmt.Sprintf("%d %s", counts[k], k))
+		}
+	}
+	pd.Counts = strings.Join(parts, ", ")
+	pd.Alerts = slices.Clone(alerts)
+	slices.SortStableFunc(pd.Alerts, func(a, b view.AlertView) int { return b.LastSeen.Compare(a.LastSeen) })
+	if err := page.Execute(w, pd); err != nil {
+		return fmt.Errorf("report: write HTML: %w", err)
+	}
+	return nil
+}
+
+func rank(v string) int {
+	switch v {
+	case view.VerdictSuspect:
+		return 4
+	case view.VerdictOutlier:
+		return 3
+	case view.VerdictInfluential:
+		return 2
+	case view.VerdictNotable:
+		return 1
+	}
+	return 0
+}
+
+// num formats a number for people: 4 significant digits, "—" when undefined.
+func num(v view.Float) string {
+	if !v.Finite() {
+		return "—"
+	}
+	f := float64(v)
+	if f != 0 && (math.Abs(f) >= 1e6 || math.Abs(f) < 1e-3) {
+		return strconv.FormatFloat(f, 'e', 3, 64)
+	}
+	return strconv.FormatFloat(f, 'g', 4, 64)
+}
+
+func when(t time.Time) string {
+	if t.IsZero() {
+		return "—"
+	}
+	return t.UTC().Format("2006-01-02 15:04:05Z")
+}
+
+var page = template.Must(template.New("report").Funcs(template.FuncMap{
+	"num":  num,
+	"when": when,
+	"join": strings.Join,
+	"xval": func(p view.Point, col string) view.Float { return p.X[col] },
+	"at": func(s view.Suggestion) string {
+		keys := make([]string, 0, len(s.At))
+		for k := range s.At {
+			keys = append(keys, k)
+		}
+		slices.Sort(keys)
+		var parts []string
+		for _, k := range keys {
+			parts = append(parts, k+" = "+num(s.At[k]))
+		}
+		return strings.Join(parts, ", ")
+	},
+}).Parse(pageTemplate))
+
+const pageTemplate = `<!doctype html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<meta name="generator" content="plumb">
+<title>{{.Title}}</title>
+<style>
+:root { --paper:#fbfaf6; --ink:#1f2a33; --muted:#66717a; --rule:#dcd6ca; --green:#2f6f62; --hot:#b33b2a; }
+* { box-sizing: border-box; }
+body { margin: 0; background: var(--paper); color: var(--ink); font: 13.5px/1.5 system-ui, "Segoe UI", "Noto Sans", "DejaVu Sans", sans-serif; font-variant-numeric: tabular-nums; }
+.sheet { max-width: 980px; margin: 0 auto; padding: 28px 36px 40px; }
+h1 { font: 500 26px/1.2 Georgia, "DejaVu Serif", serif; margin: 0; }
+h2 { font: 600 16px/1.3 Georgia, "DejaVu Serif", serif; margin: 28px 0 8px; padding-bottom: 4px; border-bottom: 1px solid var(--rule); }
+.meta { color: var(--muted); font-size: 12px; margin: 4px 0 0; }
+.formula { font-family: "DejaVu Sans Mono", monospace; font-size: 12.5px; }
+.caution { border-left: 3px solid var(--green); background: #f1efe7; padding: 8px 12px; margin: 16px 0; font-size: 12.5px; }
+.facts { display: grid; grid-template-columns: repeat(5, 1fr); gap: 0; border: 1px solid var(--rule); margin: 12px 0; }
+.facts div { padding: 6px 10px; border-right: 1px solid var(--rule); }
+.facts div:last-child { border-right: 0; }
+.facts span { display: block; font-size: 11px; color: var(--muted); }
+.facts b { font-weight: 500; font-size: 16px; }
+table { border-collapse: collapse; width: 100%; font-size: 12.5px; }
+th { text-align: left; font-weight: 600; font-size: 11px; color: var(--muted); border-bottom: 1px solid var(--rule); padding: 4px 6px; }
+td { border-bottom: 1px solid #ece7dd; padding: 4px 6px; vertical-align: top; }
+td.n { text-align: right; }
+td.m { font-family: "DejaVu Sans Mono", monospace; font-size: 11.5px; }
+figure { margin: 14px 0; page-break-inside: avoid; }
+figure svg { width: 100%; height: auto; display: block; }
+figcaption { color: var(--muted); font-size: 12px; margin-top: 2px; }
+.hist { display: grid; grid-template-columns: 1fr 1fr; gap: 10px; }
+.verdict { font-weight: 600; }
+.v-suspect { color: var(--hot); } .v-outlier { color: #3d5a98; } .v-influential { color: #8c4a8f; } .v-notable { color: #97701f; }
+.hot { color: var(--hot); font-weight: 600; }
+.empty { color: var(--muted); font-style: italic; }
+.state { text-transform: uppercase; font-size: 10.5px; letter-spacing: .05em; font-weight: 600; }
+footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; color: var(--muted); font-size: 11.5px; }
+@media print { body { background: #fff; } .sheet { padding: 0; } }
+</style>
+</head>
+<body>
+<div class="sheet">
+<header>
+<h1>{{.Title}}</h1>
+<p class="meta">Generated {{.Generated}} · model <b>{{.D.Name}}</b> · state {{.D.State}}{{if .D.FitID}} · fit #{{.D.FitID}} at {{when .D.FitAt}}{{end}}</p>
+<p class="formula">{{.D.Response}} ~ {{join .D.Terms " + "}}</p>
+</header>
+<p class="caution" data-caution><b>Caution.</b> {{.Caution}} Flags below are prompts to look, not findings.</p>
+{{if .D.Reason}}<p><b>State:</b> {{.D.Reason}}</p>{{end}}
+
+<div class="facts">
+<div><span>rows in fit</span><b>{{.D.N}}</b></div>
+<div><span>rows quarantined</span><b>{{.D.Quarantined}}</b></div>
+<div><span>σ (residual SD)</span><b>{{num .D.Sigma}}</b></div>
+<div><span>R² (adjusted)</span><b>{{num .D.RSquared}} ({{num .D.AdjRSquared}})</b></div>
+<div><span>fragility index</span><b {{if .D.Fragility.Found}}class="hot"{{end}}>{{.D.Fragility}}</b></div>
+</div>
+
+<h2>Fit</h2>
+{{if .D.Coefficients}}
+<table>
+<thead><tr><th>term</th><th>estimate</th><th>std. error</th><th>t</th><th>p</th><th>95 % interval</th></tr></thead>
+<tbody>{{range .D.Coefficients}}<tr><td class="m">{{.Term}}</td><td class="n">{{num .Estimate}}</td><td class="n">{{num .StdError}}</td><td class="n">{{num .T}}</td><td class="n">{{num .P}}</td><td class="n">{{num .Lower95}} … {{num .Upper95}}</td></tr>{{end}}</tbody>
+</table>
+{{else}}<p class="empty">No fit yet.</p>{{end}}
+
+{{range .Figures}}<figure data-figure="{{.Name}}">{{.SVG}}<figcaption>{{.Caption}}</figcaption></figure>
+{{end}}
+
+<h2>Rows that stand out</h2>
+{{if .Notable}}
+<p class="meta">Verdicts under the current fit: {{.Counts}}. Cutoffs: leverage 2p/n = {{num .D.Cutoffs.Leverage}}; Cook's distance 4/n = {{num .D.Cutoffs.CookSizeAdjusted}} and absolute {{num .D.Cutoffs.CookAbsolute}}; Bonferroni critical |t| = {{num .D.Cutoffs.TCritical}}.</p>
+<table>
+<thead><tr><th>file:line</th><th>verdict</th>{{range .D.Predictors}}<th>{{.}}</th>{{end}}<th>{{.D.Response}}</th><th>fitted</th><th>leverage</th><th>t</th><th>Cook's D</th><th>DFFITS</th><th>Bonferroni p</th></tr></thead>
+<tbody>{{range $p := .Notable}}<tr data-row="{{.Row}}"><td class="m">{{.File}}:{{.Line}}</td><td class="verdict v-{{.Verdict}}">{{.Verdict}}</td>{{range $.D.Predictors}}<td class="n">{{num (xval $p .)}}</td>{{end}}<td class="n">{{num .Y}}</td><td class="n">{{num .Fitted}}</td><td class="n">{{num .Leverage}}</td><td class="n">{{num .StudentizedExternal}}</td><td class="n">{{num .Cook}}</td><td class="n">{{num .DFFITS}}</td><td class="n">{{num .BonferroniP}}</td></tr>{{end}}</tbody>
+</table>
+{{if .NotableMore}}<p class="meta">… and {{.NotableMore}} more notable rows not listed.</p>{{end}}
+{{else}}<p class="empty">No row crosses a cutoff under the current fit.</p>{{end}}
+
+<h2>Fragility</h2>
+{{with .D.Fragility}}
+{{if not .Computed}}<p class="empty">Not computed for this fit.</p>
+{{else if not .Found}}<p>No removal of up to {{.K}} rows changes a conclusion of this fit.</p>
+{{else}}<p>Removing <b class="hot">{{.Index}}</b> row{{if gt .Index 1}}s{{end}} changes a conclusion: {{.Conclusion}}. The rows: {{range $i, $r := .Rows}}{{if $i}}, {{end}}<span class="m">{{$r.File}}:{{$r.Line}}</span>{{end}}.</p>{{end}}
+{{end}}
+
+<h2>Where to collect more data</h2>
+{{if .D.Suggestions}}<ol>{{range .D.Suggestions}}<li><b>{{at .}}</b>: {{.Text}}</li>{{end}}</ol>
+{{else}}<p class="empty">No suggestion for this fit.</p>{{end}}
+
+{{if .History}}
+<h2>Coefficient history</h2>
+<p class="meta">The last {{.FitCount}} fits. Shaded amber: the drift band around the baseline; grey: ±1.96 standard errors.</p>
+<div class="hist">{{range .History}}<figure data-figure="history" data-term="{{.Caption}}">{{.SVG}}</figure>{{end}}</div>
+{{end}}
+
+<h2>Alert history</h2>
+{{if .Alerts}}
+<table>
+<thead><tr><th>state</th><th>kind</th><th>severity</th><th>what</th><th>first seen</th><th>last seen</th><th>note</th></tr></thead>
+<tbody>{{range .Alerts}}<tr data-alert="{{.ID}}"><td class="state">{{.State}}</td><td class="m">{{.Kind}}</td><td>{{.Severity}}</td><td>{{.Summary}}</td><td>{{when .FirstSeen}}</td><td>{{when .LastSeen}}</td><td>{{.Note}}{{if .By}} ({{.By}}){{end}}</td></tr>{{end}}</tbody>
+</table>
+{{else}}<p class="empty">No alerts.</p>{{end}}
+
+<footer data-caution>{{.Caution}} This report was generated by plumb from its history; it contains no edited data.</footer>
+</div>
+</body>
+</html>
+`
