@@ -37,8 +37,12 @@ type Config struct {
 
 // Manager applies the rules to reported conditions and keeps the alerts'
 // lifecycle. It is safe for use by multiple goroutines; calls are
-// serialised. Every change of an alert must go through its Manager (it
-// caches the open alerts).
+// serialised. It caches which alerts are not resolved, but reads an
+// alert's current record from the ledger before changing it, and Tick
+// reloads the cache, so an acknowledgement or resolution written by
+// another Manager on the same ledger (an offline command) is respected.
+// Only Managers change alerts: another process may acknowledge or resolve,
+// but only the daemon's Manager should report conditions.
 type Manager struct {
 	ledger Ledger
 	cfg    Config
@@ -123,14 +127,14 @@ func (m *Manager) load(ctx context.Context) error {
 	return nil
 }
 
-// find returns the alert with the id: from the cache of unresolved alerts,
-// or (when ask is set) from the ledger by (model, kind, subject). It
-// returns nil when there is none.
+// find returns the current state of the alert with the id, read from the
+// ledger (the source of truth: another process, such as an offline
+// acknowledgement from the command line, may have changed it). With ask
+// false the ledger is read only when the cache says the alert is not
+// resolved, so a condition that is clear costs no ledger access in the
+// common case. It returns nil when there is no alert.
 func (m *Manager) find(ctx context.Context, id, model string, kind Kind, subject string, ask bool) (*Alert, error) {
-	if doc, ok := m.open[id]; ok {
-		return decodeDoc(id, doc)
-	}
-	if !ask {
+	if _, ok := m.open[id]; !ok && !ask {
 		return nil, nil
 	}
 	recs, err := m.ledger.Alerts(ctx, AlertQuery{Model: model, Kind: string(kind), Subject: subject, Limit: 1})
@@ -139,9 +143,15 @@ func (m *Manager) find(ctx context.Context, id, model string, kind Kind, subject
 	}
 	for _, r := range recs {
 		if r.ID == id {
+			if State(r.State) == StateResolved {
+				delete(m.open, id)
+			} else {
+				m.open[id] = r.Doc
+			}
 			return decodeDoc(id, r.Doc)
 		}
 	}
+	delete(m.open, id)
 	return nil, nil
 }
 
@@ -179,7 +189,7 @@ func (m *Manager) apply(ctx context.Context, now time.Time, c change) (*Alert, e
 	}
 	if !c.active {
 		if a == nil || a.State == StateResolved {
-			return a, nil
+			return nil, nil
 		}
 		a.State = StateResolved
 		a.Resolution = &ResolutionInfo{At: now, Auto: true, Note: c.note}
@@ -363,6 +373,9 @@ func (m *Manager) Activity(ctx context.Context, model string, at time.Time) erro
 func (m *Manager) Tick(ctx context.Context, now time.Time) error {
 	m.mu.Lock()
 	defer m.mu.Unlock()
+	// Start from the ledger's view: states changed by another process
+	// (an offline acknowledgement) must not get reminders.
+	m.loaded, m.open = false, make(map[string]string)
 	if err := m.load(ctx); err != nil {
 		return err
 	}
@@ -408,13 +421,10 @@ func (m *Manager) Tick(ctx context.Context, now time.Time) error {
 	return errors.Join(errs...)
 }
 
-// byID returns an alert by id, from the cache or the ledger.
+// byID returns an alert by id from the ledger.
 func (m *Manager) byID(ctx context.Context, id string) (*Alert, error) {
 	if err := m.load(ctx); err != nil {
 		return nil, err
-	}
-	if doc, ok := m.open[id]; ok {
-		return decodeDoc(id, doc)
 	}
 	rec, err := m.ledger.Alert(ctx, id)
 	if err != nil {

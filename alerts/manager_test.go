@@ -500,3 +500,39 @@ func TestLedgerFailureKeepsState(t *testing.T) {
 		t.Errorf("after a failed write: count %d sequence %d, want 1 1", a.Count, a.Sequence)
 	}
 }
+
+func TestAckFromAnotherManagerIsKept(t *testing.T) {
+	h := newHarness(t, func(c *Config) { c.Rules.SuspectPoint.Renotify = time.Hour })
+	ctx := context.Background()
+	a := mustAlert(t)(h.m.Point(ctx, suspectRow(212)))
+	// An offline command opens its own Manager on the same ledger.
+	cli, err := NewManager(h.l, Config{Rules: DefaultRules(), Now: h.clock.Now})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := cli.Ack(ctx, a.ID, "checking", "duty analyst"); err != nil {
+		t.Fatal(err)
+	}
+	upd := mustAlert(t)(h.m.Point(ctx, suspectRow(212)))
+	if upd.State != StateAcknowledged || upd.Ack == nil || upd.Count != 2 {
+		t.Errorf("daemon's update after an outside ack: %v ack %v count %d", upd, upd.Ack, upd.Count)
+	}
+	n := len(eventsOf(t, h.l, "oncall"))
+	if err := h.m.Tick(ctx, h.clock.Add(2*time.Hour)); err != nil {
+		t.Fatal(err)
+	}
+	if got := len(eventsOf(t, h.l, "oncall")); got != n {
+		t.Errorf("reminder for an alert acknowledged elsewhere (%d events, want %d)", got, n)
+	}
+	if _, err := cli.Resolve(ctx, a.ID, "done"); err != nil {
+		t.Fatal(err)
+	}
+	calm := suspectRow(212)
+	calm.Outlier, calm.Influential, calm.Measures = false, false, nil
+	if r, err := h.m.Point(ctx, calm); err != nil || r != nil {
+		t.Errorf("clear after an outside resolve changed %v (%v)", r, err)
+	}
+	if rec := h.l.alerts[a.ID]; rec.State != "resolved" {
+		t.Errorf("state %s", rec.State)
+	}
+}
