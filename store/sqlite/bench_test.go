@@ -83,7 +83,7 @@ func BenchmarkIngest(b *testing.B) {
 // that storage grows with rows, not rows x fits.
 func TestBytesPerObservation(t *testing.T) {
 	if testing.Short() {
-		t.Skip("writes 50,000 rows")
+		t.Skip("writes 20,000 rows")
 	}
 	db, path := openTemp(t)
 	ctx := context.Background()
@@ -99,7 +99,7 @@ func TestBytesPerObservation(t *testing.T) {
 		return st.Size()
 	}
 	base := size()
-	const n, per = 50000, 1000
+	const n, per = 20000, 1000
 	bt := newBatcher(per)
 	var last []int64
 	for range n / per {

@@ -1,0 +1,251 @@
+package sqlite_test
+
+import (
+	"context"
+	"errors"
+	"math"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"plumb/store"
+	"plumb/store/sqlite"
+)
+
+func TestOpenMigratesFreshFile(t *testing.T) {
+	db, _ := openTemp(t)
+	ctx := context.Background()
+	v, err := db.SchemaVersion(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if v != sqlite.LatestSchemaVersion() || v < 1 {
+		t.Errorf("SchemaVersion = %d, want %d (>= 1)", v, sqlite.LatestSchemaVersion())
+	}
+	for _, table := range []string{"schema_version", "models", "sources", "observations", "quarantine", "fits",
+		"verdict_changes", "model_states", "alerts", "deliveries"} {
+		var n int
+		if err := db.DB().QueryRowContext(ctx, "SELECT count(*) FROM sqlite_schema WHERE type = 'table' AND name = ?", table).Scan(&n); err != nil {
+			t.Fatal(err)
+		}
+		if n != 1 {
+			t.Errorf("table %s missing", table)
+		}
+	}
+	// Every pooled connection gets the pragmas: hold several at once.
+	var conns []interface{ Close() error }
+	defer func() {
+		for _, c := range conns {
+			c.Close()
+		}
+	}()
+	for i := range 3 {
+		c, err := db.DB().Conn(ctx)
+		if err != nil {
+			t.Fatal(err)
+		}
+		conns = append(conns, c)
+		for _, p := range []struct {
+			pragma, want string
+		}{{"journal_mode", "wal"}, {"synchronous", "1"}, {"foreign_keys", "1"}, {"busy_timeout", "5000"}} {
+			var got string
+			if err := c.QueryRowContext(ctx, "PRAGMA "+p.pragma).Scan(&got); err != nil {
+				t.Fatal(err)
+			}
+			if got != p.want {
+				t.Errorf("connection %d: PRAGMA %s = %s, want %s", i, p.pragma, got, p.want)
+			}
+		}
+	}
+}
+
+func TestOpenBadPath(t *testing.T) {
+	for _, p := range []string{"", ":memory:", "file:x.db", filepath.Join(t.TempDir(), "a?mode=ro")} {
+		if db, err := sqlite.Open(context.Background(), p); err == nil {
+			db.Close()
+			t.Errorf("Open(%q) succeeded, want an error", p)
+		}
+	}
+	if _, err := sqlite.Open(context.Background(), filepath.Join(t.TempDir(), "missing", "dir", "h.db")); err == nil ||
+		!strings.Contains(err.Error(), "missing") {
+		t.Errorf("Open in a missing directory: %v, want an error naming the path", err)
+	}
+}
+
+func TestReopenKeepsData(t *testing.T) {
+	ctx := context.Background()
+	path := filepath.Join(t.TempDir(), "history.db")
+	db, err := sqlite.Open(ctx, path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	bt := newBatcher(50)
+	b := bt.next()
+	ids, err := db.Ingest(ctx, b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := db.RecordFit(ctx, store.FitRecord{Model: "bench", N: 50, P: 3, Terms: []string{"intercept", "x1", "x2"},
+		LastObsID: ids[49], Detail: "{}"}, []store.VerdictChange{{ObsID: ids[3], From: "ordinary", To: "notable", Flags: "[]"}}); err != nil {
+		t.Fatal(err)
+	}
+	if err := db.PutAlert(ctx, store.AlertRecord{ID: "a1", Model: "bench", Kind: "suspect", Subject: "in/run.csv:5",
+		State: "open", FirstSeen: time.Unix(5, 6), LastSeen: time.Unix(7, 8), Doc: "{}"},
+		[]store.Delivery{{Route: "log", EventID: "e1", Payload: []byte("x")}}); err != nil {
+		t.Fatal(err)
+	}
+	if err := db.Close(); err != nil {
+		t.Fatal(err)
+	}
+	for round := range 2 {
+		db, err = sqlite.Open(ctx, path)
+		if err != nil {
+			t.Fatalf("reopen %d: %v", round, err)
+		}
+		var migrations int
+		if err := db.DB().QueryRowContext(ctx, "SELECT count(*) FROM schema_version").Scan(&migrations); err != nil {
+			t.Fatal(err)
+		}
+		if migrations != sqlite.LatestSchemaVersion() {
+			t.Errorf("reopen %d: %d migration records, want %d (applying must be idempotent)", round, migrations, sqlite.LatestSchemaVersion())
+		}
+		if n, err := db.CountObservations(ctx, "bench"); err != nil || n != 50 {
+			t.Errorf("reopen %d: CountObservations = %d, %v; want 50", round, n, err)
+		}
+		if o, err := db.ObservationAt(ctx, "bench", "in/run.csv", b.Observations[10].Line); err != nil || o.ID != ids[10] ||
+			o.Raw != b.Observations[10].Raw || !o.Time.Equal(b.Observations[10].Time) {
+			t.Errorf("reopen %d: ObservationAt = %+v, %v", round, o, err)
+		}
+		if cur, err := db.CurrentVerdicts(ctx, "bench"); err != nil || cur[ids[3]] != "notable" {
+			t.Errorf("reopen %d: CurrentVerdicts = %v, %v", round, cur, err)
+		}
+		if a, err := db.Alert(ctx, "a1"); err != nil || !a.FirstSeen.Equal(time.Unix(5, 6)) {
+			t.Errorf("reopen %d: Alert = %+v, %v", round, a, err)
+		}
+		if _, err := db.Ingest(ctx, b); !errors.Is(err, store.ErrStale) {
+			t.Errorf("reopen %d: the last batch again: %v, want ErrStale", round, err)
+		}
+		if err := db.Close(); err != nil {
+			t.Fatal(err)
+		}
+	}
+}
+
+func TestOpenRefusesNewerSchema(t *testing.T) {
+	ctx := context.Background()
+	db, path := openTemp(t)
+	future := sqlite.LatestSchemaVersion() + 1
+	if _, err := db.DB().ExecContext(ctx, "INSERT INTO schema_version (version, name, applied_at) VALUES (?, 'future.sql', 0)", future); err != nil {
+		t.Fatal(err)
+	}
+	db2, err := sqlite.Open(ctx, path)
+	if err == nil {
+		db2.Close()
+		t.Fatal("Open of a newer schema succeeded")
+	}
+	if !errors.Is(err, sqlite.ErrSchemaTooNew) {
+		t.Errorf("error %v does not wrap ErrSchemaTooNew", err)
+	}
+	for _, want := range []string{path, "upgrade"} {
+		if !strings.Contains(err.Error(), want) {
+			t.Errorf("error %q does not mention %q", err, want)
+		}
+	}
+}
+
+func TestBackup(t *testing.T) {
+	ctx := context.Background()
+	db, _ := openTemp(t)
+	bt := newBatcher(200)
+	for range 5 {
+		if _, err := db.Ingest(ctx, bt.next()); err != nil {
+			t.Fatal(err)
+		}
+	}
+	dst := filepath.Join(t.TempDir(), "backup.db")
+	if err := db.Backup(ctx, dst); err != nil {
+		t.Fatal(err)
+	}
+	// The live database keeps working after the backup.
+	if _, err := db.Ingest(ctx, bt.next()); err != nil {
+		t.Fatal(err)
+	}
+	if err := db.Backup(ctx, dst); err == nil || !strings.Contains(err.Error(), "backup") {
+		t.Errorf("Backup onto an existing file: %v, want an error", err)
+	}
+	bk, err := sqlite.Open(ctx, dst)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer bk.Close()
+	if n, err := bk.CountObservations(ctx, "bench"); err != nil || n != 1000 {
+		t.Errorf("backup holds %d observations, %v; want 1000", n, err)
+	}
+	src, err := bk.Sources(ctx, "bench")
+	if err != nil || len(src) != 1 || src[0].Line != 1001 {
+		t.Errorf("backup sources = %+v, %v; want line 1001", src, err)
+	}
+}
+
+func TestIngestTimeOutOfRange(t *testing.T) {
+	ctx := context.Background()
+	db, _ := openTemp(t)
+	b := newBatcher(3).next()
+	b.Observations[1].Time = time.Date(1500, 1, 1, 0, 0, 0, 0, time.UTC)
+	_, err := db.Ingest(ctx, b)
+	if err == nil || !strings.Contains(err.Error(), "store: ingest bench/in/run.csv") || !strings.Contains(err.Error(), "line 3") {
+		t.Fatalf("Ingest with a year-1500 time: %v, want an error naming the batch and line 3", err)
+	}
+	if n, _ := db.CountObservations(ctx, "bench"); n != 0 {
+		t.Errorf("%d observations stored from a failed batch", n)
+	}
+}
+
+// TestColumnEncoding checks the on-disk layout the package doc promises:
+// values as a 8p-byte little-endian float64 BLOB, NaN diagnostics as NULL,
+// no diagnostics as NULL verdict, times as unix nanoseconds.
+func TestColumnEncoding(t *testing.T) {
+	ctx := context.Background()
+	db, _ := openTemp(t)
+	b := newBatcher(2).next()
+	b.Observations[0].Arrival.CooksDistance = math.NaN()
+	b.Observations[0].Values = []float64{1, -2, math.NaN()}
+	b.Observations[1].Arrival = nil
+	ids, err := db.Ingest(ctx, b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var vals []byte
+	var cooksNull, verdictNull bool
+	var tns int64
+	row := db.DB().QueryRowContext(ctx, "SELECT vals, cooks IS NULL, verdict IS NULL, t FROM observations WHERE id = ?", ids[0])
+	if err := row.Scan(&vals, &cooksNull, &verdictNull, &tns); err != nil {
+		t.Fatal(err)
+	}
+	want := []byte{0, 0, 0, 0, 0, 0, 0xf0, 0x3f, 0, 0, 0, 0, 0, 0, 0, 0xc0} // 1.0, -2.0 little-endian (IEEE 754)
+	if len(vals) != 24 || string(vals[:16]) != string(want) || !math.IsNaN(math.Float64frombits(leUint64(vals[16:]))) {
+		t.Errorf("vals blob = % x, want 24 bytes starting % x then a NaN", vals, want)
+	}
+	if !cooksNull || verdictNull {
+		t.Errorf("cooks IS NULL = %v, verdict IS NULL = %v; want true, false", cooksNull, verdictNull)
+	}
+	if tns != b.Observations[0].Time.UnixNano() {
+		t.Errorf("t = %d, want %d", tns, b.Observations[0].Time.UnixNano())
+	}
+	if err := db.DB().QueryRowContext(ctx, "SELECT verdict IS NULL, leverage IS NULL FROM observations WHERE id = ?", ids[1]).
+		Scan(&verdictNull, &cooksNull); err != nil {
+		t.Fatal(err)
+	}
+	if !verdictNull || !cooksNull {
+		t.Error("an observation without arrival diagnostics has non-NULL diagnostic columns")
+	}
+}
+
+func leUint64(b []byte) uint64 {
+	var x uint64
+	for i := 7; i >= 0; i-- {
+		x = x<<8 | uint64(b[i])
+	}
+	return x
+}
