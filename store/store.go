@@ -39,27 +39,41 @@ type Store interface {
 	// quarantined rows and the source's new read state. It returns the ids
 	// assigned to b.Observations, in order. If b.Source.Offset does not
 	// advance past the stored offset for the same (model, path, generation),
-	// Ingest stores nothing and returns ErrStale (wrapped), so a batch
-	// delivered twice is never counted twice.
+	// or b.Source.Generation is below the stored one, Ingest stores nothing
+	// and returns ErrStale (wrapped), so a batch delivered twice is never
+	// counted twice. A higher generation (rotation) is accepted at any
+	// offset.
+	//
+	// The store keeps the source's Rows and Quarantined totals itself (the
+	// stored totals plus this batch's); the values in b.Source are ignored.
+	// Observations and quarantined rows may leave Model, Path and
+	// Generation zero, meaning those of b.Source; other values are an
+	// error. Any error other than ErrStale also stores nothing.
 	Ingest(ctx context.Context, b Batch) ([]int64, error)
 	// Observations returns the model's observations in arrival order
 	// (ascending id), starting after the id AfterID, at most Limit of them
-	// (Limit <= 0: all).
+	// (Limit <= 0: all). An unknown model or path gives no rows, not an
+	// error.
 	Observations(ctx context.Context, model string, q ObsQuery) ([]Observation, error)
-	// Observation returns one observation by model, file and line.
+	// ObservationAt returns one observation by model, file and line (from
+	// the newest generation holding that line), or ErrNotFound (wrapped).
 	ObservationAt(ctx context.Context, model, path string, line int) (Observation, error)
 	// CountObservations returns how many observations the model holds.
 	CountObservations(ctx context.Context, model string) (int64, error)
 
 	// RecordFit stores a fit summary and the verdict changes it caused, in
-	// one transaction, and returns the fit id.
+	// one transaction, and returns the fit id. Each change's FitID is set to
+	// that id; a change with a zero At takes f.At. A change of an
+	// observation that is not f.Model's fails the whole call with
+	// ErrNotFound (wrapped).
 	RecordFit(ctx context.Context, f FitRecord, changes []VerdictChange) (int64, error)
 	// Fits returns the model's fits, oldest first, at most limit (<= 0: all),
 	// starting after the fit id afterID.
 	Fits(ctx context.Context, model string, afterID int64, limit int) ([]FitRecord, error)
 	// LastFit returns the model's most recent fit, or ErrNotFound.
 	LastFit(ctx context.Context, model string) (FitRecord, error)
-	// VerdictChanges returns the verdict history of one observation.
+	// VerdictChanges returns the verdict history of one observation, oldest
+	// first (none when it never changed).
 	VerdictChanges(ctx context.Context, obsID int64) ([]VerdictChange, error)
 	// CurrentVerdicts returns the latest verdict of every observation of the
 	// model that has one different from its arrival verdict, by obs id.
@@ -68,7 +82,8 @@ type Store interface {
 	// Quarantined returns quarantined rows of the model (model "" for all),
 	// newest last, paginated by id.
 	Quarantined(ctx context.Context, model string, afterID int64, limit int) ([]QuarantineRow, error)
-	// CountQuarantined returns how many rows of the model are quarantined.
+	// CountQuarantined returns how many rows of the model (model "" for
+	// all) are quarantined.
 	CountQuarantined(ctx context.Context, model string) (int64, error)
 
 	// SetModelState records the model's current state (waiting, judging,
@@ -79,20 +94,27 @@ type Store interface {
 
 	// Alert ledger and outbox.
 
-	// PutAlert inserts or updates the alert with a.ID and, in the same
-	// transaction, enqueues the given deliveries.
+	// PutAlert inserts or updates the alert with a.ID (an update keeps the
+	// stored FirstSeen) and, in the same transaction, enqueues the given
+	// deliveries; the store assigns their IDs. A delivery left zero takes
+	// AlertID a.ID, State pending, CreatedAt now, and NextAttempt and
+	// UpdatedAt equal to CreatedAt. A delivery whose non-empty EventID is
+	// already enqueued for the same Route is skipped, so a retried PutAlert
+	// never enqueues an event twice.
 	PutAlert(ctx context.Context, a AlertRecord, deliveries []Delivery) error
 	// Alert returns one alert by id.
 	Alert(ctx context.Context, id string) (AlertRecord, error)
 	// Alerts lists alerts, newest first by LastSeen.
 	Alerts(ctx context.Context, q AlertQuery) ([]AlertRecord, error)
 	// DueDeliveries returns pending deliveries whose NextAttempt <= now,
-	// oldest first, at most limit.
+	// oldest first (by NextAttempt, then ID), at most limit (<= 0: all).
 	DueDeliveries(ctx context.Context, now time.Time, limit int) ([]Delivery, error)
-	// UpdateDelivery stores a delivery's new status after an attempt.
+	// UpdateDelivery stores a delivery's new status after an attempt:
+	// State, Attempts, LastError, NextAttempt (kept when zero) and UpdatedAt
+	// (now when zero), by d.ID; an unknown ID gives ErrNotFound (wrapped).
 	UpdateDelivery(ctx context.Context, d Delivery) error
 	// Deliveries lists deliveries (all states), for status: filter by state
-	// ("" for all), newest first, at most limit.
+	// ("" for all), newest first (by ID), at most limit (<= 0: all).
 	Deliveries(ctx context.Context, state DeliveryState, limit int) ([]Delivery, error)
 
 	// Close releases the store.
