@@ -1,11 +1,13 @@
 package alerts
 
 import (
+	"cmp"
 	"context"
 	"errors"
 	"fmt"
 	"log/slog"
 	"math/rand/v2"
+	"slices"
 	"sync"
 	"time"
 )
@@ -28,8 +30,13 @@ const (
 //     dead once the route's MaxAttempts is reached or the error is
 //     Permanent; the route's other due deliveries wait for the same time
 //     without counting an attempt, so an endpoint that is down is probed by
-//     one event at a time;
+//     one event at a time, and events enqueued meanwhile wait too;
 //   - a delivery for a route that is not configured is marked dead.
+//
+// Within a route, events go out in the order they were enqueued (by
+// delivery ID) as long as one dispatcher runs; across a restart a newer
+// event may overtake one that was waiting. Receivers order the events of
+// one alert by the document's "sequence".
 //
 // Knobs may be changed before Run or the first Flush. A Dispatcher's Run
 // and Flush must not be called concurrently.
@@ -51,6 +58,9 @@ type Dispatcher struct {
 
 	mu      sync.Mutex
 	buckets map[string]*bucket
+	// holds is, per route, the time before which nothing is sent after a
+	// failure, so newer events do not overtake the one being retried.
+	holds map[string]time.Time
 }
 
 // NewDispatcher returns a Dispatcher over the ledger's outbox and the routes.
@@ -59,7 +69,7 @@ func NewDispatcher(l Ledger, routes []*Route) *Dispatcher {
 		panic("alerts: NewDispatcher with nil Ledger")
 	}
 	d := &Dispatcher{ledger: l, routes: make(map[string]*Route, len(routes)),
-		wake: make(chan struct{}, 1), buckets: make(map[string]*bucket)}
+		wake: make(chan struct{}, 1), buckets: make(map[string]*bucket), holds: make(map[string]time.Time)}
 	for _, r := range routes {
 		d.routes[r.Name()] = r
 		if r.cfg.RateLimit > 0 {
@@ -165,18 +175,31 @@ func (d *Dispatcher) Flush(ctx context.Context) (int, error) {
 	return sent, errors.Join(errs...)
 }
 
-// work sends one route's due deliveries in order.
+// work sends one route's due deliveries in the order they were enqueued.
 func (d *Dispatcher) work(ctx context.Context, name string, ds []Delivery) (int, error) {
 	r := d.routes[name]
+	slices.SortStableFunc(ds, func(a, b Delivery) int { return cmp.Compare(a.ID, b.ID) })
 	d.mu.Lock()
 	bk := d.buckets[name]
+	// holdUntil, once set, postpones the rest of this pass's deliveries.
+	holdUntil := d.holds[name]
 	d.mu.Unlock()
+	if !holdUntil.After(d.now()) {
+		holdUntil = time.Time{}
+	}
 	var (
 		sent int
 		errs []error
-		// holdUntil, once set, postpones the rest of this pass's deliveries.
-		holdUntil time.Time
 	)
+	defer func() {
+		d.mu.Lock()
+		if holdUntil.IsZero() {
+			delete(d.holds, name)
+		} else {
+			d.holds[name] = holdUntil
+		}
+		d.mu.Unlock()
+	}()
 	for _, x := range ds {
 		if ctx.Err() != nil {
 			break
@@ -194,8 +217,8 @@ func (d *Dispatcher) work(ctx context.Context, name string, ds []Delivery) (int,
 		}
 		if bk != nil {
 			if ok, next := bk.take(now); !ok {
-				holdUntil = next
 				x.NextAttempt, x.UpdatedAt = next, now
+				holdUntil = next
 				errs = append(errs, d.update(ctx, x))
 				continue
 			}

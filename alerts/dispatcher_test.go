@@ -258,3 +258,43 @@ func TestBucket(t *testing.T) {
 		t.Errorf("after an hour %d tokens, want 6", n)
 	}
 }
+
+func TestNewerEventsWaitBehindARetry(t *testing.T) {
+	h := newHarness(t, func(c *Config) { c.Routes = []RouteConfig{{Name: "oncall", Kind: RouteLog}} })
+	ctx := context.Background()
+	a := mustAlert(t)(h.m.Point(ctx, suspectRow(1)))
+	down := true
+	rec := &recorder{fail: func(Delivery) error {
+		if down {
+			return errors.New("connection refused")
+		}
+		return nil
+	}}
+	route, _ := NewRouteWith(RouteConfig{Name: "oncall", Backoff: time.Minute, MaxBackoff: time.Minute}, rec)
+	d := NewDispatcher(h.l, []*Route{route})
+	d.Now, d.Logger = h.clock.Now, discardLogger()
+	d.Jitter = func() float64 { return 0.999999 }
+	if _, err := d.Flush(ctx); err != nil {
+		t.Fatal(err)
+	}
+	// While the first event waits for its retry, the alert resolves.
+	h.clock.Add(10 * time.Second)
+	calm := suspectRow(1)
+	calm.Outlier, calm.Influential, calm.Measures = false, false, nil
+	mustAlert(t)(h.m.Point(ctx, calm))
+	down = false
+	if _, err := d.Flush(ctx); err != nil {
+		t.Fatal(err)
+	}
+	if got := rec.ids(); len(got) != 1 {
+		t.Fatalf("sent %v during the backoff, want only the first attempt", got)
+	}
+	h.clock.Add(time.Minute)
+	if _, err := d.Flush(ctx); err != nil {
+		t.Fatal(err)
+	}
+	want := []string{a.ID + "-1", a.ID + "-1", a.ID + "-2"}
+	if got := rec.ids(); strings.Join(got, ",") != strings.Join(want, ",") {
+		t.Errorf("sent %v, want %v (opened before resolved)", got, want)
+	}
+}

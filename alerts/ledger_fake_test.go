@@ -89,10 +89,17 @@ func (l *memLedger) DueDeliveries(ctx context.Context, now time.Time, limit int)
 	for _, d := range l.ds {
 		if d.State == DeliveryPending && !d.NextAttempt.After(now) {
 			out = append(out, d)
-			if limit > 0 && len(out) == limit {
-				break
-			}
 		}
+	}
+	// As the store: ORDER BY next_attempt, id.
+	sort.SliceStable(out, func(i, j int) bool {
+		if !out[i].NextAttempt.Equal(out[j].NextAttempt) {
+			return out[i].NextAttempt.Before(out[j].NextAttempt)
+		}
+		return out[i].ID < out[j].ID
+	})
+	if limit > 0 && len(out) > limit {
+		out = out[:limit]
 	}
 	return out, nil
 }

@@ -197,7 +197,7 @@ func (m *Manager) apply(ctx context.Context, now time.Time, c change) (*Alert, e
 		return a, m.put(ctx, now, a, Resolved)
 	}
 	if !rule.Enabled {
-		return a, nil
+		return nil, nil
 	}
 	var t Transition
 	switch {
