@@ -27,6 +27,10 @@ const (
 	ChartCooks     = "cooks"     // Cook's distance by row, 4/n and the absolute cutoff
 )
 
+// MaxDrawn is the most points a chart draws; beyond it ordinary points
+// are thinned evenly (flagged points are always drawn).
+const MaxDrawn = 5000
+
 // ErrUnknownChart is returned (wrapped) for a chart name or format that
 // Chart does not know.
 var ErrUnknownChart = fmt.Errorf("report: unknown chart or format")
@@ -112,6 +116,7 @@ func newPlot(title, x, y string) *plot.Plot {
 
 // addPoints adds one scatter per verdict present, with a legend entry.
 func addPoints(p *plot.Plot, pts []view.Point, xy func(view.Point) (float64, float64)) error {
+	pts, _ = view.ThinPoints(pts, MaxDrawn)
 	for _, st := range verdictStyles {
 		var xys plotter.XYs
 		for _, pt := range pts {
@@ -273,7 +278,11 @@ func influencePlot(d view.ModelDetail) (*plot.Plot, error) {
 func cooksPlot(d view.ModelDetail) (*plot.Plot, error) {
 	p := newPlot("Cook's distance", "observation (row of the fit)", "Cook's distance")
 	n := float64(len(d.Points))
-	for _, pt := range d.Points {
+	stems, _ := view.ThinPoints(d.Points, MaxDrawn)
+	if len(d.Points) > 400 {
+		stems = nil // too dense to read; the glyphs carry it
+	}
+	for _, pt := range stems {
 		if !pt.Cook.Finite() {
 			continue
 		}

@@ -108,8 +108,24 @@ func Write(w io.Writer, d view.ModelDetail, fits []view.FitView, alerts []view.A
 			if err != nil {
 				return err
 			}
-			pd.Figures = append(pd.Figures, figure{ChartFit, "The response against " + predictor +
-				" with the fitted mean and its 95 % confidence band. Triangles on the bottom edge mark where one more row would help the fit most.", template.HTML(s)})
+			caption := "The response against " + predictor + " with the fitted mean and its 95 % confidence band"
+			if c, ok := d.Curve(predictor); ok && len(c.Held) > 0 {
+				keys := make([]string, 0, len(c.Held))
+				for k := range c.Held {
+					keys = append(keys, k)
+				}
+				slices.Sort(keys)
+				var held []string
+				for _, k := range keys {
+					held = append(held, k+" = "+num(c.Held[k]))
+				}
+				caption += ", the other predictors held at " + strings.Join(held, ", ")
+			}
+			caption += ". Green triangles on the bottom edge mark where more readings would help the fit most."
+			if _, thinned := view.ThinPoints(d.Points, MaxDrawn); thinned > 0 {
+				caption += fmt.Sprintf(" %d ordinary rows are not drawn (evenly thinned); every flagged row is.", thinned)
+			}
+			pd.Figures = append(pd.Figures, figure{ChartFit, caption, template.HTML(s)})
 		}
 		p, err := influencePlot(d)
 		if err != nil {
@@ -312,7 +328,8 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 {{with .D.Fragility}}
 {{if not .Computed}}<p class="empty">Not computed for this fit.</p>
 {{else if not .Found}}<p>No removal of up to {{.K}} rows changes a conclusion of this fit.</p>
-{{else}}<p>Removing <b class="hot">{{.Index}}</b> row{{if gt .Index 1}}s{{end}} changes a conclusion: {{.Conclusion}}. The rows: {{range $i, $r := .Rows}}{{if $i}}, {{end}}<span class="m">{{$r.File}}:{{$r.Line}}</span>{{end}}.</p>{{end}}
+{{else}}<p>Removing <b class="hot">{{.Index}}</b> row{{if gt .Index 1}}s{{end}} changes a conclusion: {{.Conclusion}}. The rows: {{range $i, $r := .Rows}}{{if $i}}, {{end}}<span class="m">{{$r.File}}:{{$r.Line}}</span>{{end}}.{{if .Fragile}} This is at or below the limit of {{.Limit}}: the fit is fragile.{{end}}</p>{{end}}
+{{if .Searched}}<p class="meta">Search: {{.Searched}}, up to {{.K}} rows removed together.</p>{{end}}
 {{end}}
 
 <h2>Where to collect more data</h2>

@@ -82,6 +82,13 @@ type Source interface {
 	Resolve(ctx context.Context, id, note string) error
 }
 
+// RecentFitter is an optional interface of a Source that can return the
+// latest n fits of a model (oldest first) without paging through the
+// whole history. The dashboard and report use it when present.
+type RecentFitter interface {
+	RecentFits(ctx context.Context, name string, n int) ([]FitView, error)
+}
+
 var (
 	// ErrNotFound is wrapped by errors for a model or alert that does not exist.
 	ErrNotFound = errors.New("view: not found")
@@ -153,6 +160,13 @@ type Fragility struct {
 	Conclusion string `json:"conclusion,omitempty"`
 	// Rows are the rows whose removal breaks it.
 	Rows []RowRef `json:"rows,omitempty"`
+	// Fragile is true when Index is at or below the configured limit
+	// (the fragile_fit alert's condition); Limit is that limit.
+	Fragile bool `json:"fragile,omitempty"`
+	Limit   int  `json:"limit,omitempty"`
+	// Searched says how the search was done ("exhaustive", "top 50
+	// candidates", ...), as the engine reports it.
+	Searched string `json:"searched,omitempty"`
 }
 
 // String gives "3 (of up to 5)", "none within 5" or "not computed".
@@ -278,8 +292,12 @@ type Curve struct {
 type Suggestion struct {
 	At   map[string]Float `json:"at"`
 	Text string           `json:"text"`
-	// DGain is the relative gain in det(X'X) from one row there.
+	// DGain is det(X'X) after one reading there over det(X'X) now:
+	// 1 + d, where d = z'(X'X)^-1 z is the variance of the fitted value
+	// there in units of sigma².
 	DGain Float `json:"d_gain"`
+	// Replicates is the number of readings proposed there (0: not said).
+	Replicates int `json:"replicates,omitempty"`
 }
 
 // DriftBand is the baseline of one coefficient and the band outside which
@@ -411,4 +429,42 @@ func (f *Float) UnmarshalJSON(b []byte) error {
 	}
 	*f = Float(v)
 	return nil
+}
+
+// ThinPoints returns the points a chart should draw when there are more
+// than max: every point whose verdict is not ordinary, and an evenly
+// strided share of the ordinary ones, in their original order, so that the
+// total is about max. dropped is how many ordinary points were left out.
+// With len(pts) <= max (or max <= 0) it returns pts unchanged.
+func ThinPoints(pts []Point, max int) (out []Point, dropped int) {
+	if max <= 0 || len(pts) <= max {
+		return pts, 0
+	}
+	flagged := 0
+	for _, p := range pts {
+		if p.Verdict != VerdictOrdinary && p.Verdict != "" {
+			flagged++
+		}
+	}
+	ordinary := len(pts) - flagged
+	room := max - flagged
+	if room < 0 {
+		room = 0
+	}
+	out = make([]Point, 0, flagged+room)
+	seen := 0
+	for _, p := range pts {
+		if p.Verdict != VerdictOrdinary && p.Verdict != "" {
+			out = append(out, p)
+			continue
+		}
+		// Keep ordinary point k when it starts a new stride bucket.
+		if room > 0 && seen*room/ordinary != (seen+1)*room/ordinary {
+			out = append(out, p)
+		} else {
+			dropped++
+		}
+		seen++
+	}
+	return out, dropped
 }

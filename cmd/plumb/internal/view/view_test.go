@@ -52,3 +52,35 @@ func TestFragilityString(t *testing.T) {
 		}
 	}
 }
+
+func TestThinPoints(t *testing.T) {
+	pts := make([]Point, 10000)
+	for i := range pts {
+		pts[i] = Point{Row: i, Verdict: VerdictOrdinary}
+	}
+	for _, i := range []int{5, 500, 9999} {
+		pts[i].Verdict = VerdictSuspect
+	}
+	out, dropped := ThinPoints(pts, 1000)
+	if len(out)+dropped != len(pts) {
+		t.Fatalf("kept %d + dropped %d != %d", len(out), dropped, len(pts))
+	}
+	if len(out) < 990 || len(out) > 1000 {
+		t.Errorf("kept %d, want about 1000", len(out))
+	}
+	flagged := 0
+	for i, p := range out {
+		if p.Verdict == VerdictSuspect {
+			flagged++
+		}
+		if i > 0 && out[i-1].Row >= p.Row {
+			t.Fatal("order not kept")
+		}
+	}
+	if flagged != 3 {
+		t.Errorf("kept %d flagged points, want all 3", flagged)
+	}
+	if same, d := ThinPoints(pts[:50], 1000); len(same) != 50 || d != 0 {
+		t.Error("small input changed")
+	}
+}

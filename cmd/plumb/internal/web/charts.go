@@ -19,6 +19,10 @@ import (
 // (colours, strokes) comes from the stylesheet, so the markup carries
 // only structure.
 
+// MaxDrawn is the most points a dashboard chart draws; beyond it ordinary
+// points are thinned evenly (flagged points are always drawn).
+const MaxDrawn = 3000
+
 // clipSeq makes clip-path ids unique within a page.
 var clipSeq atomic.Uint64
 
@@ -301,7 +305,8 @@ func fitChart(d view.ModelDetail, predictor string) template.HTML {
 	}
 	c.b.WriteString(`</g>`)
 	c.open("points")
-	for _, p := range d.Points {
+	drawn, _ := view.ThinPoints(d.Points, MaxDrawn)
+	for _, p := range drawn {
 		c.marker(float64(p.X[predictor]), float64(p.Y), p.Verdict, p.Row, pointTitle(p))
 	}
 	c.close()
@@ -328,7 +333,8 @@ func influenceChart(d view.ModelDetail) template.HTML {
 	c.hline(tc, "t-upper", "+"+num(d.Cutoffs.TCritical)+" Bonferroni")
 	c.hline(-tc, "t-lower", "−"+num(d.Cutoffs.TCritical))
 	c.open("points")
-	for _, p := range d.Points {
+	drawn, _ := view.ThinPoints(d.Points, MaxDrawn)
+	for _, p := range drawn {
 		c.marker(float64(p.Leverage), float64(p.StudentizedExternal), p.Verdict, p.Row, pointTitle(p))
 	}
 	c.close()
@@ -353,7 +359,8 @@ func cooksChart(d view.ModelDetail) template.HTML {
 	c.hline(float64(d.Cutoffs.CookAbsolute), "cook-absolute", "absolute "+num(d.Cutoffs.CookAbsolute))
 	c.open("points")
 	stems := len(d.Points) <= 400
-	for _, p := range d.Points {
+	drawn, _ := view.ThinPoints(d.Points, MaxDrawn)
+	for _, p := range drawn {
 		x := float64(p.Row + 1)
 		if stems && p.Cook.Finite() {
 			fmt.Fprintf(&c.b, `<line class="stem v-%s" x1="%s" y1="%s" x2="%s" y2="%s"/>`,

@@ -114,6 +114,8 @@ type pageData struct {
 
 type modelPage struct {
 	D         view.ModelDetail
+	Held      string // the other predictors' values under the fit curve
+	Thinned   int    // ordinary points not drawn
 	Predictor string
 	FitSVG    template.HTML
 	InflSVG   template.HTML
@@ -191,6 +193,9 @@ const historyKeep = 300
 
 // recentFits pages through the fit history and keeps the latest n.
 func (s *server) recentFits(ctx context.Context, name string, n int) ([]view.FitView, error) {
+	if rf, ok := s.src.(view.RecentFitter); ok {
+		return rf.RecentFits(ctx, name, n)
+	}
 	var keep []view.FitView
 	var after int64
 	for range 200 { // at most 200k fits read per page view
@@ -246,6 +251,14 @@ func buildModelPage(md view.ModelDetail, fits []view.FitView, x string) *modelPa
 		}
 	}
 	mp.Predictor = x
+	if c, ok := md.Curve(x); ok && len(c.Held) > 0 {
+		var parts []string
+		for _, k := range sortedKeys(c.Held) {
+			parts = append(parts, k+" = "+num(c.Held[k]))
+		}
+		mp.Held = strings.Join(parts, ", ")
+	}
+	_, mp.Thinned = view.ThinPoints(md.Points, MaxDrawn)
 	for _, p := range md.Points {
 		mp.Counts[verdictOr(p.Verdict)]++
 		if p.Verdict != view.VerdictOrdinary && p.Verdict != "" {

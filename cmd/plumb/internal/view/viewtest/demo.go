@@ -29,7 +29,7 @@ func Demo() *Fake {
 	if err != nil {
 		panic("viewtest: demo data: " + err.Error())
 	}
-	d.Fragility = view.Fragility{Computed: true, Found: true, Index: 1, K: 5,
+	d.Fragility = view.Fragility{Computed: true, Found: true, Index: 1, K: 3, Fragile: true, Limit: 2, Searched: "exhaustive",
 		Conclusion: "intercept differs from 0 at 0.05",
 		Rows:       []view.RowRef{{ID: 17, File: "run-0314.csv", Line: 18}}}
 	d.Quarantined = 2
@@ -63,7 +63,7 @@ func Demo() *Fake {
 		Name: "oven-3", State: view.StateBlocked, Reason: "collinear terms: temp_c, temp_k",
 		Response: "drift_um", Terms: []string{"intercept", "temp_c", "temp_k"}, Predictors: []string{"temp_c", "temp_k"},
 		Rows: 41, Fits: 6, LastFitAt: at.Add(-3 * time.Hour), MaxCook: view.NaN(),
-		Fragility: view.Fragility{Computed: true, Found: false, K: 5},
+		Fragility: view.Fragility{Computed: true, Found: false, K: 3, Limit: 2, Searched: "exhaustive"},
 	}})
 
 	doc := func(m map[string]any) json.RawMessage {

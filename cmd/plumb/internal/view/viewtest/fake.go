@@ -312,3 +312,22 @@ func (f *Fake) Resolve(ctx context.Context, id, note string) error {
 	f.alerts[id] = a
 	return nil
 }
+
+// RecentFits implements view.RecentFitter.
+func (f *Fake) RecentFits(ctx context.Context, name string, n int) ([]view.FitView, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return nil, f.err
+	}
+	if _, ok := f.models[name]; !ok {
+		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	}
+	all := f.fits[name]
+	if n > 0 && len(all) > n {
+		all = all[len(all)-n:]
+	}
+	return slices.Clone(all), nil
+}
+
+var _ view.RecentFitter = (*Fake)(nil)

@@ -183,9 +183,10 @@ func StraightLine(l Line) (view.ModelDetail, error) {
 	for _, x := range []float64{hi, lo} {
 		h := 1/float64(n) + (x-fit.xbar)*(x-fit.xbar)/fit.sxx
 		d.Suggestions = append(d.Suggestions, view.Suggestion{
-			At:    map[string]view.Float{l.Predictor: view.Float(x)},
-			Text:  fmt.Sprintf("one row at %s = %.4g would raise det(X'X) by %.0f %%", l.Predictor, x, 100*h),
-			DGain: view.Float(h),
+			At:         map[string]view.Float{l.Predictor: view.Float(x)},
+			Text:       fmt.Sprintf("add 3 readings near %s = %.4g: one raises det(X'X) by %.0f %%", l.Predictor, x, 100*h),
+			DGain:      view.Float(1 + h),
+			Replicates: 3,
 		})
 	}
 	base := lineFit(l.X[:5], l.Y[:5])
