@@ -16,7 +16,9 @@ var ErrNotOpen = errors.New("alerts: alert is resolved")
 
 // Config configures a Manager.
 type Config struct {
-	// Rules apply to every model without an entry in ModelRules.
+	// Rules apply to every model without an entry in ModelRules. Every
+	// model named in ModelRules counts as fed when NewManager runs, so a
+	// feed that never delivers a row is still caught by the silence rule.
 	Rules      Rules
 	ModelRules map[string]Rules
 	// Routes are the configured routes (only their names and filters are
@@ -91,7 +93,12 @@ func NewManager(l Ledger, c Config) (*Manager, error) {
 	if c.Now == nil {
 		c.Now = time.Now
 	}
-	return &Manager{ledger: l, cfg: c, open: make(map[string]string), lastData: make(map[string]time.Time)}, nil
+	m := &Manager{ledger: l, cfg: c, open: make(map[string]string), lastData: make(map[string]time.Time)}
+	start := c.Now()
+	for model := range c.ModelRules {
+		m.lastData[model] = start
+	}
+	return m, nil
 }
 
 func (m *Manager) rules(model string) Rules {

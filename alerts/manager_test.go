@@ -536,3 +536,26 @@ func TestAckFromAnotherManagerIsKept(t *testing.T) {
 		t.Errorf("state %s", rec.State)
 	}
 }
+
+func TestSilenceOfAFeedThatNeverDelivers(t *testing.T) {
+	rules := DefaultRules()
+	rules.Blocked.Silence = time.Hour
+	h := newHarness(t, func(c *Config) { c.ModelRules = map[string]Rules{"night-run": rules} })
+	ctx := context.Background()
+	if err := h.m.Tick(ctx, h.clock.Add(59*time.Minute)); err != nil {
+		t.Fatal(err)
+	}
+	if len(h.l.alerts) != 0 {
+		t.Fatal("silence alert before the limit")
+	}
+	if err := h.m.Tick(ctx, h.clock.Add(2*time.Minute)); err != nil {
+		t.Fatal(err)
+	}
+	a, err := h.m.Get(ctx, ID("night-run", KindBlocked, "night-run/feed"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.State != StateOpen || a.Blocked.Cause != CauseSilent {
+		t.Errorf("%v %+v", a, a.Blocked)
+	}
+}
