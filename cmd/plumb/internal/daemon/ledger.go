@@ -1,0 +1,88 @@
+package daemon
+
+import (
+	"context"
+	"time"
+
+	"plumb/alerts"
+	"plumb/store"
+	"plumb/store/sqlite"
+)
+
+// ledger adapts a store.Store to alerts.Ledger. The two packages never
+// import each other; their alert types mirror each other field for field,
+// so the adapter is plain conversions.
+type ledger struct{ s store.Store }
+
+var _ alerts.Ledger = ledger{}
+
+func (l ledger) PutAlert(ctx context.Context, a alerts.AlertRecord, ds []alerts.Delivery) error {
+	out := make([]store.Delivery, len(ds))
+	for i, d := range ds {
+		out[i] = toStoreDelivery(d)
+	}
+	return l.s.PutAlert(ctx, store.AlertRecord(a), out)
+}
+
+func (l ledger) Alert(ctx context.Context, id string) (alerts.AlertRecord, error) {
+	r, err := l.s.Alert(ctx, id)
+	return alerts.AlertRecord(r), err
+}
+
+func (l ledger) Alerts(ctx context.Context, q alerts.AlertQuery) ([]alerts.AlertRecord, error) {
+	rs, err := l.s.Alerts(ctx, store.AlertQuery(q))
+	out := make([]alerts.AlertRecord, len(rs))
+	for i, r := range rs {
+		out[i] = alerts.AlertRecord(r)
+	}
+	return out, err
+}
+
+func (l ledger) DueDeliveries(ctx context.Context, now time.Time, limit int) ([]alerts.Delivery, error) {
+	ds, err := l.s.DueDeliveries(ctx, now, limit)
+	return fromStoreDeliveries(ds), err
+}
+
+func (l ledger) UpdateDelivery(ctx context.Context, d alerts.Delivery) error {
+	return l.s.UpdateDelivery(ctx, toStoreDelivery(d))
+}
+
+func (l ledger) Deliveries(ctx context.Context, state alerts.DeliveryState, limit int) ([]alerts.Delivery, error) {
+	ds, err := l.s.Deliveries(ctx, store.DeliveryState(state), limit)
+	return fromStoreDeliveries(ds), err
+}
+
+func toStoreDelivery(d alerts.Delivery) store.Delivery {
+	return store.Delivery{
+		ID: d.ID, AlertID: d.AlertID, Route: d.Route, EventID: d.EventID, Payload: d.Payload,
+		State: store.DeliveryState(d.State), Attempts: d.Attempts, NextAttempt: d.NextAttempt,
+		LastError: d.LastError, CreatedAt: d.CreatedAt, UpdatedAt: d.UpdatedAt,
+	}
+}
+
+func fromStoreDeliveries(ds []store.Delivery) []alerts.Delivery {
+	out := make([]alerts.Delivery, len(ds))
+	for i, d := range ds {
+		out[i] = alerts.Delivery{
+			ID: d.ID, AlertID: d.AlertID, Route: d.Route, EventID: d.EventID, Payload: d.Payload,
+			State: alerts.DeliveryState(d.State), Attempts: d.Attempts, NextAttempt: d.NextAttempt,
+			LastError: d.LastError, CreatedAt: d.CreatedAt, UpdatedAt: d.UpdatedAt,
+		}
+	}
+	return out
+}
+
+// OpenLedger opens the config's state database and an alert manager over
+// it, for commands that act on alerts while no daemon is running.
+func OpenLedger(ctx context.Context, path string, rules alerts.Config) (*alerts.Manager, store.Store, error) {
+	db, err := sqlite.Open(ctx, path)
+	if err != nil {
+		return nil, nil, err
+	}
+	m, err := alerts.NewManager(ledger{db}, rules)
+	if err != nil {
+		db.Close()
+		return nil, nil, err
+	}
+	return m, db, nil
+}

@@ -1,0 +1,427 @@
+package daemon
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"log/slog"
+	"math"
+	"slices"
+	"strings"
+	"sync"
+	"time"
+
+	"plumb/cmd/plumb/internal/config"
+	"plumb/engine"
+	"plumb/store"
+	"plumb/watcher"
+	"plumb/watcher/decode"
+)
+
+// Model states, as status and the dashboard show them.
+const (
+	stateWaiting = "waiting" // fewer rows than min_rows
+	stateJudging = "judging"
+	stateBlocked = "blocked"
+)
+
+// modelRT is one model at run time: its spec, the rows it holds in memory
+// (values only; the raw text stays in the store), the online fit that
+// judges each arriving row, and the result of the latest full refresh.
+//
+// mu guards everything below it. Ingest (watcher goroutine) and refresh
+// (refresh goroutine) take it; view readers take it briefly to copy.
+type modelRT struct {
+	d    *Daemon
+	cfg  config.Model
+	spec engine.Model
+	// cols are the model's predictor columns, in spec.Columns() order; the
+	// decoder's numeric selection is the response, then cols.
+	cols    []string
+	cut     engine.Cutoffs
+	minRows int
+	log     *slog.Logger
+
+	mu     sync.Mutex
+	state  string
+	reason string
+	cause  string
+	// header holds the blocked reason for a file whose header changed.
+	headerBlocked map[string]string
+
+	// Rows, in arrival order.
+	ids     []int64
+	paths   []int32 // index into pathNames
+	lines   []int32
+	times   []int64 // unix nanoseconds; 0 when the model has no time column
+	vals    [][]float64
+	arrival []string // verdict at arrival ("" when not judged then)
+	current []string // latest verdict ("" when never judged)
+
+	pathNames []string
+	pathIdx   map[string]int32
+
+	online *engine.Online
+	xrow   []float64
+
+	rowsAccepted int64
+	quarantined  int64
+	fits         int64
+	lastArrival  time.Time
+
+	// pendingSuspects are rows (indices) judged suspect at arrival whose
+	// alert waits for the next refresh (which supplies the suggestion).
+	pendingSuspects []int
+
+	// Latest refresh.
+	fit       *engine.Fit
+	inf       *engine.Influence
+	verdicts  []engine.Verdict
+	window    []int // data indices the fit used, in order
+	frag      *engine.FragilityResult
+	sugg      []engine.Suggestion
+	fitAt     time.Time
+	fitID     int64
+	lastFitN  int
+	refreshNs int64
+	baseline  *baseline
+	dirty     bool
+}
+
+// baseline is the fit that drift is measured against.
+type baseline struct {
+	label string
+	terms []string
+	est   []float64
+	se    []float64
+	fit   *engine.Fit // nil for a pinned baseline
+}
+
+func newModelRT(d *Daemon, mc config.Model) (*modelRT, error) {
+	spec, err := engine.NewModel(mc.Response, mc.Terms, *mc.Intercept)
+	if err != nil {
+		return nil, fmt.Errorf("model %q: %w", mc.Name, err)
+	}
+	m := &modelRT{
+		d:             d,
+		cfg:           mc,
+		spec:          spec,
+		cols:          spec.Columns(),
+		cut:           cutoffsFor(mc.Judge),
+		minRows:       mc.MinRowsFor(spec.P()),
+		log:           d.log.With("model", mc.Name),
+		state:         stateWaiting,
+		headerBlocked: map[string]string{},
+		pathIdx:       map[string]int32{},
+		online:        engine.NewOnline(spec.P()),
+		xrow:          make([]float64, spec.P()),
+	}
+	m.vals = make([][]float64, 1+len(m.cols))
+	if m.minRows <= spec.P()+1 {
+		m.minRows = spec.P() + 2
+	}
+	return m, nil
+}
+
+func cutoffsFor(j config.Judge) engine.Cutoffs {
+	c := engine.DefaultCutoffs()
+	c.Alpha = j.Alpha
+	if j.Cutoffs == "size_adjusted" {
+		c.Family = engine.SizeAdjusted
+	}
+	if j.CookRule == "one" {
+		c.Cook = engine.CookOne
+	}
+	if j.OutlierTest == "grubbs" {
+		c.Test = engine.GrubbsTest
+	}
+	return c
+}
+
+// numeric returns the columns the decoder parses as numbers: the response,
+// then the predictors.
+func (m *modelRT) numeric() []string {
+	return append([]string{m.spec.Response}, m.cols...)
+}
+
+// text returns the columns the decoder keeps as text: the filter column and
+// the time column, in that order, when configured.
+func (m *modelRT) text() []string {
+	var t []string
+	if m.cfg.Filter != nil {
+		t = append(t, m.cfg.Filter.Column)
+	}
+	if m.cfg.TimeColumn != "" {
+		t = append(t, m.cfg.TimeColumn)
+	}
+	return t
+}
+
+func (m *modelRT) pathIndex(p string) int32 {
+	if i, ok := m.pathIdx[p]; ok {
+		return i
+	}
+	i := int32(len(m.pathNames))
+	m.pathNames = append(m.pathNames, p)
+	m.pathIdx[p] = i
+	return i
+}
+
+// value returns column c of the design values v (response first).
+func (m *modelRT) designRow(v []float64) error {
+	return m.spec.DesignRow(m.xrow, func(col string) float64 {
+		for j, c := range m.cols {
+			if c == col {
+				return v[1+j]
+			}
+		}
+		return math.NaN()
+	})
+}
+
+// restore loads the model's rows from the store and rebuilds the online
+// fit, so a restart resumes where the last run stopped.
+func (m *modelRT) restore(ctx context.Context, s store.Store) error {
+	cur, err := s.CurrentVerdicts(ctx, m.cfg.Name)
+	if err != nil {
+		return err
+	}
+	var after int64
+	const page = 50000
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	for {
+		obs, err := s.Observations(ctx, m.cfg.Name, store.ObsQuery{AfterID: after, Limit: page})
+		if err != nil {
+			return err
+		}
+		for _, o := range obs {
+			if len(o.Values) != len(m.vals) {
+				// The model's columns changed since these rows were stored:
+				// they belong to the old definition and stay in the history.
+				after = o.ID
+				continue
+			}
+			if err := m.designRow(o.Values); err != nil {
+				after = o.ID
+				continue
+			}
+			m.online.Add(m.xrow, o.Values[0])
+			arr := ""
+			if o.Arrival != nil {
+				arr = o.Arrival.Verdict
+			}
+			now := arr
+			if v, ok := cur[o.ID]; ok {
+				now = v
+			}
+			var t int64
+			if !o.Time.IsZero() {
+				t = o.Time.UnixNano()
+			}
+			m.appendRow(o.ID, o.Path, o.Line, t, o.Values, arr, now)
+			after = o.ID
+			if o.ArrivedAt.After(m.lastArrival) {
+				m.lastArrival = o.ArrivedAt
+			}
+		}
+		if len(obs) < page {
+			break
+		}
+	}
+	q, err := s.CountQuarantined(ctx, m.cfg.Name)
+	if err != nil {
+		return err
+	}
+	m.quarantined = q
+	fits, err := s.Fits(ctx, m.cfg.Name, 0, 0)
+	if err != nil {
+		return err
+	}
+	m.fits = int64(len(fits))
+	if len(fits) > 0 {
+		m.fitID = fits[len(fits)-1].ID
+	}
+	m.dirty = len(m.ids) > 0
+	return nil
+}
+
+func (m *modelRT) appendRow(id int64, path string, line int, t int64, v []float64, arrival, current string) {
+	m.ids = append(m.ids, id)
+	m.paths = append(m.paths, m.pathIndex(path))
+	m.lines = append(m.lines, int32(line))
+	m.times = append(m.times, t)
+	for j := range m.vals {
+		m.vals[j] = append(m.vals[j], v[j])
+	}
+	m.arrival = append(m.arrival, arrival)
+	m.current = append(m.current, current)
+	m.rowsAccepted++
+}
+
+// pending is one decoded row on its way into the store.
+type pending struct {
+	rec  decode.Record
+	vals []float64
+	t    int64
+	diag *store.Diagnostics
+}
+
+// ingest turns one watcher batch into observations and quarantined rows,
+// judges each new row against the online fit that includes it, and commits
+// rows and read position in one transaction.
+func (m *modelRT) ingest(ctx context.Context, b watcher.Batch) error {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	now := m.d.now()
+	var obs []store.Observation
+	var quar []store.QuarantineRow
+	var rows []pending
+	var filter map[string]bool
+	if m.cfg.Filter != nil {
+		filter = make(map[string]bool, len(m.cfg.Filter.Values))
+		for _, v := range m.cfg.Filter.Values {
+			filter[v] = true
+		}
+	}
+	mark := m.online.Snapshot()
+	for _, rec := range b.Records {
+		if rec.Err != nil {
+			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, rec.Err.Column, rec.Err.Error()))
+			continue
+		}
+		ti := 0
+		if filter != nil {
+			if !filter[strings.TrimSpace(rec.Text[ti])] {
+				continue // deliberately excluded by the model's filter
+			}
+			ti++
+		}
+		var t int64
+		if m.cfg.TimeColumn != "" {
+			layout := m.cfg.TimeLayout
+			if layout == "" {
+				layout = time.RFC3339Nano
+			}
+			tt, err := time.Parse(layout, strings.TrimSpace(rec.Text[ti]))
+			if err != nil {
+				quar = append(quar, quarantineRow(m.cfg.Name, b, rec, 0, fmt.Sprintf("%s:%d: column %q: not a time in layout %q: %q", b.Path, rec.Line, m.cfg.TimeColumn, layout, rec.Text[ti])))
+				continue
+			}
+			t = tt.UnixNano()
+		}
+		if err := m.designRow(rec.Values); err != nil {
+			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, 0, fmt.Sprintf("%s:%d: %v", b.Path, rec.Line, err)))
+			continue
+		}
+		p := pending{rec: rec, vals: rec.Values, t: t}
+		o, ok := m.online.Add(m.xrow, rec.Values[0])
+		if ok && m.online.N() >= m.minRows {
+			v := m.judgeArrival(o)
+			p.diag = diagnostics(o, v)
+		}
+		rows = append(rows, p)
+	}
+	for _, p := range rows {
+		o := store.Observation{
+			Model: m.cfg.Name, Path: b.Path, Generation: b.Generation, Line: p.rec.Line,
+			Raw: p.rec.Raw, Values: p.vals, ArrivedAt: now, Arrival: p.diag,
+		}
+		if p.t != 0 {
+			o.Time = time.Unix(0, p.t).UTC()
+		}
+		obs = append(obs, o)
+	}
+	src := sourceOf(m.cfg.Name, b)
+	src.Rows = int64(len(obs))
+	src.Quarantined = int64(len(quar))
+	ids, err := m.d.store.Ingest(ctx, store.Batch{Source: src, Observations: obs, Quarantine: quar})
+	if err != nil {
+		m.online.Restore(mark)
+		if errors.Is(err, store.ErrStale) {
+			// Already committed by an earlier delivery: nothing to add.
+			return nil
+		}
+		return err
+	}
+	for i, p := range rows {
+		arr := ""
+		if p.diag != nil {
+			arr = p.diag.Verdict
+		}
+		m.appendRow(ids[i], b.Path, p.rec.Line, p.t, p.vals, arr, arr)
+		if arr == "suspect" {
+			m.pendingSuspects = append(m.pendingSuspects, len(m.ids)-1)
+		}
+	}
+	m.quarantined += int64(len(quar))
+	if _, ok := m.headerBlocked[b.Path]; ok && len(b.Records) > 0 {
+		// The file is read again: its header matches the columns once more.
+		delete(m.headerBlocked, b.Path)
+		m.dirty = true
+	}
+	if len(rows) > 0 {
+		m.lastArrival = now
+		m.dirty = true
+	}
+	m.d.metrics.rows(m.cfg.Name, len(rows), len(quar))
+	if len(quar) > 0 {
+		m.log.Warn("rows quarantined", "file", b.Path, "count", len(quar), "first", quar[0].Reason)
+	}
+	return nil
+}
+
+func quarantineRow(model string, b watcher.Batch, rec decode.Record, col int, reason string) store.QuarantineRow {
+	return store.QuarantineRow{
+		Model: model, Path: b.Path, Generation: b.Generation, Line: rec.Line, Column: col,
+		Raw: rec.Raw, Reason: reason,
+	}
+}
+
+// diagnostics converts the engine's measures of one row into the stored form.
+func diagnostics(o engine.Obs, v engine.Verdict) *store.Diagnostics {
+	flags, _ := json.Marshal(flagsJSON(v.Flags))
+	return &store.Diagnostics{
+		Leverage: o.Leverage, Residual: o.Residual,
+		StudentizedInternal: o.StudentInternal, StudentizedExternal: o.StudentExternal,
+		CooksDistance: o.Cook, DFFITS: o.DFFITS, DFBETAS: slices.Clone(o.DFBETAS),
+		COVRATIO: o.COVRATIO, OutlierPBonferroni: o.BonferroniP,
+		Verdict: v.Word(), Flags: string(flags),
+	}
+}
+
+// flagJSON is a crossed cutoff as stored and sent.
+type flagJSON struct {
+	Measure string  `json:"measure"`
+	Family  string  `json:"family"`
+	Term    string  `json:"term,omitempty"`
+	Value   float64 `json:"value"`
+	Cutoff  float64 `json:"cutoff"`
+}
+
+func flagsJSON(fs []engine.Flag) []flagJSON {
+	out := make([]flagJSON, 0, len(fs))
+	for _, f := range fs {
+		out = append(out, flagJSON{Measure: f.Measure, Family: f.Family, Term: f.Term, Value: finite(f.Value), Cutoff: finite(f.Cutoff)})
+	}
+	return out
+}
+
+func finite(v float64) float64 {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0
+	}
+	return v
+}
+
+// judgeArrival judges one arriving row against the online fit that
+// includes it, with the model's cutoffs for n = the rows so far. The
+// outlier test at arrival is the Bonferroni test; a model configured for
+// the Grubbs test gets it at each refresh, which sees all residuals.
+func (m *modelRT) judgeArrival(o engine.Obs) engine.Verdict {
+	c := m.cut
+	c.Test = engine.BonferroniTest
+	one := &engine.Influence{Fit: &engine.Fit{Model: m.spec, N: m.online.N(), P: m.spec.P()}, Rows: []engine.Obs{o}}
+	return engine.Judge(one, c)[0]
+}

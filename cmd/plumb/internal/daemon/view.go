@@ -1,0 +1,388 @@
+package daemon
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+
+	"plumb/alerts"
+	"plumb/cmd/plumb/internal/view"
+	"plumb/engine"
+	"plumb/store"
+)
+
+// viewSource is the daemon seen by the web server and the report writer.
+type viewSource struct{ d *Daemon }
+
+var _ view.Source = viewSource{}
+
+// View returns the daemon as a view.Source (for the report command).
+func (d *Daemon) View() view.Source { return viewSource{d} }
+
+func (v viewSource) Ready(ctx context.Context) error {
+	v.d.mu.RLock()
+	defer v.d.mu.RUnlock()
+	if !v.d.ready {
+		return errors.New("first scan of the watched folders not finished")
+	}
+	return nil
+}
+
+func (v viewSource) model(name string) (*modelRT, error) {
+	v.d.mu.RLock()
+	defer v.d.mu.RUnlock()
+	m := v.d.models[name]
+	if m == nil {
+		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	}
+	return m, nil
+}
+
+func (v viewSource) Models(ctx context.Context) ([]view.ModelSummary, error) {
+	v.d.mu.RLock()
+	order := append([]string(nil), v.d.order...)
+	v.d.mu.RUnlock()
+	open, err := v.openAlerts(ctx)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]view.ModelSummary, 0, len(order))
+	for _, name := range order {
+		m, err := v.model(name)
+		if err != nil {
+			continue
+		}
+		out = append(out, m.summary(open[name]))
+	}
+	return out, nil
+}
+
+func (v viewSource) openAlerts(ctx context.Context) (map[string]int, error) {
+	counts := map[string]int{}
+	for _, st := range []string{"open", "acknowledged"} {
+		as, err := v.d.store.Alerts(ctx, store.AlertQuery{State: st})
+		if err != nil {
+			return nil, err
+		}
+		for _, a := range as {
+			counts[a.Model]++
+		}
+	}
+	return counts, nil
+}
+
+func (m *modelRT) summary(openAlerts int) view.ModelSummary {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	s := view.ModelSummary{
+		Name: m.cfg.Name, State: m.state, Reason: m.reason, Response: m.spec.Response,
+		Terms: m.spec.Names(), Predictors: m.cols, Rows: m.rowsAccepted, Quarantined: m.quarantined,
+		Fits: m.fits, LastFitAt: m.fitAt, OpenAlerts: openAlerts, MaxCook: view.NaN(),
+	}
+	if m.frag != nil {
+		s.Fragility = m.fragView()
+	}
+	if m.inf != nil {
+		mc := 0.0
+		for _, o := range m.inf.Rows {
+			if o.Cook > mc {
+				mc = o.Cook
+			}
+		}
+		s.MaxCook = view.Float(mc)
+		for _, vd := range m.verdicts {
+			if vd.Word() == "suspect" {
+				s.Suspects++
+			}
+		}
+	}
+	return s
+}
+
+// fragView converts the latest fragility result. Caller holds mu.
+func (m *modelRT) fragView() view.Fragility {
+	f := view.Fragility{Computed: true, K: m.cfg.Fragility.MaxRemoved}
+	if m.frag.Index > 0 {
+		f.Found = true
+		f.Index = m.frag.Index
+		f.Conclusion = m.frag.Conclusion
+		for _, row := range m.frag.RemovedRows {
+			if row >= 1 && row <= len(m.window) {
+				r := m.window[row-1]
+				f.Rows = append(f.Rows, view.RowRef{ID: m.ids[r], File: m.pathNames[m.paths[r]], Line: int(m.lines[r])})
+			}
+		}
+	}
+	return f
+}
+
+func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, error) {
+	m, err := v.model(name)
+	if err != nil {
+		return view.ModelDetail{}, err
+	}
+	open, err := v.openAlerts(ctx)
+	if err != nil {
+		return view.ModelDetail{}, err
+	}
+	d := view.ModelDetail{ModelSummary: m.summary(open[name])}
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	if m.fit == nil {
+		return d, nil
+	}
+	f := m.fit
+	d.FitID, d.FitAt, d.N, d.P = m.fitID, m.fitAt, f.N, f.P
+	d.Sigma, d.RSquared, d.AdjRSquared = view.Float(f.Sigma), view.Float(f.RSquared), view.Float(f.AdjRSquared)
+	for _, c := range f.Coef {
+		d.Coefficients = append(d.Coefficients, view.Coefficient{Term: c.Term, Estimate: view.Float(c.Estimate),
+			StdError: view.Float(c.StdError), T: view.Float(c.T), P: view.Float(c.P),
+			Lower95: view.Float(c.Lower95), Upper95: view.Float(c.Upper95)})
+	}
+	for i, r := range m.window {
+		o := m.inf.Rows[i]
+		p := view.Point{ID: m.ids[r], Row: i, File: m.pathNames[m.paths[r]], Line: int(m.lines[r]),
+			X: map[string]view.Float{}, Y: view.Float(m.vals[0][r]), Fitted: view.Float(f.Fitted[i]),
+			Residual: view.Float(o.Residual), Leverage: view.Float(o.Leverage),
+			StudentizedExternal: view.Float(o.StudentExternal), Cook: view.Float(o.Cook),
+			DFFITS: view.Float(o.DFFITS), BonferroniP: view.Float(o.BonferroniP), Verdict: m.verdicts[i].Word()}
+		for j, c := range m.cols {
+			p.X[c] = view.Float(m.vals[1+j][r])
+		}
+		for _, fl := range m.verdicts[i].Flags {
+			p.Flags = append(p.Flags, view.Flag{Measure: fl.Measure, Family: fl.Family, Term: fl.Term, Value: view.Float(fl.Value), Cutoff: view.Float(fl.Cutoff)})
+		}
+		d.Points = append(d.Points, p)
+	}
+	lim := engine.CutoffLimits(m.cut, f.N, f.P)
+	// The Bonferroni critical |t|: the t(n-p-1) quantile at 1 - alpha/(2n).
+	tcrit := engine.TQuantile(1-m.cut.Alpha/(2*float64(f.N)), float64(f.N-f.P-1))
+	d.Cutoffs = view.Cutoffs{Leverage: view.Float(lim.Leverage), CookAbsolute: view.Float(lim.CookAbsolute),
+		CookSizeAdjusted: view.Float(lim.CookSize), TCritical: view.Float(tcrit), Alpha: view.Float(m.cut.Alpha)}
+	d.Curves = m.curves()
+	for _, s := range m.sugg {
+		at := map[string]view.Float{}
+		for k, x := range s.At {
+			at[k] = view.Float(x)
+		}
+		d.Suggestions = append(d.Suggestions, view.Suggestion{At: at, Text: s.Text, DGain: view.Float(s.DGain)})
+	}
+	if b := m.baseline; b != nil {
+		k := m.cfg.Alerts.Drift.K
+		for i, t := range b.terms {
+			if math.IsNaN(b.est[i]) {
+				continue
+			}
+			se := b.se[i]
+			if math.IsNaN(se) && i < len(f.Coef) {
+				se = f.Coef[i].StdError
+			}
+			d.Drift = append(d.Drift, view.DriftBand{Term: t, Baseline: view.Float(b.est[i]),
+				Lower: view.Float(b.est[i] - k*se), Upper: view.Float(b.est[i] + k*se)})
+		}
+	}
+	return d, nil
+}
+
+// curves evaluates the fitted mean and its 95% band over each predictor,
+// the other predictors held at their means. Caller holds mu.
+func (m *modelRT) curves() []view.Curve {
+	const steps = 60
+	means := map[string]float64{}
+	lo, hi := map[string]float64{}, map[string]float64{}
+	for j, c := range m.cols {
+		s, a, b := 0.0, math.Inf(1), math.Inf(-1)
+		for _, r := range m.window {
+			x := m.vals[1+j][r]
+			s += x
+			a, b = min(a, x), max(b, x)
+		}
+		means[c] = s / float64(len(m.window))
+		lo[c], hi[c] = a, b
+	}
+	tq := engine.TQuantile(0.975, float64(m.fit.DF))
+	x := make([]float64, m.spec.P())
+	var out []view.Curve
+	for _, c := range m.cols {
+		cv := view.Curve{Predictor: c}
+		if len(m.cols) > 1 {
+			cv.Held = map[string]view.Float{}
+			for _, o := range m.cols {
+				if o != c {
+					cv.Held[o] = view.Float(means[o])
+				}
+			}
+		}
+		for k := 0; k <= steps; k++ {
+			xv := lo[c] + (hi[c]-lo[c])*float64(k)/steps
+			err := m.spec.DesignRow(x, func(col string) float64 {
+				if col == c {
+					return xv
+				}
+				return means[col]
+			})
+			if err != nil {
+				continue
+			}
+			y, se := m.fit.Predict(x)
+			cv.X = append(cv.X, view.Float(xv))
+			cv.Y = append(cv.Y, view.Float(y))
+			cv.Lower = append(cv.Lower, view.Float(y-tq*se))
+			cv.Upper = append(cv.Upper, view.Float(y+tq*se))
+		}
+		out = append(out, cv)
+	}
+	return out
+}
+
+func (v viewSource) Fits(ctx context.Context, name string, after int64, limit int) ([]view.FitView, error) {
+	if _, err := v.model(name); err != nil {
+		return nil, err
+	}
+	fs, err := v.d.store.Fits(ctx, name, after, limit)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]view.FitView, len(fs))
+	for i, f := range fs {
+		out[i] = fitView(f)
+	}
+	return out, nil
+}
+
+func fitView(f store.FitRecord) view.FitView {
+	fv := view.FitView{ID: f.ID, At: f.At, N: f.N, P: f.P, Terms: f.Terms, Sigma: view.Float(f.Sigma),
+		RSquared: view.Float(f.RSquared), LastObsID: f.LastObsID, MaxCook: view.NaN()}
+	for _, e := range f.Estimates {
+		fv.Estimates = append(fv.Estimates, view.Float(e))
+	}
+	for _, e := range f.StdErrors {
+		fv.StdErrors = append(fv.StdErrors, view.Float(e))
+	}
+	switch {
+	case f.Fragility >= 0:
+		fv.Fragility = view.Fragility{Computed: true, Found: true, Index: f.Fragility, K: f.FragilityK}
+	case f.Fragility == -1:
+		fv.Fragility = view.Fragility{Computed: true, K: f.FragilityK}
+	}
+	var detail struct {
+		MaxCook   *float64 `json:"max_cooks_distance"`
+		Fragility struct {
+			Conclusion string `json:"conclusion"`
+		} `json:"fragility"`
+	}
+	if json.Unmarshal([]byte(f.Detail), &detail) == nil {
+		if detail.MaxCook != nil {
+			fv.MaxCook = view.Float(*detail.MaxCook)
+		}
+		fv.Fragility.Conclusion = detail.Fragility.Conclusion
+	}
+	return fv
+}
+
+func (v viewSource) Observations(ctx context.Context, name string, after int64, limit int) ([]view.ObservationView, error) {
+	m, err := v.model(name)
+	if err != nil {
+		return nil, err
+	}
+	obs, err := v.d.store.Observations(ctx, name, store.ObsQuery{AfterID: after, Limit: limit})
+	if err != nil {
+		return nil, err
+	}
+	cur, err := v.d.store.CurrentVerdicts(ctx, name)
+	if err != nil {
+		return nil, err
+	}
+	_ = m
+	out := make([]view.ObservationView, len(obs))
+	for i, o := range obs {
+		ov := view.ObservationView{ID: o.ID, File: o.Path, Generation: o.Generation, Line: o.Line, Raw: o.Raw,
+			Time: o.Time, ArrivedAt: o.ArrivedAt, Leverage: view.NaN(), Cook: view.NaN(), StudentizedExternal: view.NaN()}
+		for _, x := range o.Values {
+			ov.Values = append(ov.Values, view.Float(x))
+		}
+		if a := o.Arrival; a != nil {
+			ov.ArrivalVerdict, ov.Verdict = a.Verdict, a.Verdict
+			ov.Leverage, ov.Cook, ov.StudentizedExternal = view.Float(a.Leverage), view.Float(a.CooksDistance), view.Float(a.StudentizedExternal)
+		}
+		if w, ok := cur[o.ID]; ok {
+			ov.Verdict = w
+		}
+		out[i] = ov
+	}
+	return out, nil
+}
+
+func (v viewSource) Quarantine(ctx context.Context, model string, after int64, limit int) ([]view.QuarantineView, error) {
+	qs, err := v.d.store.Quarantined(ctx, model, after, limit)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]view.QuarantineView, len(qs))
+	for i, q := range qs {
+		out[i] = view.QuarantineView{ID: q.ID, Model: q.Model, File: q.Path, Line: q.Line, Column: q.Column, Raw: q.Raw, Reason: q.Reason, At: q.At}
+	}
+	return out, nil
+}
+
+func (v viewSource) Alerts(ctx context.Context, f view.AlertFilter) ([]view.AlertView, error) {
+	as, err := v.d.store.Alerts(ctx, store.AlertQuery{State: f.State, Model: f.Model, Kind: f.Kind, Limit: f.Limit, Offset: f.Offset})
+	if err != nil {
+		return nil, err
+	}
+	out := make([]view.AlertView, len(as))
+	for i, a := range as {
+		out[i] = alertView(a)
+	}
+	return out, nil
+}
+
+func alertView(a store.AlertRecord) view.AlertView {
+	av := view.AlertView{ID: a.ID, Model: a.Model, Kind: a.Kind, Severity: a.Severity, Subject: a.Subject,
+		State: a.State, FirstSeen: a.FirstSeen, LastSeen: a.LastSeen, Doc: json.RawMessage(a.Doc)}
+	if doc, err := alerts.DecodeAlert([]byte(a.Doc)); err == nil {
+		av.Summary = doc.Summary
+		if doc.Ack != nil {
+			av.Note, av.By = doc.Ack.Note, doc.Ack.By
+		}
+		if doc.Resolution != nil && doc.Resolution.Note != "" {
+			av.Note = doc.Resolution.Note
+		}
+	}
+	return av
+}
+
+func (v viewSource) Alert(ctx context.Context, id string) (view.AlertView, error) {
+	a, err := v.d.store.Alert(ctx, id)
+	if errors.Is(err, store.ErrNotFound) {
+		return view.AlertView{}, fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+	}
+	if err != nil {
+		return view.AlertView{}, err
+	}
+	return alertView(a), nil
+}
+
+func (v viewSource) Ack(ctx context.Context, id, note, who string) error {
+	_, err := v.d.alerts.Ack(ctx, id, note, who)
+	return v.actionErr(id, err)
+}
+
+func (v viewSource) Resolve(ctx context.Context, id, note string) error {
+	_, err := v.d.alerts.Resolve(ctx, id, note)
+	return v.actionErr(id, err)
+}
+
+func (v viewSource) actionErr(id string, err error) error {
+	switch {
+	case err == nil:
+		return nil
+	case errors.Is(err, store.ErrNotFound):
+		return fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+	case errors.Is(err, alerts.ErrNotOpen):
+		return fmt.Errorf("alert %q: %w: %v", id, view.ErrState, err)
+	}
+	return err
+}

@@ -1,0 +1,89 @@
+package main
+
+import (
+	"bufio"
+	"context"
+	"fmt"
+	"io"
+	"log/slog"
+	"os"
+
+	"plumb/cmd/plumb/internal/daemon"
+	"plumb/cmd/plumb/internal/report"
+	"plumb/cmd/plumb/internal/view"
+)
+
+func init() {
+	register(command{
+		name:    "report",
+		summary: "write a self-contained HTML report of one model, or one chart as SVG or PNG",
+		run:     runReport,
+	})
+}
+
+func runReport(ctx context.Context, e *env, args []string) error {
+	fs := newFlags(e, "report", "--config FILE MODEL -o report.html [--format html|svg|png] [--chart fit|influence|cooks]",
+		"Report refits the model from the state database (reading only: it changes nothing, and\n"+
+			"may run beside the daemon) and writes one self-contained HTML file with the fit, the\n"+
+			"influence table's notable rows, fragility, where to collect more data, the alert\n"+
+			"history and the cautions. With --format svg or png it writes a single chart instead.")
+	path := fs.String("config", "plumb.toml", "the configuration `file`")
+	out := fs.String("o", "", "output `file` (default standard output)")
+	format := fs.String("format", "html", "html, svg or png")
+	chart := fs.String("chart", report.ChartFit, "with --format svg|png: which chart (fit, influence, cooks)")
+	pos, err := parseFlags(fs, args)
+	if err != nil {
+		return err
+	}
+	if len(pos) != 1 {
+		fs.Usage()
+		return fmt.Errorf("report: %w: name one model", errUsage)
+	}
+	if *format != "html" && *format != "svg" && *format != "png" {
+		return fmt.Errorf("report: %w: --format wants html, svg or png, got %q", errUsage, *format)
+	}
+	name := pos[0]
+	cfg, err := loadConfig(*path)
+	if err != nil {
+		return &exitError{code: 1, err: err}
+	}
+	if _, err := os.Stat(cfg.Resolve(cfg.State)); err != nil {
+		return fmt.Errorf("state database: %w (has plumb run started yet?)", err)
+	}
+	d, err := daemon.New(ctx, cfg, daemon.Options{ReadOnly: true, Logger: slog.New(slog.NewTextHandler(e.stderr, &slog.HandlerOptions{Level: slog.LevelWarn}))})
+	if err != nil {
+		return err
+	}
+	defer d.Close()
+	if err := d.RefreshAll(ctx); err != nil {
+		return err
+	}
+	src := d.View()
+	detail, err := src.Model(ctx, name)
+	if err != nil {
+		return fmt.Errorf("report: %w", err)
+	}
+	var w io.Writer = e.stdout
+	if *out != "" {
+		f, err := os.Create(*out)
+		if err != nil {
+			return err
+		}
+		defer f.Close()
+		bw := bufio.NewWriter(f)
+		defer bw.Flush()
+		w = bw
+	}
+	if *format != "html" {
+		return report.Chart(w, detail, *chart, *format)
+	}
+	fits, err := src.Fits(ctx, name, 0, 100000)
+	if err != nil {
+		return err
+	}
+	as, err := src.Alerts(ctx, view.AlertFilter{Model: name, Limit: 1000})
+	if err != nil {
+		return err
+	}
+	return report.Write(w, detail, fits, as, report.Options{})
+}

@@ -1,0 +1,320 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"strings"
+	"text/tabwriter"
+	"time"
+
+	"plumb/cmd/plumb/internal/config"
+	"plumb/store"
+	"plumb/store/sqlite"
+)
+
+func init() {
+	register(command{
+		name:    "status",
+		summary: "show each model's state, rows, fits and fragility, and each file's position",
+		run:     runStatus,
+	})
+	register(command{
+		name:    "history",
+		summary: "show how a model's fit, or one observation's verdict, evolved",
+		run:     runHistory,
+	})
+}
+
+// openState opens the config's state database for reading by a command
+// that runs beside the daemon (SQLite in WAL mode allows it).
+func openState(ctx context.Context, path string) (*config.Config, store.Store, error) {
+	cfg, err := loadConfig(path)
+	if err != nil {
+		return nil, nil, &exitError{code: 1, err: err}
+	}
+	p := cfg.Resolve(cfg.State)
+	if _, err := os.Stat(p); err != nil {
+		return nil, nil, fmt.Errorf("state database %s: %w (has plumb run started yet?)", p, err)
+	}
+	db, err := sqlite.Open(ctx, p)
+	if err != nil {
+		return nil, nil, err
+	}
+	return cfg, db, nil
+}
+
+type statusModel struct {
+	Name        string  `json:"name"`
+	State       string  `json:"state"`
+	Reason      string  `json:"reason,omitempty"`
+	Rows        int64   `json:"rows"`
+	Quarantined int64   `json:"quarantined"`
+	Fits        int     `json:"fits"`
+	LastFit     *fitOut `json:"last_fit,omitempty"`
+	Fragility   *int    `json:"fragility"`
+}
+
+type fitOut struct {
+	ID        int64              `json:"id"`
+	At        time.Time          `json:"at"`
+	N         int                `json:"n"`
+	Sigma     float64            `json:"sigma"`
+	RSquared  float64            `json:"r_squared"`
+	Estimates map[string]float64 `json:"estimates"`
+	StdErrors map[string]float64 `json:"std_errors"`
+	Fragility *int               `json:"fragility"`
+}
+
+type statusFile struct {
+	Model       string `json:"model"`
+	Path        string `json:"path"`
+	Generation  int    `json:"generation"`
+	Rows        int64  `json:"rows"`
+	Quarantined int64  `json:"quarantined"`
+	Offset      int64  `json:"offset"`
+	Line        int    `json:"line"`
+}
+
+type statusDelivery struct {
+	ID        int64  `json:"id"`
+	AlertID   string `json:"alert_id"`
+	Route     string `json:"route"`
+	State     string `json:"state"`
+	Attempts  int    `json:"attempts"`
+	LastError string `json:"last_error,omitempty"`
+}
+
+type statusOut struct {
+	Models     []statusModel    `json:"models"`
+	Files      []statusFile     `json:"files"`
+	Deliveries []statusDelivery `json:"undelivered"`
+}
+
+func fitOutOf(f store.FitRecord) *fitOut {
+	o := &fitOut{ID: f.ID, At: f.At, N: f.N, Sigma: f.Sigma, RSquared: f.RSquared,
+		Estimates: map[string]float64{}, StdErrors: map[string]float64{}, Fragility: fragPtr(f.Fragility)}
+	for i, t := range f.Terms {
+		if i < len(f.Estimates) {
+			o.Estimates[t] = f.Estimates[i]
+		}
+		if i < len(f.StdErrors) {
+			o.StdErrors[t] = f.StdErrors[i]
+		}
+	}
+	return o
+}
+
+// fragPtr maps the stored fragility to JSON: a number, or null when no
+// removal breaks a conclusion or it was not computed.
+func fragPtr(v int) *int {
+	if v < 0 {
+		return nil
+	}
+	return &v
+}
+
+func runStatus(ctx context.Context, e *env, args []string) error {
+	fs := newFlags(e, "status", "--config FILE [--json]",
+		"Status shows, for each model, its state (waiting for rows, judging, blocked and why),\n"+
+			"rows accepted and quarantined, fits, the last fit and its fragility; for each file its\n"+
+			"read position; and alert deliveries that are pending or dead-lettered.")
+	path := fs.String("config", "plumb.toml", "the configuration `file`")
+	asJSON := fs.Bool("json", false, "print JSON")
+	if _, err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	cfg, db, err := openState(ctx, *path)
+	if err != nil {
+		return err
+	}
+	defer db.Close()
+	states, err := db.ModelStates(ctx)
+	if err != nil {
+		return err
+	}
+	stateOf := map[string]store.ModelState{}
+	for _, s := range states {
+		stateOf[s.Model] = s
+	}
+	var out statusOut
+	for _, m := range cfg.Models {
+		sm := statusModel{Name: m.Name, State: "waiting"}
+		if s, ok := stateOf[m.Name]; ok {
+			sm.State, sm.Reason = s.State, s.Reason
+		}
+		if sm.Rows, err = db.CountObservations(ctx, m.Name); err != nil {
+			return err
+		}
+		if sm.Quarantined, err = db.CountQuarantined(ctx, m.Name); err != nil {
+			return err
+		}
+		fits, err := db.Fits(ctx, m.Name, 0, 0)
+		if err != nil {
+			return err
+		}
+		sm.Fits = len(fits)
+		if len(fits) > 0 {
+			sm.LastFit = fitOutOf(fits[len(fits)-1])
+			sm.Fragility = sm.LastFit.Fragility
+		}
+		out.Models = append(out.Models, sm)
+		srcs, err := db.Sources(ctx, m.Name)
+		if err != nil {
+			return err
+		}
+		for _, s := range srcs {
+			out.Files = append(out.Files, statusFile{Model: m.Name, Path: s.Path, Generation: s.Generation, Rows: s.Rows, Quarantined: s.Quarantined, Offset: s.Offset, Line: s.Line})
+		}
+	}
+	for _, st := range []store.DeliveryState{store.DeliveryPending, store.DeliveryDead} {
+		ds, err := db.Deliveries(ctx, st, 100)
+		if err != nil {
+			return err
+		}
+		for _, d := range ds {
+			out.Deliveries = append(out.Deliveries, statusDelivery{ID: d.ID, AlertID: d.AlertID, Route: d.Route, State: string(d.State), Attempts: d.Attempts, LastError: d.LastError})
+		}
+	}
+	if *asJSON {
+		return writeJSON(e.stdout, out)
+	}
+	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "MODEL\tSTATE\tROWS\tQUARANTINED\tFITS\tLAST FIT\tFRAGILITY")
+	for _, m := range out.Models {
+		last, frag := "-", "-"
+		if m.LastFit != nil {
+			last = fmt.Sprintf("n=%d sigma=%.4g R²=%.4f at %s", m.LastFit.N, m.LastFit.Sigma, m.LastFit.RSquared, m.LastFit.At.Local().Format(time.DateTime))
+			frag = "none within limit"
+			if m.Fragility != nil {
+				frag = fmt.Sprint(*m.Fragility)
+			}
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%s\t%s\n", m.Name, m.State, m.Rows, m.Quarantined, m.Fits, last, frag)
+		if m.Reason != "" {
+			fmt.Fprintf(tw, "\t  %s\n", m.Reason)
+		}
+	}
+	fmt.Fprintln(tw)
+	fmt.Fprintln(tw, "FILE\tMODEL\tGEN\tROWS\tQUARANTINED\tOFFSET\tLINE")
+	for _, f := range out.Files {
+		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%d\t%d\n", f.Path, f.Model, f.Generation, f.Rows, f.Quarantined, f.Offset, f.Line)
+	}
+	if len(out.Deliveries) > 0 {
+		fmt.Fprintln(tw)
+		fmt.Fprintln(tw, "UNDELIVERED\tROUTE\tSTATE\tATTEMPTS\tLAST ERROR")
+		for _, d := range out.Deliveries {
+			fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%s\n", d.AlertID, d.Route, d.State, d.Attempts, d.LastError)
+		}
+	}
+	return tw.Flush()
+}
+
+func writeJSON(w io.Writer, v any) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(v)
+}
+
+func runHistory(ctx context.Context, e *env, args []string) error {
+	fs := newFlags(e, "history", "--config FILE MODEL [--line FILE:LINE] [--json]",
+		"History shows how a model's coefficients, sigma, R² and fragility evolved fit by fit,\n"+
+			"or, with --line, one observation's diagnostics at arrival and every later change of\n"+
+			"its verdict.")
+	path := fs.String("config", "plumb.toml", "the configuration `file`")
+	line := fs.String("line", "", "one observation, as `FILE:LINE` (file relative to the model's folder)")
+	asJSON := fs.Bool("json", false, "print JSON")
+	pos, err := parseFlags(fs, args)
+	if err != nil {
+		return err
+	}
+	if len(pos) != 1 {
+		fs.Usage()
+		return fmt.Errorf("history: %w: name one model", errUsage)
+	}
+	model := pos[0]
+	cfg, db, err := openState(ctx, *path)
+	if err != nil {
+		return err
+	}
+	defer db.Close()
+	known := false
+	for _, m := range cfg.Models {
+		known = known || m.Name == model
+	}
+	if !known {
+		return fmt.Errorf("history: no model is named %q in %s", model, *path)
+	}
+	if *line != "" {
+		i := strings.LastIndexByte(*line, ':')
+		var ln int
+		if i < 0 {
+			return fmt.Errorf("history: %w: --line wants FILE:LINE, got %q", errUsage, *line)
+		}
+		if _, err := fmt.Sscan((*line)[i+1:], &ln); err != nil {
+			return fmt.Errorf("history: %w: --line wants FILE:LINE, got %q", errUsage, *line)
+		}
+		o, err := db.ObservationAt(ctx, model, (*line)[:i], ln)
+		if err != nil {
+			return fmt.Errorf("history: %s: %w", *line, err)
+		}
+		ch, err := db.VerdictChanges(ctx, o.ID)
+		if err != nil {
+			return err
+		}
+		out := map[string]any{"id": o.ID, "file": o.Path, "line": o.Line, "raw": o.Raw, "arrived_at": o.ArrivedAt, "arrival": o.Arrival, "changes": ch}
+		if *asJSON {
+			return writeJSON(e.stdout, out)
+		}
+		fmt.Fprintf(e.stdout, "%s:%d  %q  arrived %s\n", o.Path, o.Line, o.Raw, o.ArrivedAt.Local().Format(time.DateTime))
+		if a := o.Arrival; a != nil {
+			fmt.Fprintf(e.stdout, "  at arrival: %s  leverage %.4g  studentized %.4g  Cook's D %.4g  DFFITS %.4g  Bonferroni p %.3g\n",
+				a.Verdict, a.Leverage, a.StudentizedExternal, a.CooksDistance, a.DFFITS, a.OutlierPBonferroni)
+		} else {
+			fmt.Fprintln(e.stdout, "  at arrival: not judged (the model had too few rows)")
+		}
+		for _, c := range ch {
+			from := c.From
+			if from == "" {
+				from = "not judged"
+			}
+			fmt.Fprintf(e.stdout, "  %s  fit %d: %s -> %s\n", c.At.Local().Format(time.DateTime), c.FitID, from, c.To)
+		}
+		return nil
+	}
+	fits, err := db.Fits(ctx, model, 0, 0)
+	if err != nil {
+		return err
+	}
+	if *asJSON {
+		out := make([]*fitOut, len(fits))
+		for i, f := range fits {
+			out[i] = fitOutOf(f)
+		}
+		return writeJSON(e.stdout, map[string]any{"model": model, "fits": out})
+	}
+	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
+	hdr := "FIT\tAT\tN\tSIGMA\tR²\tFRAGILITY"
+	if len(fits) > 0 {
+		for _, t := range fits[len(fits)-1].Terms {
+			hdr += "\t" + t
+		}
+	}
+	fmt.Fprintln(tw, hdr)
+	for _, f := range fits {
+		frag := "none"
+		if f.Fragility >= 0 {
+			frag = fmt.Sprint(f.Fragility)
+		} else if f.Fragility == -2 {
+			frag = "-"
+		}
+		row := fmt.Sprintf("%d\t%s\t%d\t%.5g\t%.5f\t%s", f.ID, f.At.Local().Format(time.DateTime), f.N, f.Sigma, f.RSquared, frag)
+		for i := range f.Estimates {
+			row += fmt.Sprintf("\t%.6g ± %.2g", f.Estimates[i], f.StdErrors[i])
+		}
+		fmt.Fprintln(tw, row)
+	}
+	return tw.Flush()
+}
