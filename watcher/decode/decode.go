@@ -179,6 +179,11 @@ func (d *Decoder) Pos() (offset int64, line int) {
 	return d.off, d.line
 }
 
+// Offset returns the absolute offset of the next byte Feed expects: Pos
+// plus whatever part of an over-long record was already skipped. A caller
+// reading the file sequentially reads from here.
+func (d *Decoder) Offset() int64 { return d.off }
+
 // Header returns the header names (trimmed), or nil before the header was
 // read or set.
 func (d *Decoder) Header() []string { return d.header }

@@ -1,0 +1,448 @@
+package watcher
+
+import (
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"time"
+
+	"plumb/watcher/decode"
+)
+
+// readChunk is the size of one read from a file.
+const readChunk = 256 << 10
+
+// identity is what a stat says about a file, to tell changes apart.
+type identity struct {
+	ino  uint64
+	size int64
+	mod  time.Time
+}
+
+func statID(fi os.FileInfo) identity {
+	return identity{ino: inodeOf(fi), size: fi.Size(), mod: fi.ModTime()}
+}
+
+// tracked is the watcher's knowledge of one (source, file).
+type tracked struct {
+	key fileKey
+	abs string
+
+	state    FileState // committed: what the Sink has accepted
+	hasState bool
+	dec      *decode.Decoder
+
+	// prevHeader is the header of the generation before a rotation or
+	// truncation, until the new content's header has been compared to it.
+	prevHeader []string
+
+	blocked   bool     // not read until its identity changes
+	blockedID identity // identity when blocked
+	// noticed holds the kinds already reported while blocked, so a
+	// blocked file that keeps changing does not repeat itself.
+	noticed map[NoticeKind]bool
+
+	gone          bool
+	symlinkTarget string
+
+	retryAt time.Time
+	backoff time.Duration
+
+	partialSize  int64 // file size when an unconsumed tail was first seen; -1 none
+	partialSince time.Time
+
+	seen identity // last stat when processed
+
+	backfill     bool
+	backfillLeft int64
+}
+
+func newTracked(src *source, k fileKey) *tracked {
+	return &tracked{key: k, abs: filepath.Join(src.abs, filepath.FromSlash(k.rel)), partialSize: -1}
+}
+
+// departed remembers the identity of a file that left its path (rotated
+// away or deleted), so that a file appearing under another name with the
+// same inode and first bytes continues where it was (no rows read twice).
+type departed struct {
+	src   int
+	state FileState
+	at    time.Time
+}
+
+const (
+	maxDeparted = 256
+	departedTTL = time.Hour
+)
+
+func fingerprint(b []byte) string {
+	h := sha256.Sum256(b)
+	return hex.EncodeToString(h[:16])
+}
+
+// process reads what is new in one file and delivers it.
+func (w *Watcher) process(ctx context.Context, k fileKey) {
+	src := w.srcs[k.src]
+	t := w.files[k]
+	if t == nil {
+		t = newTracked(src, k)
+		w.files[k] = t
+	}
+	now := w.now()
+	if now.Before(t.retryAt) {
+		w.pend.schedule(k, t.retryAt)
+		return
+	}
+	lfi, err := os.Lstat(t.abs)
+	if err != nil {
+		if errors.Is(err, fs.ErrNotExist) {
+			w.gone(ctx, t)
+			return
+		}
+		w.fileError(ctx, t, "cannot look at the file", err)
+		return
+	}
+	if lfi.Mode()&fs.ModeSymlink != 0 {
+		target, err := filepath.EvalSymlinks(t.abs)
+		if err != nil || !within(src.real, target) {
+			if err != nil {
+				target = "(unresolvable: " + err.Error() + ")"
+			}
+			if t.symlinkTarget != target {
+				t.symlinkTarget = target
+				w.notice(ctx, t, Notice{Kind: Symlink,
+					Detail: fmt.Sprintf("symbolic link to %s leads outside the watched folder %s; skipped", target, src.real)})
+			}
+			return
+		}
+		t.symlinkTarget = ""
+	}
+	f, err := openRead(t.abs)
+	if err != nil {
+		if errors.Is(err, fs.ErrNotExist) {
+			w.gone(ctx, t)
+			return
+		}
+		w.fileError(ctx, t, "cannot open the file", err)
+		return
+	}
+	defer f.Close()
+	fi, err := f.Stat()
+	if err != nil {
+		w.fileError(ctx, t, "cannot stat the file", err)
+		return
+	}
+	if !fi.Mode().IsRegular() {
+		w.block(ctx, t, statID(fi), Notice{Kind: Error, Detail: fmt.Sprintf("not a regular file (%v); skipped", fi.Mode().Type())})
+		return
+	}
+	id := statID(fi)
+	t.seen = id
+	t.gone = false
+	if t.blocked && id == t.blockedID {
+		return // blocked files stay blocked until they change
+	}
+	prefix := make([]byte, min(id.size, FingerprintBytes))
+	if n, err := f.ReadAt(prefix, 0); err != nil && !(errors.Is(err, io.EOF) && n == len(prefix)) {
+		if errors.Is(err, io.EOF) {
+			prefix = prefix[:n] // shrank since the stat
+		} else {
+			w.fileError(ctx, t, "cannot read the file", err)
+			return
+		}
+	}
+	if !t.hasState {
+		w.adopt(ctx, t, id, prefix)
+	}
+	if !t.hasState {
+		t.state = FileState{Path: k.rel, Inode: id.ino}
+		t.hasState = true
+	} else if kind, detail := changed(t.state, id, prefix); kind != 0 {
+		w.newGeneration(ctx, t, kind, detail, id)
+	}
+	if t.state.Inode == 0 {
+		t.state.Inode = id.ino
+	}
+	w.read(ctx, t, f, id, prefix, now)
+}
+
+// changed compares a file with its saved state: a new inode is a
+// rotation; a smaller size than the offset, or first bytes that differ
+// from the fingerprint, is a truncation or an in-place rewrite.
+func changed(st FileState, id identity, prefix []byte) (NoticeKind, string) {
+	switch {
+	case st.Inode != 0 && id.ino != 0 && st.Inode != id.ino:
+		return Rotated, fmt.Sprintf("another file now stands at the path (inode %d, was %d); reading it from the start", id.ino, st.Inode)
+	case id.size < st.Offset:
+		return Truncated, fmt.Sprintf("the file shrank from at least %d to %d bytes; reading it from the start", st.Offset, id.size)
+	case st.FingerprintLen > len(prefix):
+		return Truncated, fmt.Sprintf("the file shrank below the %d bytes seen before; reading it from the start", st.FingerprintLen)
+	case st.FingerprintLen > 0 && fingerprint(prefix[:st.FingerprintLen]) != st.Fingerprint:
+		return Truncated, "the first bytes of the file changed (rewritten in place); reading it from the start"
+	}
+	return 0, ""
+}
+
+// newGeneration starts the file over at offset 0 as the next generation.
+func (w *Watcher) newGeneration(ctx context.Context, t *tracked, kind NoticeKind, detail string, id identity) {
+	old := t.state
+	w.depart(t.key.src, old)
+	if len(old.Header) > 0 {
+		t.prevHeader = old.Header
+	}
+	t.state = FileState{Path: old.Path, Generation: old.Generation + 1, Inode: id.ino}
+	t.dec = nil
+	t.partialSize = -1
+	w.notice(ctx, t, Notice{Kind: kind, Detail: detail})
+}
+
+func (w *Watcher) depart(src int, st FileState) {
+	if st.Offset == 0 || st.Inode == 0 {
+		return
+	}
+	now := w.now()
+	keep := w.departed[:0]
+	for _, d := range w.departed {
+		if now.Sub(d.at) < departedTTL {
+			keep = append(keep, d)
+		}
+	}
+	w.departed = keep
+	if len(w.departed) >= maxDeparted {
+		w.departed = w.departed[1:]
+	}
+	w.departed = append(w.departed, departed{src: src, state: st, at: now})
+}
+
+// adopt looks for a known file that this new path continues: same inode,
+// same first bytes, not shorter, and no longer at its old path. Its state
+// then carries over, so a renamed file's rows are not read twice.
+func (w *Watcher) adopt(ctx context.Context, t *tracked, id identity, prefix []byte) {
+	if id.ino == 0 {
+		return
+	}
+	same := func(st FileState) bool {
+		return st.Inode == id.ino && st.Offset <= id.size && st.FingerprintLen <= len(prefix) &&
+			(st.FingerprintLen == 0 || fingerprint(prefix[:st.FingerprintLen]) == st.Fingerprint)
+	}
+	var from *FileState
+	for i, d := range w.departed {
+		if d.src == t.key.src && same(d.state) {
+			st := d.state
+			from = &st
+			w.departed = slices.Delete(w.departed, i, i+1)
+			break
+		}
+	}
+	if from == nil {
+		for k, o := range w.files {
+			if k.src != t.key.src || o == t || !o.hasState || !same(o.state) {
+				continue
+			}
+			if fi, err := os.Stat(o.abs); err == nil && inodeOf(fi) == id.ino {
+				continue // still there: a hard link, not a move
+			}
+			st := o.state
+			from = &st
+			break
+		}
+	}
+	if from == nil || from.Offset == 0 {
+		return
+	}
+	old := from.Path
+	t.state = *from
+	t.state.Path = t.key.rel
+	t.hasState = true
+	w.notice(ctx, t, Notice{Kind: Moved, Detail: fmt.Sprintf("continues %s (renamed); reading from byte %d", old, from.Offset)})
+}
+
+// gone handles a file that no longer exists.
+func (w *Watcher) gone(ctx context.Context, t *tracked) {
+	t.dec = nil
+	t.partialSize = -1
+	if t.backfill {
+		w.backfillDone(t)
+	}
+	if t.gone {
+		return
+	}
+	if !t.hasState || (t.state.Offset == 0 && t.state.Generation == 0) {
+		delete(w.files, t.key) // never read: nothing to report
+		return
+	}
+	t.gone = true
+	t.blocked, t.noticed = false, nil
+	w.notice(ctx, t, Notice{Kind: Deleted, Detail: "the file was removed; its rows stay in the history"})
+}
+
+// fileError reports an I/O problem; the file is tried again on its next
+// event or rescan.
+func (w *Watcher) fileError(ctx context.Context, t *tracked, what string, err error) {
+	t.dec = nil
+	if t.backfill {
+		w.backfillDone(t)
+	}
+	w.notice(ctx, t, Notice{Kind: Error, Detail: what + ": " + err.Error() + "; tried again when it changes", Err: err})
+}
+
+// block stops reading t until its identity changes, with a notice.
+func (w *Watcher) block(ctx context.Context, t *tracked, id identity, n Notice) {
+	t.blocked = true
+	t.blockedID = id
+	w.notice(ctx, t, n)
+	t.dec = nil
+	if t.backfill {
+		w.backfillDone(t)
+	}
+}
+
+// read decodes from the file's position up to MaxBatchBytes and delivers
+// the batch.
+func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity, prefix []byte, now time.Time) {
+	if t.dec == nil {
+		d, err := w.decoderFor(t)
+		if err != nil {
+			w.block(ctx, t, id, Notice{Kind: Error, Detail: err.Error() + "; file not read until it changes", Err: err})
+			return
+		}
+		t.dec = d
+	}
+	dec := t.dec
+	flush := t.partialSize == id.size && !now.Before(t.partialSince.Add(w.cfg.IdleFlush))
+	var recs []decode.Record
+	emit := func(r decode.Record) error {
+		recs = append(recs, r)
+		return nil
+	}
+	pos := dec.Offset()
+	buf := w.buf[:0]
+	read, eof, more := 0, false, false
+	for {
+		at := pos + int64(len(buf))
+		if at >= id.size {
+			eof = true
+		} else {
+			if cap(buf)-len(buf) < readChunk {
+				nb := make([]byte, len(buf), len(buf)+2*readChunk)
+				copy(nb, buf)
+				buf = nb
+			}
+			want := int(min(int64(readChunk), id.size-at))
+			n, err := f.ReadAt(buf[len(buf):len(buf)+want], at)
+			buf = buf[:len(buf)+n]
+			read += n
+			if err != nil {
+				if !errors.Is(err, io.EOF) {
+					w.fileError(ctx, t, "cannot read the file", err)
+					t.dec = nil
+					return
+				}
+				eof = true // shrank since the stat; the next look tells
+			}
+		}
+		consumed, err := dec.Feed(buf, eof && flush, emit)
+		if err != nil {
+			w.block(ctx, t, id, Notice{Kind: Error, Detail: err.Error() + "; file not read until it changes", Err: err})
+			return
+		}
+		pos += int64(consumed)
+		buf = buf[:copy(buf, buf[consumed:])]
+		if eof {
+			break
+		}
+		if read >= w.cfg.MaxBatchBytes {
+			more = true
+			break
+		}
+	}
+	tail := len(buf)
+	if cap(buf) <= 4*readChunk {
+		w.buf = buf[:0]
+	}
+	if eof && tail > 0 {
+		if t.partialSize != id.size {
+			t.partialSize, t.partialSince = id.size, now
+		}
+		w.pend.schedule(t.key, t.partialSince.Add(w.cfg.IdleFlush))
+	} else {
+		t.partialSize = -1
+	}
+
+	hdr := dec.Header()
+	if t.prevHeader != nil && hdr != nil {
+		if !slices.Equal(hdr, t.prevHeader) {
+			w.block(ctx, t, id, Notice{Kind: HeaderChanged, Detail: fmt.Sprintf(
+				"the header changed from %s to %s; the file is not read until it changes, so no column is misread",
+				quoteList(t.prevHeader), quoteList(hdr))})
+			return
+		}
+		t.prevHeader = nil
+	}
+
+	st := t.state
+	endOff, endLine := dec.Pos()
+	fpLen := len(prefix)
+	b := Batch{
+		Model: w.srcs[t.key.src].Model, Path: t.key.rel,
+		Generation: st.Generation, Inode: id.ino, Size: id.size,
+		Fingerprint: fingerprint(prefix), FingerprintLen: fpLen,
+		Header: hdr, HeaderLine: dec.HeaderLine(),
+		StartOffset: st.Offset, StartLine: st.Line,
+		EndOffset: endOff, EndLine: endLine,
+		Records: recs,
+	}
+	if b.EndOffset > b.StartOffset || len(recs) > 0 || (len(st.Header) == 0 && len(hdr) > 0) {
+		if err := w.sink.Deliver(ctx, b); err != nil {
+			t.dec = nil // start again from the committed state
+			if ctx.Err() != nil {
+				return
+			}
+			t.backoff = min(max(2*t.backoff, w.cfg.RetryMin), w.cfg.RetryMax)
+			t.retryAt = w.now().Add(t.backoff)
+			w.pend.schedule(t.key, t.retryAt)
+			w.log.Warn("delivery failed; will retry from the same position",
+				"model", b.Model, "path", b.Path, "offset", b.StartOffset, "retry_in", t.backoff, "err", err)
+			return
+		}
+		t.state = b.State()
+		t.backoff, t.retryAt = 0, time.Time{}
+		t.blocked, t.noticed = false, nil
+		if t.backfill {
+			w.backfillAdvance(t, b.EndOffset-b.StartOffset)
+		}
+	}
+	if more {
+		w.pend.schedule(t.key, w.now())
+	} else if t.backfill {
+		w.backfillDone(t)
+	}
+}
+
+func quoteList(names []string) string {
+	q := make([]string, len(names))
+	for i, n := range names {
+		q[i] = fmt.Sprintf("%q", n)
+	}
+	return "[" + strings.Join(q, ", ") + "]"
+}
+
+func (w *Watcher) backfillAdvance(t *tracked, n int64) {
+	n = min(n, t.backfillLeft)
+	t.backfillLeft -= n
+	w.prog.advance(n, false)
+}
+
+func (w *Watcher) backfillDone(t *tracked) {
+	t.backfill = false
+	w.prog.advance(t.backfillLeft, true)
+	t.backfillLeft = 0
+}

@@ -1,0 +1,270 @@
+package watcher
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"path"
+	"time"
+
+	"plumb/watcher/decode"
+)
+
+// Defaults for the zero fields of Config.
+const (
+	DefaultDebounce      = 50 * time.Millisecond
+	DefaultIdleFlush     = 30 * time.Second
+	DefaultRescan        = 30 * time.Second
+	DefaultMaxBatchBytes = 4 << 20
+	DefaultRetryMin      = 500 * time.Millisecond
+	DefaultRetryMax      = 30 * time.Second
+	// FingerprintBytes is how many leading bytes of a file the fingerprint
+	// covers at most.
+	FingerprintBytes = 1024
+)
+
+// ErrConfig is wrapped by every configuration error from New.
+var ErrConfig = errors.New("watcher: invalid configuration")
+
+// Config configures a Watcher. Zero durations and sizes take the defaults
+// above.
+type Config struct {
+	// Sources lists what to watch: one per model.
+	Sources []Source
+	// Debounce is how long events for one file are gathered before the
+	// file is read: the first event of a quiet file opens a window of this
+	// length, later events in the window merge into it, so a writer
+	// appending line by line is read at most once per window.
+	Debounce time.Duration
+	// IdleFlush is how long a file must stay unchanged before a last line
+	// without its newline is consumed as a record.
+	IdleFlush time.Duration
+	// Rescan is the interval of the safety-net rescan of every folder;
+	// negative disables it.
+	Rescan time.Duration
+	// MaxBatchBytes bounds the bytes read for one Batch; a longer backlog
+	// is delivered in several batches, interleaved with other files.
+	MaxBatchBytes int
+	// MaxRecordBytes is passed to each decoder (0: decode's default).
+	MaxRecordBytes int
+	// RetryMin and RetryMax bound the exponential backoff after a Deliver
+	// error.
+	RetryMin, RetryMax time.Duration
+	// Progress, if set, receives backfill progress (from the watcher's
+	// goroutine; it must not block). If nil and NoProgress is false, a
+	// progress bar is drawn on stderr when it is a terminal, otherwise a
+	// progress line is logged every few seconds.
+	Progress   func(Progress)
+	NoProgress bool
+}
+
+// Source is one model's view of one folder.
+type Source struct {
+	// Model names the model; each Source has its own (Model, Path) keys,
+	// so model names must be unique within a Config.
+	Model string
+	// Folder is the directory watched. It must exist.
+	Folder string
+	// Pattern selects files: matched (path.Match) against the path
+	// relative to Folder when it contains '/', else against the base name.
+	// Empty means "*.csv". Files whose name starts with '.' are ignored
+	// (atomic writers and editors use such names for temporary files).
+	Pattern string
+	// Recursive watches subfolders too (including ones created later).
+	Recursive bool
+	// Dialect, Numeric and Text configure the decoder of every file.
+	Dialect decode.Dialect
+	Numeric []string
+	Text    []string
+	// States are the read states saved for this model (from the store);
+	// files with a state resume from it.
+	States []FileState
+}
+
+func (s Source) pattern() string {
+	if s.Pattern == "" {
+		return "*.csv"
+	}
+	return s.Pattern
+}
+
+// match reports whether rel (relative, with '/') is one of the source's files.
+func (s Source) match(rel string) bool {
+	base := path.Base(rel)
+	if base == "" || base[0] == '.' {
+		return false
+	}
+	if !s.Recursive && path.Dir(rel) != "." {
+		return false
+	}
+	p := s.pattern()
+	target := base
+	for i := 0; i < len(p); i++ {
+		if p[i] == '/' {
+			target = rel
+			break
+		}
+	}
+	ok, _ := path.Match(p, target)
+	return ok
+}
+
+func (s Source) validate() error {
+	if s.Model == "" {
+		return fmt.Errorf("%w: source for folder %q has no model name", ErrConfig, s.Folder)
+	}
+	if s.Folder == "" {
+		return fmt.Errorf("%w: model %q: no folder", ErrConfig, s.Model)
+	}
+	if _, err := path.Match(s.pattern(), ""); err != nil {
+		return fmt.Errorf("%w: model %q: pattern %q: %v", ErrConfig, s.Model, s.pattern(), err)
+	}
+	if err := s.Dialect.Validate(); err != nil {
+		return fmt.Errorf("%w: model %q: %v", ErrConfig, s.Model, err)
+	}
+	return nil
+}
+
+// FileState is the read state of one file for one model. It mirrors the
+// store's per-file source record field by field (Header as a slice
+// instead of a joined string); the daemon converts between them.
+type FileState struct {
+	// Path is relative to the source's folder, with '/'.
+	Path string
+	// Generation counts rotations and truncations of the file.
+	Generation int
+	Inode      uint64
+	// Size is the file size seen when Offset was reached.
+	Size int64
+	// Offset is the byte offset just past the last consumed record; Line
+	// is the number of the last consumed line.
+	Offset int64
+	Line   int
+	// Fingerprint is a hash (hex) of the first FingerprintLen bytes.
+	Fingerprint    string
+	FingerprintLen int
+	// Header is the file's header row; HeaderLine its line (0: unknown).
+	Header     []string
+	HeaderLine int
+}
+
+// Sink receives what the watcher reads. Its methods are called from the
+// watcher's single goroutine, one call at a time.
+type Sink interface {
+	// Deliver hands over one batch of records of one file. It should
+	// commit the records and the batch's end state together. On a nil
+	// return the watcher advances the file to EndOffset; on an error it
+	// keeps the old position and delivers the same range again later
+	// (with backoff), so a sink that stored the batch but still returned
+	// an error will see it again and should treat an already stored range
+	// as success.
+	Deliver(ctx context.Context, b Batch) error
+	// Notice reports something about a file that is not rows: rotation,
+	// truncation, deletion, a changed header, a refused symlink, an error.
+	// It must not block for long.
+	Notice(ctx context.Context, n Notice)
+}
+
+// Batch is the unit of delivery: consecutive records of one file of one
+// model, from StartOffset to EndOffset.
+type Batch struct {
+	Model string
+	// Path is relative to the source folder, with '/'.
+	Path       string
+	Generation int
+	Inode      uint64
+	// Size is the file size when the batch was read.
+	Size           int64
+	Fingerprint    string
+	FingerprintLen int
+	Header         []string
+	HeaderLine     int
+	// StartOffset/StartLine is the position the batch starts from (the
+	// file's saved Offset/Line); EndOffset/EndLine the position after it.
+	// EndOffset > StartOffset, or the batch only records a new generation
+	// or a header.
+	StartOffset, EndOffset int64
+	StartLine, EndLine     int
+	// Records are in file order, bad rows included (Err set).
+	Records []decode.Record
+}
+
+// State returns the file state after the batch is committed.
+func (b Batch) State() FileState {
+	return FileState{Path: b.Path, Generation: b.Generation, Inode: b.Inode, Size: b.Size,
+		Offset: b.EndOffset, Line: b.EndLine, Fingerprint: b.Fingerprint, FingerprintLen: b.FingerprintLen,
+		Header: b.Header, HeaderLine: b.HeaderLine}
+}
+
+// NoticeKind says what a Notice is about.
+type NoticeKind int
+
+const (
+	// HeaderChanged: the file's new content has a different header than
+	// the one read before; the file is blocked (not read) until it changes
+	// again, so columns are never misread.
+	HeaderChanged NoticeKind = iota + 1
+	// Rotated: another file now stands at the path (new inode); it is read
+	// from offset 0 as Generation+1. Earlier rows stay.
+	Rotated
+	// Truncated: the file shrank or its first bytes changed (rewritten in
+	// place); it is read from offset 0 as Generation+1.
+	Truncated
+	// Deleted: the file is gone. Its history stays.
+	Deleted
+	// Moved: a file appeared that is a known file under a new name (same
+	// inode and first bytes); reading continues from the old position.
+	Moved
+	// Symlink: the path is a symbolic link leading outside the folder (or
+	// not resolvable); it is skipped.
+	Symlink
+	// Error: the file cannot be read or decoded (bad header, a selected
+	// column missing, not a regular file, I/O error). Unless Detail says
+	// otherwise the file is blocked until it changes.
+	Error
+	// Overflow: the kernel dropped events; every folder is rescanned.
+	Overflow
+)
+
+func (k NoticeKind) String() string {
+	switch k {
+	case HeaderChanged:
+		return "header-changed"
+	case Rotated:
+		return "rotated"
+	case Truncated:
+		return "truncated"
+	case Deleted:
+		return "deleted"
+	case Moved:
+		return "moved"
+	case Symlink:
+		return "symlink"
+	case Error:
+		return "error"
+	case Overflow:
+		return "overflow"
+	}
+	return fmt.Sprintf("NoticeKind(%d)", int(k))
+}
+
+// Notice is a report about one file (Model and Path empty for Overflow).
+type Notice struct {
+	Model string
+	Path  string
+	Kind  NoticeKind
+	// Generation is the file's generation after the event.
+	Generation int
+	// Detail is a sentence for people.
+	Detail string
+	// Err is the underlying error for Error notices (e.g. a
+	// *decode.ColumnError), else nil.
+	Err error
+}
+
+// Progress describes the backfill of files present at start.
+type Progress struct {
+	Files, FilesDone int
+	Bytes, BytesDone int64
+	Done             bool
+}
