@@ -144,3 +144,27 @@ func TestCommandFailureCarriesOutput(t *testing.T) {
 		t.Errorf("err %v, want a retryable error with the exit status and stderr", err)
 	}
 }
+
+func TestCommandDoesNotInheritSecrets(t *testing.T) {
+	t.Setenv("PLUMB_HOOK_SECRET", "do-not-pass-on")
+	t.Setenv("PLUMB_TEST_VISIBLE", "fine")
+	out := filepath.Join(t.TempDir(), "env")
+	script := writeScript(t, `cat > /dev/null; env > "$1"`)
+	routes, err := NewRoutes([]RouteConfig{
+		{Name: "oncall", Kind: RouteWebhook, URL: "http://127.0.0.1:9911/hook", SecretEnv: "PLUMB_HOOK_SECRET"},
+		{Name: "notify", Kind: RouteCommand, Argv: []string{"/bin/sh", script, out}},
+	}, RouteOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := routes[1].Send(context.Background(), Delivery{EventID: "x-1", AlertID: "x", Payload: []byte("{}")}); err != nil {
+		t.Fatal(err)
+	}
+	env, _ := os.ReadFile(out)
+	if strings.Contains(string(env), "do-not-pass-on") || strings.Contains(string(env), "PLUMB_HOOK_SECRET") {
+		t.Error("the command inherited the webhook secret")
+	}
+	if !strings.Contains(string(env), "PLUMB_TEST_VISIBLE=fine") || !strings.Contains(string(env), "PLUMB_EVENT_ID=x-1") {
+		t.Errorf("environment lacks ordinary variables:\n%s", env)
+	}
+}

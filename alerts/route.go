@@ -66,6 +66,12 @@ type Route struct {
 // NewRoute validates c, fills its defaults, reads its secret and builds the
 // sender.
 func NewRoute(c RouteConfig, o RouteOptions) (*Route, error) {
+	return newRoute(c, o, nil)
+}
+
+// newRoute builds a route; a command route's program does not inherit the
+// environment variables named in hide (other routes' secrets).
+func newRoute(c RouteConfig, o RouteOptions, hide []string) (*Route, error) {
 	if err := c.Validate(); err != nil {
 		return nil, err
 	}
@@ -95,19 +101,27 @@ func NewRoute(c RouteConfig, o RouteOptions) (*Route, error) {
 		}
 		r.sender = &webhookSender{url: c.URL, secret: s, client: o.Client, now: o.Now}
 	case RouteCommand:
-		r.sender = &commandSender{name: c.Name, argv: append([]string(nil), c.Argv...)}
+		r.sender = &commandSender{name: c.Name, argv: append([]string(nil), c.Argv...), hide: hide}
 	}
 	return r, nil
 }
 
-// NewRoutes builds every route; names must be unique.
+// NewRoutes builds every route; names must be unique. Command routes'
+// programs do not inherit the environment variables that hold webhook
+// secrets (secret_env of any route).
 func NewRoutes(cs []RouteConfig, o RouteOptions) ([]*Route, error) {
 	if err := ValidateRoutes(cs); err != nil {
 		return nil, err
 	}
+	var hide []string
+	for _, c := range cs {
+		if c.SecretEnv != "" {
+			hide = append(hide, c.SecretEnv)
+		}
+	}
 	rs := make([]*Route, 0, len(cs))
 	for _, c := range cs {
-		r, err := NewRoute(c, o)
+		r, err := newRoute(c, o, hide)
 		if err != nil {
 			return nil, err
 		}

@@ -8,6 +8,7 @@ import (
 	"io/fs"
 	"os"
 	"os/exec"
+	"slices"
 	"strings"
 	"time"
 )
@@ -19,6 +20,7 @@ import (
 type commandSender struct {
 	name string
 	argv []string
+	hide []string // environment variables the program must not see
 }
 
 // tailBuffer keeps the last n bytes written to it.
@@ -43,8 +45,14 @@ func (s *commandSender) Send(ctx context.Context, d Delivery) error {
 	}
 	cmd := exec.CommandContext(ctx, path, s.argv[1:]...)
 	cmd.Stdin = bytes.NewReader(d.Payload)
-	cmd.Env = append(os.Environ(),
-		"PLUMB_EVENT_ID="+d.EventID, "PLUMB_ALERT_ID="+d.AlertID, "PLUMB_ROUTE="+s.name)
+	var env []string
+	for _, kv := range os.Environ() {
+		k, _, _ := strings.Cut(kv, "=")
+		if !slices.Contains(s.hide, k) {
+			env = append(env, kv)
+		}
+	}
+	cmd.Env = append(env, "PLUMB_EVENT_ID="+d.EventID, "PLUMB_ALERT_ID="+d.AlertID, "PLUMB_ROUTE="+s.name)
 	out := &tailBuffer{n: 512}
 	cmd.Stdout, cmd.Stderr = out, out
 	setProcessGroup(cmd)
