@@ -77,4 +77,3 @@ func newLogger(w io.Writer, cfg *config.Config) *slog.Logger {
 	}
 	return slog.New(slog.NewTextHandler(w, o))
 }
-
