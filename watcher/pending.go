@@ -17,7 +17,7 @@ type fileKey struct {
 type pendingEntry struct {
 	due    time.Time
 	ops    fsnotify.Op // union of the event ops merged into the entry
-	events int        // how many events were merged
+	events int         // how many events were merged
 }
 
 // pending merges events per file and tells when each file is due. It is
