@@ -28,7 +28,8 @@
 //
 // An alert is identified by (model, kind, subject). Its id is deterministic:
 // a readable kind prefix and the first 16 hex digits of a SHA-256 over the
-// three, for instance "sp-5a1f0c2e9b7d3a41". A condition that repeats
+// three, for instance "sp-0b45c711a175d0ec" for ("bench-b", suspect_point,
+// "bench-b/feed.csv:212"). A condition that repeats
 // updates the alert (count, last seen) and sends nothing. The alert's life:
 //
 //	(none) --condition--> open --Ack--> acknowledged
@@ -57,6 +58,24 @@
 // group all events of one alert. The webhook route also sends the event id
 // in an Idempotency-Key header and, when a secret is configured, signs the
 // body (see Sign and VerifySignature).
+//
+// # Wiring
+//
+// The daemon builds the routes, the Manager and the Dispatcher from the
+// same route configs and runs the Dispatcher until shutdown:
+//
+//	routes, err := alerts.NewRoutes(cfgs, alerts.RouteOptions{Logger: log})
+//	disp := alerts.NewDispatcher(ledger, routes)
+//	mgr, err := alerts.NewManager(ledger, alerts.Config{
+//		Rules: rules, ModelRules: perModel, Routes: cfgs, ModelRoutes: own,
+//		Host: host, OnEnqueue: disp.Wake,
+//	})
+//	go disp.Run(ctx)              // returns after ctx is cancelled
+//	... mgr.Point / Fragility / Drift / Blocked / Activity as data arrives
+//	... mgr.Tick(ctx, time.Now()) every minute or so
+//
+// Status pages list alerts with Ledger.Alerts (DecodeAlert reads the
+// document) and dead letters with Ledger.Deliveries(ctx, DeliveryDead, n).
 //
 // # Caution
 //
