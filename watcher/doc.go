@@ -61,15 +61,18 @@
 //     one read before. The file is blocked (not read) until it changes
 //     again; mark the model's file as blocked with n.Detail as reason.
 //   - Deleted: the file is gone; its history stays. A file that appears
-//     again at the path is a rotation.
+//     again at the path is a rotation. A saved file missing at start is
+//     reported too (so again after each restart).
 //   - Moved: a new path is a known file renamed (same inode and first
 //     bytes); it continues from the old position, so nothing is read twice.
 //     Its batches then carry the new Path.
-//   - Symlink: a link leading outside the folder; skipped.
+//   - Symlink: a link leading outside the folder, or to a file the source
+//     reads under its own name (which would double its rows); skipped.
 //   - Error: the file cannot be read or decoded: a bad header, a selected
 //     column missing from the header (n.Err is a *decode.ColumnError naming
-//     it and the header's columns), not a regular file, an I/O error. The
-//     file is blocked until it changes.
+//     it and the header's columns), not a regular file: these block the
+//     file until it changes (n.Blocked). An I/O error (n.Blocked false) is
+//     passing: the file is tried again on its next event or rescan.
 //   - Overflow (no Model/Path): the kernel dropped events; everything is
 //     rescanned, nothing is lost.
 //
@@ -100,7 +103,8 @@
 //     read: a safety net for missed events.
 //
 // Files are opened read-only and never changed. A symbolic link is
-// followed only if its resolved target lies inside the (resolved) folder.
+// followed only if its resolved target lies inside the (resolved) folder
+// and is not itself one of the source's files.
 // Several models may read the same files; each (model, file) has its own
 // position.
 //

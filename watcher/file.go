@@ -112,14 +112,22 @@ func (w *Watcher) process(ctx context.Context, k fileKey) {
 	}
 	if lfi.Mode()&fs.ModeSymlink != 0 {
 		target, err := filepath.EvalSymlinks(t.abs)
-		if err != nil || !within(src.real, target) {
-			if err != nil {
-				target = "(unresolvable: " + err.Error() + ")"
+		var detail string
+		switch {
+		case err != nil:
+			target = "(unresolvable: " + err.Error() + ")"
+			detail = fmt.Sprintf("symbolic link cannot be resolved: %v; skipped", err)
+		case !within(src.real, target):
+			detail = fmt.Sprintf("symbolic link to %s leads outside the watched folder %s; skipped", target, src.real)
+		default:
+			if rel, ok := relTo(src.real, target); ok && src.match(rel) {
+				detail = fmt.Sprintf("symbolic link to %s, which is read under its own name; skipped so no row is read twice", rel)
 			}
+		}
+		if detail != "" {
 			if t.symlinkTarget != target {
 				t.symlinkTarget = target
-				w.notice(ctx, t, Notice{Kind: Symlink,
-					Detail: fmt.Sprintf("symbolic link to %s leads outside the watched folder %s; skipped", target, src.real)})
+				w.notice(ctx, t, Notice{Kind: Symlink, Detail: detail})
 			}
 			return
 		}
@@ -298,6 +306,7 @@ func (w *Watcher) fileError(ctx context.Context, t *tracked, what string, err er
 func (w *Watcher) block(ctx context.Context, t *tracked, id identity, n Notice) {
 	t.blocked = true
 	t.blockedID = id
+	n.Blocked = true
 	w.notice(ctx, t, n)
 	t.dec = nil
 	if t.backfill {

@@ -215,8 +215,9 @@ const (
 	// Moved: a file appeared that is a known file under a new name (same
 	// inode and first bytes); reading continues from the old position.
 	Moved
-	// Symlink: the path is a symbolic link leading outside the folder (or
-	// not resolvable); it is skipped.
+	// Symlink: the path is a symbolic link that leads outside the folder,
+	// cannot be resolved, or leads to a file the source reads under its
+	// own name anyway; it is skipped.
 	Symlink
 	// Error: the file cannot be read or decoded (bad header, a selected
 	// column missing, not a regular file, I/O error). Unless Detail says
@@ -257,6 +258,11 @@ type Notice struct {
 	Generation int
 	// Detail is a sentence for people.
 	Detail string
+	// Blocked is true when the file is not read any more until it changes
+	// (HeaderChanged, and Error for a bad header, a missing column or a
+	// file that is not a regular file). Error notices with Blocked false
+	// are passing I/O problems; the file is tried again on its next change.
+	Blocked bool
 	// Err is the underlying error for Error notices (e.g. a
 	// *decode.ColumnError), else nil.
 	Err error

@@ -438,6 +438,11 @@ func TestSymlinks(t *testing.T) {
 	writeFile(t, secret, "x,y\n"+rows(1, 2))
 	inner := filepath.Join(dir, "real.csv")
 	writeFile(t, inner, "x,y\n"+rows(5, 6))
+	hidden := filepath.Join(dir, "raw", "export.txt") // not matched itself
+	writeFile(t, hidden, "x,y\n"+rows(8, 8))
+	if err := os.Symlink(hidden, filepath.Join(dir, "export.csv")); err != nil {
+		t.Fatal(err)
+	}
 	if err := os.Symlink(secret, filepath.Join(dir, "out.csv")); err != nil {
 		t.Fatal(err)
 	}
@@ -447,14 +452,28 @@ func TestSymlinks(t *testing.T) {
 	sink := newFakeSink(t)
 	start(t, testConfig(dir), sink)
 	waitFor(t, "inner files", waitLong, func() bool {
-		return len(sink.values("m", "real.csv", 0)) == 2 && len(sink.values("m", "alias.csv", 0)) == 2
+		return len(sink.values("m", "real.csv", 0)) == 2 && len(sink.values("m", "export.csv", 0)) == 1
 	})
-	waitFor(t, "symlink notice", waitLong, func() bool { return len(sink.noticesOf(Symlink)) == 1 })
+	waitFor(t, "symlink notices", waitLong, func() bool { return len(sink.noticesOf(Symlink)) == 2 })
 	if n := sink.records("m", "out.csv", 0); len(n) != 0 {
 		t.Errorf("read %d rows through a link leading outside", len(n))
 	}
-	if n := sink.noticesOf(Symlink)[0]; n.Path != "out.csv" || !strings.Contains(n.Detail, "outside") {
-		t.Errorf("notice %+v", n)
+	if n := sink.records("m", "alias.csv", 0); len(n) != 0 {
+		t.Errorf("read %d rows twice through a link to a watched file", len(n))
+	}
+	for _, n := range sink.noticesOf(Symlink) {
+		switch n.Path {
+		case "out.csv":
+			if !strings.Contains(n.Detail, "outside") {
+				t.Errorf("notice %+v", n)
+			}
+		case "alias.csv":
+			if !strings.Contains(n.Detail, "own name") {
+				t.Errorf("notice %+v", n)
+			}
+		default:
+			t.Errorf("unexpected notice %+v", n)
+		}
 	}
 }
 
@@ -599,7 +618,7 @@ func TestBadRowsAndColumnErrors(t *testing.T) {
 	waitFor(t, "column error", waitLong, func() bool { return len(sink.noticesOf(Error)) == 1 })
 	n := sink.noticesOf(Error)[0]
 	var ce *decode.ColumnError
-	if n.Path != "typo.csv" || !errors.As(n.Err, &ce) || ce.Name != "y" {
+	if n.Path != "typo.csv" || !n.Blocked || !errors.As(n.Err, &ce) || ce.Name != "y" {
 		t.Errorf("notice %+v", n)
 	}
 }
