@@ -32,10 +32,12 @@
 //	               limit now rests on it (a fragile-fit alert), and plumb
 //	               suggests readings at the bottom of the region
 //	follow_up      readings at 1..10 degC, where the suggestion points; with
-//	               the second the fit is no longer fragile
+//	               the third the fit is no longer fragile and the
+//	               fragile-fit alert resolves (the suspect reading stays
+//	               suspect: plumb never drops or alters a measurement)
 //	drift          the bench voltmeter's offset creeps downward reading by
 //	               reading until the curve has drifted from its baseline: a
-//	               drift alert
+//	               drift alert opens with the last reading
 //
 // Expected summarises the outcomes by line of the feed.
 //

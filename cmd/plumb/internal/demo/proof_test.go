@@ -8,14 +8,18 @@ import (
 	"plumb/engine"
 )
 
-// arrival is what the engine says when reading k arrives: the fit of the
-// rows the daemon holds then (the last WindowRows rows up to k), the
-// influence table, the verdicts and the fragility of the fit.
+// arrival is what the engine says when reading k arrives, as the daemon
+// computes it. The arrival verdict judges the row against the fit of every
+// row so far (the daemon's row-by-row update does not forget rows); the
+// refresh that follows fits the model's window (the last WindowRows rows)
+// and yields the influence table, the fragility and the drift measures.
 type arrival struct {
-	rows    []Reading // the fitted rows, oldest first; rows[len-1] is reading k
-	fit     *engine.Fit
+	verdict engine.Verdict // of reading k, against all rows 0..k
+	full    engine.Obs     // its diagnostics in that fit
+	n       int            // rows in that fit, k+1
+	rows    []Reading      // the window, oldest first; rows[len-1] is reading k
+	fit     *engine.Fit    // of the window
 	inf     *engine.Influence
-	verdict engine.Verdict // of reading k
 	frag    engine.FragilityResult
 	drift   []driftMeasure // nil before the baseline exists
 }
@@ -100,12 +104,19 @@ func replay(t testing.TB, sc []Reading, cps []Checkpoint) []arrival {
 		rows := sc[lo : k+1]
 		f := fitRows(t, m, rows)
 		inf := engine.Diagnose(f)
-		v := engine.Judge(inf, engine.DefaultCutoffs())
 		fr, err := engine.Fragility(f, inf, conclusions(cps), engine.FragilityOptions{MaxRemoved: 3, Limit: 2})
 		if err != nil {
 			t.Fatal(err)
 		}
-		a := arrival{rows: rows, fit: f, inf: inf, verdict: v[len(v)-1], frag: fr}
+		a := arrival{rows: rows, fit: f, inf: inf, frag: fr}
+		all := f
+		if lo > 0 {
+			all = fitRows(t, m, sc[:k+1])
+		}
+		allInf := engine.Diagnose(all)
+		a.verdict = engine.Judge(allInf, engine.DefaultCutoffs())[k]
+		a.full = allInf.Rows[k]
+		a.n = k + 1
 		if k+1 >= BaselineRows {
 			for j, c := range f.Coef {
 				a.drift = append(a.drift, driftMeasure{name: c.Term, baseline: base.Coef[j].Estimate, current: c.Estimate, se: base.Coef[j].StdError})
@@ -125,8 +136,9 @@ func (a arrival) String() string {
 	if a.fit == nil {
 		return "not judged"
 	}
-	o := a.inf.Rows[len(a.inf.Rows)-1]
-	s := fmt.Sprintf("n=%d %-11s h=%.3f t=%6.2f D=%.3f dffits=%6.2f bonf=%.3g frag=%d %q", a.fit.N, a.verdict.Word(), o.Leverage, o.StudentExternal, o.Cook, o.DFFITS, o.BonferroniP, a.frag.Index, a.frag.Conclusion)
+	o := a.full
+	s := fmt.Sprintf("n=%d %-11s h=%.3f t=%6.2f D=%.3f dffits=%6.2f bonf=%.3g frag=%d %q", a.n, a.verdict.Word(), o.Leverage, o.StudentExternal, o.Cook, o.DFFITS, o.BonferroniP, a.frag.Index, a.frag.Conclusion)
+	s += fmt.Sprintf(" window n=%d", a.fit.N)
 	if a.drift != nil {
 		s += " drift z:"
 		for _, d := range a.drift {
@@ -158,9 +170,13 @@ func TestScenarioProof(t *testing.T) {
 	out := Expected()
 	fragile := false // the fragile-fit alert's state as the readings arrive
 	drifted := false
+	suspect := -1 // the suspect reading, once it has arrived
 	for k, r := range sc {
 		a := ar[k]
 		if k+1 < MinRows {
+			if a.fit != nil {
+				t.Fatalf("reading %d judged before MinRows", k)
+			}
 			if r.Expect != ExpectNothing || r.Phase != PhaseOrdinary {
 				t.Errorf("line %d: %s reading before the model is judged", r.Line(), r.Phase)
 			}
@@ -185,9 +201,23 @@ func TestScenarioProof(t *testing.T) {
 			}
 		}
 		if r.Phase == PhaseLeverage {
-			lim := engine.CutoffLimits(engine.DefaultCutoffs(), a.fit.N, a.fit.P)
-			if h := a.inf.Rows[len(a.inf.Rows)-1].Leverage; !(h > 3*lim.Leverage/2) {
+			lim := engine.CutoffLimits(engine.DefaultCutoffs(), a.n, a.fit.P)
+			if h := a.full.Leverage; !(h > 3*lim.Leverage/2) {
 				t.Errorf("%s: leverage %.3f, want well above 2p/n = %.3f", name, h, lim.Leverage)
+			}
+		}
+
+		// The suspect-point alert stays open: at every refresh after it
+		// arrived, the suspect reading is judged suspect in the window.
+		if r.Expect == ExpectSuspect {
+			suspect = r.Index
+		}
+		if suspect >= 0 {
+			w := engine.Judge(a.inf, engine.DefaultCutoffs())
+			for i, wr := range a.rows {
+				if wr.Index == suspect && w[i].Word() != "suspect" {
+					t.Errorf("%s: the suspect reading on line %d is now %s in the window", name, wr.Line(), w[i].Word())
+				}
 			}
 		}
 

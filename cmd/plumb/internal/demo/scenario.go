@@ -166,12 +166,12 @@ var thePlan = plan{
 	midSetpoint:      150,
 	midShift:         -0.015,
 	edgeSetpoint:     10,
-	edgeShift:        0.035,
+	edgeShift:        0.04,
 	follow:           []float64{1, 5, 10, 2},
-	clearsAt:         1,
+	clearsAt:         2,
 	drift:            []float64{100, 150, 200, 250, 300, 350, 300, 250, 200, 150},
-	driftCount:       16,
-	driftStep:        -0.002,
+	driftCount:       14,
+	driftStep:        -0.0018,
 	driftAt:          13,
 }
 
@@ -241,7 +241,8 @@ func build(pl plan) []Reading {
 // Outcomes is what plumb is expected to report over the whole scenario,
 // by line of the feed (1-based, the header is line 1).
 type Outcomes struct {
-	// Suspect are the lines that raise a suspect-point alert.
+	// Suspect are the lines that raise a suspect-point alert; it stays
+	// open to the end of the feed.
 	Suspect []int
 	// OutlierOnly are outliers that raise no alert (not influential).
 	OutlierOnly []int
