@@ -424,8 +424,11 @@ type fragEval struct {
 	// row data for the rows in play: u[i] = C x_i, keyed by position
 	// in the pool.
 	pool []int
+	x    [][]float64 // design rows
 	u    [][]float64
 	h    []float64
+	inv  [3]float64 // M^-1 for m = 1 (inv[0]) and m = 2 (00, 01, 11)
+	ubuf []float64
 
 	// scratch
 	mm, l []float64 // m x m
@@ -435,8 +438,8 @@ type fragEval struct {
 	v     []float64 // m
 }
 
-func (s *fragSearch) newEvaluator(checks []fragCheck, pool []int) *fragEval {
-	ev := &fragEval{s: s, checks: checks, pool: pool}
+func (s *fragSearch) newEvaluator(checks []fragCheck) *fragEval {
+	ev := &fragEval{s: s, checks: checks}
 	p := s.p
 	ev.center = make([]float64, len(checks))
 	ev.sig = make([]bool, len(checks))
@@ -455,24 +458,44 @@ func (s *fragSearch) newEvaluator(checks []fragCheck, pool []int) *fragEval {
 		case fgKindCheckpoint:
 			ev.center[k] = fgDot(ch.x0, fgCoefs(s.base))
 			ev.before[k] = ev.center[k]
-			ev.g[k] = make([]float64, len(pool))
-		}
-	}
-	ev.u = make([][]float64, len(pool))
-	ev.h = make([]float64, len(pool))
-	buf := make([]float64, len(pool)*p)
-	for a, i := range pool {
-		ev.u[a] = buf[a*p : (a+1)*p]
-		x := s.rows(i)
-		fgMatVec(ev.u[a], s.c, x, p)
-		ev.h[a] = fgDot(x, ev.u[a])
-		for k, ch := range checks {
-			if ch.kind == fgKindCheckpoint {
-				ev.g[k][a] = fgDot(ch.x0, ev.u[a])
-			}
 		}
 	}
 	return ev
+}
+
+// load makes pool (0-based rows) the rows in play, computing C x_i, h_i
+// and the checkpoint gains x0'C x_i; it reuses the evaluator's memory.
+func (ev *fragEval) load(pool []int) {
+	s, p, n := ev.s, ev.s.p, len(pool)
+	ev.pool = pool
+	if cap(ev.h) < n {
+		ev.u = make([][]float64, n)
+		ev.x = make([][]float64, n)
+		ev.h = make([]float64, n)
+		ev.ubuf = make([]float64, n*p)
+	}
+	ev.u, ev.x, ev.h = ev.u[:n], ev.x[:n], ev.h[:n]
+	for k, ch := range ev.checks {
+		if ch.kind == fgKindCheckpoint {
+			if cap(ev.g[k]) < n {
+				ev.g[k] = make([]float64, n)
+			}
+			ev.g[k] = ev.g[k][:n]
+		}
+	}
+	for a, i := range pool {
+		u := ev.ubuf[a*p : (a+1)*p : (a+1)*p]
+		ev.u[a] = u
+		x := s.rows(i)
+		ev.x[a] = x
+		fgMatVec(u, s.c, x, p)
+		ev.h[a] = fgDot(x, u)
+		for k, ch := range ev.checks {
+			if ch.kind == fgKindCheckpoint {
+				ev.g[k][a] = fgDot(ch.x0, u)
+			}
+		}
+	}
 }
 
 // fgCoefs returns the estimates of f.
@@ -524,54 +547,49 @@ func (ev *fragEval) eval(set []int) (int, int, float64) {
 	if s.df-m <= 0 {
 		return fgSkipped, -1, 0
 	}
-	// M = I - H_SS, lower Cholesky factor in l.
-	for a := 0; a < m; a++ {
-		xa := s.rows(ev.pool[set[a]])
-		for b := 0; b <= a; b++ {
-			var v float64
-			if a == b {
-				v = 1 - ev.h[set[a]]
-			} else {
-				v = -fgDot(xa, ev.u[set[b]])
-			}
-			ev.mm[a*m+b] = v
+	var rss float64
+	switch m {
+	case 1:
+		// M = 1 - h.
+		a := set[0]
+		d := 1 - ev.h[a]
+		if !(d > fgSingularPivot) {
+			return fgSkipped, -1, 0
 		}
-		ev.es[a] = s.e[ev.pool[set[a]]]
-	}
-	for a := 0; a < m; a++ {
-		for b := 0; b <= a; b++ {
-			sum := ev.mm[a*m+b]
-			for k := 0; k < b; k++ {
-				sum -= ev.l[a*m+k] * ev.l[b*m+k]
+		e := s.e[ev.pool[a]]
+		ev.w[0] = e / d
+		rss = s.rss - e*ev.w[0]
+		ev.inv[0] = 1 / d
+	case 2:
+		// M = [1-h_a, -q; -q, 1-h_b], q = x_a'C x_b; the Cholesky pivots
+		// are 1-h_a and det/(1-h_a).
+		a, b := set[0], set[1]
+		maa, mbb := 1-ev.h[a], 1-ev.h[b]
+		q := fgDot(ev.x[a], ev.u[b])
+		det := maa*mbb - q*q
+		if !(maa > fgSingularPivot) || !(det/maa > fgSingularPivot) {
+			return fgSkipped, -1, 0
+		}
+		ea, eb := s.e[ev.pool[a]], s.e[ev.pool[b]]
+		ev.inv[0], ev.inv[1], ev.inv[2] = mbb/det, q/det, maa/det
+		ev.w[0] = ev.inv[0]*ea + ev.inv[1]*eb
+		ev.w[1] = ev.inv[1]*ea + ev.inv[2]*eb
+		rss = s.rss - (ea*ev.w[0] + eb*ev.w[1])
+	default:
+		if !ev.factor(set) {
+			return fgSkipped, -1, 0
+		}
+		rss = s.rss - fgDot(ev.v, ev.v) // e'M^-1 e = |L^-1 e|²
+		for a := m - 1; a >= 0; a-- {
+			sum := ev.v[a]
+			for k := a + 1; k < m; k++ {
+				sum -= ev.l[k*m+a] * ev.w[k]
 			}
-			if a == b {
-				if !(sum > fgSingularPivot) {
-					return fgSkipped, -1, 0
-				}
-				ev.l[a*m+a] = math.Sqrt(sum)
-			} else {
-				ev.l[a*m+b] = sum / ev.l[b*m+b]
-			}
+			ev.w[a] = sum / ev.l[a*m+a]
 		}
 	}
-	// w = M^-1 e_S via forward (into v) and back substitution.
-	for a := 0; a < m; a++ {
-		sum := ev.es[a]
-		for k := 0; k < a; k++ {
-			sum -= ev.l[a*m+k] * ev.v[k]
-		}
-		ev.v[a] = sum / ev.l[a*m+a]
-	}
-	rss := s.rss - fgDot(ev.v, ev.v) // e'M^-1 e = |L^-1 e|²
 	if rss < 0 {
 		rss = 0
-	}
-	for a := m - 1; a >= 0; a-- {
-		sum := ev.v[a]
-		for k := a + 1; k < m; k++ {
-			sum -= ev.l[k*m+a] * ev.w[k]
-		}
-		ev.w[a] = sum / ev.l[a*m+a]
 	}
 	// Δb = U_S w.
 	for j := 0; j < p; j++ {
@@ -623,9 +641,60 @@ func (ev *fragEval) eval(set []int) (int, int, float64) {
 	return fgHolds, -1, 0
 }
 
-// quadU returns (U_S M^-1 U_S')_jj = |L^-1 U_S[:, j]|².
+// factor computes the lower Cholesky factor L of M = I - H_SS into l and
+// v = L^-1 e_S; false when a pivot is below fgSingularPivot.
+func (ev *fragEval) factor(set []int) bool {
+	s, m := ev.s, ev.m
+	for a := 0; a < m; a++ {
+		xa := ev.x[set[a]]
+		for b := 0; b <= a; b++ {
+			var v float64
+			if a == b {
+				v = 1 - ev.h[set[a]]
+			} else {
+				v = -fgDot(xa, ev.u[set[b]])
+			}
+			ev.mm[a*m+b] = v
+		}
+		ev.es[a] = s.e[ev.pool[set[a]]]
+	}
+	for a := 0; a < m; a++ {
+		for b := 0; b <= a; b++ {
+			sum := ev.mm[a*m+b]
+			for k := 0; k < b; k++ {
+				sum -= ev.l[a*m+k] * ev.l[b*m+k]
+			}
+			if a == b {
+				if !(sum > fgSingularPivot) {
+					return false
+				}
+				ev.l[a*m+a] = math.Sqrt(sum)
+			} else {
+				ev.l[a*m+b] = sum / ev.l[b*m+b]
+			}
+		}
+	}
+	for a := 0; a < m; a++ {
+		sum := ev.es[a]
+		for k := 0; k < a; k++ {
+			sum -= ev.l[a*m+k] * ev.v[k]
+		}
+		ev.v[a] = sum / ev.l[a*m+a]
+	}
+	return true
+}
+
+// quadU returns (U_S M^-1 U_S')_jj (|L^-1 U_S[:, j]|² in general).
 func (ev *fragEval) quadU(set []int, j int) float64 {
 	m := ev.m
+	switch m {
+	case 1:
+		u := ev.u[set[0]][j]
+		return u * u * ev.inv[0]
+	case 2:
+		ua, ub := ev.u[set[0]][j], ev.u[set[1]][j]
+		return ua*ua*ev.inv[0] + 2*ua*ub*ev.inv[1] + ub*ub*ev.inv[2]
+	}
 	var q float64
 	for a := 0; a < m; a++ {
 		sum := ev.u[set[a]][j]
@@ -658,16 +727,21 @@ func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt Fragilit
 	for i := range all {
 		all[i] = i
 	}
-	var evAll, evTop *fragEval
+	ev := s.newEvaluator(checks)
 	for m := 1; m <= opt.MaxRemoved && m < s.df; m++ {
-		var ev *fragEval
 		step := SearchStep{Removed: m}
+		// Pools searched in turn: for m = 1 over all rows, blocks of rows
+		// (to bound memory); otherwise one pool.
+		var units [][]int
 		if k := fgBinom(s.n, m); k <= float64(left) {
-			if evAll == nil {
-				evAll = s.newEvaluator(checks, all)
-			}
-			ev = evAll
 			step.Exhaustive, step.Candidates = true, s.n
+			if m == 1 {
+				for lo := 0; lo < s.n; lo += fgBlock {
+					units = append(units, all[lo:min(lo+fgBlock, s.n)])
+				}
+			} else {
+				units = [][]int{all}
+			}
 		} else {
 			L := min(len(ranked), opt.Candidates)
 			for L >= m && fgBinom(L, m) > float64(left) {
@@ -678,38 +752,16 @@ func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt Fragilit
 			}
 			pool := append([]int(nil), ranked[:L]...)
 			sort.Ints(pool)
-			if evTop == nil || len(evTop.pool) != L {
-				evTop = s.newEvaluator(checks, pool)
-			}
-			ev = evTop
+			units = [][]int{pool}
 			step.Candidates = L
 		}
 		ev.setSize(m)
-		set := make([]int, m)
-		for a := range set {
-			set[a] = a
-		}
-		np := len(ev.pool)
 		found := false
-		for {
-			out, k, after := ev.eval(set)
-			step.Subsets++
-			switch out {
-			case fgSkipped:
-				res.Skipped++
-			case fgBreaks:
-				found = true
-				ch := checks[k]
-				res.Index = m
-				res.RemovedRows = make([]int, m)
-				for a := range set {
-					res.RemovedRows[a] = ev.pool[set[a]] + 1
-				}
-				res.Conclusion, res.Kind, res.Term = ch.text, fragKindNames[ch.kind], ch.term
-				res.After = after
-				res.Before = ev.before[k]
+		for _, unit := range units {
+			if !fgSamePool(ev.pool, unit) {
+				ev.load(unit)
 			}
-			if found || !fgNextComb(set, np) {
+			if found = ev.run(&step, &res); found {
 				break
 			}
 		}
@@ -723,6 +775,59 @@ func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt Fragilit
 	res.Searched = fgDescribe(res.Steps)
 	res.Fragile = res.Index > 0 && res.Index <= res.Limit
 	return res
+}
+
+// fgBlock is the number of rows loaded at a time for the m = 1 pass.
+const fgBlock = 8192
+
+// fgSamePool reports whether a and b are the same rows.
+func fgSamePool(a, b []int) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
+}
+
+// run evaluates every ev.m-subset of the loaded pool in lexicographic
+// order, recording the first break in res; it reports whether one was
+// found.
+func (ev *fragEval) run(step *SearchStep, res *FragilityResult) bool {
+	m := ev.m
+	set := make([]int, m)
+	for a := range set {
+		set[a] = a
+	}
+	np := len(ev.pool)
+	if np < m {
+		return false
+	}
+	for {
+		out, k, after := ev.eval(set)
+		step.Subsets++
+		switch out {
+		case fgSkipped:
+			res.Skipped++
+		case fgBreaks:
+			ch := ev.checks[k]
+			res.Index = m
+			res.RemovedRows = make([]int, m)
+			for a := range set {
+				res.RemovedRows[a] = ev.pool[set[a]] + 1
+			}
+			res.Conclusion, res.Kind, res.Term = ch.text, fragKindNames[ch.kind], ch.term
+			res.After = after
+			res.Before = ev.before[k]
+			return true
+		}
+		if !fgNextComb(set, np) {
+			return false
+		}
+	}
 }
 
 // nextCombination advances set to the next m-subset of 0..n-1 in

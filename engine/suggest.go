@@ -32,6 +32,8 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"sync"
+	"sync/atomic"
 )
 
 // ErrRegion marks an operating region that cannot be used: a column of
@@ -371,18 +373,62 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	if fgNeedsRanking(f.N, fopt) {
 		ranked = fgRankRows(inf, base.b, fopt.Candidates)
 	}
-	before := base.searchRanked(checks, ranked, fopt)
-
-	out := make([]Suggestion, 0, len(picks))
+	// Design rows of the picks.
+	zs := make([][]float64, 0, len(picks))
+	kept := picks[:0]
 	for _, c := range picks {
-		if err := f.Model.DesignRow(z, func(col string) float64 { return c.pt[colIdx[col]] }); err != nil {
+		zc := make([]float64, p)
+		if err := f.Model.DesignRow(zc, func(col string) float64 { return c.pt[colIdx[col]] }); err != nil {
 			continue
 		}
-		sg := Suggestion{At: make(map[string]float64, len(cols)), Replicates: opt.Replicates, D: c.d, DGain: 1 + c.d}
-		for k, col := range cols {
-			sg.At[col] = c.pt[k]
+		zs = append(zs, zc)
+		kept = append(kept, c)
+	}
+	picks = kept
+
+	// Fragility now and after the readings at each pick: independent
+	// searches, run on up to two cores.
+	var before FragilityResult
+	afters := make([]FragilityResult, len(picks))
+	sgParallel(1+len(picks), func(k int) {
+		if k == 0 {
+			before = base.searchRanked(checks, ranked, fopt)
+			return
 		}
-		fgMatVec(u, base.c, z, p)
+		afters[k-1] = base.augmented(zs[k-1], opt.Replicates).searchRanked(checks, ranked, fopt)
+	})
+	ends := make([]int, len(picks))
+	if before.Fragile {
+		sgParallel(len(picks), func(k int) {
+			fragileWith := func(rr int) bool {
+				return base.augmented(zs[k], rr).searchRanked(checks, ranked, fopt).Fragile
+			}
+			if !afters[k].Fragile {
+				ends[k] = opt.Replicates
+				for rr := 1; rr < opt.Replicates; rr++ {
+					if !fragileWith(rr) {
+						ends[k] = rr
+						break
+					}
+				}
+				return
+			}
+			for rr := opt.Replicates + 1; rr <= opt.MaxReplicates; rr++ {
+				if !fragileWith(rr) {
+					ends[k] = rr
+					break
+				}
+			}
+		})
+	}
+
+	out := make([]Suggestion, 0, len(picks))
+	for k, c := range picks {
+		sg := Suggestion{At: make(map[string]float64, len(cols)), Replicates: opt.Replicates, D: c.d, DGain: 1 + c.d}
+		for j, col := range cols {
+			sg.At[col] = c.pt[j]
+		}
+		fgMatVec(u, base.c, zs[k], p)
 		ef := Effect{DetRatio: 1 + r*c.d, FragilityBefore: before.Index, FragileBefore: before.Fragile}
 		for _, i := range watched {
 			o := inf.Rows[i]
@@ -393,31 +439,34 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 				CookBefore: o.Cook, CookAfter: o.Residual * o.Residual * hn / (float64(p) * s2new * (1 - hn) * (1 - hn)),
 			})
 		}
-		after := base.augmented(z, opt.Replicates).searchRanked(checks, ranked, fopt)
+		after := afters[k]
 		ef.FragilityAfter, ef.FragileAfter, ef.Searched = after.Index, after.Fragile, after.Searched
-		if before.Fragile {
-			if !after.Fragile {
-				ef.EndsFragility = opt.Replicates
-				for rr := 1; rr < opt.Replicates; rr++ {
-					if !base.augmented(z, rr).searchRanked(checks, ranked, fopt).Fragile {
-						ef.EndsFragility = rr
-						break
-					}
-				}
-			} else {
-				for rr := opt.Replicates + 1; rr <= opt.MaxReplicates; rr++ {
-					if !base.augmented(z, rr).searchRanked(checks, ranked, fopt).Fragile {
-						ef.EndsFragility = rr
-						break
-					}
-				}
-			}
-		}
+		ef.EndsFragility = ends[k]
 		sg.Effect = ef
 		sg.Text = sgText(cols, sg, fopt, opt)
 		out = append(out, sg)
 	}
 	return out, nil
+}
+
+// sgParallel calls fn(0..n-1) on up to two goroutines and waits for them.
+func sgParallel(n int, fn func(k int)) {
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for w := 0; w < min(2, n); w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for {
+				k := int(next.Add(1)) - 1
+				if k >= n {
+					return
+				}
+				fn(k)
+			}
+		}()
+	}
+	wg.Wait()
 }
 
 // sgCook maps an undefined Cook's distance (h = 1) to +Inf so that a drop

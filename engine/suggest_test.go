@@ -2,6 +2,7 @@ package engine_test
 
 import (
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"strings"
@@ -461,4 +462,19 @@ func TestSuggestErrors(t *testing.T) {
 	if err != nil || reg["cases"] != [2]float64{3, 9} || reg["distance"] != [2]float64{1, 5} {
 		t.Errorf("RegionOf = %v, %v", reg, err)
 	}
+}
+
+// Where to take readings for the delivery-time data (Montgomery, Peck &
+// Vining, Table 3.2), within the observed ranges of cases and distance.
+func ExampleSuggest() {
+	m, _ := engine.NewModel("time", []string{"cases", "distance"}, true)
+	X, y, _ := m.Design(map[string][]float64{
+		"time": frDelivery.time, "cases": frDelivery.cases, "distance": frDelivery.distance,
+	})
+	f, _ := engine.Refit(m, X, y)
+	s, _ := engine.Suggest(f, nil, nil, nil, engine.SuggestOptions{Top: 1,
+		Conclusions: engine.Conclusions{Coefficients: []engine.CoefBand{{Term: "distance", K: 1}}}})
+	fmt.Println(s[0].Text)
+	// Output:
+	// add 3 readings near cases = 30, distance = 1460 (det(X'X) x 2.49): leverage of row 9 falls 0.5 -> 0.2, Cook's distance 3.4 -> 0.61; leverage of row 22 falls 0.39 -> 0.29, Cook's distance 0.45 -> 0.28; fragility index rises 1 -> 2; up to 20 readings here do not end the fragility
 }
