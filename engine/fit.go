@@ -178,7 +178,7 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 					}
 					continue
 				}
-				st.sum[j] += v
+				st.sum[j] += v * 0x1p-64
 				if v < st.min[j] {
 					st.min[j] = v
 				}
@@ -196,7 +196,7 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 				}
 				continue
 			}
-			st.ysum += v
+			st.ysum += v * 0x1p-64
 			if v < st.ymin {
 				st.ymin = v
 			}
@@ -251,10 +251,17 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	sc := scaling{p: p, intercept: m.Intercept, mean: make([]float64, p), scale: make([]float64, p)}
 	if m.Intercept {
 		for j := 1; j < p; j++ {
-			sc.mean[j] = sum[j] / float64(n)
+			sc.mean[j] = sum[j] / float64(n) * 0x1p64
 		}
 	}
-	ybar := ysum / float64(n)
+	ybar := ysum / float64(n) * 0x1p64
+	// Power-of-two prescaling keeps the Householder sums of squares clear
+	// of overflow and underflow; it is exact.
+	pre := make([]float64, k0(p))
+	for j := 0; j < p; j++ {
+		pre[j] = pow2Inv(math.Max(math.Abs(mn[j]-sc.mean[j]), math.Abs(mx[j]-sc.mean[j])))
+	}
+	pre[p] = pow2Inv(math.Max(math.Abs(ymin), math.Abs(ymax)))
 
 	// Pass 2: QR of each chunk of the centred design (unscaled; scaling
 	// commutes with QR and is applied to R afterwards), y carried along.
@@ -271,9 +278,9 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 			row := xd[i*stride : i*stride+p]
 			ii := i - lo
 			for j, v := range row {
-				a[j*mr+ii] = v - sc.mean[j]
+				a[j*mr+ii] = (v - sc.mean[j]) * pre[j]
 			}
-			a[p*mr+ii] = y[i]
+			a[p*mr+ii] = y[i] * pre[p]
 		}
 		houseQR(a, mr, p, k, taus[c*p:(c+1)*p])
 		for j := 0; j < k; j++ {
@@ -290,20 +297,22 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	houseQR(S, sm, p, k, tauS)
 
 	// Scale R to unit columns.
+	colNorm := make([]float64, p)
 	for j := 0; j < p; j++ {
 		ss := 0.0
 		for i := 0; i <= j; i++ {
 			ss += S[j*sm+i] * S[j*sm+i]
 		}
-		sc.scale[j] = math.Sqrt(ss)
-		if sc.scale[j] == 0 {
+		colNorm[j] = math.Sqrt(ss)
+		sc.scale[j] = colNorm[j] / pre[j]
+		if colNorm[j] == 0 || math.IsInf(sc.scale[j], 0) {
 			return nil, &ColumnError{Term: names[j], Err: ErrConstantColumn}
 		}
 	}
 	R := make([]float64, p*p)
 	for i := 0; i < p; i++ {
 		for j := i; j < p; j++ {
-			R[i*p+j] = S[j*sm+i] / sc.scale[j]
+			R[i*p+j] = S[j*sm+i] / colNorm[j]
 		}
 	}
 	if err := checkRank(R, p, names); err != nil {
@@ -317,7 +326,7 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	// Initial solution from Q'y.
 	c0 := make([]float64, p)
 	for i := 0; i < p; i++ {
-		c0[i] = S[p*sm+i]
+		c0[i] = S[p*sm+i] / pre[p]
 	}
 	solveUpper(R, p, c0)
 	b := make([]float64, p)
@@ -487,6 +496,9 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 		x: X, y: y, sc: sc, r: R, rss: rss,
 	}
 	f.finish(b, names)
+	if !f.finite() {
+		return nil, fmt.Errorf("%w: the fit overflows double precision (values too large)", ErrNonFinite)
+	}
 	return f, nil
 }
 
@@ -706,3 +718,34 @@ func invertUpper(R []float64, p int) []float64 {
 }
 
 var debugRefine = false
+
+func k0(p int) int { return p + 1 }
+
+// pow2Inv returns the power of two nearest 1/v from below in magnitude
+// (1 for v = 0 or non-finite v), so that v*pow2Inv(v) lies in [0.5, 1).
+func pow2Inv(v float64) float64 {
+	if v == 0 || math.IsInf(v, 0) || math.IsNaN(v) {
+		return 1
+	}
+	_, e := math.Frexp(v)
+	return math.Ldexp(1, -e)
+}
+
+// finite reports whether the estimates and summary sums are finite.
+func (f *Fit) finite() bool {
+	ok := func(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+	if !ok(f.RSS) || !ok(f.TSS) || !ok(f.Sigma) {
+		return false
+	}
+	for _, c := range f.Coef {
+		if !ok(c.Estimate) || !ok(c.StdError) {
+			return false
+		}
+	}
+	for _, v := range f.m {
+		if !ok(v) {
+			return false
+		}
+	}
+	return true
+}

@@ -1,6 +1,9 @@
 package engine
 
-import "math"
+import (
+	"math"
+	"sort"
+)
 
 // Obs holds the diagnostics of one observation (formulas in the package
 // documentation). Values that are undefined, for example every deletion
@@ -24,98 +27,212 @@ type Influence struct {
 	Rows []Obs
 }
 
+// deletedRecompute: rows whose deleted residual sum of squares is below
+// this fraction of RSS (a dominating outlier) get it recomputed without
+// cancellation; at most maxRecompute of them.
+const (
+	deletedRecompute = 1e-2
+	maxRecompute     = 16
+)
+
 // Diagnose computes every observation's diagnostics in closed form from
 // the fit's QR factors, in O(n p²) time: no leave-one-out refits. For each
 // row, q = R^-T w_i (w_i the scaled row) gives h = |q|², and
-// (X'X)^-1 x_i = T^-1 R^-1 q gives the DFBETAS. The deleted variance is
-// (n-p-1)s_(i)² = RSS - e_i²/(1-h), evaluated in double-double.
+// (X'X)^-1 x_i = T^-1 R^-1 q gives the DFBETAS. The deleted residual sum
+// of squares (n-p-1)s_(i)² = RSS - e_i²/(1-h_i) is evaluated in
+// double-double; where it cancels badly (it is below 1% of RSS, a row that
+// dominates the fit) it is recomputed as Σ_{k≠i}(e_k + h_ki e_i/(1-h_i))²,
+// the deleted fit's residuals, which loses nothing.
 func Diagnose(f *Fit) *Influence {
 	n, p := f.N, f.P
+	d := newDiag(f)
 	inf := &Influence{Fit: f, Rows: make([]Obs, n)}
 	dfb := make([]float64, n*p)
-	raw := f.x.RawMatrix()
-	stride, xd := raw.Stride, raw.Data
-	fp := float64(p)
-	df := float64(n - p)
-	df1 := float64(n - p - 1)
-	s2 := f.RSS / df
-	s := math.Sqrt(s2)
-	// 1/sqrt(C_jj).
-	kj := make([]float64, p)
-	for j := 0; j < p; j++ {
-		c := 0.0
-		for l := 0; l < p; l++ {
-			c += f.m[j*p+l] * f.m[j*p+l]
-		}
-		kj[j] = 1 / math.Sqrt(c)
-	}
 	ch := newChunking(n, p)
-	R := f.r
-	sc := &f.sc
-	nf := float64(n)
+	type cand struct {
+		row int
+		d   float64
+	}
+	cands := make([][]cand, ch.nc)
 	ch.run(func(c int) {
 		lo, hi := ch.bounds(c)
 		w := make([]float64, p)
 		v := make([]float64, p)
 		for i := lo; i < hi; i++ {
-			row := xd[i*stride : i*stride+p]
-			sc.toW(w, row)
-			solveUpperT(R, p, w)
-			h := 0.0
-			for _, q := range w {
-				h += q * q
-			}
-			solveUpper(R, p, w)
-			sc.fromW(v, w)
 			o := &inf.Rows[i]
-			e := f.Residuals[i]
-			o.Residual = e
 			o.DFBETAS = dfb[i*p : (i+1)*p : (i+1)*p]
-			if h > 1 {
-				h = 1
+			h := d.row(w, v, i)
+			del, ok := d.deleted(f.Residuals[i], h)
+			d.fill(o, f.Residuals[i], h, v, del)
+			if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
+				cands[c] = append(cands[c], cand{i, del})
 			}
-			o.Leverage = h
-			om := 1 - h
-			if om < 0x1p-46 || n-p-1 <= 0 {
-				nan := math.NaN()
-				if om >= 0x1p-46 {
-					o.StudentInternal = e / (s * math.Sqrt(om))
-					o.Cook = o.StudentInternal * o.StudentInternal * h / (fp * om)
-				} else {
-					o.StudentInternal, o.Cook = nan, nan
-				}
-				o.StudentExternal, o.DFFITS, o.COVRATIO = nan, nan, nan
-				o.OutlierP, o.BonferroniP = nan, nan
-				for j := range o.DFBETAS {
-					o.DFBETAS[j] = nan
-				}
-				continue
-			}
-			sq := math.Sqrt(om)
-			ri := e / (s * sq)
-			// (n-p-1) s_(i)^2 = RSS - e^2/(1-h), in double-double.
-			e2 := dd{}.addProd(e, e)
-			q := e2.divDD(dd{om, 0})
-			d := f.rss.addDD(q.neg()).float()
-			if d < 0 {
-				d = 0
-			}
-			s2i := d / df1
-			si := math.Sqrt(s2i)
-			ti := e / (si * sq)
-			o.StudentInternal = ri
-			o.StudentExternal = ti
-			o.Cook = ri * ri * h / (fp * om)
-			o.DFFITS = ti * math.Sqrt(h/om)
-			scale := e / (om * si)
-			for j := 0; j < p; j++ {
-				o.DFBETAS[j] = v[j] * scale * kj[j]
-			}
-			o.COVRATIO = math.Pow(s2i/s2, fp) / om
-			pv := TTail2(ti, df1)
-			o.OutlierP = pv
-			o.BonferroniP = math.Min(1, nf*pv)
 		}
 	})
+	var all []cand
+	for _, cs := range cands {
+		all = append(all, cs...)
+	}
+	if len(all) == 0 {
+		return inf
+	}
+	sort.Slice(all, func(a, b int) bool { return all[a].d < all[b].d })
+	if len(all) > maxRecompute {
+		all = all[:maxRecompute]
+	}
+	rows := make([]int, len(all))
+	for k, c := range all {
+		rows[k] = c.row
+	}
+	dels := d.deletedExact(rows)
+	w := make([]float64, p)
+	v := make([]float64, p)
+	for k, i := range rows {
+		h := d.row(w, v, i)
+		d.fill(&inf.Rows[i], f.Residuals[i], h, v, dels[k])
+	}
 	return inf
+}
+
+// diag holds what every row's diagnostics share.
+type diag struct {
+	f      *Fit
+	p      int
+	xd     []float64
+	stride int
+	kj     []float64 // 1/sqrt(C_jj)
+	s2, s  float64
+	df1    float64
+	nf, fp float64
+}
+
+func newDiag(f *Fit) *diag {
+	p := f.P
+	raw := f.x.RawMatrix()
+	d := &diag{f: f, p: p, xd: raw.Data, stride: raw.Stride, kj: make([]float64, p),
+		s2: f.RSS / float64(f.N-p), df1: float64(f.N - p - 1), nf: float64(f.N), fp: float64(p)}
+	d.s = math.Sqrt(d.s2)
+	for j := 0; j < p; j++ {
+		c := 0.0
+		for l := 0; l < p; l++ {
+			c += f.m[j*p+l] * f.m[j*p+l]
+		}
+		d.kj[j] = 1 / math.Sqrt(c)
+	}
+	return d
+}
+
+// row returns h_i and leaves q_i = R^-T w_i in w... then overwritten:
+// on return w holds R^-1 q_i and v = (X'X)^-1 x_i.
+func (d *diag) row(w, v []float64, i int) float64 {
+	p := d.p
+	d.q(w, i)
+	h := 0.0
+	for _, q := range w {
+		h += q * q
+	}
+	solveUpper(d.f.r, p, w)
+	d.f.sc.fromW(v, w)
+	if h > 1 {
+		h = 1
+	}
+	return h
+}
+
+// q sets w = R^-T T^-T x_i.
+func (d *diag) q(w []float64, i int) {
+	row := d.xd[i*d.stride : i*d.stride+d.p]
+	d.f.sc.toW(w, row)
+	solveUpperT(d.f.r, d.p, w)
+}
+
+// deleted returns RSS - e²/(1-h) evaluated in double-double (ok false when
+// it is undefined).
+func (d *diag) deleted(e, h float64) (float64, bool) {
+	om := 1 - h
+	if om < 0x1p-46 || d.df1 <= 0 {
+		return math.NaN(), false
+	}
+	q := dd{}.addProd(e, e).divDD(dd{om, 0})
+	del := d.f.rss.addDD(q.neg()).float()
+	if del < 0 {
+		del = 0
+	}
+	return del, true
+}
+
+// deletedExact returns Σ_{k≠i}(e_k + h_ki e_i/(1-h_i))² for each listed
+// row i, in one pass over the data.
+func (d *diag) deletedExact(rows []int) []float64 {
+	p, n := d.p, d.f.N
+	qi := make([][]float64, len(rows))
+	coef := make([]float64, len(rows))
+	for k, i := range rows {
+		qi[k] = make([]float64, p)
+		d.q(qi[k], i)
+		h := 0.0
+		for _, v := range qi[k] {
+			h += v * v
+		}
+		coef[k] = d.f.Residuals[i] / (1 - h)
+	}
+	acc := make([]dd, len(rows))
+	w := make([]float64, p)
+	for r := 0; r < n; r++ {
+		d.q(w, r)
+		e := d.f.Residuals[r]
+		for k, i := range rows {
+			if r == i {
+				continue
+			}
+			hki := 0.0
+			for j, v := range w {
+				hki += v * qi[k][j]
+			}
+			v := dd{}.addProd(hki, coef[k]).add(e).float()
+			acc[k] = acc[k].addProd(v, v)
+		}
+	}
+	out := make([]float64, len(rows))
+	for k := range acc {
+		out[k] = acc[k].float()
+	}
+	return out
+}
+
+// fill computes the row's measures from e, h, v = (X'X)^-1 x_i and the
+// deleted residual sum of squares del.
+func (d *diag) fill(o *Obs, e, h float64, v []float64, del float64) {
+	o.Residual = e
+	o.Leverage = h
+	om := 1 - h
+	nan := math.NaN()
+	if om < 0x1p-46 {
+		o.StudentInternal, o.Cook = nan, nan
+	} else {
+		o.StudentInternal = e / (d.s * math.Sqrt(om))
+		o.Cook = o.StudentInternal * o.StudentInternal * h / (d.fp * om)
+	}
+	if math.IsNaN(del) {
+		o.StudentExternal, o.DFFITS, o.COVRATIO = nan, nan, nan
+		o.OutlierP, o.BonferroniP = nan, nan
+		for j := range o.DFBETAS {
+			o.DFBETAS[j] = nan
+		}
+		return
+	}
+	sq := math.Sqrt(om)
+	s2i := del / d.df1
+	si := math.Sqrt(s2i)
+	ti := e / (si * sq)
+	o.StudentExternal = ti
+	o.DFFITS = ti * math.Sqrt(h/om)
+	scale := e / (om * si)
+	for j := range o.DFBETAS {
+		o.DFBETAS[j] = v[j] * scale * d.kj[j]
+	}
+	o.COVRATIO = math.Pow(s2i/d.s2, d.fp) / om
+	pv := TTail2(ti, d.df1)
+	o.OutlierP = pv
+	o.BonferroniP = math.Min(1, d.nf*pv)
 }
