@@ -554,3 +554,79 @@ func ExampleFragility() {
 	// Output:
 	// index 1 (exhaustive): removing rows [9] breaks "distance within 1 SE": 0.01438 -> 0.01032; fragile: true
 }
+
+// TestFragilityR compares with brute force by plain refits in R
+// (testdata/fragility/brute.csv, written by gen_brute.R with Debian's
+// r-base-core: lm.fit on every subset of up to 3 removed rows): index,
+// first breaking set, conclusion, and before/after values to 1e-9.
+func TestFragilityR(t *testing.T) {
+	delivery := frDeliveryFit(t)
+	carsModel, _ := engine.NewModel("dist", []string{"speed"}, true)
+	cars := frFit(t, carsModel, frReadCSV(t, "cars.csv"))
+	womenModel, _ := engine.NewModel("weight", []string{"height", "height^2"}, true)
+	women := frFit(t, womenModel, frReadCSV(t, "women.csv"))
+	cases := map[string]struct {
+		f *engine.Fit
+		c engine.Conclusions
+	}{
+		"delivery/defaults":   {delivery, engine.Conclusions{}},
+		"delivery/bands":      {delivery, engine.Conclusions{Coefficients: []engine.CoefBand{{Term: "cases", K: 1}, {Term: "distance", K: 2}}}},
+		"delivery/checkpoint": {delivery, engine.Conclusions{Checkpoints: []engine.Checkpoint{{At: map[string]float64{"cases": 10, "distance": 500}, Tolerance: 0.6}}}},
+		"cars/defaults":       {cars, engine.Conclusions{}},
+		"cars/band":           {cars, engine.Conclusions{Coefficients: []engine.CoefBand{{Term: "speed", K: 0.4}}}},
+		"cars/checkpoint":     {cars, engine.Conclusions{Checkpoints: []engine.Checkpoint{{At: map[string]float64{"speed": 25}, Tolerance: 4}}}},
+		"women/defaults":      {women, engine.Conclusions{}},
+		"women/band":          {women, engine.Conclusions{Coefficients: []engine.CoefBand{{Term: "height^2", K: 0.7}}}},
+	}
+	raw, err := os.ReadFile(filepath.Join("testdata", "fragility", "brute.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	seen := 0
+	for _, line := range strings.Split(strings.TrimSpace(string(raw)), "\n") {
+		if strings.HasPrefix(line, "#") || strings.HasPrefix(line, "case,") {
+			continue
+		}
+		fs := strings.Split(line, ",")
+		if len(fs) != 7 {
+			t.Fatalf("bad line %q", line)
+		}
+		tc, ok := cases[fs[0]]
+		if !ok {
+			t.Fatalf("unknown case %q", fs[0])
+		}
+		seen++
+		t.Run(fs[0], func(t *testing.T) {
+			got, err := engine.Fragility(tc.f, nil, tc.c, engine.FragilityOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			idx, _ := strconv.Atoi(fs[1])
+			if got.Index != idx {
+				t.Fatalf("index %d (%v %s), R %d (%s)", got.Index, got.RemovedRows, got.Conclusion, idx, fs[2])
+			}
+			if idx == 0 {
+				return
+			}
+			var rows []int
+			for _, r := range strings.Fields(fs[2]) {
+				v, _ := strconv.Atoi(r)
+				rows = append(rows, v)
+			}
+			if !reflect.DeepEqual(got.RemovedRows, rows) || got.Kind != fs[3] || got.Term != fs[4] {
+				t.Errorf("rows %v, %s %q; R rows %v, %s %q", got.RemovedRows, got.Kind, got.Term, rows, fs[3], fs[4])
+			}
+			before, _ := strconv.ParseFloat(fs[5], 64)
+			after, _ := strconv.ParseFloat(fs[6], 64)
+			if e := frRel(got.Before, before); e > 1e-9 {
+				t.Errorf("before %.17g, R %.17g", got.Before, before)
+			}
+			if e := frRel(got.After, after); e > 1e-9 {
+				t.Errorf("after %.17g, R %.17g", got.After, after)
+			}
+		})
+	}
+	if seen != len(cases) {
+		t.Errorf("%d cases in brute.csv, want %d", seen, len(cases))
+	}
+}
