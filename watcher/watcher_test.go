@@ -693,3 +693,68 @@ func TestNewRejectsBadConfig(t *testing.T) {
 		}
 	}
 }
+
+func TestHugeLineIsRefusedAndSkipped(t *testing.T) {
+	if testing.Short() {
+		t.Skip("10 MB file")
+	}
+	dir := t.TempDir()
+	a := filepath.Join(dir, "a.csv")
+	writeFile(t, a, "x,y\n1,2\n3,"+strings.Repeat("4", 10<<20)+"\n5,6\n")
+	sink := newFakeSink(t)
+	start(t, testConfig(dir), sink)
+	waitFor(t, "rows around the huge line", 4*waitLong, func() bool { return len(sink.records("m", "a.csv", 0)) == 3 })
+	recs := sink.records("m", "a.csv", 0)
+	if !errors.Is(recs[1].Err, decode.ErrLineTooLong) || recs[1].Line != 3 || recs[2].Line != 4 || recs[2].Values[0] != 5 {
+		t.Errorf("records: %v, line %d, then line %d", recs[1].Err, recs[1].Line, recs[2].Line)
+	}
+	if len(recs[1].Raw) > 1024 {
+		t.Errorf("Raw of the refused line is %d bytes", len(recs[1].Raw))
+	}
+}
+
+func TestDeliverErrorOnNewGeneration(t *testing.T) {
+	dir := t.TempDir()
+	a := filepath.Join(dir, "a.csv")
+	writeFile(t, a, "x,y\n"+rows(1, 3))
+	sink := newFakeSink(t)
+	var failGen1 atomicCount
+	sink.fail = func(b Batch) error {
+		if b.Generation == 1 && failGen1.inc() <= 3 {
+			return errors.New("disk full")
+		}
+		return nil
+	}
+	start(t, testConfig(dir), sink)
+	waitFor(t, "gen 0", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 3 })
+	writeFile(t, a, "x,y\n"+rows(9, 10))
+	waitFor(t, "gen 1 after retries", waitLong, func() bool { return len(sink.values("m", "a.csv", 1)) == 2 })
+	if got := sink.values("m", "a.csv", 1); !slices.Equal(got, []float64{9, 10}) {
+		t.Errorf("gen 1 rows %v", got)
+	}
+	if n := len(sink.noticesOf(Truncated)); n != 1 {
+		t.Errorf("%d truncation notices, want 1", n)
+	}
+}
+
+type atomicCount struct {
+	mu sync.Mutex
+	n  int
+}
+
+func (c *atomicCount) inc() int { c.mu.Lock(); defer c.mu.Unlock(); c.n++; return c.n }
+
+func TestDialectThroughWatcher(t *testing.T) {
+	dir := t.TempDir()
+	writeFile(t, filepath.Join(dir, "eu.csv"), "\ufeff# rig 2\r\nx;y;probe\r\n1,5;2;\"K; 3\"\r\n\r\n2,5;4;J\r\n")
+	cfg := testConfig(dir)
+	cfg.Sources[0].Dialect = decode.Dialect{Delimiter: ';', Comment: "#", DecimalComma: true}
+	cfg.Sources[0].Text = []string{"probe"}
+	sink := newFakeSink(t)
+	start(t, cfg, sink)
+	waitFor(t, "rows", waitLong, func() bool { return len(sink.values("m", "eu.csv", 0)) == 2 })
+	recs := sink.records("m", "eu.csv", 0)
+	if recs[0].Values[0] != 1.5 || recs[0].Text[0] != "K; 3" || recs[1].Line != 5 || recs[1].Values[1] != 4 {
+		t.Errorf("records %+v", recs)
+	}
+}
