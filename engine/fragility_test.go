@@ -217,7 +217,7 @@ func frBrute(tb testing.TB, f *engine.Fit, checks []frCheck, maxM int) (int, []i
 	tb.Helper()
 	skipped := 0
 	n := f.N
-	for m := 1; m <= maxM; m++ {
+	for m := 1; m <= maxM && n-m > f.P; m++ {
 		set := make([]int, m)
 		for a := range set {
 			set[a] = a
@@ -628,5 +628,41 @@ func TestFragilityR(t *testing.T) {
 	}
 	if seen != len(cases) {
 		t.Errorf("%d cases in brute.csv, want %d", seen, len(cases))
+	}
+}
+
+// TestFragilityEdgeData: exact fits, a row with leverage 1 and the fewest
+// rows a fit allows give results, not panics or NaN conclusions.
+func TestFragilityEdgeData(t *testing.T) {
+	m, _ := engine.NewModel("y", []string{"x"}, true)
+	tests := []struct {
+		name string
+		x, y []float64
+	}{
+		{"exact line", []float64{1, 2, 3, 4, 5, 6}, []float64{3, 5, 7, 9, 11, 13}},
+		{"leverage 1", []float64{0, 0, 0, 0, 1}, []float64{1, 2, 1.5, 1.2, 4}},
+		{"n = p + 1", []float64{1, 2, 4}, []float64{1, 2.5, 3}},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			f := frFit(t, m, map[string][]float64{"x": tc.x, "y": tc.y})
+			got, err := engine.Fragility(f, nil, engine.Conclusions{Signs: true, Significance: true,
+				Checkpoints: []engine.Checkpoint{{At: map[string]float64{"x": 2}, Tolerance: 0.5}}}, engine.FragilityOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if got.Index > 0 && (math.IsNaN(got.After) || math.IsNaN(got.Before)) {
+				t.Errorf("NaN values: %+v", got)
+			}
+			checks := frChecks(t, f, engine.Conclusions{Signs: true, Significance: true,
+				Checkpoints: []engine.Checkpoint{{At: map[string]float64{"x": 2}, Tolerance: 0.5}}})
+			idx, _, _ := frBrute(t, f, checks, 3)
+			if idx != got.Index {
+				t.Errorf("index %d (%+v), brute force %d", got.Index, got, idx)
+			}
+			if _, err := engine.Suggest(f, nil, nil, nil, engine.SuggestOptions{}); err != nil {
+				t.Errorf("Suggest: %v", err)
+			}
+		})
 	}
 }
