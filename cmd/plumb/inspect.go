@@ -1629,6 +1629,9 @@ func shortVerdict(v engine.Verdict) string {
 	return v.Word()
 }
 
+// maxLookRows bounds the "worth a look" list of the table.
+const maxLookRows = 40
+
 func writeInspectTable(w io.Writer, r *inspectResult) error {
 	bw := bufio.NewWriterSize(w, 1<<16)
 	f := r.fit
@@ -1673,12 +1676,29 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	} else {
 		fmt.Fprintf(bw, "== Worth a look: %d of %d rows, most serious first ==\n", len(look), f.N)
 		r.writeLegend(bw)
-		for _, i := range look {
+		shown := look
+		if len(shown) > maxLookRows {
+			shown = shown[:maxLookRows]
+		}
+		for _, i := range shown {
 			v := r.verdicts[i]
 			fmt.Fprintf(bw, "  row %d (line %d): %s\n", r.ds.rowNo[i], r.ds.line[i], verdictWords(v))
 			for _, fl := range v.Flags {
 				fmt.Fprintf(bw, "      - %s\n", flagWords(fl))
 			}
+		}
+		if rest := look[len(shown):]; len(rest) > 0 {
+			count := map[string]int{}
+			for _, i := range rest {
+				count[r.verdicts[i].Word()]++
+			}
+			var parts []string
+			for _, w := range []string{"suspect", "influential", "outlier", "notable"} {
+				if count[w] > 0 {
+					parts = append(parts, fmt.Sprintf("%d %s", count[w], w))
+				}
+			}
+			fmt.Fprintf(bw, "  ... and %d more (%s): see the verdict column below, or --format csv.\n", len(rest), strings.Join(parts, ", "))
 		}
 		bw.WriteByte('\n')
 	}
