@@ -165,6 +165,10 @@ type SuggestOptions struct {
 	// Conclusions and Fragility are used for the fragility index.
 	Conclusions Conclusions
 	Fragility   FragilityOptions
+	// Before, when set, is the result of Fragility for the same fit,
+	// Conclusions and Fragility options, computed already by the caller;
+	// Suggest then does not search the current fit again.
+	Before *FragilityResult
 	// Label names a 1-based data row in the text (default "row 212").
 	Label func(row int) string
 }
@@ -392,7 +396,11 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	afters := make([]FragilityResult, len(picks))
 	sgParallel(1+len(picks), func(k int) {
 		if k == 0 {
-			before = base.searchRanked(checks, ranked, fopt)
+			if opt.Before != nil {
+				before = *opt.Before
+			} else {
+				before = base.searchRanked(checks, ranked, fopt)
+			}
 			return
 		}
 		afters[k-1] = base.augmented(zs[k-1], opt.Replicates).searchRanked(checks, ranked, fopt)

@@ -478,3 +478,30 @@ func ExampleSuggest() {
 	// Output:
 	// add 3 readings near cases = 30, distance = 1460 (det(X'X) x 2.49): leverage of row 9 falls 0.5 -> 0.2, Cook's distance 3.4 -> 0.61; leverage of row 22 falls 0.39 -> 0.29, Cook's distance 0.45 -> 0.28; fragility index rises 1 -> 2; up to 20 readings here do not end the fragility
 }
+
+// TestSuggestBefore: passing the caller's Fragility result gives the same
+// suggestions as letting Suggest search the current fit itself.
+func TestSuggestBefore(t *testing.T) {
+	f := frDeliveryFit(t)
+	c := engine.Conclusions{Coefficients: []engine.CoefBand{{Term: "distance", K: 1}}}
+	fr, err := engine.Fragility(f, nil, c, engine.FragilityOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	a, err := engine.Suggest(f, nil, nil, nil, engine.SuggestOptions{Conclusions: c})
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := engine.Suggest(f, nil, nil, nil, engine.SuggestOptions{Conclusions: c, Before: &fr})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(a) != len(b) {
+		t.Fatalf("%d vs %d suggestions", len(a), len(b))
+	}
+	for k := range a {
+		if a[k].Text != b[k].Text || a[k].Effect.FragilityBefore != fr.Index {
+			t.Errorf("%q vs %q (index %d)", a[k].Text, b[k].Text, fr.Index)
+		}
+	}
+}
