@@ -509,16 +509,15 @@ func sgWatched(inf *Influence, v []Verdict) ([]int, bool) {
 	}
 	flagged := len(w) > 0
 	if !flagged {
-		w = fgTopK(len(inf.Rows), 3, func(i int) float64 { return inf.Rows[i].Leverage })
-		return w, false
+		return fgTopK(len(inf.Rows), 3, func(i int) float64 { return inf.Rows[i].Leverage }), false
 	}
-	sort.SliceStable(w, func(a, b int) bool {
-		return sgCook(inf.Rows[w[a]].Cook) > sgCook(inf.Rows[w[b]].Cook)
-	})
-	if len(w) > maxWatched {
-		w = w[:maxWatched]
+	// The maxWatched largest Cook's distances (an undefined one first).
+	top := fgTopK(len(w), maxWatched, func(k int) float64 { return sgCook(inf.Rows[w[k]].Cook) })
+	out := make([]int, len(top))
+	for k, t := range top {
+		out[k] = w[t]
 	}
-	return w, true
+	return out, true
 }
 
 // augmented returns the searcher of the fit with r readings added at
