@@ -113,18 +113,19 @@ type pageData struct {
 }
 
 type modelPage struct {
-	D         view.ModelDetail
-	Held      string // the other predictors' values under the fit curve
-	Thinned   int    // ordinary points not drawn
-	Predictor string
-	FitSVG    template.HTML
-	InflSVG   template.HTML
-	CooksSVG  template.HTML
-	History   []historyPanel
-	FitCount  int
-	Notable   []view.Point
-	Alerts    []view.AlertView
-	Counts    map[string]int
+	D          view.ModelDetail
+	Held       string // the other predictors' values under the fit curve
+	Thinned    int    // ordinary points not drawn
+	Predictor  string
+	FitSVG     template.HTML
+	InflSVG    template.HTML
+	CooksSVG   template.HTML
+	History    []historyPanel
+	FitCount   int
+	Notable    []view.Point
+	Alerts     []view.AlertView
+	Quarantine []view.QuarantineView // the latest, newest first
+	Counts     map[string]int
 }
 
 type historyPanel struct {
@@ -215,6 +216,29 @@ func (s *server) recentFits(ctx context.Context, name string, n int) ([]view.Fit
 	return keep, nil
 }
 
+// recentQuarantine returns the latest n quarantined rows of the model,
+// newest first, reading at most 10 pages.
+func (s *server) recentQuarantine(ctx context.Context, model string, n int) ([]view.QuarantineView, error) {
+	var keep []view.QuarantineView
+	var after int64
+	for range 10 {
+		page, err := s.src.Quarantine(ctx, model, after, MaxLimit)
+		if err != nil {
+			return nil, err
+		}
+		keep = append(keep, page...)
+		if len(keep) > n {
+			keep = keep[len(keep)-n:]
+		}
+		if len(page) < MaxLimit {
+			break
+		}
+		after = page[len(page)-1].ID
+	}
+	slices.Reverse(keep)
+	return keep, nil
+}
+
 func (s *server) pageModel(w http.ResponseWriter, r *http.Request) {
 	ctx, cancel := s.ctx(r)
 	defer cancel()
@@ -234,8 +258,14 @@ func (s *server) pageModel(w http.ResponseWriter, r *http.Request) {
 		s.pageError(w, r, err)
 		return
 	}
+	quar, err := s.recentQuarantine(ctx, name, 20)
+	if err != nil {
+		s.pageError(w, r, err)
+		return
+	}
 	mp := buildModelPage(md, fits, r.URL.Query().Get("x"))
 	mp.Alerts = als
+	mp.Quarantine = quar
 	d := s.base(ctx, "model", name)
 	d.Model = mp
 	s.render(w, r, http.StatusOK, d)

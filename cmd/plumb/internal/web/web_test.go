@@ -89,6 +89,7 @@ func TestReadEndpoints(t *testing.T) {
 		{"unknown api", "/api/v1/nothing", 404, "application/json", `no such endpoint`},
 		{"overview page", "/", 200, "text/html", `data-model="flow-rig"`},
 		{"model page", "/models/bench-b", 200, "text/html", `data-chart="cooks"`},
+		{"model page quarantine", "/models/bench-b", 200, "text/html", `run-0314.csv:23:1`},
 		{"model page other x", "/models/bench-b?x=zzz", 200, "text/html", `data-chart="fit"`},
 		{"model page missing", "/models/nope", 404, "text/html", `not found`},
 		{"waiting model page", "/models/flow-rig", 200, "text/html", `No fit yet`},
