@@ -83,8 +83,9 @@ type DB struct {
 	path string
 	now  func() time.Time
 
-	// wmu serialises write transactions within the process.
-	wmu sync.Mutex
+	// wsem (capacity 1) serialises write transactions within the
+	// process; waiting for it respects the caller's context.
+	wsem chan struct{}
 
 	// models caches committed model name -> id (models are never deleted).
 	mmu    sync.RWMutex
@@ -133,7 +134,7 @@ func Open(ctx context.Context, path string, opts ...Option) (*DB, error) {
 		sdb.SetMaxOpenConns(cfg.maxOpenConns)
 		sdb.SetMaxIdleConns(cfg.maxOpenConns)
 	}
-	db := &DB{db: sdb, path: path, now: cfg.now, models: make(map[string]int64)}
+	db := &DB{db: sdb, path: path, now: cfg.now, wsem: make(chan struct{}, 1), models: make(map[string]int64)}
 	if err := db.migrate(ctx); err != nil {
 		sdb.Close()
 		return nil, fmt.Errorf("store: open %s: %w", path, err)
@@ -221,8 +222,10 @@ func (db *DB) migrate(ctx context.Context) error {
 	if err != nil {
 		return err
 	}
-	db.wmu.Lock()
-	defer db.wmu.Unlock()
+	if err := db.lockWrite(ctx); err != nil {
+		return fmt.Errorf("migrate: %w", err)
+	}
+	defer db.unlockWrite()
 	tx, err := db.db.BeginTx(ctx, nil)
 	if err != nil {
 		return fmt.Errorf("migrate: %w", err)
@@ -267,8 +270,10 @@ func (db *DB) migrate(ctx context.Context) error {
 // write runs fn in an IMMEDIATE transaction, serialised with the other
 // writers of this process, and commits it when fn returns nil.
 func (db *DB) write(ctx context.Context, fn func(tx *sql.Tx) error) error {
-	db.wmu.Lock()
-	defer db.wmu.Unlock()
+	if err := db.lockWrite(ctx); err != nil {
+		return err
+	}
+	defer db.unlockWrite()
 	tx, err := db.db.BeginTx(ctx, nil)
 	if err != nil {
 		return err
@@ -280,7 +285,18 @@ func (db *DB) write(ctx context.Context, fn func(tx *sql.Tx) error) error {
 	return tx.Commit()
 }
 
-// modelID returns the id of a committed model, or 0, false.
+func (db *DB) lockWrite(ctx context.Context) error {
+	select {
+	case db.wsem <- struct{}{}:
+		return nil
+	case <-ctx.Done():
+		return ctx.Err()
+	}
+}
+
+func (db *DB) unlockWrite() { <-db.wsem }
+
+// cachedModelID returns the id of a committed model, or 0, false.
 func (db *DB) cachedModelID(name string) (int64, bool) {
 	db.mmu.RLock()
 	id, ok := db.models[name]

@@ -61,6 +61,7 @@ func Run(t *testing.T, open Opener) {
 		{"Outbox", testOutbox},
 		{"Concurrent", testConcurrent},
 		{"ConcurrentSameBatch", testConcurrentSameBatch},
+		{"CancelledContext", testCancelledContext},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -1165,4 +1166,24 @@ func testConcurrentSameBatch(t *testing.T, s store.Store) {
 	if n := count(t, s, "cal"); n != 50 {
 		t.Errorf("CountObservations = %d, want 50", n)
 	}
+}
+
+// testCancelledContext: a call under a cancelled context fails with the
+// context's error and stores nothing.
+func testCancelledContext(t *testing.T, s store.Store) {
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := s.Ingest(ctx, batch("cal", "a.csv", 1, 2, 5)); !errors.Is(err, context.Canceled) {
+		t.Errorf("Ingest under a cancelled context: %v, want context.Canceled", err)
+	}
+	if _, err := s.Observations(ctx, "cal", store.ObsQuery{}); !errors.Is(err, context.Canceled) {
+		t.Errorf("Observations under a cancelled context: %v, want context.Canceled", err)
+	}
+	if err := s.PutAlert(ctx, alert("a", "cal", "drift", "x", t0), nil); !errors.Is(err, context.Canceled) {
+		t.Errorf("PutAlert under a cancelled context: %v, want context.Canceled", err)
+	}
+	if n := count(t, s, "cal"); n != 0 {
+		t.Errorf("CountObservations = %d after a cancelled Ingest, want 0", n)
+	}
+	mustIngest(t, s, batch("cal", "a.csv", 1, 2, 5))
 }

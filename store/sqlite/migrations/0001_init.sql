@@ -59,7 +59,7 @@ CREATE TABLE observations (
     flags       TEXT
 );
 -- Second guard against counting a row twice (the first is the read offset).
-CREATE UNIQUE INDEX observations_provenance ON observations (source_id, generation, line);
+CREATE UNIQUE INDEX observations_provenance ON observations (source_id, line, generation);
 CREATE INDEX observations_model ON observations (model_id, id);
 
 CREATE TABLE quarantine (
