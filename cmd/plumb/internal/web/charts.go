@@ -23,6 +23,13 @@ import (
 // points are thinned evenly (flagged points are always drawn).
 const MaxDrawn = 3000
 
+var chartLabels = map[string]string{
+	"fit":       "Data and fitted curve with its confidence band and the suggested collection points",
+	"influence": "Studentized residual against leverage with the 2p/n and Bonferroni cutoff lines",
+	"cooks":     "Cook's distance by observation with its cutoff lines",
+	"history":   "Coefficient history with its drift band",
+}
+
 // clipSeq makes clip-path ids unique within a page.
 var clipSeq atomic.Uint64
 
@@ -40,8 +47,8 @@ func newChart(name string, w, h float64, xs, ys []float64) *chart {
 	c.x0, c.x1 = padRange(xs)
 	c.y0, c.y1 = padRange(ys)
 	c.clip = fmt.Sprintf("clip-%s-%d", name, clipSeq.Add(1))
-	fmt.Fprintf(&c.b, `<svg xmlns="http://www.w3.org/2000/svg" class="chart" data-chart="%s" viewBox="0 0 %g %g" role="img" preserveAspectRatio="xMidYMid meet">`,
-		html.EscapeString(name), w, h)
+	fmt.Fprintf(&c.b, `<svg xmlns="http://www.w3.org/2000/svg" class="chart" data-chart="%s" viewBox="0 0 %g %g" role="img" aria-label="%s" preserveAspectRatio="xMidYMid meet">`,
+		html.EscapeString(name), w, h, html.EscapeString(chartLabels[name]))
 	fmt.Fprintf(&c.b, `<defs><clipPath id="%s"><rect x="%g" y="%g" width="%g" height="%g"/></clipPath></defs>`,
 		c.clip, c.ml, c.mt, w-c.ml-c.mr, h-c.mt-c.mb)
 	return c
@@ -414,7 +421,7 @@ func historyChart(fits []view.FitView, term string, band *view.DriftBand) templa
 	c := newChart("history", 420, 240, append([]float64{1}, xs...), clampSpread(all, ys))
 	c.ml = 62
 	fmt.Fprintf(&c.b, `<desc data-term="%s"></desc>`, html.EscapeString(term))
-	c.axes("fit number", term, true)
+	c.axes("fit (oldest → newest)", term, true)
 	if band != nil && band.Lower.Finite() && band.Upper.Finite() {
 		y1, y2 := c.py(math.Min(float64(band.Upper), c.y1)), c.py(math.Max(float64(band.Lower), c.y0))
 		fmt.Fprintf(&c.b, `<rect class="drift-band" x="%s" y="%s" width="%s" height="%s"/>`,

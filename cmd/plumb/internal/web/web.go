@@ -12,7 +12,7 @@
 //	GET  /metrics                               Prometheus text / OpenMetrics
 //	GET  /api/v1/version                        {"version"}; ETag, If-None-Match -> 304
 //	GET  /api/v1/models                         every model's summary
-//	GET  /api/v1/models/{name}                  the model's current picture
+//	GET  /api/v1/models/{name}                  the model's current picture ?points=all|flagged|none
 //	GET  /api/v1/models/{name}/fits             fit history        ?after=&limit=
 //	GET  /api/v1/models/{name}/observations     accepted rows      ?after=&limit=
 //	GET  /api/v1/quarantine                     unreadable rows    ?model=&after=&limit=
@@ -330,7 +330,21 @@ func (s *server) apiModels(w http.ResponseWriter, r *http.Request) {
 	writeJSON(w, http.StatusOK, listBody[view.ModelSummary]{Items: ms})
 }
 
+// modelBody is a model's picture with the points selection stated.
+type modelBody struct {
+	view.ModelDetail
+	// PointsOmitted counts the points left out by ?points=.
+	PointsOmitted int `json:"points_omitted"`
+}
+
 func (s *server) apiModel(w http.ResponseWriter, r *http.Request) {
+	sel := r.URL.Query().Get("points")
+	switch sel {
+	case "", "all", "flagged", "none":
+	default:
+		s.fail(w, r, http.StatusBadRequest, &badRequest{fmt.Sprintf("points %q: want all, flagged or none", sel)})
+		return
+	}
 	ctx, cancel := s.ctx(r)
 	defer cancel()
 	d, err := s.src.Model(ctx, r.PathValue("name"))
@@ -338,7 +352,23 @@ func (s *server) apiModel(w http.ResponseWriter, r *http.Request) {
 		s.fail(w, r, statusOf(err), err)
 		return
 	}
-	writeJSON(w, http.StatusOK, d)
+	body := modelBody{ModelDetail: d}
+	switch sel {
+	case "none":
+		body.PointsOmitted, body.Points = len(d.Points), []view.Point{}
+	case "flagged":
+		var kept []view.Point
+		for _, p := range d.Points {
+			if p.Verdict != view.VerdictOrdinary && p.Verdict != "" {
+				kept = append(kept, p)
+			}
+		}
+		if kept == nil {
+			kept = []view.Point{}
+		}
+		body.PointsOmitted, body.Points = len(d.Points)-len(kept), kept
+	}
+	writeJSON(w, http.StatusOK, body)
 }
 
 func (s *server) apiFits(w http.ResponseWriter, r *http.Request) {
