@@ -1,9 +1,12 @@
 package decode
 
 import (
+	"math"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strconv"
+	"strings"
 	"testing"
 )
 
@@ -103,3 +106,27 @@ var errLeftover = errorString("bytes left unconsumed at EOF")
 type errorString string
 
 func (e errorString) Error() string { return string(e) }
+
+// FuzzParseNumber checks the number path against strconv.ParseFloat (the
+// standard library as oracle): a number it accepts must be bit-identical,
+// and a plain decimal that strconv accepts (finitely) must be accepted.
+func FuzzParseNumber(f *testing.F) {
+	for _, s := range []string{"1.5e3", "-0.000123", "9007199254740993", "1e23", " 42 ", "1e-400", "123456789012345678901.5"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		v, kind := parseNumber([]byte(s), false)
+		trimmed := strings.Trim(s, " \t")
+		want, err := strconv.ParseFloat(trimmed, 64)
+		if kind == numOK {
+			if err != nil || math.Float64bits(v) != math.Float64bits(want) {
+				t.Fatalf("parseNumber(%q) = %v, strconv: %v, %v", s, v, want, err)
+			}
+			return
+		}
+		plain := trimmed != "" && strings.Trim(trimmed, "0123456789+-.eE") == ""
+		if plain && err == nil && !math.IsInf(want, 0) {
+			t.Fatalf("parseNumber(%q) refused (kind %d), strconv reads %v", s, kind, want)
+		}
+	})
+}

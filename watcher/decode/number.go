@@ -64,46 +64,35 @@ func parseNumber(b []byte, decComma bool) (float64, numKind) {
 	}
 	var mant uint64
 	nd := 0        // significant digits accumulated into mant
-	trunc := false // more than 19 significant digits
+	trunc := false // digits beyond the 19th were dropped
+	dp := false    // decimal separator seen
 	exp := 0
 	sawDigit := false
 	for ; k < len(s); k++ {
 		c := s[k]
-		if c < '0' || c > '9' {
-			break
-		}
-		sawDigit = true
-		if mant == 0 && c == '0' {
-			continue
-		}
-		if nd < 19 {
-			mant = mant*10 + uint64(c-'0')
-			nd++
-		} else {
-			trunc = true
-			exp++
-		}
-	}
-	if k < len(s) && s[k] == sep {
-		k++
-		for ; k < len(s); k++ {
-			c := s[k]
-			if c < '0' || c > '9' {
-				break
-			}
+		if d := c - '0'; d < 10 {
 			sawDigit = true
-			if mant == 0 && c == '0' {
-				exp--
-				continue
-			}
 			if nd < 19 {
-				mant = mant*10 + uint64(c-'0')
-				nd++
-				exp--
+				mant = mant*10 + uint64(d)
+				if mant != 0 {
+					nd++
+				}
+				if dp {
+					exp--
+				}
 			} else {
 				trunc = true
+				if !dp {
+					exp++
+				}
 			}
+			continue
 		}
+		if c == sep && !dp {
+			dp = true
+			continue
+		}
+		break
 	}
 	if !sawDigit {
 		return 0, classifyWord(s)
