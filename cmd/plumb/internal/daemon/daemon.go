@@ -179,8 +179,15 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	dispatch.Logger = d.log
 
 	for _, name := range order {
-		if err := models[name].restore(ctx, d.store); err != nil {
+		m := models[name]
+		if err := m.restore(ctx, d.store); err != nil {
 			return fmt.Errorf("model %q: restore: %w", name, err)
+		}
+		// Silence is measured from the last stored arrival, across restarts.
+		if !m.lastArrival.IsZero() {
+			if err := am.Activity(ctx, name, m.lastArrival); err != nil {
+				return fmt.Errorf("model %q: %w", name, err)
+			}
 		}
 		d.metrics.m.AddModel(name)
 	}

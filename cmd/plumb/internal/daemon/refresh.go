@@ -208,11 +208,47 @@ func (m *modelRT) refresh(ctx context.Context) error {
 		}
 	}
 	if base != nil && base.fit != fit {
-		if err := m.d.drift(ctx, m.driftCondition(base, fit, top)); err != nil {
-			m.log.Error("alert", "err", err)
+		if df := m.driftFit(cols, verdicts, fit); df != nil {
+			if err := m.d.drift(ctx, m.driftCondition(base, df, top)); err != nil {
+				m.log.Error("alert", "err", err)
+			}
 		}
 	}
 	return nil
+}
+
+// driftFit returns the fit that drift is judged on: the current fit, or,
+// when some rows are currently suspect points, the fit without them. A
+// suspect point has an alert of its own; leaving it out of the drift check
+// keeps one bad reading from raising two alerts. Nothing is removed from
+// the data or the history.
+func (m *modelRT) driftFit(cols map[string][]float64, verdicts []engine.Verdict, fit *engine.Fit) *engine.Fit {
+	suspects := engine.Flagged(verdicts, "suspect")
+	if len(suspects) == 0 {
+		return fit
+	}
+	keep := make(map[string][]float64, len(cols))
+	for c, v := range cols {
+		kv := make([]float64, 0, len(v)-len(suspects))
+		k := 0
+		for i, x := range v {
+			if k < len(suspects) && suspects[k] == i {
+				k++
+				continue
+			}
+			kv = append(kv, x)
+		}
+		keep[c] = kv
+	}
+	X, y, err := m.spec.Design(keep)
+	if err != nil {
+		return nil
+	}
+	f, err := engine.Refit(m.spec, X, y)
+	if err != nil {
+		return nil
+	}
+	return f
 }
 
 // windowRows returns the data indices the next fit uses. Caller holds mu.
@@ -277,7 +313,17 @@ func (m *modelRT) reportPoint(ctx context.Context, r int, sugg *alerts.Suggestio
 	var fl []flagJSON
 	_ = json.Unmarshal([]byte(o.Arrival.Flags), &fl)
 	c := alerts.PointCondition{Model: m.cfg.Name, File: path, Line: line, Values: vals, Outlier: true, Influential: true, Suggestion: sugg}
+	// The alert names the outlier test and the cutoffs of the family that
+	// decides "influential"; the other family's flags stay with the
+	// observation's stored diagnostics.
+	deciding := engine.FamilyAbsolute
+	if m.cut.Family == engine.SizeAdjusted {
+		deciding = engine.FamilySizeAdjusted
+	}
 	for _, f := range fl {
+		if f.Family != deciding && f.Family != engine.FamilyTest {
+			continue
+		}
 		c.Measures = append(c.Measures, alerts.Measure{Name: f.Measure, Family: f.Family, Term: f.Term, Value: f.Value, Cutoff: f.Cutoff})
 	}
 	if err := m.d.point(ctx, c); err != nil {

@@ -1,0 +1,199 @@
+package daemon
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"log/slog"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"runtime"
+	"slices"
+	"strconv"
+	"strings"
+	"testing"
+	"time"
+
+	"plumb/store"
+	"plumb/watcher"
+	"plumb/watcher/decode"
+)
+
+// benchBatches decodes rows of a p = 3 model (y ~ x + x^2) into batches of
+// size rows each, as the watcher would deliver them.
+func benchBatches(tb testing.TB, model string, batches, size int) []watcher.Batch {
+	tb.Helper()
+	rng := rand.New(rand.NewPCG(5, 6))
+	dec := decode.NewDecoder("feed.csv", decode.Dialect{Delimiter: ','})
+	var out []watcher.Batch
+	var buf strings.Builder
+	buf.WriteString("id,x,y\n")
+	for i := 0; i < batches*size; i++ {
+		x := rng.Float64() * 10
+		fmt.Fprintf(&buf, "%d,%.6g,%.6g\n", i, x, 1+0.5*x+0.02*x*x+0.1*rng.NormFloat64())
+	}
+	data := []byte(buf.String())
+	if err := dec.Select([]string{"y", "x"}, nil); err != nil {
+		tb.Fatal(err)
+	}
+	var recs []decode.Record
+	if _, err := dec.Feed(data, true, func(r decode.Record) error {
+		recs = append(recs, r)
+		return nil
+	}); err != nil {
+		tb.Fatal(err)
+	}
+	n := len("id,x,y\n")
+	off := int64(n)
+	line := 1
+	for b := 0; b < batches; b++ {
+		rs := recs[b*size : (b+1)*size]
+		end := rs[len(rs)-1]
+		out = append(out, watcher.Batch{
+			Model: model, Path: "feed.csv", Header: []string{"id", "x", "y"}, HeaderLine: 1,
+			StartOffset: off, EndOffset: end.EndOffset, StartLine: line, EndLine: end.Line,
+			Size: end.EndOffset, Records: rs,
+		})
+		off, line = end.EndOffset, end.Line
+	}
+	return out
+}
+
+// BenchmarkIngest measures sustained ingest for one model with p = 3:
+// decoded rows judged on arrival by the online update and committed with
+// their read position to SQLite, in batches as the watcher delivers them.
+func BenchmarkIngest(b *testing.B) {
+	for _, size := range []int{100, 1000, 10000} {
+		b.Run(fmt.Sprintf("batch=%d", size), func(b *testing.B) {
+			const total = 100_000
+			batches := benchBatches(b, "m", total/size, size)
+			b.ReportAllocs()
+			var rows int
+			var elapsed time.Duration
+			for b.Loop() {
+				b.StopTimer()
+				dir := b.TempDir()
+				c := testConfig(b, dir, `
+[[model]]
+name = "m"
+folder = "in"
+response = "y"
+terms = ["x", "x^2"]
+`)
+				d, err := New(context.Background(), c, Options{Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
+				if err != nil {
+					b.Fatal(err)
+				}
+				s := sink{d}
+				b.StartTimer()
+				t0 := time.Now()
+				for _, bt := range batches {
+					if err := s.Deliver(context.Background(), bt); err != nil {
+						b.Fatal(err)
+					}
+				}
+				elapsed += time.Since(t0)
+				rows += total
+				b.StopTimer()
+				d.Close()
+				b.StartTimer()
+			}
+			b.ReportMetric(float64(rows)/elapsed.Seconds(), "rows/s")
+		})
+	}
+}
+
+// TestMemoryPerObservation measures the resident memory a model holds per
+// stored observation beyond its raw values (target: under 200 bytes).
+func TestMemoryPerObservation(t *testing.T) {
+	if testing.Short() {
+		t.Skip("allocates 200,000 rows")
+	}
+	dir := t.TempDir()
+	c := testConfig(t, dir, fmt.Sprintf(lineModel, "m", "in", false))
+	d, err := New(context.Background(), c, Options{Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer d.Close()
+	m := d.models["m"]
+	const n = 200_000
+	var before, after runtime.MemStats
+	runtime.GC()
+	runtime.ReadMemStats(&before)
+	m.mu.Lock()
+	for i := 0; i < n; i++ {
+		m.appendRow(int64(i+1), "feed.csv", i+2, 0, []float64{float64(i), 1}, "ordinary", "ordinary")
+	}
+	m.mu.Unlock()
+	runtime.GC()
+	runtime.ReadMemStats(&after)
+	perRow := float64(after.HeapAlloc-before.HeapAlloc) / n
+	raw := float64(len(m.vals) * 8)
+	beyond := perRow - raw
+	t.Logf("heap per observation %.1f bytes, of which raw values %.0f, beyond them %.1f", perRow, raw, beyond)
+	if beyond >= 200 {
+		t.Errorf("%.1f bytes per observation beyond the raw values, want < 200", beyond)
+	}
+	runtime.KeepAlive(m)
+}
+
+// BenchmarkLatency measures the time from a line's newline being written
+// to its verdict being stored, with a writer appending 1,000 rows/s through
+// the real watcher. It reports the median and the 99th percentile.
+func BenchmarkLatency(b *testing.B) {
+	const rate = 1000
+	const rows = 3000
+	var all []float64
+	for b.Loop() {
+		b.StopTimer()
+		dir := b.TempDir()
+		c := testConfig(b, dir, `
+[[model]]
+name = "m"
+folder = "in"
+response = "y"
+terms = ["x", "x^2"]
+`)
+		c.Watch.Debounce.Duration = 5 * time.Millisecond
+		c.Watch.Refresh.Duration = time.Second
+		if err := os.MkdirAll(filepath.Join(dir, "in"), 0o755); err != nil {
+			b.Fatal(err)
+		}
+		f, err := os.Create(filepath.Join(dir, "in", "feed.csv"))
+		if err != nil {
+			b.Fatal(err)
+		}
+		fmt.Fprintln(f, "sent,x,y")
+		r := start(b, c)
+		rng := rand.New(rand.NewPCG(9, 9))
+		b.StartTimer()
+		tick := time.NewTicker(time.Second / rate)
+		for i := 0; i < rows; i++ {
+			<-tick.C
+			x := rng.Float64() * 10
+			fmt.Fprintf(f, "%d,%.6g,%.6g\n", time.Now().UnixNano(), x, 1+0.5*x+0.02*x*x+0.1*rng.NormFloat64())
+		}
+		tick.Stop()
+		waitFor(b, "all rows", func() bool { return count(b, r.d.store, "m") == rows })
+		b.StopTimer()
+		obs, err := r.d.store.Observations(context.Background(), "m", store.ObsQuery{})
+		if err != nil {
+			b.Fatal(err)
+		}
+		for _, o := range obs {
+			sent, err := strconv.ParseInt(strings.SplitN(o.Raw, ",", 2)[0], 10, 64)
+			if err != nil {
+				b.Fatal(err)
+			}
+			all = append(all, float64(o.ArrivedAt.UnixNano()-sent)/1e6)
+		}
+		r.stop(b)
+		f.Close()
+		b.StartTimer()
+	}
+	slices.Sort(all)
+	b.ReportMetric(all[len(all)/2], "p50-ms")
+	b.ReportMetric(all[len(all)*99/100], "p99-ms")
+}
