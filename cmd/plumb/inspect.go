@@ -59,7 +59,15 @@ Output formats:
   table  for people: rows worth a look first, the fit, then every row
   json   the full result; undefined values (leverage 1) are null
   csv    one line per row with every measure, numbers to 10 significant
-         digits, undefined values as empty fields
+         digits, undefined values as empty fields; the flags column lists
+         the crossed cutoffs as family:measure[term] joined by ";"
+
+--fragility searches for the fewest rows whose removal, together,
+changes the sign or the significance (at 0.05) of a term, or moves a
+--checkpoint prediction by more than its tolerance. --suggest proposes
+where in the operating region (--region, else the observed range) new
+readings would lower the influence of the worst rows and the fragility.
+With --format csv both are written to standard error.
 
 Exit status: 0 when the report was written, 1 when the file cannot be
 read or fitted (or a row is bad under --strict), 2 for a bad command line.
@@ -1259,6 +1267,7 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 			T: jnum(c.T), P: jnum(c.P), Lower95: jnum(c.Lower95), Upper95: jnum(c.Upper95),
 		})
 	}
+	rep.VIF = &jmap{}
 	if f.VIF != nil {
 		v := jmap{}
 		for _, t := range r.model.Terms {
@@ -1403,8 +1412,9 @@ func (r *inspectResult) appendCSVRows(dst []byte, lo, hi int) []byte {
 	return dst
 }
 
-// appendFlagList writes the crossed cutoffs as "leverage;dfbetas[x]", one
-// CSV field.
+// appendFlagList writes the crossed cutoffs as one CSV field, each as
+// family:measure or family:measure[term], joined by ";", e.g.
+// "absolute:dffits;size_adjusted:dfbetas[x];test:outlier_p_bonferroni".
 func (r *inspectResult) appendFlagList(dst []byte, flags []engine.Flag) []byte {
 	start := len(dst)
 	needQuote := false
@@ -1412,6 +1422,8 @@ func (r *inspectResult) appendFlagList(dst []byte, flags []engine.Flag) []byte {
 		if k > 0 {
 			dst = append(dst, ';')
 		}
+		dst = append(dst, fl.Family...)
+		dst = append(dst, ':')
 		dst = append(dst, fl.Measure...)
 		if fl.Term != "" {
 			dst = append(dst, '[')

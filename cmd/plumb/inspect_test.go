@@ -714,6 +714,71 @@ func TestInspectSplitDecode(t *testing.T) {
 	}
 }
 
+// TestInspectLeverageOne: a row that alone determines a coefficient has
+// leverage 1 and undefined studentized residuals, Cook's distance, DFFITS,
+// DFBETAS and COVRATIO (the engine gives NaN): null in JSON, an empty field
+// in CSV, "undefined" in the table; the rest of the fit is reported.
+func TestInspectLeverageOne(t *testing.T) {
+	const data = "x,d,y\n1,0,2.1\n2,0,3.9\n3,0,6.2\n4,0,7.7\n5,1,30\n"
+	args := []string{"inspect", "-", "--response", "y", "--terms", "x, d"}
+	out, stderr, code := runPlumb(t, data, append(args, "--format", "json")...)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	var raw struct {
+		Rows []map[string]any `json:"rows"`
+	}
+	if err := json.Unmarshal([]byte(out), &raw); err != nil {
+		t.Fatal(err)
+	}
+	last := raw.Rows[4]
+	if h, _ := last["leverage"].(float64); math.Abs(h-1) > 1e-12 {
+		t.Errorf("leverage of row 5 = %v, want 1", last["leverage"])
+	}
+	for _, k := range []string{"studentized_internal", "studentized_external", "cooks_distance", "dffits", "covratio", "outlier_p_bonferroni"} {
+		if v, ok := last[k]; !ok || v != nil {
+			t.Errorf("%s = %v (present %v), want null", k, v, ok)
+		}
+	}
+	for term, v := range last["dfbetas"].(map[string]any) {
+		if v != nil {
+			t.Errorf("dfbetas[%s] = %v, want null", term, v)
+		}
+	}
+	if raw.Rows[0]["cooks_distance"] == nil {
+		t.Errorf("row 1 has no Cook's distance")
+	}
+
+	out, _, code = runPlumb(t, data, append(args, "--format", "csv")...)
+	if code != 0 {
+		t.Fatalf("csv: exit %d", code)
+	}
+	recs, err := csv.NewReader(strings.NewReader(out)).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	col := map[string]int{}
+	for i, h := range recs[0] {
+		col[h] = i
+	}
+	for _, k := range []string{"studentized_external", "cooks_distance", "dfbetas[d]", "covratio"} {
+		if v := recs[5][col[k]]; v != "" {
+			t.Errorf("csv %s of row 5 = %q, want empty", k, v)
+		}
+	}
+	if v := recs[5][col["leverage"]]; v != "1" {
+		t.Errorf("csv leverage of row 5 = %q, want 1", v)
+	}
+
+	out, _, code = runPlumb(t, data, args...)
+	if code != 0 {
+		t.Fatalf("table: exit %d", code)
+	}
+	if !strings.Contains(out, "undefined") {
+		t.Errorf("table does not say the measures of row 5 are undefined:\n%s", out)
+	}
+}
+
 func TestInspectHelp(t *testing.T) {
 	for _, args := range [][]string{{"inspect", "--help"}, {"help", "inspect"}} {
 		_, stderr, code := runPlumb(t, "", args...)
