@@ -1,7 +1,10 @@
 package decode
 
 import (
+	"bytes"
+	"encoding/csv"
 	"fmt"
+	"io"
 	"math/rand/v2"
 	"strconv"
 	"strings"
@@ -101,4 +104,38 @@ func BenchmarkParseNumber(b *testing.B) {
 		}
 		_ = s
 	})
+}
+
+// BenchmarkDecodeStdlib is the reference point: encoding/csv and
+// strconv.ParseFloat on the same 100,000-row file.
+func BenchmarkDecodeStdlib(b *testing.B) {
+	data := benchFile(100000)
+	b.ReportAllocs()
+	b.SetBytes(int64(len(data)))
+	var sum float64
+	for b.Loop() {
+		r := csv.NewReader(bytes.NewReader(data))
+		r.ReuseRecord = true
+		if _, err := r.Read(); err != nil {
+			b.Fatal(err)
+		}
+		for {
+			rec, err := r.Read()
+			if err == io.EOF {
+				break
+			}
+			if err != nil {
+				b.Fatal(err)
+			}
+			for _, f := range rec[1:] {
+				v, err := strconv.ParseFloat(f, 64)
+				if err != nil {
+					b.Fatal(err)
+				}
+				sum += v
+			}
+		}
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/100000, "ns/row")
+	_ = sum
 }
