@@ -22,6 +22,26 @@ import (
 const chromiumPath = "/usr/bin/chromium"
 
 // artifactDir is where screenshots go: $PLUMB_ARTIFACTS or a temp dir.
+// profileDir is a fresh chromium profile. It is removed with retries:
+// chromium's helper processes can still write there for a moment after
+// the browser stops, which would fail t.TempDir's cleanup.
+func profileDir(t testing.TB) string {
+	t.Helper()
+	dir, err := os.MkdirTemp("", "plumb-chromium-")
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() {
+		for range 50 {
+			if os.RemoveAll(dir) == nil {
+				return
+			}
+			time.Sleep(100 * time.Millisecond)
+		}
+	})
+	return dir
+}
+
 func artifactDir(t testing.TB) string {
 	t.Helper()
 	if d := os.Getenv("PLUMB_ARTIFACTS"); d != "" {
@@ -54,12 +74,12 @@ func browser(t *testing.T) (context.Context, func() []string) {
 		chromedp.Flag("disable-background-networking", true),
 		chromedp.Flag("disable-component-update", true),
 		chromedp.Flag("disable-sync", true),
-		chromedp.UserDataDir(t.TempDir()),
+		chromedp.UserDataDir(profileDir(t)),
 		chromedp.WindowSize(1360, 1000),
 	)
 	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)
 	ctx, cancelB := chromedp.NewContext(actx)
-	ctx, cancelT := context.WithTimeout(ctx, 45*time.Second)
+	ctx, cancelT := context.WithTimeout(ctx, 90*time.Second)
 	t.Cleanup(func() { cancelT(); cancelB(); cancelA() })
 
 	var mu sync.Mutex
