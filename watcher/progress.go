@@ -50,6 +50,7 @@ func (pr *progress) start(files int, bytes int64) {
 	}
 	if pr.cb == nil && !pr.tty && files > 0 {
 		pr.log.Info("reading files present at start", "files", files, "bytes", bytes)
+		pr.last = time.Now()
 	}
 	pr.report(true)
 }

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"log/slog"
 	"os"
 	"path/filepath"
 	"slices"
@@ -14,6 +15,7 @@ import (
 	"time"
 
 	"github.com/fsnotify/fsnotify"
+	"golang.org/x/term"
 
 	"plumb/watcher/decode"
 )
@@ -758,3 +760,41 @@ func TestDialectThroughWatcher(t *testing.T) {
 		t.Errorf("records %+v", recs)
 	}
 }
+
+func TestProgressLogLines(t *testing.T) {
+	if term.IsTerminal(int(os.Stderr.Fd())) {
+		t.Skip("stderr is a terminal: the progress bar is used instead")
+	}
+	dir := t.TempDir()
+	writeFile(t, filepath.Join(dir, "a.csv"), "x,y\n"+rows(1, 20))
+	var buf syncBuffer
+	cfg := testConfig(dir)
+	cfg.NoProgress = false
+	sink := newFakeSink(t)
+	w, err := New(cfg, sink, slog.New(slog.NewTextHandler(&buf, nil)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	errc := make(chan error, 1)
+	go func() { errc <- w.Run(context.Background()) }()
+	waitFor(t, "done line", waitLong, func() bool { return strings.Contains(buf.String(), "files present at start are read") })
+	w.Close()
+	if err := <-errc; err != nil {
+		t.Fatal(err)
+	}
+	if s := buf.String(); !strings.Contains(s, `msg="reading files present at start" files=1 bytes=`) {
+		t.Errorf("log:\n%s", s)
+	}
+}
+
+type syncBuffer struct {
+	mu sync.Mutex
+	b  strings.Builder
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+func (s *syncBuffer) String() string { s.mu.Lock(); defer s.mu.Unlock(); return s.b.String() }
