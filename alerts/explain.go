@@ -56,7 +56,7 @@ func fillPoint(a *Alert, c PointCondition, rule PointRule) {
 	a.Point = &PointDetail{File: c.File, Line: c.Line, Values: c.Values}
 	a.Measures = append([]Measure{}, c.Measures...)
 	a.Suggestion = c.Suggestion
-	a.Summary = fmt.Sprintf("Row %d of %s (model %s) is an outlier that also moves the fit.", c.Line, c.File, c.Model)
+	a.Summary = fmt.Sprintf("Line %d of %s (model %s) is an outlier that also moves the fit.", c.Line, c.File, c.Model)
 	test := describeAll(c.Measures, func(m Measure) bool { return m.Name == testMeasure(rule.Test) })
 	if test == "" {
 		test = "the outlier test flags it"
