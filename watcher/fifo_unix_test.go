@@ -19,4 +19,3 @@ func TestFIFOIsSkipped(t *testing.T) {
 	waitFor(t, "regular file", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 2 })
 	waitFor(t, "fifo notice", waitLong, func() bool { return len(sink.noticesOf(Error)) == 1 })
 }
-
