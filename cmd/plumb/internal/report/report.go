@@ -227,7 +227,13 @@ func when(t time.Time) string {
 }
 
 var page = template.Must(template.New("report").Funcs(template.FuncMap{
-	"num":  num,
+	"num": num,
+	"num6": func(v view.Float) string {
+		if !v.Finite() {
+			return "—"
+		}
+		return strconv.FormatFloat(float64(v), 'g', 6, 64)
+	},
 	"when": when,
 	"join": strings.Join,
 	"xval": func(p view.Point, col string) view.Float { return p.X[col] },
@@ -299,7 +305,7 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <div><span>rows in fit</span><b>{{.D.N}}</b></div>
 <div><span>rows quarantined</span><b>{{.D.Quarantined}}</b></div>
 <div><span>σ (residual SD)</span><b>{{num .D.Sigma}}</b></div>
-<div><span>R² (adjusted)</span><b>{{num .D.RSquared}} ({{num .D.AdjRSquared}})</b></div>
+<div><span>R² (adjusted)</span><b>{{num6 .D.RSquared}} ({{num6 .D.AdjRSquared}})</b></div>
 <div><span>fragility index</span><b {{if .D.Fragility.Found}}class="hot"{{end}}>{{.D.Fragility}}</b></div>
 </div>
 

@@ -10,6 +10,7 @@ import (
 	"io/fs"
 	"net/http"
 	"slices"
+	"strconv"
 	"strings"
 	"time"
 
@@ -20,7 +21,13 @@ import (
 var assets embed.FS
 
 var pages = template.Must(template.New("").Funcs(template.FuncMap{
-	"num":  num,
+	"num": num,
+	"num6": func(v view.Float) string {
+		if !v.Finite() {
+			return "—"
+		}
+		return strconv.FormatFloat(float64(v), 'g', 6, 64)
+	},
 	"when": when,
 	"short": func(t time.Time) string {
 		if t.IsZero() {
