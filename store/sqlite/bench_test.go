@@ -39,6 +39,16 @@ func cpuTime() time.Duration {
 	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
 
+// reportRates reports rows per wall-clock second and rows per CPU second
+// of the whole process since cpu0: on a shared, loaded machine the second
+// shows the cost per row apart from waiting for a core.
+func reportRates(b *testing.B, rows int, cpu0 time.Duration) {
+	b.ReportMetric(float64(rows)/b.Elapsed().Seconds(), "rows/s")
+	if cpu := cpuTime() - cpu0; cpu > 0 {
+		b.ReportMetric(float64(rows)/cpu.Seconds(), "rows/cpu-s")
+	}
+}
+
 // batcher hands out consecutive batches of n rows of one file.
 type batcher struct {
 	b    store.Batch
@@ -83,10 +93,7 @@ func BenchmarkIngest(b *testing.B) {
 				}
 				rows += n
 			}
-			b.ReportMetric(float64(rows)/b.Elapsed().Seconds(), "rows/s")
-			// CPU seconds of the whole process: on a shared, loaded machine
-			// this shows the cost per row apart from waiting for a core.
-			b.ReportMetric(float64(rows)/(cpuTime()-cpu0).Seconds(), "rows/cpu-s")
+			reportRates(b, rows, cpu0)
 		})
 	}
 }
@@ -150,5 +157,66 @@ func TestBytesPerObservation(t *testing.T) {
 	}
 	if perFit > 2000 {
 		t.Errorf("%.0f bytes per refit, want <= 2000 (a refit must not rewrite observations)", perFit)
+	}
+}
+
+// BenchmarkObservations reads a model's rows back in pages, as the daemon
+// does when it restores a model at start-up, and reports rows/s.
+func BenchmarkObservations(b *testing.B) {
+	const total = 50000
+	for _, page := range []int{1000, 50000} {
+		b.Run(fmt.Sprintf("page=%d", page), func(b *testing.B) {
+			db, _ := openTemp(b)
+			ctx := context.Background()
+			bt := newBatcher(10000)
+			for range total / 10000 {
+				if _, err := db.Ingest(ctx, bt.next()); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.ReportAllocs()
+			rows := 0
+			cpu0 := cpuTime()
+			for b.Loop() {
+				var after int64
+				for {
+					obs, err := db.Observations(ctx, "bench", store.ObsQuery{AfterID: after, Limit: page})
+					if err != nil {
+						b.Fatal(err)
+					}
+					rows += len(obs)
+					if len(obs) < page {
+						break
+					}
+					after = obs[len(obs)-1].ID
+				}
+			}
+			reportRates(b, rows, cpu0)
+		})
+	}
+}
+
+// BenchmarkRecordFit stores a fit summary with 10 verdict changes.
+func BenchmarkRecordFit(b *testing.B) {
+	db, _ := openTemp(b)
+	ctx := context.Background()
+	ids, err := db.Ingest(ctx, newBatcher(1000).next())
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	i := 0
+	for b.Loop() {
+		changes := make([]store.VerdictChange, 10)
+		for j := range changes {
+			changes[j] = store.VerdictChange{ObsID: ids[(i*10+j)%len(ids)], From: "ordinary", To: "notable", Flags: "[]"}
+		}
+		f := store.FitRecord{Model: "bench", At: time.Now(), N: 1000, P: 3, Terms: []string{"intercept", "x1", "x2"},
+			Estimates: []float64{1.5, 2, -0.5}, StdErrors: []float64{0.01, 0.02, 0.03}, Sigma: 0.1, RSquared: 0.99,
+			Fragility: -1, FragilityK: 3, Detail: `{"max_cooks":0.01}`, LastObsID: ids[len(ids)-1]}
+		if _, err := db.RecordFit(ctx, f, changes); err != nil {
+			b.Fatal(err)
+		}
+		i++
 	}
 }

@@ -305,9 +305,11 @@ const obsSelect = `SELECT id, source_id, generation, line, raw, vals, t, arrived
 
 type scanner interface{ Scan(dest ...any) error }
 
-func scanObs(sc scanner, o *store.Observation, sourceID *int64) error {
+// scanObs reads one row of obsSelect from rows (not a *sql.Row: the blobs
+// are scanned as sql.RawBytes and decoded into fresh slices).
+func scanObs(sc *sql.Rows, o *store.Observation, sourceID *int64) error {
 	var (
-		vals, dfb                 []byte
+		vals, dfb                 sql.RawBytes
 		t, arrived                sql.NullInt64
 		lev, res, si, se, ck, dff sql.NullFloat64
 		cov, outp                 sql.NullFloat64
@@ -424,16 +426,26 @@ func (db *DB) observations(ctx context.Context, model string, q store.ObsQuery) 
 // ObservationAt returns the observation at the file's line in its newest
 // generation holding that line, or an error wrapping store.ErrNotFound.
 func (db *DB) ObservationAt(ctx context.Context, model, path string, line int) (store.Observation, error) {
+	fail := func(err error) (store.Observation, error) {
+		return store.Observation{}, fmt.Errorf("store: observation %s/%s:%d: %w", model, path, line, err)
+	}
+	// Query, not QueryRow: scanObs reads the blobs as sql.RawBytes.
+	rows, err := db.db.QueryContext(ctx, obsSelect+`WHERE source_id = (SELECT s.id FROM sources s JOIN models m ON m.id = s.model_id
+		WHERE m.name = ? AND s.path = ?) AND line = ? ORDER BY generation DESC LIMIT 1`, model, path, line)
+	if err != nil {
+		return fail(err)
+	}
+	defer rows.Close()
+	if !rows.Next() {
+		if err := rows.Err(); err != nil {
+			return fail(err)
+		}
+		return fail(store.ErrNotFound)
+	}
 	o := store.Observation{Model: model, Path: path}
 	var sid int64
-	row := db.db.QueryRowContext(ctx, obsSelect+`WHERE source_id = (SELECT s.id FROM sources s JOIN models m ON m.id = s.model_id
-		WHERE m.name = ? AND s.path = ?) AND line = ? ORDER BY generation DESC LIMIT 1`, model, path, line)
-	err := scanObs(row, &o, &sid)
-	if errors.Is(err, sql.ErrNoRows) {
-		return store.Observation{}, fmt.Errorf("store: observation %s/%s:%d: %w", model, path, line, store.ErrNotFound)
-	}
-	if err != nil {
-		return store.Observation{}, fmt.Errorf("store: observation %s/%s:%d: %w", model, path, line, err)
+	if err := scanObs(rows, &o, &sid); err != nil {
+		return fail(err)
 	}
 	return o, nil
 }
