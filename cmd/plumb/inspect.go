@@ -522,8 +522,9 @@ type inspectData struct {
 	cols     map[string][]float64
 	rowNo    []int
 	line     []int
-	raw      []string
-	total    int // data rows in the file, good and bad
+	buf      []byte // the whole file, to find a field of a rejected row
+	starts   []int  // byte offset of each line's start, built on first use
+	total    int    // data rows in the file, good and bad
 	rejected []rejectedRow
 }
 
@@ -588,7 +589,7 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 		return nil, fmt.Errorf("inspect: %w", err)
 	}
 	ds := mergeParts(results)
-	ds.file, ds.header = name, header
+	ds.file, ds.header, ds.buf = name, header, buf
 	if ds.total == 0 {
 		return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: the file has a header (line %d) but no data rows", name, hdr.HeaderLine())}
 	}
@@ -672,7 +673,6 @@ func decodePart(name string, dialect decode.Dialect, header []string, headerLine
 	}
 	ds.rowNo = make([]int, 0, est)
 	ds.line = make([]int, 0, est)
-	ds.raw = make([]string, 0, est)
 	_, err := dec.Feed(chunk, true, func(r decode.Record) error {
 		ds.total++
 		if r.Err != nil {
@@ -687,7 +687,6 @@ func decodePart(name string, dialect decode.Dialect, header []string, headerLine
 		}
 		ds.rowNo = append(ds.rowNo, ds.total)
 		ds.line = append(ds.line, r.Line)
-		ds.raw = append(ds.raw, r.Raw)
 		return nil
 	})
 	if err != nil {
@@ -727,14 +726,12 @@ func mergeParts(parts []*inspectData) *inspectData {
 	}
 	ds.rowNo = make([]int, 0, rows)
 	ds.line = make([]int, 0, rows)
-	ds.raw = make([]string, 0, rows)
 	for _, p := range parts {
 		base := ds.total
 		for _, r := range p.rowNo {
 			ds.rowNo = append(ds.rowNo, base+r)
 		}
 		ds.line = append(ds.line, p.line...)
-		ds.raw = append(ds.raw, p.raw...)
 		for _, n := range ds.names {
 			ds.cols[n] = append(ds.cols[n], p.cols[n]...)
 		}
@@ -787,7 +784,7 @@ func (ds *inspectData) reject(i int, col, reason string, delim byte) {
 	field := ""
 	for k, h := range ds.header {
 		if h == col {
-			line, column = fieldPosition(ds.raw[i], ds.line[i], delim, k)
+			line, column = fieldPosition(ds.lineText(ds.line[i]), ds.line[i], delim, k)
 			field = col
 			break
 		}
@@ -811,31 +808,51 @@ func (ds *inspectData) drop(idx []int) {
 		if !keep(i) {
 			continue
 		}
-		ds.rowNo[w], ds.line[w], ds.raw[w] = ds.rowNo[i], ds.line[i], ds.raw[i]
+		ds.rowNo[w], ds.line[w] = ds.rowNo[i], ds.line[i]
 		for _, n := range ds.names {
 			ds.cols[n][w] = ds.cols[n][i]
 		}
 		w++
 	}
-	ds.rowNo, ds.line, ds.raw = ds.rowNo[:w], ds.line[:w], ds.raw[:w]
+	ds.rowNo, ds.line = ds.rowNo[:w], ds.line[:w]
 	for _, n := range ds.names {
 		ds.cols[n] = ds.cols[n][:w]
 	}
 	sort.Slice(ds.rejected, func(a, b int) bool { return ds.rejected[a].Row < ds.rejected[b].Row })
 }
 
-// fieldPosition finds where field k (0-based) starts in a raw record that
-// begins on line: it returns that field's line and 1-based byte column.
-func fieldPosition(raw string, line int, delim byte, k int) (int, int) {
-	field, inQuote, lineStart := 0, false, 0
+// lineText returns the file from the start of 1-based line l on.
+func (ds *inspectData) lineText(l int) []byte {
+	if ds.starts == nil {
+		ds.starts = []int{0}
+		for i, c := range ds.buf {
+			if c == '\n' {
+				ds.starts = append(ds.starts, i+1)
+			}
+		}
+	}
+	if l < 1 || l > len(ds.starts) {
+		return nil
+	}
+	return ds.buf[ds.starts[l-1]:]
+}
+
+// fieldPosition finds where field k (0-based) of the record at the start
+// of text begins; the record starts on line. It returns that field's line
+// and 1-based byte column, or column 0 if the record has no field k.
+func fieldPosition(text []byte, line int, delim byte, k int) (int, int) {
 	if k == 0 {
 		return line, 1
 	}
-	for i := 0; i < len(raw); i++ {
-		switch c := raw[i]; {
+	field, inQuote, lineStart := 0, false, 0
+	for i := 0; i < len(text); i++ {
+		switch c := text[i]; {
 		case c == '"':
 			inQuote = !inQuote
 		case c == '\n':
+			if !inQuote {
+				return line, 0
+			}
 			line++
 			lineStart = i + 1
 		case c == delim && !inQuote:

@@ -462,6 +462,25 @@ func TestInspectRejectedRows(t *testing.T) {
 			t.Errorf("rejected = %+v, want stdin:4:1 row 3 with a log reason", r)
 		}
 	})
+	t.Run("log of non-positive value after a multi-line field", func(t *testing.T) {
+		// Line 4 starts a record whose quoted id runs onto line 5
+		// (`c",0,0.1`); x is the second field, at byte 4 of line 5.
+		csvText := "id,x,y\na,1,2\nb,2,3.9\n\"c\nc\",0,0.1\nd,3,6.2\ne,4,7.7\nf,5,10.1\n"
+		out, stderr, code := runPlumb(t, csvText, "inspect", "-", "--response", "y", "--terms", "log(x)", "--format", "json")
+		if code != 0 {
+			t.Fatalf("exit code %d; stderr:\n%s", code, stderr)
+		}
+		var got inspectJSON
+		if err := json.Unmarshal([]byte(out), &got); err != nil {
+			t.Fatal(err)
+		}
+		if len(got.Rejected) != 1 {
+			t.Fatalf("rejected %+v, want one row", got.Rejected)
+		}
+		if r := got.Rejected[0]; r.Line != 5 || r.Column != 4 || r.Row != 3 || r.Field != "x" {
+			t.Errorf("rejected = %+v, want stdin:5:4 row 3 field x", r)
+		}
+	})
 	t.Run("strict clean file", func(t *testing.T) {
 		_, stderr, code := runPlumb(t, "", "inspect", fixture("cars.csv"), "--response", "dist", "--terms", "speed", "--strict")
 		if code != 0 {
