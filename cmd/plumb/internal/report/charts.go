@@ -40,10 +40,10 @@ var (
 	ink       = color.RGBA{0x1f, 0x2a, 0x33, 0xff}
 	muted     = color.RGBA{0x66, 0x71, 0x7a, 0xff}
 	green     = color.RGBA{0x2f, 0x6f, 0x62, 0xff}
-	greenSoft = color.RGBA{0x2f, 0x6f, 0x62, 0x30}
+	greenSoft = color.NRGBA{0x2f, 0x6f, 0x62, 0x30} // NRGBA: not premultiplied
 	cutColor  = color.RGBA{0x6d, 0x58, 0x43, 0xff}
-	driftFill = color.RGBA{0xd9, 0xa4, 0x41, 0x48}
-	seFill    = color.RGBA{0x1f, 0x2a, 0x33, 0x14}
+	driftFill = color.NRGBA{0xd9, 0xa4, 0x41, 0x48}
+	seFill    = color.NRGBA{0x1f, 0x2a, 0x33, 0x22}
 	gridColor = color.RGBA{0xe6, 0xe1, 0xd6, 0xff}
 )
 
@@ -197,6 +197,10 @@ func fitPlot(d view.ModelDetail, predictor string) (*plot.Plot, error) {
 			return nil, err
 		}
 		p.Legend.Add("fitted", l)
+		// A rising curve fills the top right corner: put the legend left.
+		if len(c.Y) > 1 && c.Y[len(c.Y)-1] > c.Y[0] {
+			p.Legend.Left = true
+		}
 	}
 	if err := addPoints(p, d.Points, func(pt view.Point) (float64, float64) {
 		return float64(pt.X[predictor]), float64(pt.Y)

@@ -306,7 +306,7 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <div><span>rows quarantined</span><b>{{.D.Quarantined}}</b></div>
 <div><span>σ (residual SD)</span><b>{{num .D.Sigma}}</b></div>
 <div><span>R² (adjusted)</span><b>{{num6 .D.RSquared}} ({{num6 .D.AdjRSquared}})</b></div>
-<div><span>fragility index</span><b {{if .D.Fragility.Found}}class="hot"{{end}}>{{.D.Fragility}}</b></div>
+<div><span>fragility index</span><b {{if .D.Fragility.Alarming}}class="hot"{{end}}>{{.D.Fragility}}</b></div>
 </div>
 
 <h2>Fit</h2>
@@ -334,7 +334,7 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 {{with .D.Fragility}}
 {{if not .Computed}}<p class="empty">Not computed for this fit.</p>
 {{else if not .Found}}<p>No removal of up to {{.K}} rows changes a conclusion of this fit.</p>
-{{else}}<p>Removing <b class="hot">{{.Index}}</b> row{{if gt .Index 1}}s{{end}} changes a conclusion: {{.Conclusion}}. The rows: {{range $i, $r := .Rows}}{{if $i}}, {{end}}<span class="m">{{$r.File}}:{{$r.Line}}</span>{{end}}.{{if .Fragile}} This is at or below the limit of {{.Limit}}: the fit is fragile.{{end}}</p>{{end}}
+{{else}}<p>Removing <b {{if .Alarming}}class="hot"{{end}}>{{.Index}}</b> row{{if gt .Index 1}}s{{end}} changes a conclusion: {{.Conclusion}}. The rows: {{range $i, $r := .Rows}}{{if $i}}, {{end}}<span class="m">{{$r.File}}:{{$r.Line}}</span>{{end}}.{{if .Fragile}} This is at or below the limit of {{.Limit}}: the fit is fragile.{{end}}</p>{{end}}
 {{if .Searched}}<p class="meta">Search: {{.Searched}}, up to {{.K}} rows removed together.</p>{{end}}
 {{end}}
 

@@ -49,7 +49,7 @@ func TestWriteContents(t *testing.T) {
 		`data-chart="fit"`, `data-chart="influence"`, `data-chart="cooks"`, `data-chart="history"`,
 		"run-0314.csv:18", // the suspect row with its provenance
 		`class="verdict v-suspect"`,
-		"Removing <b class=\"hot\">1</b> row", // fragility
+		"Removing <b class=\"hot\">1</b> row", // fragility, at the limit: highlighted
 		"ref_kpa = 150",                       // a suggestion
 		"sp-3c1d9a70b2e45f18",                 // alert history
 		"dr-07aa4be19c2f6d35",                 // a resolved alert is in the history too

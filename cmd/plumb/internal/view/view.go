@@ -181,6 +181,13 @@ func (f Fragility) String() string {
 	}
 }
 
+// Alarming reports whether the fragility deserves attention: the fit is
+// fragile (at or below the limit), or an index was found and no limit is
+// known.
+func (f Fragility) Alarming() bool {
+	return f.Fragile || (f.Found && f.Limit == 0)
+}
+
 // RowRef points at one observation by provenance.
 type RowRef struct {
 	ID   int64  `json:"id"`
