@@ -198,8 +198,8 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 		return nil, bad("--response is required (the column to explain)")
 	}
 	opt.response = unquoteName(strings.TrimSpace(opt.response))
-	if strings.TrimSpace(opt.terms) == "" && opt.noIntercept {
-		return nil, bad("--terms is required with --no-intercept (a model needs at least one coefficient)")
+	if strings.TrimSpace(opt.terms) == "" {
+		return nil, bad("--terms is required (the model's terms, e.g. --terms \"x, x^2\")")
 	}
 	switch opt.format {
 	case "table", "json", "csv":

@@ -514,6 +514,7 @@ func TestInspectErrors(t *testing.T) {
 		{"no file", []string{"--response", "y", "--terms", "x"}, 2, []string{"no CSV file"}},
 		{"two files", []string{thermo, thermo, "--response", "y", "--terms", "x"}, 2, []string{"one CSV file at a time"}},
 		{"no response", []string{thermo, "--terms", "x"}, 2, []string{"--response is required"}},
+		{"no terms", []string{thermo, "--response", "temp_c"}, 2, []string{"--terms is required"}},
 		{"bad format", []string{thermo, "--response", "temp_c", "--terms", "emf_mv", "--format", "xml"}, 2, []string{`--format "xml"`}},
 		{"bad delimiter", []string{thermo, "--response", "temp_c", "--terms", "emf_mv", "--delimiter", ";;"}, 2, []string{"--delimiter"}},
 		{"bad alpha", []string{thermo, "--response", "temp_c", "--terms", "emf_mv", "--alpha", "1.5"}, 2, []string{"--alpha"}},
