@@ -164,6 +164,15 @@ func TestMetricsParse(t *testing.T) {
 	if _, ok := fams["plumb_model_fragility_index"]; !ok {
 		t.Error("no plumb_model_fragility_index family")
 	}
+	// OpenMetrics 1.0 when asked for: its content type and the closing # EOF.
+	w = serve(t, h, call{method: "GET", path: "/metrics",
+		header: map[string]string{"Accept": "application/openmetrics-text; version=1.0.0"}})
+	if ct := w.Header().Get("Content-Type"); !strings.HasPrefix(ct, "application/openmetrics-text") {
+		t.Errorf("OpenMetrics content type %q", ct)
+	}
+	if !strings.HasSuffix(w.Body.String(), "# EOF\n") {
+		t.Error("OpenMetrics exposition without # EOF")
+	}
 	w = serve(t, New(viewtest.Demo(), Options{}), call{method: "GET", path: "/metrics"})
 	if w.Code != 404 {
 		t.Errorf("metrics without a registry: %d, want 404", w.Code)
