@@ -33,8 +33,10 @@
 // Acknowledging and resolving change the alert ledger. With Options.Token
 // set, they need "Authorization: Bearer <token>" (compared in constant
 // time); without a token they are refused (403) unless the request comes
-// from a loopback address. Either way they are refused when a browser says
-// the request is cross-origin, and they need a JSON body.
+// from a loopback address and names a loopback host (localhost, 127.0.0.1,
+// [::1]). Either way they are refused when a browser says the request is
+// cross-origin, and a body must be JSON. Behind a reverse proxy on the
+// same machine every request looks local: configure a token there.
 //
 // Every page carries view.Caution.
 package web
@@ -475,7 +477,7 @@ func (s *server) guard(next http.HandlerFunc) http.HandlerFunc {
 				s.fail(w, r, http.StatusUnauthorized, errors.New("a valid bearer token is needed to change an alert"))
 				return
 			}
-		} else if !loopback(r.RemoteAddr) {
+		} else if !loopback(r.RemoteAddr) || !loopbackHost(r.Host) {
 			s.fail(w, r, http.StatusForbidden, errors.New("no token is configured, so alerts can be changed only from this host (loopback)"))
 			return
 		}
@@ -496,6 +498,23 @@ func loopback(remote string) bool {
 		host = remote
 	}
 	ip := net.ParseIP(strings.Trim(host, "[]"))
+	return ip != nil && ip.IsLoopback()
+}
+
+// loopbackHost reports whether the request's Host names this machine
+// (localhost or a loopback address). Without a token this keeps a page
+// served under another name that resolves to 127.0.0.1 (DNS rebinding)
+// from acting.
+func loopbackHost(host string) bool {
+	h, _, err := net.SplitHostPort(host)
+	if err != nil {
+		h = host
+	}
+	h = strings.Trim(h, "[]")
+	if strings.EqualFold(h, "localhost") || strings.HasSuffix(strings.ToLower(h), ".localhost") {
+		return true
+	}
+	ip := net.ParseIP(h)
 	return ip != nil && ip.IsLoopback()
 }
 

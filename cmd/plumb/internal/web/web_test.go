@@ -22,6 +22,7 @@ import (
 type call struct {
 	method, path, body string
 	remote             string // default 127.0.0.1:5555
+	host               string // default 127.0.0.1:8467
 	header             map[string]string
 }
 
@@ -33,8 +34,12 @@ func serve(t testing.TB, h http.Handler, c call) *httptest.ResponseRecorder {
 	}
 	r := httptest.NewRequest(c.method, c.path, body)
 	r.RemoteAddr = "127.0.0.1:5555"
+	r.Host = "127.0.0.1:8467"
 	if c.remote != "" {
 		r.RemoteAddr = c.remote
+	}
+	if c.host != "" {
+		r.Host = c.host
 	}
 	if c.body != "" {
 		r.Header.Set("Content-Type", "application/json")
@@ -288,6 +293,10 @@ func TestActionRules(t *testing.T) {
 	}{
 		{"loopback v4 without token", "", call{method: "POST", path: ack, body: `{"note":"n","by":"b"}`}, 200, view.AlertAcknowledged},
 		{"loopback v6 without token", "", call{method: "POST", path: ack, remote: "[::1]:4000"}, 200, view.AlertAcknowledged},
+		{"localhost name without token", "", call{method: "POST", path: ack, host: "localhost:8467"}, 200, view.AlertAcknowledged},
+		{"rebound name without token", "", call{method: "POST", path: ack, host: "plumb.attacker.example:8467"}, 403, view.AlertOpen},
+		{"rebound name with token", "s3cret", call{method: "POST", path: ack, host: "plumb.lab.example",
+			header: map[string]string{"Authorization": "Bearer s3cret"}}, 200, view.AlertAcknowledged},
 		{"remote without token", "", call{method: "POST", path: ack, remote: "192.0.2.7:4000"}, 403, view.AlertOpen},
 		{"remote with right token", "s3cret", call{method: "POST", path: ack, remote: "192.0.2.7:4000",
 			header: map[string]string{"Authorization": "Bearer s3cret"}}, 200, view.AlertAcknowledged},
@@ -359,6 +368,18 @@ func TestTokenEqual(t *testing.T) {
 	}{{"x", "x", true}, {"x", "y", false}, {"", "x", false}, {"abc", "abcd", false}} {
 		if got := tokenEqual(tt.a, tt.b); got != tt.want {
 			t.Errorf("tokenEqual(%q, %q) = %v", tt.a, tt.b, got)
+		}
+	}
+}
+
+func TestLoopbackHost(t *testing.T) {
+	for _, tt := range []struct {
+		host string
+		want bool
+	}{{"localhost", true}, {"LOCALHOST:80", true}, {"a.localhost:1", true}, {"127.0.0.1:8467", true},
+		{"[::1]:8467", true}, {"::1", true}, {"example.org", false}, {"10.1.2.3:80", false}, {"", false}} {
+		if got := loopbackHost(tt.host); got != tt.want {
+			t.Errorf("loopbackHost(%q) = %v", tt.host, got)
 		}
 	}
 }
