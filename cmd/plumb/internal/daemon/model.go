@@ -317,8 +317,12 @@ func (m *modelRT) ingest(ctx context.Context, b watcher.Batch) error {
 		}
 		p := pending{rec: rec, vals: rec.Values, t: t}
 		o, ok := m.online.Add(m.xrow, rec.Values[0])
-		if ok && m.online.N() >= m.minRows {
-			v := m.judgeArrival(o)
+		n := m.online.N()
+		if m.windowed() {
+			o, n, ok = m.windowArrival(rows, p)
+		}
+		if ok && n >= m.minRows {
+			v := m.judgeArrival(o, n)
 			p.diag = diagnostics(o, v)
 		}
 		rows = append(rows, p)
@@ -419,9 +423,85 @@ func finite(v float64) float64 {
 // includes it, with the model's cutoffs for n = the rows so far. The
 // outlier test at arrival is the Bonferroni test; a model configured for
 // the Grubbs test gets it at each refresh, which sees all residuals.
-func (m *modelRT) judgeArrival(o engine.Obs) engine.Verdict {
+func (m *modelRT) judgeArrival(o engine.Obs, n int) engine.Verdict {
 	c := m.cut
 	c.Test = engine.BonferroniTest
-	one := &engine.Influence{Fit: &engine.Fit{Model: m.spec, N: m.online.N(), P: m.spec.P()}, Rows: []engine.Obs{o}}
+	one := &engine.Influence{Fit: &engine.Fit{Model: m.spec, N: n, P: m.spec.P()}, Rows: []engine.Obs{o}}
 	return engine.Judge(one, c)[0]
+}
+
+// windowed reports whether the model fits a window of its rows rather
+// than all of them.
+func (m *modelRT) windowed() bool {
+	return m.cfg.Window.Rows > 0 || m.cfg.Window.Span.Duration > 0
+}
+
+// windowArrival judges a new row of a windowed model against the fit of
+// the window that includes it: the stored rows, the batch's earlier rows
+// and this one, cut to the window. The online fit covers all rows, so a
+// windowed model refits its window per arriving row (O(w p²) for a window
+// of w rows). Caller holds mu.
+func (m *modelRT) windowArrival(batch []pending, p pending) (engine.Obs, int, bool) {
+	type row struct {
+		vals []float64
+		t    int64
+	}
+	all := make([]row, 0, len(batch)+1)
+	for _, b := range batch {
+		all = append(all, row{b.vals, b.t})
+	}
+	all = append(all, row{p.vals, p.t})
+	var stored []int
+	switch {
+	case m.cfg.Window.Rows > 0:
+		need := m.cfg.Window.Rows - len(all)
+		if need < 0 {
+			all = all[-need:]
+			need = 0
+		}
+		for i := max(0, len(m.ids)-need); i < len(m.ids); i++ {
+			stored = append(stored, i)
+		}
+	default:
+		cut := p.t - m.cfg.Window.Span.Nanoseconds()
+		for i, t := range m.times {
+			if t >= cut {
+				stored = append(stored, i)
+			}
+		}
+		k := 0
+		for _, r := range all {
+			if r.t >= cut {
+				all[k] = r
+				k++
+			}
+		}
+		all = all[:k]
+	}
+	n := len(stored) + len(all)
+	if n <= m.spec.P()+1 {
+		return engine.Obs{}, n, false
+	}
+	cols := make(map[string][]float64, len(m.vals))
+	names := m.numeric()
+	for j, c := range names {
+		v := make([]float64, 0, n)
+		for _, i := range stored {
+			v = append(v, m.vals[j][i])
+		}
+		for _, r := range all {
+			v = append(v, r.vals[j])
+		}
+		cols[c] = v
+	}
+	X, y, err := m.spec.Design(cols)
+	if err != nil {
+		return engine.Obs{}, n, false
+	}
+	f, err := engine.Refit(m.spec, X, y)
+	if err != nil {
+		return engine.Obs{}, n, false
+	}
+	inf := engine.Diagnose(f)
+	return inf.Rows[n-1], n, true
 }
