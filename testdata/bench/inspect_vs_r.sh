@@ -37,11 +37,17 @@ im <- influence.measures(fit)
 write.csv(im$infmat, args[2])
 RSCRIPT
 
-now() { date +%s.%N; }
 run_r() { Rscript "$tmp/job.R" "$tmp/bench.csv" "$tmp/r_out.csv"; }
 run_plumb() {
 	"$tmp/plumb" inspect "$tmp/bench.csv" --response reading \
 		--terms "emf_mv, bath_c, rh_pct, pressure_kpa, emf_mv^2" --format csv > "$tmp/plumb_out.csv"
+}
+# timed CMD: runs CMD and prints "wall cpu" in seconds (cpu = user + sys,
+# which a busy machine inflates far less than wall time).
+timed() {
+	local TIMEFORMAT='%R %U %S' out
+	out=$( { time "$@" 2>/dev/null; } 2>&1 )
+	awk '{printf "%.4f %.4f\n", $1, $2 + $3}' <<<"$out"
 }
 
 # One untimed run of each to warm the page cache and check both work.
@@ -52,23 +58,27 @@ echo "input: $rows rows, $(wc -c < "$tmp/bench.csv") bytes; outputs: R $(wc -c <
 r_times=()
 p_times=()
 ratios=()
+r_cpu=()
+p_cpu=()
+cpu_ratios=()
 for i in $(seq 1 "$runs"); do
-	t0=$(now); run_r; t1=$(now)
-	t2=$(now); run_plumb; t3=$(now)
-	r=$(awk -v a="$t0" -v b="$t1" 'BEGIN {printf "%.6f", b - a}')
-	p=$(awk -v a="$t2" -v b="$t3" 'BEGIN {printf "%.6f", b - a}')
+	read -r r rc <<<"$(timed run_r)"
+	read -r p pc <<<"$(timed run_plumb)"
 	q=$(awk -v r="$r" -v p="$p" 'BEGIN {printf "%.3f", r / p}')
-	r_times+=("$r")
-	p_times+=("$p")
-	ratios+=("$q")
-	printf 'run %d: R %.3f s, plumb %.4f s, ratio %.1f\n' "$i" "$r" "$p" "$q"
+	qc=$(awk -v r="$rc" -v p="$pc" 'BEGIN {printf "%.3f", r / p}')
+	r_times+=("$r"); p_times+=("$p"); ratios+=("$q")
+	r_cpu+=("$rc"); p_cpu+=("$pc"); cpu_ratios+=("$qc")
+	printf 'run %d: R %.3f s (cpu %.3f), plumb %.4f s (cpu %.4f), ratio %.1f (cpu %.1f)\n' "$i" "$r" "$rc" "$p" "$pc" "$q" "$qc"
 done
 
 median() { printf '%s\n' "$@" | sort -g | awk '{a[NR]=$1} END {if (NR%2) print a[(NR+1)/2]; else print (a[NR/2]+a[NR/2+1])/2}'; }
 mr=$(median "${r_times[@]}")
 mp=$(median "${p_times[@]}")
 mq=$(median "${ratios[@]}")
-printf 'median over %d runs: R %.3f s, plumb %.4f s, median ratio %.1fx\n' "$runs" "$mr" "$mp" "$mq"
+printf 'median over %d runs: R %.3f s, plumb %.4f s, median ratio %.1fx (wall time)\n' "$runs" "$mr" "$mp" "$mq"
+printf 'median cpu time:     R %.3f s, plumb %.4f s, median ratio %.1fx (user + sys)\n' \
+	"$(median "${r_cpu[@]}")" "$(median "${p_cpu[@]}")" "$(median "${cpu_ratios[@]}")"
+echo "load average: $(cut -d' ' -f1-3 /proc/loadavg 2>/dev/null || echo unknown)"
 if awk -v q="$mq" 'BEGIN {exit !(q >= 10)}'; then
 	echo "target met: plumb is at least 10x faster than R"
 else
