@@ -69,7 +69,7 @@ enabled = false
 		}
 		for i := 1; i <= rows; {
 			f := ws[rng.IntN(2)]
-			burst := 1 + rng.IntN(500)
+			burst := 1 + rng.IntN(200)
 			var b strings.Builder
 			for k := 0; k < burst && i <= rows; k++ {
 				x := float64(i%1000) / 10
@@ -85,7 +85,7 @@ enabled = false
 				done <- err
 				return
 			}
-			time.Sleep(time.Duration(rng.IntN(3)) * time.Millisecond)
+			time.Sleep(time.Duration(rng.IntN(12)) * time.Millisecond)
 		}
 		done <- nil
 	}()
