@@ -2,7 +2,9 @@ package decode
 
 import (
 	"bytes"
+	"encoding/binary"
 	"fmt"
+	"math/bits"
 	"strings"
 	"unicode/utf8"
 	"unsafe"
@@ -92,12 +94,13 @@ type Decoder struct {
 	// 0 means DefaultMaxRecordBytes.
 	MaxRecordBytes int
 
-	file    string
-	dialect Dialect
-	delim   byte
-	comment []byte
-	class   [256]uint8
-	dialErr error
+	file      string
+	dialect   Dialect
+	delim     byte
+	delimMask uint64
+	comment   []byte
+	class     [256]uint8
+	dialErr   error
 
 	header     []string
 	headerLine int
@@ -131,6 +134,18 @@ type field struct {
 	escaped    bool // content holds doubled quotes
 }
 
+// SWAR constants: a byte's high bit in m marks a byte of interest; the
+// lowest marked byte is exact (borrows only run upwards).
+const (
+	loBits    = 0x0101010101010101
+	hiBits    = 0x8080808080808080
+	nlMask    = loBits * '\n'
+	quoteMask = loBits * '"'
+)
+
+// zeroBytes marks the zero bytes of v (exact for the lowest one).
+func zeroBytes(v uint64) uint64 { return (v - loBits) &^ v & hiBits }
+
 const (
 	clsPlain uint8 = iota
 	clsDelim
@@ -146,6 +161,7 @@ const (
 func NewDecoder(file string, d Dialect) *Decoder {
 	dec := &Decoder{file: file, dialect: d, delim: d.delim(), comment: []byte(d.Comment)}
 	dec.dialErr = d.Validate()
+	dec.delimMask = loBits * uint64(dec.delim)
 	dec.class[dec.delim] = clsDelim
 	dec.class['\n'] = clsNL
 	dec.class['"'] = clsQuote
@@ -391,7 +407,8 @@ func (d *Decoder) Feed(buf []byte, atEOF bool, emit func(Record) error) (consume
 				continue
 			}
 		}
-		rec, n, st := d.record(b, atEOF)
+		var rec Record
+		n, st := d.record(&rec, b, atEOF)
 		switch st {
 		case stMore:
 			return pos, nil
@@ -458,12 +475,13 @@ const (
 // errors, Err) and its length including the terminator; d.fields holds
 // the field bounds. stMore: need more bytes. stSkip: the record is too
 // long and continues past b; rec holds its error.
-func (d *Decoder) record(b []byte, atEOF bool) (rec Record, n int, st status) {
+func (d *Decoder) record(rec *Record, b []byte, atEOF bool) (n int, st status) {
+	*rec = Record{}
 	max := d.maxRec()
 	d.fields = d.fields[:0]
 	rec.Line = d.line + 1
 	var (
-		binary  bool // saw NUL or high bytes
+		sawBin  bool // saw NUL or high bytes
 		synErr  error
 		synAt   int // offset of the syntax error
 		termEnd int // end including terminator
@@ -491,16 +509,16 @@ func (d *Decoder) record(b []byte, atEOF bool) (rec Record, n int, st status) {
 					break
 				}
 				if c == 0 || c >= utf8.RuneSelf {
-					binary = true
+					sawBin = true
 				}
 				j++
 			}
 			if !closed {
 				if !atEOF {
 					if len(b) > max {
-						return d.tooLong(b, atEOF, rec)
+						return d.tooLong(rec, b, atEOF)
 					}
-					return rec, 0, stMore
+					return 0, stMore
 				}
 				// Unterminated at EOF: the rest of the file is the record.
 				synErr, synAt = ErrQuote, i
@@ -527,9 +545,9 @@ func (d *Decoder) record(b []byte, atEOF bool) (rec Record, n int, st status) {
 			case c == '\r' && j+1 == len(b):
 				if !atEOF {
 					if len(b) > max {
-						return d.tooLong(b, atEOF, rec)
+						return d.tooLong(rec, b, atEOF)
 					}
-					return rec, 0, stMore
+					return 0, stMore
 				}
 				termEnd = j + 1
 				goto done
@@ -538,8 +556,19 @@ func (d *Decoder) record(b []byte, atEOF bool) (rec Record, n int, st status) {
 				goto resync
 			}
 		}
-		// Unquoted field.
+		// Unquoted field: skip plain bytes eight at a time, then look at
+		// the first byte that may be special one by one.
 		j := i
+		for j+8 <= len(b) {
+			v := binary.LittleEndian.Uint64(b[j:])
+			m := zeroBytes(v) | zeroBytes(v^d.delimMask) | zeroBytes(v^nlMask) | zeroBytes(v^quoteMask) | v&hiBits
+			if m == 0 {
+				j += 8
+				continue
+			}
+			j += bits.TrailingZeros64(m) >> 3
+			break
+		}
 		for j < len(b) {
 			c := class[b[j]]
 			if c == clsPlain {
@@ -547,7 +576,7 @@ func (d *Decoder) record(b []byte, atEOF bool) (rec Record, n int, st status) {
 				continue
 			}
 			if c >= clsNUL {
-				binary = true
+				sawBin = true
 				j++
 				continue
 			}
@@ -556,9 +585,9 @@ func (d *Decoder) record(b []byte, atEOF bool) (rec Record, n int, st status) {
 		if j == len(b) {
 			if !atEOF {
 				if len(b) > max {
-					return d.tooLong(b, atEOF, rec)
+					return d.tooLong(rec, b, atEOF)
 				}
-				return rec, 0, stMore
+				return 0, stMore
 			}
 			e := j
 			if e > i && b[e-1] == '\r' {
@@ -592,9 +621,9 @@ resync:
 	} else {
 		if !atEOF {
 			if len(b) > max {
-				return d.tooLong(b, atEOF, rec)
+				return d.tooLong(rec, b, atEOF)
 			}
-			return rec, 0, stMore
+			return 0, stMore
 		}
 		termEnd = len(b)
 	}
@@ -605,7 +634,7 @@ done:
 		lineLen = termEnd - 1
 	}
 	if lineLen > max {
-		return d.tooLong(b, atEOF, rec)
+		return d.tooLong(rec, b, atEOF)
 	}
 	end := lineLen
 	if end > 0 && b[end-1] == '\r' {
@@ -616,7 +645,7 @@ done:
 	rec.EndOffset = d.off + int64(termEnd)
 	rec.Raw = d.intern(raw)
 	switch {
-	case binary || synErr != nil:
+	case sawBin || synErr != nil:
 		if at := binaryAt(raw); at >= 0 {
 			rec.Err = d.posErr(raw, rec.Line, at, 0, "", ErrBinary)
 			break
@@ -625,13 +654,13 @@ done:
 			rec.Err = d.posErr(raw, rec.Line, synAt, 0, "", synErr)
 		}
 	}
-	return rec, termEnd, stDone
+	return termEnd, stDone
 }
 
 // tooLong handles a record longer than the limit: it is refused and
 // skipped to the first '\n' at index > max (raw, quotes ignored), which
 // makes the cut independent of how the input was split into Feeds.
-func (d *Decoder) tooLong(b []byte, atEOF bool, rec Record) (Record, int, status) {
+func (d *Decoder) tooLong(rec *Record, b []byte, atEOF bool) (int, status) {
 	max := d.maxRec()
 	// Raw: the record's first bytes, never past the limit (so the same
 	// whatever the chunking).
@@ -645,16 +674,16 @@ func (d *Decoder) tooLong(b []byte, atEOF bool, rec Record) (Record, int, status
 		n := max + 1 + k + 1
 		rec.EndLine = d.line + countNL(b[:n])
 		rec.EndOffset = d.off + int64(n)
-		return rec, n, stDone
+		return n, stDone
 	case atEOF:
 		rec.EndLine = d.line + countNL(b)
 		if b[len(b)-1] != '\n' {
 			rec.EndLine++
 		}
 		rec.EndOffset = d.off + int64(len(b))
-		return rec, len(b), stDone
+		return len(b), stDone
 	}
-	return rec, len(b), stSkip
+	return len(b), stSkip
 }
 
 // skipMore continues skipping an over-long record: it returns the bytes
