@@ -107,14 +107,43 @@ var sqrtHalfCoef = [...]float64{
 // the range where the expansion is known to be accurate (s0 > 1/2, or an
 // argument that underflows).
 func tTail2Large(t2, df float64) (p float64, ok bool) {
+	return newTTail(df).large(t2)
+}
+
+// tTail evaluates TTail2 for one df, with the df-dependent constants of
+// the large-df expansion computed once.
+type tTail struct {
+	df, a, ia, ratio float64
+}
+
+func newTTail(df float64) tTail {
 	a := df / 2
-	s0 := math.Log1p(t2 / df)
-	X := a * s0
+	ia := 1 / a
+	return tTail{df: df, a: a, ia: ia,
+		ratio: 1 + ia*(-1.0/8+ia*(1.0/128+ia*(5.0/1024+ia*(-21.0/32768+ia*(-399.0/262144+ia*869.0/4194304)))))}
+}
+
+// p2 returns TTail2(t, df).
+func (tt tTail) p2(t float64) float64 {
+	if tt.df >= largeDF && t-t == 0 {
+		t2 := t * t
+		if t2 == 0 {
+			return 1
+		}
+		if p, ok := tt.large(t2); ok {
+			return p
+		}
+	}
+	return TTail2(t, tt.df)
+}
+
+func (tt tTail) large(t2 float64) (p float64, ok bool) {
+	s0 := math.Log1p(t2 / tt.df)
+	X := tt.a * s0
 	if s0 > 0.5 || X > 700 {
 		return 0, false
 	}
-	ia := 1 / a
-	ratio := 1 + ia*(-1.0/8+ia*(1.0/128+ia*(5.0/1024+ia*(-21.0/32768+ia*(-399.0/262144+ia*869.0/4194304)))))
+	ia := tt.ia
 	rx := math.Sqrt(X)
 	g := math.Erfc(rx)
 	pw := rx * math.Exp(-X) / math.SqrtPi // X^{k+1/2} e^{-X}/√π
@@ -130,5 +159,5 @@ func tTail2Large(t2, df float64) (p float64, ok bool) {
 			break
 		}
 	}
-	return ratio * sum, true
+	return tt.ratio * sum, true
 }

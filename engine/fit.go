@@ -147,174 +147,12 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	}
 	names := m.Names()
 	raw := X.RawMatrix()
-	stride := raw.Stride
-	xd := raw.Data
-	ch := newChunking(n, p)
-
-	// Pass 1: finiteness, constant columns, means.
-	type stat struct {
-		sum, min, max []float64
-		ysum          float64
-		ymin, ymax    float64
-		badRow        int
-		badCol        int
-		badOne        bool
+	ws := &work{m: m, n: n, p: p, k: p + 1, xd: raw.Data, stride: raw.Stride, y: y, ch: newChunking(n, p)}
+	if err := ws.factor(); err != nil {
+		return nil, err
 	}
-	stats := make([]stat, ch.nc)
-	ch.run(func(c int) {
-		lo, hi := ch.bounds(c)
-		st := stat{sum: make([]float64, p), min: make([]float64, p), max: make([]float64, p),
-			ymin: math.Inf(1), ymax: math.Inf(-1), badRow: -1}
-		for j := range st.min {
-			st.min[j] = math.Inf(1)
-			st.max[j] = math.Inf(-1)
-		}
-		for i := lo; i < hi; i++ {
-			row := xd[i*stride : i*stride+p]
-			for j, v := range row {
-				if v-v != 0 {
-					if st.badRow < 0 {
-						st.badRow, st.badCol = i, j
-					}
-					continue
-				}
-				st.sum[j] += v * 0x1p-64
-				if v < st.min[j] {
-					st.min[j] = v
-				}
-				if v > st.max[j] {
-					st.max[j] = v
-				}
-			}
-			if m.Intercept && row[0] != 1 {
-				st.badOne = true
-			}
-			v := y[i]
-			if v-v != 0 {
-				if st.badRow < 0 {
-					st.badRow, st.badCol = i, p
-				}
-				continue
-			}
-			st.ysum += v * 0x1p-64
-			if v < st.ymin {
-				st.ymin = v
-			}
-			if v > st.ymax {
-				st.ymax = v
-			}
-		}
-		stats[c] = st
-	})
-	sum := make([]float64, p)
-	mn := make([]float64, p)
-	mx := make([]float64, p)
-	for j := range mn {
-		mn[j], mx[j] = math.Inf(1), math.Inf(-1)
-	}
-	ysum, ymin, ymax := 0.0, math.Inf(1), math.Inf(-1)
-	for _, st := range stats {
-		if st.badOne {
-			panic("engine: Refit: model has an intercept but column 0 of X is not all ones")
-		}
-		if st.badRow >= 0 {
-			col := m.Response
-			if st.badCol < p {
-				col = names[st.badCol]
-			}
-			return nil, &DataError{Row: st.badRow, Column: col, Err: ErrNonFinite}
-		}
-		for j := 0; j < p; j++ {
-			sum[j] += st.sum[j]
-			mn[j] = math.Min(mn[j], st.min[j])
-			mx[j] = math.Max(mx[j], st.max[j])
-		}
-		ysum += st.ysum
-		ymin = math.Min(ymin, st.ymin)
-		ymax = math.Max(ymax, st.ymax)
-	}
-	if ymin == 0 && ymax == 0 {
-		return nil, ErrZeroResponse
-	}
-	first := 0
-	if m.Intercept {
-		first = 1
-	}
-	for j := first; j < p; j++ {
-		if mn[j] == mx[j] && (m.Intercept || mn[j] == 0) {
-			return nil, &ColumnError{Term: names[j], Err: ErrConstantColumn}
-		}
-	}
-	if m.Intercept && ymin == ymax {
-		return nil, &ColumnError{Term: m.Response, Err: ErrConstantColumn}
-	}
-	sc := scaling{p: p, intercept: m.Intercept, mean: make([]float64, p), scale: make([]float64, p)}
-	if m.Intercept {
-		for j := 1; j < p; j++ {
-			sc.mean[j] = sum[j] / float64(n) * 0x1p64
-		}
-	}
-	ybar := ysum / float64(n) * 0x1p64
-	// Power-of-two prescaling keeps the Householder sums of squares clear
-	// of overflow and underflow; it is exact.
-	pre := make([]float64, k0(p))
-	for j := 0; j < p; j++ {
-		pre[j] = pow2Inv(math.Max(math.Abs(mn[j]-sc.mean[j]), math.Abs(mx[j]-sc.mean[j])))
-	}
-	pre[p] = pow2Inv(math.Max(math.Abs(ymin), math.Abs(ymax)))
-
-	// Pass 2: QR of each chunk of the centred design (unscaled; scaling
-	// commutes with QR and is applied to R afterwards), y carried along.
-	k := p + 1
-	blocks := make([]float64, n*k)
-	taus := make([]float64, ch.nc*p)
-	sm := ch.nc * p
-	S := make([]float64, sm*k) // stacked chunk R factors, column-major
-	ch.run(func(c int) {
-		lo, hi := ch.bounds(c)
-		mr := hi - lo
-		a := blocks[lo*k : hi*k]
-		for i := lo; i < hi; i++ {
-			row := xd[i*stride : i*stride+p]
-			ii := i - lo
-			for j, v := range row {
-				a[j*mr+ii] = (v - sc.mean[j]) * pre[j]
-			}
-			a[p*mr+ii] = y[i] * pre[p]
-		}
-		houseQR(a, mr, p, k, taus[c*p:(c+1)*p])
-		for j := 0; j < k; j++ {
-			top := j + 1
-			if top > p {
-				top = p
-			}
-			for i := 0; i < top; i++ {
-				S[j*sm+c*p+i] = a[j*mr+i]
-			}
-		}
-	})
-	tauS := make([]float64, p)
-	houseQR(S, sm, p, k, tauS)
-
-	// Scale R to unit columns.
-	colNorm := make([]float64, p)
-	for j := 0; j < p; j++ {
-		ss := 0.0
-		for i := 0; i <= j; i++ {
-			ss += S[j*sm+i] * S[j*sm+i]
-		}
-		colNorm[j] = math.Sqrt(ss)
-		sc.scale[j] = colNorm[j] / pre[j]
-		if colNorm[j] == 0 || math.IsInf(sc.scale[j], 0) {
-			return nil, &ColumnError{Term: names[j], Err: ErrConstantColumn}
-		}
-	}
-	R := make([]float64, p*p)
-	for i := 0; i < p; i++ {
-		for j := i; j < p; j++ {
-			R[i*p+j] = S[j*sm+i] / colNorm[j]
-		}
-	}
+	ch, sc := ws.ch, &ws.sc
+	R := ws.R
 	if err := checkRank(R, p, names); err != nil {
 		return nil, err
 	}
@@ -322,158 +160,37 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	if cond > maxCondition || math.IsNaN(cond) {
 		return nil, fmt.Errorf("%w: %w", ErrIllConditioned, mat.Condition(cond))
 	}
-
-	// Initial solution from Q'y.
-	c0 := make([]float64, p)
-	for i := 0; i < p; i++ {
-		c0[i] = S[p*sm+i] / pre[p]
-	}
-	solveUpper(R, p, c0)
-	b := make([]float64, p)
-	sc.fromW(b, c0)
-	cvec := c0
-
-	// Refinement.
-	r := make([]float64, n)
-	s := make([]float64, sm)
-	gpart := make([]dd, ch.nc*p)
-	dc := make([]float64, p)
-	db := make([]float64, p)
-	h := make([]float64, p)
-	prev := math.Inf(1)
-	for it := 0; it < maxRefine; it++ {
-		bb := b
-		ch.run(func(c int) {
-			lo, hi := ch.bounds(c)
-			mr := hi - lo
-			a := blocks[lo*k : hi*k]
-			tau := taus[c*p : (c+1)*p]
-			z := a[p*mr : k*mr]
-			if it > 0 {
-				copy(z[:p], s[c*p:(c+1)*p])
-				applyQ(a, mr, p, tau, z)
-				for i := range z {
-					r[lo+i] += z[i]
-				}
-			}
-			g := gpart[c*p : (c+1)*p]
-			for j := range g {
-				g[j] = dd{}
-			}
-			for i := lo; i < hi; i++ {
-				row := xd[i*stride : i*stride+p]
-				ri := r[i]
-				acc := dd{y[i], 0}.add(-ri)
-				for j, v := range row {
-					acc = acc.addProd(-v, bb[j])
-				}
-				z[i-lo] = acc.float()
-				if it > 0 {
-					for j, v := range row {
-						g[j] = g[j].addProd(v, ri)
-					}
-				}
-			}
-			applyQT(a, mr, p, tau, z)
-			copy(s[c*p:(c+1)*p], z[:p])
-		})
-		applyQT(S, sm, p, tauS, s)
-		// g = X'r, gW = T^-T g, h = -R^-T gW.
-		for j := 0; j < p; j++ {
-			h[j] = 0
-		}
-		if it > 0 {
-			gs := make([]dd, p)
-			for c := 0; c < ch.nc; c++ {
-				for j := 0; j < p; j++ {
-					gs[j] = gs[j].addDD(gpart[c*p+j])
-				}
-			}
-			for j := 0; j < p; j++ {
-				v := gs[j]
-				if sc.intercept && j > 0 {
-					v = v.addDD(gs[0].mulDD(dd{-sc.mean[j], 0}))
-				}
-				h[j] = -v.float() / sc.scale[j]
-			}
-			solveUpperT(R, p, h)
-		}
-		for j := 0; j < p; j++ {
-			dc[j] = s[j] - h[j]
-		}
-		solveUpper(R, p, dc)
-		sc.fromW(db, dc)
-		// Componentwise relative size of the correction.
-		cmax := 0.0
-		for j := 0; j < p; j++ {
-			b[j] += db[j]
-			cvec[j] += dc[j]
-			cmax = math.Max(cmax, math.Abs(cvec[j]))
-		}
-		nd := 0.0
-		for j := 0; j < p; j++ {
-			den := math.Max(math.Abs(cvec[j]), 0x1p-52*cmax)
-			if den > 0 {
-				nd = math.Max(nd, math.Abs(dc[j])/den)
-			}
-		}
-		if debugRefine {
-			fmt.Println("refine", it, nd, b)
-		}
-		const eps = 0x1p-52
-		if nd <= eps {
-			break
-		}
-		// Step 0 is the classical correction of the QR solution, which
-		// cannot reach full accuracy when the residuals are large; the
-		// augmented steps start at step 1, so progress is judged from
-		// step 2 on.
-		if it > 1 {
-			ratio := nd / prev
-			if ratio > 0.5 {
-				break // no further progress
-			}
-			// Stop when the next correction is predicted to be below
-			// rounding level.
-			if ratio*nd <= eps/2 {
-				break
-			}
-		}
-		prev = nd
-		copy(s[:p], h)
-		applyQ(S, sm, p, tauS, s)
-	}
-	blocks, S = nil, nil
+	b := ws.refine(cond)
 
 	// Final pass: residuals, fitted values, RSS in double-double, TSS.
+	xd, stride := ws.xd, ws.stride
 	fitted := make([]float64, n)
-	res := r
+	res := ws.r
 	rssPart := make([]dd, ch.nc)
 	tssPart := make([]float64, 2*ch.nc)
+	ybar := ws.ybar
 	ch.run(func(c int) {
 		lo, hi := ch.bounds(c)
-		var rs dd
+		var rs, rc float64
 		var t1, t2 float64
 		for i := lo; i < hi; i++ {
 			row := xd[i*stride : i*stride+p]
-			var acc dd
-			for j, v := range row {
-				acc = acc.addProd(v, b[j])
-			}
-			fitted[i] = acc.float()
-			e := acc.neg().add(y[i]).float()
+			e := residual2(y[i], 0, row, b)
 			res[i] = e
-			rs = rs.addProd(e, e)
-			var d float64
+			fitted[i] = y[i] - e
+			q := e * e
+			qe := math.FMA(e, e, -q)
+			var se float64
+			rs, se = twoSum(rs, q)
+			rc += se + qe
+			d := y[i]
 			if m.Intercept {
-				d = y[i] - ybar
-			} else {
-				d = y[i]
+				d -= ybar
 			}
 			t1 += d
 			t2 += d * d
 		}
-		rssPart[c] = rs
+		rssPart[c] = dd{rs, 0}.add(rc)
 		tssPart[2*c], tssPart[2*c+1] = t1, t2
 	})
 	var rss dd
@@ -493,18 +210,435 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 		RSS: rss.float(), TSS: tss,
 		Condition: cond,
 		Residuals: res, Fitted: fitted,
-		x: X, y: y, sc: sc, r: R, rss: rss,
+		x: X, y: y, sc: *sc, r: R, rss: rss,
 	}
-	f.finish(b, names)
+	f.finish(b, names, ws.ssCentred)
 	if !f.finite() {
 		return nil, fmt.Errorf("%w: the fit overflows double precision (values too large)", ErrNonFinite)
 	}
 	return f, nil
 }
 
+// residual2 returns y - rr - x·b rounded to double, accumulated with the
+// compensated dot product of Ogita, Rump & Oishi (2005) "Dot2": as
+// accurate as double-double accumulation, then rounded once.
+func residual2(y, rr float64, x, b []float64) float64 {
+	s, c := twoSum(y, -rr)
+	for j, v := range x {
+		q := -v * b[j]
+		qe := math.FMA(-v, b[j], -q)
+		var se float64
+		s, se = twoSum(s, q)
+		c += se + qe
+	}
+	return s + c
+}
+
+// work holds the state of one Refit: the chunked Householder factors of
+// the centred design and the refinement vectors.
+type work struct {
+	m         Model
+	n, p, k   int
+	xd        []float64
+	stride    int
+	y         []float64
+	ch        chunking
+	sc        scaling
+	ybar      float64
+	ssCentred []float64 // Σ(x_j - x̄_j)², for the VIF
+
+	blocks []float64 // per chunk, column-major m x k: reflectors, then z
+	taus   []float64 // per chunk reflector scalars
+	S      []float64 // stacked chunk R factors (nc·p x k), column-major
+	tauS   []float64
+	R      []float64 // scaled R, p x p row-major
+	pre    []float64 // power-of-two prescale per column (y last)
+	r      []float64 // residual iterate
+}
+
+type chunkStat struct {
+	sum        []float64 // Σ(x - c) per column, y last
+	min, max   []float64 // per column, y last
+	badRow     int
+	badCol     int
+	badOne     bool
+	nonFiniteR bool
+}
+
+// factor runs one pass over the data: it checks values, centres each
+// column on a provisional centre (the mean of the first chunk), prescales
+// by powers of two, and factors every chunk; then merges the chunk factors.
+func (w *work) factor() error {
+	n, p, k := w.n, w.p, w.k
+	m := w.m
+	names := m.Names()
+	w.sc = scaling{p: p, intercept: m.Intercept, mean: make([]float64, p), scale: make([]float64, p)}
+	cen := make([]float64, k) // centring constants, y last (y is not centred)
+	w.pre = make([]float64, k)
+	lo0, hi0 := w.ch.bounds(0)
+	w.provisional(lo0, hi0, cen)
+	for j := 0; j < p; j++ {
+		w.sc.mean[j] = cen[j]
+	}
+	stats := w.qrPass(cen)
+	// Combine the checks.
+	sum := make([]float64, k)
+	mn := make([]float64, k)
+	mx := make([]float64, k)
+	for j := range mn {
+		mn[j], mx[j] = math.Inf(1), math.Inf(-1)
+	}
+	badRow, badCol := -1, 0
+	nonFinite := false
+	for _, st := range stats {
+		if st.badOne {
+			panic("engine: Refit: model has an intercept but column 0 of X is not all ones")
+		}
+		if st.badRow >= 0 && badRow < 0 {
+			badRow, badCol = st.badRow, st.badCol
+		}
+		nonFinite = nonFinite || st.nonFiniteR
+		for j := 0; j < k; j++ {
+			sum[j] += st.sum[j]
+			mn[j] = math.Min(mn[j], st.min[j])
+			mx[j] = math.Max(mx[j], st.max[j])
+		}
+	}
+	if badRow >= 0 {
+		col := m.Response
+		if badCol < p {
+			col = names[badCol]
+		}
+		return &DataError{Row: badRow, Column: col, Err: ErrNonFinite}
+	}
+	if mn[p] == 0 && mx[p] == 0 {
+		return ErrZeroResponse
+	}
+	first := 0
+	if m.Intercept {
+		first = 1
+	}
+	for j := first; j < p; j++ {
+		if mn[j] == mx[j] && (m.Intercept || mn[j] == 0) {
+			return &ColumnError{Term: names[j], Err: ErrConstantColumn}
+		}
+	}
+	if m.Intercept && mn[p] == mx[p] {
+		return &ColumnError{Term: m.Response, Err: ErrConstantColumn}
+	}
+	if nonFinite || !allFinite(w.S) {
+		// Values far larger than those of the first chunk overflowed the
+		// prescaled sums of squares: redo with the global ranges.
+		for j := 0; j < k; j++ {
+			c := cen[j]
+			w.pre[j] = pow2Inv(math.Max(math.Abs(mn[j]-c), math.Abs(mx[j]-c)))
+		}
+		w.qrPass(cen)
+		if !allFinite(w.S) {
+			return fmt.Errorf("%w: the design overflows double precision (values too large)", ErrNonFinite)
+		}
+	}
+	w.ybar = cen[p] + sum[p]/float64(n)
+
+	w.tauS = make([]float64, p)
+	sm := w.ch.nc * p
+	houseQR(w.S, sm, p, k, w.tauS)
+	colNorm := make([]float64, p)
+	w.ssCentred = make([]float64, p)
+	for j := 0; j < p; j++ {
+		ss := 0.0
+		for i := 0; i <= j; i++ {
+			ss += w.S[j*sm+i] * w.S[j*sm+i]
+		}
+		colNorm[j] = math.Sqrt(ss)
+		w.sc.scale[j] = colNorm[j] / w.pre[j]
+		if colNorm[j] == 0 || math.IsInf(w.sc.scale[j], 0) {
+			return &ColumnError{Term: names[j], Err: ErrConstantColumn}
+		}
+		// Σ(x - x̄)² = Σ(x - c)² - (Σ(x - c))²/n.
+		s2 := w.sc.scale[j] * w.sc.scale[j]
+		w.ssCentred[j] = s2 - sum[j]*sum[j]/float64(n)
+	}
+	w.R = make([]float64, p*p)
+	for i := 0; i < p; i++ {
+		for j := i; j < p; j++ {
+			w.R[i*p+j] = w.S[j*sm+i] / colNorm[j]
+		}
+	}
+	return nil
+}
+
+// provisional sets the centring constants (the mean of the finite values
+// of the first chunk; 0 without an intercept and for y) and the prescales.
+func (w *work) provisional(lo, hi int, cen []float64) {
+	p := w.p
+	mx := make([]float64, w.k)
+	for j := 1; j < p && w.m.Intercept; j++ {
+		s, cnt := 0.0, 0
+		for i := lo; i < hi; i++ {
+			v := w.xd[i*w.stride+j]
+			if v-v == 0 {
+				s += v * 0x1p-64
+				cnt++
+			}
+		}
+		if cnt > 0 {
+			cen[j] = s / float64(cnt) * 0x1p64
+		}
+	}
+	for i := lo; i < hi; i++ {
+		row := w.xd[i*w.stride : i*w.stride+p]
+		for j, v := range row {
+			if d := math.Abs(v - cen[j]); d > mx[j] && d-d == 0 {
+				mx[j] = d
+			}
+		}
+		if d := math.Abs(w.y[i]); d > mx[p] && d-d == 0 {
+			mx[p] = d
+		}
+	}
+	for j := range mx {
+		w.pre[j] = pow2Inv(mx[j])
+	}
+}
+
+// qrPass copies, checks and factors every chunk, and stacks the chunk R
+// factors into S.
+func (w *work) qrPass(cen []float64) []chunkStat {
+	n, p, k := w.n, w.p, w.k
+	ch := w.ch
+	if w.blocks == nil {
+		w.blocks = make([]float64, n*k)
+		w.taus = make([]float64, ch.nc*p)
+		w.S = make([]float64, ch.nc*p*k)
+	}
+	sm := ch.nc * p
+	stats := make([]chunkStat, ch.nc)
+	intercept := w.m.Intercept
+	pre := w.pre
+	ch.run(func(c int) {
+		lo, hi := ch.bounds(c)
+		mr := hi - lo
+		a := w.blocks[lo*k : hi*k]
+		st := chunkStat{sum: make([]float64, k), min: make([]float64, k), max: make([]float64, k), badRow: -1}
+		for j := range st.min {
+			st.min[j] = math.Inf(1)
+			st.max[j] = math.Inf(-1)
+		}
+		for i := lo; i < hi; i++ {
+			row := w.xd[i*w.stride : i*w.stride+p]
+			ii := i - lo
+			for j, v := range row {
+				if v-v != 0 {
+					if st.badRow < 0 {
+						st.badRow, st.badCol = i, j
+					}
+				} else {
+					if v < st.min[j] {
+						st.min[j] = v
+					}
+					if v > st.max[j] {
+						st.max[j] = v
+					}
+				}
+				d := v - cen[j]
+				st.sum[j] += d
+				a[j*mr+ii] = d * pre[j]
+			}
+			if intercept && row[0] != 1 {
+				st.badOne = true
+			}
+			v := w.y[i]
+			if v-v != 0 {
+				if st.badRow < 0 {
+					st.badRow, st.badCol = i, p
+				}
+			} else {
+				if v < st.min[p] {
+					st.min[p] = v
+				}
+				if v > st.max[p] {
+					st.max[p] = v
+				}
+			}
+			st.sum[p] += v - cen[p]
+			a[p*mr+ii] = v * pre[p]
+		}
+		if st.badRow < 0 {
+			houseQR(a, mr, p, k, w.taus[c*p:(c+1)*p])
+		}
+		for j := 0; j < k; j++ {
+			top := j + 1
+			if top > p {
+				top = p
+			}
+			for i := 0; i < top; i++ {
+				w.S[j*sm+c*p+i] = a[j*mr+i]
+			}
+			for i := top; i < p; i++ {
+				w.S[j*sm+c*p+i] = 0
+			}
+		}
+		stats[c] = st
+	})
+	return stats
+}
+
+func allFinite(v []float64) bool {
+	for _, x := range v {
+		if x-x != 0 {
+			return false
+		}
+	}
+	return true
+}
+
+// refine returns the least-squares coefficients, refined on the augmented
+// system [I X; X' 0][r; b] = [y; 0] (Björck 1967) from the consistent
+// start r = y - X b0, with y - r - Xb and X'r accumulated in extended
+// precision. The factors are those of the scaled design.
+func (w *work) refine(cond float64) []float64 {
+	n, p, k := w.n, w.p, w.k
+	ch, sc, R := w.ch, &w.sc, w.R
+	sm := ch.nc * p
+	xd, stride, y := w.xd, w.stride, w.y
+
+	c0 := make([]float64, p)
+	for i := 0; i < p; i++ {
+		c0[i] = w.S[p*sm+i] / w.pre[p]
+	}
+	solveUpper(R, p, c0)
+	b := make([]float64, p)
+	sc.fromW(b, c0)
+	cvec := c0
+
+	w.r = make([]float64, n)
+	r := w.r
+	s := make([]float64, sm)
+	gpart := make([]float64, 2*ch.nc*p)
+	dc := make([]float64, p)
+	db := make([]float64, p)
+	h := make([]float64, p)
+	const eps = 0x1p-52
+	// Contraction of the augmented refinement, about c·κ·eps.
+	rho := 16 * float64(p) * cond * eps
+	prev := math.Inf(1)
+	for it := 0; it < maxRefine; it++ {
+		bb := b
+		ch.run(func(c int) {
+			lo, hi := ch.bounds(c)
+			mr := hi - lo
+			a := w.blocks[lo*k : hi*k]
+			tau := w.taus[c*p : (c+1)*p]
+			z := a[p*mr : k*mr]
+			if it > 0 {
+				copy(z[:p], s[c*p:(c+1)*p])
+				applyQ(a, mr, p, tau, z)
+				for i := range z {
+					r[lo+i] += z[i]
+				}
+			}
+			gs := gpart[2*c*p : (2*c+1)*p]
+			gc := gpart[(2*c+1)*p : (2*c+2)*p]
+			for j := range gs {
+				gs[j], gc[j] = 0, 0
+			}
+			for i := lo; i < hi; i++ {
+				row := xd[i*stride : i*stride+p]
+				var ri, fi float64
+				if it == 0 {
+					// Consistent start: r = y - X b0 rounded, f the rest.
+					s1, c1 := twoSum(y[i], 0)
+					for j, v := range row {
+						q := -v * bb[j]
+						qe := math.FMA(-v, bb[j], -q)
+						var se float64
+						s1, se = twoSum(s1, q)
+						c1 += se + qe
+					}
+					ri = s1 + c1
+					fi = (s1 - ri) + c1
+					r[i] = ri
+				} else {
+					ri = r[i]
+					fi = residual2(y[i], ri, row, bb)
+				}
+				z[i-lo] = fi
+				for j, v := range row {
+					q := v * ri
+					qe := math.FMA(v, ri, -q)
+					var se float64
+					gs[j], se = twoSum(gs[j], q)
+					gc[j] += se + qe
+				}
+			}
+			applyQT(a, mr, p, tau, z)
+			copy(s[c*p:(c+1)*p], z[:p])
+		})
+		applyQT(w.S, sm, p, w.tauS, s)
+		// g = X'r, gW = T^-T g, h = -R^-T gW.
+		g := make([]dd, p)
+		for c := 0; c < ch.nc; c++ {
+			for j := 0; j < p; j++ {
+				g[j] = g[j].add(gpart[2*c*p+j]).add(gpart[(2*c+1)*p+j])
+			}
+		}
+		for j := 0; j < p; j++ {
+			v := g[j]
+			if sc.intercept && j > 0 {
+				v = v.addDD(g[0].mulDD(dd{-sc.mean[j], 0}))
+			}
+			h[j] = -v.float() / sc.scale[j]
+		}
+		solveUpperT(R, p, h)
+		for j := 0; j < p; j++ {
+			dc[j] = s[j] - h[j]
+		}
+		solveUpper(R, p, dc)
+		sc.fromW(db, dc)
+		cmax := 0.0
+		for j := 0; j < p; j++ {
+			b[j] += db[j]
+			cvec[j] += dc[j]
+			cmax = math.Max(cmax, math.Abs(cvec[j]))
+		}
+		// Componentwise relative size of the correction, and the
+		// normwise size over the smallest component.
+		nd, n2, cmin := 0.0, 0.0, math.Inf(1)
+		for j := 0; j < p; j++ {
+			den := math.Max(math.Abs(cvec[j]), eps*cmax)
+			nd = math.Max(nd, math.Abs(dc[j])/den)
+			n2 += dc[j] * dc[j]
+			cmin = math.Min(cmin, den)
+		}
+		if debugRefine {
+			fmt.Println("refine", it, nd, rho*math.Sqrt(n2)/cmin, b)
+		}
+		if nd <= eps || math.IsNaN(nd) {
+			break
+		}
+		if it > 0 {
+			ratio := nd / prev
+			if ratio > 0.5 {
+				break // no further progress
+			}
+			rho = math.Max(rho, ratio)
+		}
+		// Stop when the next correction is predicted below rounding level.
+		if rho*math.Sqrt(n2)/cmin <= eps/2 {
+			break
+		}
+		prev = nd
+		copy(s[:p], h)
+		applyQ(w.S, sm, p, w.tauS, s)
+	}
+	w.blocks, w.S = nil, nil
+	return b
+}
+
 // finish computes the inverse factors, coefficient table and summary
 // statistics from the refined coefficients b.
-func (f *Fit) finish(b []float64, names []string) {
+func (f *Fit) finish(b []float64, names []string, ssCentred []float64) {
 	p, n := f.P, f.N
 	ri := invertUpper(f.r, p)
 	f.ri = ri
@@ -568,6 +702,12 @@ func (f *Fit) finish(b []float64, names []string) {
 			g := 0.0
 			for l := j; l < p; l++ {
 				g += ri[j*p+l] * ri[j*p+l]
+			}
+			if f.Model.Intercept {
+				// W is centred on a provisional centre; rescale to the
+				// exactly centred column: VIF = C_jj Σ(x - x̄)² with
+				// C_jj = G_jj/scale_j².
+				g *= ssCentred[j] / (f.sc.scale[j] * f.sc.scale[j])
 			}
 			f.VIF[names[j]] = g
 		}
@@ -718,8 +858,6 @@ func invertUpper(R []float64, p int) []float64 {
 }
 
 var debugRefine = false
-
-func k0(p int) int { return p + 1 }
 
 // pow2Inv returns the power of two nearest 1/v from below in magnitude
 // (1 for v = 0 or non-finite v), so that v*pow2Inv(v) lies in [0.5, 1).

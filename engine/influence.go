@@ -56,6 +56,7 @@ func Diagnose(f *Fit) *Influence {
 	cands := make([][]cand, ch.nc)
 	ch.run(func(c int) {
 		lo, hi := ch.bounds(c)
+		d := d.clone()
 		w := make([]float64, p)
 		v := make([]float64, p)
 		for i := lo; i < hi; i++ {
@@ -100,7 +101,10 @@ type diag struct {
 	p      int
 	xd     []float64
 	stride int
-	kj     []float64 // 1/sqrt(C_jj)
+	kj       []float64 // 1/sqrt(C_jj)
+	invScale []float64
+	xs       []float64 // scratch (one diag per goroutine)
+	tail     tTail
 	s2, s  float64
 	df1    float64
 	nf, fp float64
@@ -112,6 +116,12 @@ func newDiag(f *Fit) *diag {
 	d := &diag{f: f, p: p, xd: raw.Data, stride: raw.Stride, kj: make([]float64, p),
 		s2: f.RSS / float64(f.N-p), df1: float64(f.N - p - 1), nf: float64(f.N), fp: float64(p)}
 	d.s = math.Sqrt(d.s2)
+	d.invScale = make([]float64, p)
+	for j := range d.invScale {
+		d.invScale[j] = 1 / f.sc.scale[j]
+	}
+	d.xs = make([]float64, p)
+	d.tail = newTTail(d.df1)
 	for j := 0; j < p; j++ {
 		c := 0.0
 		for l := 0; l < p; l++ {
@@ -122,8 +132,9 @@ func newDiag(f *Fit) *diag {
 	return d
 }
 
-// row returns h_i and leaves q_i = R^-T w_i in w... then overwritten:
-// on return w holds R^-1 q_i and v = (X'X)^-1 x_i.
+// row returns h_i and sets v = (X'X)^-1 x_i; w is scratch. With
+// w = T^-T x_i (the scaled, centred row), q = R^-T w gives h = |q|², and
+// v = M q with M = T^-1 R^-1 precomputed.
 func (d *diag) row(w, v []float64, i int) float64 {
 	p := d.p
 	d.q(w, i)
@@ -131,19 +142,46 @@ func (d *diag) row(w, v []float64, i int) float64 {
 	for _, q := range w {
 		h += q * q
 	}
-	solveUpper(d.f.r, p, w)
-	d.f.sc.fromW(v, w)
+	m := d.f.m
+	for j := 0; j < p; j++ {
+		mj := m[j*p : (j+1)*p]
+		s := 0.0
+		for l, q := range w {
+			s += mj[l] * q
+		}
+		v[j] = s
+	}
 	if h > 1 {
 		h = 1
 	}
 	return h
 }
 
-// q sets w = R^-T T^-T x_i.
+// q sets w = R^-T T^-T x_i, using R^-1 precomputed (R^-T is lower
+// triangular: q_l = Σ_{j<=l} Rinv_jl w_j).
 func (d *diag) q(w []float64, i int) {
-	row := d.xd[i*d.stride : i*d.stride+d.p]
-	d.f.sc.toW(w, row)
-	solveUpperT(d.f.r, d.p, w)
+	p := d.p
+	row := d.xd[i*d.stride : i*d.stride+p]
+	sc := &d.f.sc
+	x := d.xs[:p]
+	if sc.intercept {
+		x[0] = row[0] * d.invScale[0]
+		for j := 1; j < p; j++ {
+			x[j] = (row[j] - sc.mean[j]*row[0]) * d.invScale[j]
+		}
+	} else {
+		for j := 0; j < p; j++ {
+			x[j] = row[j] * d.invScale[j]
+		}
+	}
+	ri := d.f.ri
+	for l := 0; l < p; l++ {
+		s := 0.0
+		for j := 0; j <= l; j++ {
+			s += ri[j*p+l] * x[j]
+		}
+		w[l] = s
+	}
 }
 
 // deleted returns RSS - e²/(1-h) evaluated in double-double (ok false when
@@ -231,8 +269,28 @@ func (d *diag) fill(o *Obs, e, h float64, v []float64, del float64) {
 	for j := range o.DFBETAS {
 		o.DFBETAS[j] = v[j] * scale * d.kj[j]
 	}
-	o.COVRATIO = math.Pow(s2i/d.s2, d.fp) / om
-	pv := TTail2(ti, d.df1)
+	o.COVRATIO = powInt(s2i/d.s2, d.p) / om
+	pv := d.tail.p2(ti)
 	o.OutlierP = pv
 	o.BonferroniP = math.Min(1, d.nf*pv)
+}
+
+// powInt returns x^k for k >= 0 by repeated squaring.
+func powInt(x float64, k int) float64 {
+	r := 1.0
+	for k > 0 {
+		if k&1 == 1 {
+			r *= x
+		}
+		x *= x
+		k >>= 1
+	}
+	return r
+}
+
+// clone returns a copy with its own scratch space, for another goroutine.
+func (d *diag) clone() *diag {
+	c := *d
+	c.xs = make([]float64, d.p)
+	return &c
 }

@@ -137,87 +137,121 @@ func CutoffLimits(c Cutoffs, n, p int) Limits {
 func Judge(inf *Influence, c Cutoffs) []Verdict {
 	f := inf.Fit
 	n, p := f.N, f.P
-	lim := CutoffLimits(c, n, p)
-	names := f.Model.Names()
-	alpha := c.Alpha
-	out := make([]Verdict, len(inf.Rows))
-	grubbsRow := -1
-	var gr GrubbsResult
+	j := judge{lim: CutoffLimits(c, n, p), names: f.Model.Names(), c: c, grubbsRow: -1}
 	if c.Test == GrubbsTest {
-		gr = Grubbs(f.Residuals, alpha)
-		if gr.Outlier {
-			grubbsRow = gr.Index
+		j.gr = Grubbs(f.Residuals, c.Alpha)
+		if j.gr.Outlier {
+			j.grubbsRow = j.gr.Index
 		}
 	}
-	var all []Flag
-	start := make([]int, len(inf.Rows)+1)
-	for i := range inf.Rows {
-		o := &inf.Rows[i]
-		start[i] = len(all)
-		v := &out[i]
-		abs, size := false, false
-		add := func(meas, fam, term string, val, cut float64) {
-			all = append(all, Flag{Measure: meas, Family: fam, Term: term, Value: val, Cutoff: cut})
-			switch fam {
-			case FamilyAbsolute:
-				abs = true
-			case FamilySizeAdjusted:
-				size = true
-			}
+	rows := inf.Rows
+	out := make([]Verdict, len(rows))
+	ch := newChunking(len(rows), p)
+	counts := make([]uint16, len(rows))
+	total := make([]int, ch.nc)
+	ch.run(func(k int) {
+		lo, hi := ch.bounds(k)
+		buf := make([]Flag, 0, 2*p+9)
+		t := 0
+		for i := lo; i < hi; i++ {
+			buf = j.row(buf[:0], i, &rows[i], &out[i])
+			counts[i] = uint16(len(buf))
+			t += len(buf)
 		}
-		if o.Cook > lim.CookAbsolute {
-			add(MeasureCook, FamilyAbsolute, "", o.Cook, lim.CookAbsolute)
-		}
-		if math.Abs(o.DFFITS) > lim.DFFITSAbsolute {
-			add(MeasureDFFITS, FamilyAbsolute, "", o.DFFITS, lim.DFFITSAbsolute)
-		}
-		for j, d := range o.DFBETAS {
-			if math.Abs(d) > lim.DFBETASAbsolute {
-				add(MeasureDFBETAS, FamilyAbsolute, names[j], d, lim.DFBETASAbsolute)
-			}
-		}
-		if o.Leverage > lim.Leverage {
-			add(MeasureLeverage, FamilySizeAdjusted, "", o.Leverage, lim.Leverage)
-		}
-		if o.Cook > lim.CookSize {
-			add(MeasureCook, FamilySizeAdjusted, "", o.Cook, lim.CookSize)
-		}
-		if math.Abs(o.DFFITS) > lim.DFFITSSize {
-			add(MeasureDFFITS, FamilySizeAdjusted, "", o.DFFITS, lim.DFFITSSize)
-		}
-		for j, d := range o.DFBETAS {
-			if math.Abs(d) > lim.DFBETASSize {
-				add(MeasureDFBETAS, FamilySizeAdjusted, names[j], d, lim.DFBETASSize)
-			}
-		}
-		if math.Abs(o.COVRATIO-1) > lim.COVRATIO {
-			add(MeasureCOVRATIO, FamilySizeAdjusted, "", o.COVRATIO, lim.COVRATIO)
-		}
-		switch c.Test {
-		case BonferroniTest:
-			if o.BonferroniP < alpha {
-				add(MeasureBonferroni, FamilyTest, "", o.BonferroniP, alpha)
-				v.Outlier = true
-			}
-		case GrubbsTest:
-			if i == grubbsRow {
-				add(MeasureGrubbs, FamilyTest, "", gr.G, gr.Critical)
-				v.Outlier = true
-			}
-		}
-		if c.Family == SizeAdjusted {
-			abs, size = size, abs
-		}
-		v.Influential = abs
-		v.Notable = !abs && size
+		total[k] = t
+	})
+	off := make([]int, ch.nc+1)
+	for k := range total {
+		off[k+1] = off[k] + total[k]
 	}
-	start[len(inf.Rows)] = len(all)
-	for i := range out {
-		if start[i+1] > start[i] {
-			out[i].Flags = all[start[i]:start[i+1]:start[i+1]]
-		}
+	if off[ch.nc] == 0 {
+		return out
 	}
+	all := make([]Flag, off[ch.nc])
+	ch.run(func(k int) {
+		lo, hi := ch.bounds(k)
+		at := off[k]
+		var v Verdict
+		for i := lo; i < hi; i++ {
+			cnt := int(counts[i])
+			if cnt == 0 {
+				continue
+			}
+			fl := j.row(all[at:at:at+cnt], i, &rows[i], &v)
+			out[i].Flags = fl[:cnt:cnt]
+			at += cnt
+		}
+	})
 	return out
+}
+
+type judge struct {
+	lim       Limits
+	names     []string
+	c         Cutoffs
+	gr        GrubbsResult
+	grubbsRow int
+}
+
+// row appends the flags of one row to dst and sets the verdict's booleans.
+func (j *judge) row(dst []Flag, i int, o *Obs, v *Verdict) []Flag {
+	lim := &j.lim
+	abs, size := false, false
+	if o.Cook > lim.CookAbsolute {
+		dst = append(dst, Flag{MeasureCook, FamilyAbsolute, "", o.Cook, lim.CookAbsolute})
+		abs = true
+	}
+	if math.Abs(o.DFFITS) > lim.DFFITSAbsolute {
+		dst = append(dst, Flag{MeasureDFFITS, FamilyAbsolute, "", o.DFFITS, lim.DFFITSAbsolute})
+		abs = true
+	}
+	for k, d := range o.DFBETAS {
+		if math.Abs(d) > lim.DFBETASAbsolute {
+			dst = append(dst, Flag{MeasureDFBETAS, FamilyAbsolute, j.names[k], d, lim.DFBETASAbsolute})
+			abs = true
+		}
+	}
+	if o.Leverage > lim.Leverage {
+		dst = append(dst, Flag{MeasureLeverage, FamilySizeAdjusted, "", o.Leverage, lim.Leverage})
+		size = true
+	}
+	if o.Cook > lim.CookSize {
+		dst = append(dst, Flag{MeasureCook, FamilySizeAdjusted, "", o.Cook, lim.CookSize})
+		size = true
+	}
+	if math.Abs(o.DFFITS) > lim.DFFITSSize {
+		dst = append(dst, Flag{MeasureDFFITS, FamilySizeAdjusted, "", o.DFFITS, lim.DFFITSSize})
+		size = true
+	}
+	for k, d := range o.DFBETAS {
+		if math.Abs(d) > lim.DFBETASSize {
+			dst = append(dst, Flag{MeasureDFBETAS, FamilySizeAdjusted, j.names[k], d, lim.DFBETASSize})
+			size = true
+		}
+	}
+	if math.Abs(o.COVRATIO-1) > lim.COVRATIO {
+		dst = append(dst, Flag{MeasureCOVRATIO, FamilySizeAdjusted, "", o.COVRATIO, lim.COVRATIO})
+		size = true
+	}
+	v.Outlier = false
+	switch j.c.Test {
+	case BonferroniTest:
+		if o.BonferroniP < j.c.Alpha {
+			dst = append(dst, Flag{MeasureBonferroni, FamilyTest, "", o.BonferroniP, j.c.Alpha})
+			v.Outlier = true
+		}
+	case GrubbsTest:
+		if i == j.grubbsRow {
+			dst = append(dst, Flag{MeasureGrubbs, FamilyTest, "", j.gr.G, j.gr.Critical})
+			v.Outlier = true
+		}
+	}
+	if j.c.Family == SizeAdjusted {
+		abs, size = size, abs
+	}
+	v.Influential = abs
+	v.Notable = !abs && size
+	return dst
 }
 
 // Flagged returns the indices of the verdicts whose Word is one of words
