@@ -97,17 +97,17 @@ func Diagnose(f *Fit) *Influence {
 
 // diag holds what every row's diagnostics share.
 type diag struct {
-	f      *Fit
-	p      int
-	xd     []float64
-	stride int
+	f        *Fit
+	p        int
+	xd       []float64
+	stride   int
 	kj       []float64 // 1/sqrt(C_jj)
 	invScale []float64
 	xs       []float64 // scratch (one diag per goroutine)
 	tail     tTail
-	s2, s  float64
-	df1    float64
-	nf, fp float64
+	s2, s    float64
+	df1      float64
+	nf, fp   float64
 }
 
 func newDiag(f *Fit) *diag {
