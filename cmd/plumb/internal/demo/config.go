@@ -42,7 +42,7 @@ type Checkpoint struct {
 // Checkpoints are the sensor type's specification limits, 10 degC and
 // 400 degC, at the thermo-voltages the sensors give there.
 var Checkpoints = []Checkpoint{
-	{Name: "lower spec limit 10 degC", EmfMV: 0.38, Tolerance: 0.15},
+	{Name: "lower spec limit 10 degC", EmfMV: 0.38, Tolerance: 0.25},
 	{Name: "upper spec limit 400 degC", EmfMV: 16.57, Tolerance: 0.5},
 }
 
@@ -128,12 +128,16 @@ func ConfigText(listen string) string {
 	return b.String()
 }
 
-// Config writes the demo configuration to dir/plumb.toml and returns its
-// path. dir must exist.
+// Config writes the demo configuration to dir/plumb.toml, creates the
+// watched folder dir/incoming/bench-b (so the daemon can watch it from its
+// start) and returns the config's path. dir must exist.
 func Config(dir, listen string) (string, error) {
 	path := filepath.Join(dir, ConfigName)
 	if err := os.WriteFile(path, []byte(ConfigText(listen)), 0o644); err != nil {
 		return "", fmt.Errorf("demo: writing the config: %w", err)
+	}
+	if err := os.MkdirAll(filepath.Join(dir, filepath.FromSlash(Folder)), 0o755); err != nil {
+		return "", fmt.Errorf("demo: creating the watched folder: %w", err)
 	}
 	return path, nil
 }

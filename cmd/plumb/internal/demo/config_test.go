@@ -1,6 +1,7 @@
 package demo
 
 import (
+	"os"
 	"path/filepath"
 	"testing"
 
@@ -16,6 +17,9 @@ func TestConfigLoads(t *testing.T) {
 	}
 	if path != filepath.Join(dir, "plumb.toml") {
 		t.Errorf("path %q", path)
+	}
+	if fi, err := os.Stat(filepath.Join(dir, "incoming", "bench-b")); err != nil || !fi.IsDir() {
+		t.Errorf("the watched folder was not created: %v", err)
 	}
 	c, err := config.Load(path)
 	if err != nil {

@@ -32,7 +32,7 @@
 //	               limit now rests on it (a fragile-fit alert), and plumb
 //	               suggests readings at the bottom of the region
 //	follow_up      readings at 1..10 degC, where the suggestion points; with
-//	               the third the fit is no longer fragile and the
+//	               the second the fit is no longer fragile and the
 //	               fragile-fit alert resolves (the suspect reading stays
 //	               suspect: plumb never drops or alters a measurement)
 //	drift          the bench voltmeter's offset creeps downward reading by
@@ -49,13 +49,16 @@
 //
 // # Use
 //
-//	path, err := demo.Config(dir, "127.0.0.1:8765") // writes dir/plumb.toml
+//	path, err := demo.Config(dir, "127.0.0.1:8765") // writes dir/plumb.toml, makes the folder
 //	// start the daemon on path, then:
 //	err = demo.Run(ctx, dir, 1, func(l demo.Line) { fmt.Println(l.File, l.Number, l.Text) })
 //
 // Run creates dir/incoming/bench-b/feed-2026-12.csv, writes the header and
 // then one reading every two seconds divided by speed, some of them in two
 // pieces (half a line, a pause, the rest) as a slow instrument would.
+//
+// daemon_integration_test.go (build tag integration) plays the scenario
+// into the real daemon and checks its alerts against Expected.
 //
 // All names, numbers and people in this package are invented.
 package demo

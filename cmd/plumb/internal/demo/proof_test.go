@@ -12,7 +12,8 @@ import (
 // computes it. The arrival verdict judges the row against the fit of every
 // row so far (the daemon's row-by-row update does not forget rows); the
 // refresh that follows fits the model's window (the last WindowRows rows)
-// and yields the influence table, the fragility and the drift measures.
+// and yields the influence table, the fragility and the drift measures
+// (on the window without its suspect rows).
 type arrival struct {
 	verdict engine.Verdict // of reading k, against all rows 0..k
 	full    engine.Obs     // its diagnostics in that fit
@@ -118,12 +119,25 @@ func replay(t testing.TB, sc []Reading, cps []Checkpoint) []arrival {
 		a.full = allInf.Rows[k]
 		a.n = k + 1
 		if k+1 >= BaselineRows {
-			for j, c := range f.Coef {
+			// The drift is judged on the window's fit without the rows
+			// the window judges suspect: a suspect reading has an alert
+			// of its own and should not raise a second one.
+			df := f
+			var kept []Reading
+			for i, v := range engine.Judge(inf, engine.DefaultCutoffs()) {
+				if v.Word() != "suspect" {
+					kept = append(kept, rows[i])
+				}
+			}
+			if len(kept) < len(rows) {
+				df = fitRows(t, m, kept)
+			}
+			for j, c := range df.Coef {
 				a.drift = append(a.drift, driftMeasure{name: c.Term, baseline: base.Coef[j].Estimate, current: c.Estimate, se: base.Coef[j].StdError})
 			}
 			for _, cp := range cps {
 				b, se := predictAt(t, base, cp.EmfMV)
-				cur, _ := predictAt(t, f, cp.EmfMV)
+				cur, _ := predictAt(t, df, cp.EmfMV)
 				a.drift = append(a.drift, driftMeasure{name: cp.Name, baseline: b, current: cur, se: se})
 			}
 		}

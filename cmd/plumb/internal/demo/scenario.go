@@ -166,13 +166,13 @@ var thePlan = plan{
 	midSetpoint:      150,
 	midShift:         -0.015,
 	edgeSetpoint:     10,
-	edgeShift:        0.04,
+	edgeShift:        0.06,
 	follow:           []float64{1, 5, 10, 2},
-	clearsAt:         2,
+	clearsAt:         1,
 	drift:            []float64{100, 150, 200, 250, 300, 350, 300, 250, 200, 150},
-	driftCount:       14,
+	driftCount:       21,
 	driftStep:        -0.0018,
-	driftAt:          13,
+	driftAt:          18,
 }
 
 // seed1 is the first word of every random stream of the package.

@@ -42,15 +42,15 @@ func TestScenarioShape(t *testing.T) {
 			t.Errorf("reading %d: %v, %v not at the written precision", i, r.RefTempC, r.EmfMV)
 		}
 		// Every reading lies in the bench's range and near the curve
-		// (the planted shifts are a few tens of microvolts).
+		// (the planted shifts are at most 60 microvolts).
 		if r.RefTempC < 0 || r.RefTempC > 500 || r.EmfMV < RegionLow-0.1 || r.EmfMV > RegionHigh {
 			t.Errorf("reading %d out of range: %v degC, %v mV", i, r.RefTempC, r.EmfMV)
 		}
-		if d := math.Abs(trueEMF(r.RefTempC) - r.EmfMV); d > 0.05 {
+		if d := math.Abs(trueEMF(r.RefTempC) - r.EmfMV); d > 0.08 {
 			t.Errorf("reading %d: %v mV is %v mV off the curve", i, r.EmfMV, d)
 		}
 	}
-	want := map[Phase]int{PhaseOrdinary: 30, PhaseLeverage: 1, PhaseMidOutlier: 1, PhaseEdgeOutlier: 1, PhaseFollowUp: 4, PhaseDrift: 14}
+	want := map[Phase]int{PhaseOrdinary: 30, PhaseLeverage: 1, PhaseMidOutlier: 1, PhaseEdgeOutlier: 1, PhaseFollowUp: 4, PhaseDrift: 21}
 	if !reflect.DeepEqual(count, want) {
 		t.Errorf("phases %v, want %v", count, want)
 	}
@@ -101,7 +101,7 @@ func TestTrueCurve(t *testing.T) {
 
 func TestExpected(t *testing.T) {
 	o := Expected()
-	want := Outcomes{Suspect: []int{34}, OutlierOnly: []int{33}, Leverage: 32, FragileFrom: 34, FragileUntil: 37, Drift: 52, Lines: 52}
+	want := Outcomes{Suspect: []int{34}, OutlierOnly: []int{33}, Leverage: 32, FragileFrom: 34, FragileUntil: 36, Drift: 57, Lines: 59}
 	if !reflect.DeepEqual(o, want) {
 		t.Errorf("Expected() = %+v, want %+v", o, want)
 	}
@@ -123,8 +123,8 @@ func TestPlantsAgainstR(t *testing.T) {
 	}{
 		{32, 31, 0.6520628823, -0.3571476128, 0.08224516083, -0.4889248492, 1, 0.8082103429},
 		{33, 32, 0.04877721192, 3.985750521, 0.1794335475, 0.9025628939, 0.01397012374, 0.8075254275},
-		{34, 33, 0.2310731432, -7.201583205, 1.927398996, -3.947846005, 2.074162359e-06, 0.8068868749},
-		{35, 34, 0.2175249035, 1.012910394, 0.09499381776, 0.5340602539, 1, 0.8062901316},
+		{34, 33, 0.2294086748, -11.00881319, 2.402228052, -6.006664324, 2.35566332e-10, 0.8068868749},
+		{35, 34, 0.2179034469, 1.172737446, 0.1261995145, 0.619017115, 1, 0.8062901316},
 	}
 	ar := replay(t, Scenario(), Checkpoints)
 	near := func(what string, line int, got, want float64) {
