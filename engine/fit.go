@@ -119,21 +119,31 @@ func (s *scaling) fromW(b, c []float64) {
 // Refit fits y = Xb + e by least squares. X is the design built by
 // m.Design (column 0 all ones when m.Intercept). The method:
 //
-//   - centre each non-intercept column (with an intercept) and scale every
-//     column to unit length: W = X T^-1;
-//   - Householder QR of W over chunks of rows, the chunk R factors stacked
-//     and factored again (TSQR), never the normal equations;
-//   - iterative refinement of the augmented system [I X; X' 0][r; b] =
-//     [y; 0] (Björck 1967), with the residuals y - r - Xb and X'r
-//     accumulated in double-double arithmetic against the original X and
-//     the corrections solved with the QR factors.
+//   - one pass over the data checks every value and, per chunk of rows,
+//     centres each non-intercept column on a provisional centre (the mean
+//     of the first chunk; exact centring is not needed because the
+//     refinement works against the original X), prescales by powers of
+//     two, and computes a Householder QR of the chunk;
+//   - the stacked chunk R factors are factored again (TSQR); the columns
+//     of the resulting R are scaled to unit length, W = X T^-1;
+//   - never the normal equations: the solution is refined on the augmented
+//     system [I X; X' 0][r; b] = [y; 0] (Björck 1967) from the consistent
+//     start r = y - X b0, with y - r - Xb and X'r accumulated in extended
+//     precision (compensated products and sums) against the original X,
+//     and the corrections solved with the QR factors, until the predicted
+//     next correction is below rounding level.
+//
+// Large problems are split over up to GOMAXPROCS goroutines inside the
+// call; results do not depend on their number.
 //
 // Errors: ErrTooFewRows when n <= p; *DataError wrapping ErrNonFinite;
 // ErrZeroResponse; *ColumnError wrapping ErrConstantColumn for a constant
-// term (or response, with an intercept); *CollinearError; and, when the
-// scaled design has condition number above 1e12, an error wrapping both
-// ErrIllConditioned and the mat.Condition value. A shape mismatch between
-// m, X and y is a caller bug and panics.
+// term (or response, with an intercept); *CollinearError when a scaled
+// column lies within 1e-13 of the span of the columns before it; and, when
+// the scaled design has condition number above 1e12, an error wrapping
+// both ErrIllConditioned and the mat.Condition value. A shape mismatch
+// between m, X and y, or an intercept column that is not all ones, is a
+// caller bug and panics.
 func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	n, p := X.Dims()
 	if p != m.P() {

@@ -50,16 +50,42 @@ func houseQR(a []float64, m, p, k int, tau []float64) {
 			ac := a[c*m : (c+1)*m]
 			rest := ac[j+1:]
 			rest = rest[:len(v)]
-			w := ac[j]
-			for i, vi := range v {
-				w += vi * rest[i]
-			}
-			w *= t
+			w := (ac[j] + dot(v, rest)) * t
 			ac[j] -= w
-			for i, vi := range v {
-				rest[i] -= w * vi
-			}
+			axpy(-w, v, rest)
 		}
+	}
+}
+
+// dot returns Σ x_i y_i (len(y) >= len(x)), with four partial sums.
+func dot(x, y []float64) float64 {
+	y = y[:len(x)]
+	var s0, s1, s2, s3 float64
+	i := 0
+	for ; i+4 <= len(x); i += 4 {
+		s0 += x[i] * y[i]
+		s1 += x[i+1] * y[i+1]
+		s2 += x[i+2] * y[i+2]
+		s3 += x[i+3] * y[i+3]
+	}
+	for ; i < len(x); i++ {
+		s0 += x[i] * y[i]
+	}
+	return (s0 + s1) + (s2 + s3)
+}
+
+// axpy sets y += a x (len(y) >= len(x)).
+func axpy(a float64, x, y []float64) {
+	y = y[:len(x)]
+	i := 0
+	for ; i+4 <= len(x); i += 4 {
+		y[i] += a * x[i]
+		y[i+1] += a * x[i+1]
+		y[i+2] += a * x[i+2]
+		y[i+3] += a * x[i+3]
+	}
+	for ; i < len(x); i++ {
+		y[i] += a * x[i]
 	}
 }
 
@@ -84,15 +110,9 @@ func applyH(v []float64, tau float64, x []float64) {
 		return
 	}
 	rest := x[1 : len(v)+1]
-	w := x[0]
-	for i, vi := range v {
-		w += vi * rest[i]
-	}
-	w *= tau
+	w := (x[0] + dot(v, rest)) * tau
 	x[0] -= w
-	for i, vi := range v {
-		rest[i] -= w * vi
-	}
+	axpy(-w, v, rest)
 }
 
 // chunking splits n rows into nc chunks of at least max(chunkRows, p) rows
