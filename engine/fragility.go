@@ -7,7 +7,12 @@ package engine
 //
 // A Conclusions value lists what is relied on. Unless it is switched off,
 // that is the sign of each non-intercept coefficient and whether it is
-// significant at Alpha (two-sided t test). A model may add bands (a
+// significant at Alpha (two-sided t test). A coefficient that a removal
+// takes to zero (within 1e-9 of its full-data standard error, that is to
+// rounding) has lost its sign; one that is zero with all rows has no sign
+// to lose, and its sign is not a conclusion. A band or checkpoint breaks
+// when the change exceeds its width by more than 1e-9 relative (a change
+// equal to the width, to rounding, does not count). A model may add bands (a
 // coefficient must stay within K standard errors of its full-data value)
 // and checkpoints (the prediction at a named point must stay within a
 // tolerance, in the response's units).
@@ -25,9 +30,12 @@ package engine
 // so each subset costs O(m p² + m³) after C x_i is known, not a refit.
 // A subset whose removal leaves X_(S) singular (I - H_SS has a pivot below
 // 1e-8 in its Cholesky factor, that is det(X_(S)'X_(S))/det(X'X) =
-// det(I - H_SS) is numerically zero) or leaves n - m <= p rows is
-// skipped: the reduced fit does not exist, so it cannot state a
-// conclusion. Skipped subsets are counted in FragilityResult.Skipped.
+// det(I - H_SS) is numerically zero), leaves n - m <= p rows, or leaves a
+// response that Refit refuses (constant with an intercept, or zero in
+// every row) is skipped: the reduced fit does not exist, so it cannot
+// state a conclusion. Skipped subsets are counted in
+// FragilityResult.Skipped. (Refit also refuses a design whose scaled
+// condition number exceeds 1e12; the downdate does not test that.)
 //
 // # Search
 //
@@ -224,7 +232,7 @@ func Fragility(f *Fit, inf *Influence, c Conclusions, opt FragilityOptions) (Fra
 	if err != nil {
 		return FragilityResult{}, err
 	}
-	s := fgBaseSearch(f)
+	s := fgBaseSearch(f, opt.MaxRemoved)
 	var ranked []int
 	if fgNeedsRanking(f.N, opt) {
 		if inf == nil {
@@ -235,7 +243,7 @@ func Fragility(f *Fit, inf *Influence, c Conclusions, opt FragilityOptions) (Fra
 	return s.searchRanked(checks, ranked, opt), nil
 }
 
-// needsRanking reports whether some size cannot be searched exhaustively.
+// fgNeedsRanking reports whether some size cannot be searched exhaustively.
 func fgNeedsRanking(n int, opt FragilityOptions) bool {
 	left := opt.Budget
 	for m := 1; m <= opt.MaxRemoved; m++ {
@@ -248,7 +256,7 @@ func fgNeedsRanking(n int, opt FragilityOptions) bool {
 	return false
 }
 
-// checkKind enumerates conclusion kinds in reporting order.
+// fragKind enumerates conclusion kinds in reporting order.
 type fragKind int
 
 const (
@@ -260,7 +268,7 @@ const (
 
 var fragKindNames = [...]string{"sign", "significance", "band", "checkpoint"}
 
-// check is one conclusion, compiled into absolute terms against the
+// fragCheck is one conclusion, compiled into absolute terms against the
 // full-data fit.
 type fragCheck struct {
 	kind  fragKind
@@ -272,7 +280,7 @@ type fragCheck struct {
 	alpha float64
 }
 
-// compileConclusions validates c against f and lists the checks.
+// fgCompile validates c against f and lists the checks.
 func fgCompile(f *Fit, c Conclusions) ([]fragCheck, error) {
 	alpha := c.Alpha
 	if alpha == 0 {
@@ -314,7 +322,11 @@ func fgCompile(f *Fit, c Conclusions) ([]fragCheck, error) {
 	var out []fragCheck
 	if c.Signs {
 		for _, j := range sel {
-			out = append(out, fragCheck{kind: fgKindSign, j: j, term: names[j], text: "sign of " + names[j]})
+			zero := fgZeroSE * f.Coef[j].StdError
+			if math.Abs(f.Coef[j].Estimate) <= zero {
+				continue // zero with all rows: no sign to lose
+			}
+			out = append(out, fragCheck{kind: fgKindSign, j: j, term: names[j], text: "sign of " + names[j], half: zero})
 		}
 	}
 	if c.Significance {
@@ -364,10 +376,20 @@ func fgCompile(f *Fit, c Conclusions) ([]fragCheck, error) {
 	return out, nil
 }
 
-// fmtNum formats a user-given number in its shortest exact form.
+// fgZeroSE: a coefficient within fgZeroSE full-data standard errors of
+// zero after a removal is zero to working precision, and has lost its
+// sign.
+const fgZeroSE = 1e-9
+
+// fgTie: a band or checkpoint is broken when the change exceeds its
+// width by more than this relative amount, so that a change equal to the
+// width (to rounding) does not count.
+const fgTie = 1e-9
+
+// fgNum formats a user-given number in its shortest exact form.
 func fgNum(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 
-// searcher holds a fit in the form the downdate needs. It may describe
+// fragSearch holds a fit in the form the downdate needs. It may describe
 // the recorded fit or the fit after hypothetical readings were added on
 // the fitted surface (see Suggest): removable rows are always the
 // recorded rows 0..n-1.
@@ -382,9 +404,68 @@ type fragSearch struct {
 
 	// Baseline the conclusions are held to (the recorded fit's values).
 	base *Fit
+
+	// traps are sets of rows (0-based, ascending) whose removal, with any
+	// other rows, leaves a response that Refit refuses: constant (with an
+	// intercept) or zero in every row; trapY is the value left.
+	traps [][]int
+	trapY []float64
 }
 
-func fgBaseSearch(f *Fit) *fragSearch {
+// fgTraps finds the sets of at most maxM rows whose removal leaves the
+// response constant (with an intercept) or all zero. With n > 2 maxM
+// only a value held by more than half of the rows can be left, found by
+// a majority vote in O(n).
+func fgTraps(y []float64, intercept bool, maxM int) ([][]int, []float64) {
+	n := len(y)
+	var cands []float64
+	if n <= 2*maxM+1 {
+		seen := map[float64]bool{}
+		for _, v := range y {
+			if !seen[v] {
+				seen[v] = true
+				cands = append(cands, v)
+			}
+		}
+	} else {
+		var cand float64
+		count := 0
+		for _, v := range y {
+			switch {
+			case count == 0:
+				cand, count = v, 1
+			case v == cand:
+				count++
+			default:
+				count--
+			}
+		}
+		cands = []float64{cand}
+	}
+	var traps [][]int
+	var vals []float64
+	for _, v := range cands {
+		if !intercept && v != 0 {
+			continue
+		}
+		var rows []int
+		for i, yi := range y {
+			if yi != v {
+				rows = append(rows, i)
+				if len(rows) > maxM {
+					break
+				}
+			}
+		}
+		if len(rows) <= maxM {
+			traps = append(traps, rows)
+			vals = append(vals, v)
+		}
+	}
+	return traps, vals
+}
+
+func fgBaseSearch(f *Fit, maxM int) *fragSearch {
 	X := f.X()
 	p := f.P
 	c := make([]float64, p*p)
@@ -398,16 +479,18 @@ func fgBaseSearch(f *Fit) *fragSearch {
 	for j := range b {
 		b[j] = f.Coef[j].Estimate
 	}
-	return &fragSearch{
+	fs := &fragSearch{
 		n: f.N, p: p,
 		rows: X.RawRowView,
 		e:    f.Residuals,
 		c:    c, b: b, rss: f.RSS, df: f.N - p,
 		base: f,
 	}
+	fs.traps, fs.trapY = fgTraps(f.Y(), f.Model.Intercept, maxM)
+	return fs
 }
 
-// evaluator evaluates removal sets against compiled checks. It owns its
+// fragEval evaluates removal sets against compiled checks. It owns its
 // scratch space; one evaluator per goroutine.
 type fragEval struct {
 	s      *fragSearch
@@ -528,7 +611,7 @@ func (ev *fragEval) setSize(m int) {
 	}
 }
 
-// singularPivot is the smallest Cholesky pivot of I - H_SS accepted (see
+// fgSingularPivot is the smallest Cholesky pivot of I - H_SS accepted (see
 // the file documentation).
 const fgSingularPivot = 1e-8
 
@@ -544,7 +627,7 @@ const (
 // after removal.
 func (ev *fragEval) eval(set []int) (int, int, float64) {
 	s, m, p := ev.s, ev.m, ev.s.p
-	if s.df-m <= 0 {
+	if s.df-m <= 0 || ev.trapped(set) {
 		return fgSkipped, -1, 0
 	}
 	var rss float64
@@ -607,12 +690,12 @@ func (ev *fragEval) eval(set []int) (int, int, float64) {
 		switch ch.kind {
 		case fgKindSign:
 			after := s.b[ch.j] - ev.db[ch.j]
-			if fgSign(after) != fgSign(ev.center[k]) {
+			if math.Abs(after) <= ch.half || fgSign(after) != fgSign(ev.center[k]) {
 				return fgBreaks, k, after
 			}
 		case fgKindBand:
 			after := s.b[ch.j] - ev.db[ch.j]
-			if math.Abs(after-ev.center[k]) > ch.half {
+			if math.Abs(after-ev.center[k]) > ch.half*(1+fgTie) {
 				return fgBreaks, k, after
 			}
 		case fgKindSig:
@@ -633,12 +716,39 @@ func (ev *fragEval) eval(set []int) (int, int, float64) {
 				dy += ev.g[k][set[a]] * ev.w[a]
 			}
 			after := fgDot(ch.x0, s.b) - dy
-			if math.Abs(after-ev.center[k]) > ch.half {
+			if math.Abs(after-ev.center[k]) > ch.half*(1+fgTie) {
 				return fgBreaks, k, after
 			}
 		}
 	}
 	return fgHolds, -1, 0
+}
+
+// trapped reports whether removing set leaves a response Refit refuses.
+func (ev *fragEval) trapped(set []int) bool {
+	for _, t := range ev.s.traps {
+		if len(t) > len(set) {
+			continue
+		}
+		all := true
+		for _, r := range t {
+			in := false
+			for _, a := range set {
+				if ev.pool[a] == r {
+					in = true
+					break
+				}
+			}
+			if !in {
+				all = false
+				break
+			}
+		}
+		if all {
+			return true
+		}
+	}
+	return false
 }
 
 // factor computes the lower Cholesky factor L of M = I - H_SS into l and
@@ -830,7 +940,7 @@ func (ev *fragEval) run(step *SearchStep, res *FragilityResult) bool {
 	}
 }
 
-// nextCombination advances set to the next m-subset of 0..n-1 in
+// fgNextComb advances set to the next m-subset of 0..n-1 in
 // lexicographic order; false when set was the last.
 func fgNextComb(set []int, n int) bool {
 	m := len(set)
@@ -848,7 +958,7 @@ func fgNextComb(set []int, n int) bool {
 	return true
 }
 
-// binom returns C(n, k) as a float (exact while below 2^53).
+// fgBinom returns C(n, k) as a float (exact while below 2^53).
 func fgBinom(n, k int) float64 {
 	if k < 0 || k > n {
 		return 0
@@ -904,7 +1014,7 @@ func fgSpan(ms []int) string {
 	return fmt.Sprintf("%d-%d", ms[0], ms[len(ms)-1])
 }
 
-// rankRows returns up to k rows (0-based) taken round robin from the
+// fgRankRows returns up to k rows (0-based) taken round robin from the
 // rankings by Cook's distance, leverage, |DFBETAS_j| for each coefficient
 // and |external studentized residual|, most influential first. NaN values
 // rank last.
@@ -955,7 +1065,7 @@ func fgRankRows(inf *Influence, b []float64, k int) []int {
 	return out
 }
 
-// topK returns the indices of the k largest values of val over 0..n-1,
+// fgTopK returns the indices of the k largest values of val over 0..n-1,
 // largest first (ties by lower index; NaN lowest).
 func fgTopK(n, k int, val func(i int) float64) []int {
 	if k <= 0 {
@@ -1028,7 +1138,7 @@ func fgDot(a, b []float64) float64 {
 	return s
 }
 
-// matVec sets dst = A x for a p x p row-major A.
+// fgMatVec sets dst = A x for a p x p row-major A.
 func fgMatVec(dst, a, x []float64, p int) {
 	for j := 0; j < p; j++ {
 		dst[j] = fgDot(a[j*p:(j+1)*p], x)

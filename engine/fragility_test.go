@@ -179,11 +179,19 @@ func frValue(g *engine.Fit, ch frCheck) float64 {
 func frBroken(f, g *engine.Fit, ch frCheck) bool {
 	switch ch.kind {
 	case "sign":
-		return math.Signbit(g.Coef[ch.j].Estimate) != math.Signbit(f.Coef[ch.j].Estimate) || g.Coef[ch.j].Estimate == 0
+		// Zero within 1e-9 SE (rounding) counts as a lost sign, as
+		// documented in fragility.go.
+		after, before, zero := g.Coef[ch.j].Estimate, f.Coef[ch.j].Estimate, 1e-9*f.Coef[ch.j].StdError
+		if math.Abs(before) <= zero {
+			return false // no sign to lose
+		}
+		return math.Signbit(after) != math.Signbit(before) || math.Abs(after) <= zero
 	case "significance":
 		return (g.Coef[ch.j].P < ch.alpha) != (f.Coef[ch.j].P < ch.alpha)
 	default:
-		return math.Abs(frValue(g, ch)-frValue(f, ch)) > ch.half
+		// Beyond the width by more than rounding (1e-9 relative), as
+		// documented in fragility.go.
+		return math.Abs(frValue(g, ch)-frValue(f, ch)) > ch.half*(1+1e-9)
 	}
 }
 
@@ -642,6 +650,10 @@ func TestFragilityEdgeData(t *testing.T) {
 		{"exact line", []float64{1, 2, 3, 4, 5, 6}, []float64{3, 5, 7, 9, 11, 13}},
 		{"leverage 1", []float64{0, 0, 0, 0, 1}, []float64{1, 2, 1.5, 1.2, 4}},
 		{"n = p + 1", []float64{1, 2, 4}, []float64{1, 2.5, 3}},
+		// Removing the last row leaves a constant response, which Refit
+		// refuses: that subset is skipped, not a lost sign.
+		{"constant response left", []float64{1, 2, 3, 4, 5, 6, 7}, []float64{2, 2, 2, 2, 2, 2, 7}},
+		{"zero response left", []float64{1, 2, 3, 4, 5, 6, 7}, []float64{0, 0, 0, 0, 0, 1, 3}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -656,13 +668,69 @@ func TestFragilityEdgeData(t *testing.T) {
 			}
 			checks := frChecks(t, f, engine.Conclusions{Signs: true, Significance: true,
 				Checkpoints: []engine.Checkpoint{{At: map[string]float64{"x": 2}, Tolerance: 0.5}}})
-			idx, _, _ := frBrute(t, f, checks, 3)
+			idx, _, skipped := frBrute(t, f, checks, 3)
 			if idx != got.Index {
 				t.Errorf("index %d (%+v), brute force %d", got.Index, got, idx)
+			}
+			if idx == 0 && skipped != got.Skipped {
+				t.Errorf("skipped %d subsets, brute force could not refit %d", got.Skipped, skipped)
 			}
 			if _, err := engine.Suggest(f, nil, nil, nil, engine.SuggestOptions{}); err != nil {
 				t.Errorf("Suggest: %v", err)
 			}
 		})
 	}
+}
+
+// FuzzFragility: any data that fits gives a fragility result whose
+// reported set breaks its conclusion in a plain refit (oracle:
+// engine.Refit), and suggestions without a panic.
+func FuzzFragility(f *testing.F) {
+	f.Add([]byte{10, 200, 30, 40, 50, 60, 70, 80, 90, 100, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10})
+	f.Add([]byte{0, 0, 0, 0, 255, 1, 1, 1, 1, 3, 9, 9, 9})
+	f.Fuzz(func(t *testing.T, data []byte) {
+		n := len(data) / 2
+		if n < 4 || n > 20 {
+			return
+		}
+		x, y := make([]float64, n), make([]float64, n)
+		for i := 0; i < n; i++ {
+			x[i] = float64(data[i]) / 16
+			y[i] = float64(data[n+i]) / 16
+		}
+		m, _ := engine.NewModel("y", []string{"x"}, true)
+		X, yy, err := m.Design(map[string][]float64{"x": x, "y": y})
+		if err != nil {
+			return
+		}
+		fit, err := engine.Refit(m, X, yy)
+		if err != nil {
+			return
+		}
+		c := engine.Conclusions{Signs: true, Significance: true, Checkpoints: []engine.Checkpoint{{At: map[string]float64{"x": 4}, Tolerance: 1}}}
+		res, err := engine.Fragility(fit, nil, c, engine.FragilityOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Index > 0 {
+			rows := make([]int, len(res.RemovedRows))
+			for a, r := range res.RemovedRows {
+				rows[a] = r - 1
+			}
+			g, err := frDrop(fit, rows)
+			if err != nil {
+				t.Fatalf("reported set %v has no refit: %v", res.RemovedRows, err)
+			}
+			for _, ch := range frChecks(t, fit, c) {
+				if ch.kind == res.Kind && (ch.kind == "checkpoint" || fit.Coef[ch.j].Term == res.Term) {
+					if !frBroken(fit, g, ch) {
+						t.Errorf("%v does not break %q in a refit", res.RemovedRows, res.Conclusion)
+					}
+				}
+			}
+		}
+		if _, err := engine.Suggest(fit, nil, nil, nil, engine.SuggestOptions{Fragility: engine.FragilityOptions{MaxRemoved: 2}}); err != nil {
+			t.Fatal(err)
+		}
+	})
 }

@@ -294,7 +294,7 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 		}
 	}
 
-	base := fgBaseSearch(f)
+	base := fgBaseSearch(f, fopt.MaxRemoved)
 	p := f.P
 	r := float64(opt.Replicates)
 	s2new := f.RSS / float64(f.N+opt.Replicates-p)
@@ -537,6 +537,16 @@ func (s *fragSearch) augmented(z []float64, r int) *fragSearch {
 	a := *s
 	a.c = c
 	a.df = s.df + r
+	// The r readings take the fitted value there: a trap stays only if
+	// that is the value it leaves.
+	yz := fgDot(z, s.b)
+	a.traps, a.trapY = nil, nil
+	for k, t := range s.traps {
+		if s.trapY[k] == yz {
+			a.traps = append(a.traps, t)
+			a.trapY = append(a.trapY, yz)
+		}
+	}
 	return &a
 }
 
