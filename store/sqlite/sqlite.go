@@ -36,13 +36,23 @@
 //
 // # Backups
 //
-// Backup writes a consistent copy of the live database to a new file with
-// VACUUM INTO, while the daemon keeps running. Operators may call it (for
-// example from a timer) instead of copying the database file, which is
-// unsafe while the daemon writes: the -wal file holds committed data that a
-// plain copy of the main file misses. To restore, stop the daemon and put
-// the backup file in place of the database (removing any stale -wal and
-// -shm files beside it).
+// DB.Backup writes a consistent copy of the live database to a new file
+// with VACUUM INTO while the daemon keeps running; a command wired in cmd
+// (or a timer) calls it. From outside the process the same statement,
+// VACUUM INTO '/path/to/copy.db', run on the live file by any SQLite shell,
+// is equally safe. Copying the database file with cp is not safe while
+// the daemon writes: the -wal file beside it holds committed transactions
+// that a copy of the main file misses. To restore, stop the daemon, put the
+// backup in place of the database file and remove any -wal and -shm files
+// left beside it.
+//
+// # Storage
+//
+// An observation is written once. A refit writes its summary and one row
+// per verdict that changed, never the observations again, so the file
+// grows with rows ingested, not rows x fits. TestBytesPerObservation
+// measures about 230 bytes per p = 3 observation with arrival diagnostics
+// and a 33-byte source line, indexes included.
 package sqlite
 
 import (
@@ -155,9 +165,10 @@ func (db *DB) Close() error {
 }
 
 // Backup writes a consistent snapshot of the database to the new file dst
-// (which must not exist) with VACUUM INTO. It runs online: other readers
-// and writers carry on, writers waiting only while the copy's read
-// transaction is open for the duration of the copy in WAL mode.
+// (which must not exist, or be empty) with VACUUM INTO. It runs online: the
+// copy is one read transaction, so in WAL mode readers and writers carry
+// on, and the backup holds exactly the transactions committed when it
+// began. The copy is compacted and is itself a complete database.
 func (db *DB) Backup(ctx context.Context, dst string) error {
 	if _, err := db.db.ExecContext(ctx, "VACUUM INTO ?", dst); err != nil {
 		return fmt.Errorf("store: backup %s to %s: %w", db.path, dst, err)
