@@ -327,7 +327,9 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 	}
 	dec := t.dec
 	flush := t.partialSize == id.size && !now.Before(t.partialSince.Add(w.cfg.IdleFlush))
-	var recs []decode.Record
+	// Size the record slice for what is there to read (about 32 bytes a
+	// row), so a backlog does not regrow it again and again.
+	recs := make([]decode.Record, 0, min(max(id.size-dec.Offset(), 0), int64(w.cfg.MaxBatchBytes))/32+1)
 	emit := func(r decode.Record) error {
 		recs = append(recs, r)
 		return nil
