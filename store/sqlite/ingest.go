@@ -8,6 +8,9 @@ import (
 	"strings"
 
 	"plumb/store"
+
+	msqlite "modernc.org/sqlite"
+	sqlite3 "modernc.org/sqlite/lib"
 )
 
 // obsCols are the columns written per observation, in bind order.
@@ -48,37 +51,42 @@ const (
 		VALUES (?, ?, ?, ?, ?, ?, ?, ?)`
 )
 
+// ingestStatements prepares the ingest statements on first use. A failure
+// is returned, not kept: the next call tries again.
 func (db *DB) ingestStatements() (*ingestStmts, error) {
-	db.stmtOnce.Do(func() {
-		s := &ingestStmts{}
-		one := "(" + strings.TrimSuffix(strings.Repeat("?,", nObsCols), ",") + ")"
-		for i, n := range obsChunks {
-			q := "INSERT INTO observations (" + obsCols + ") VALUES " +
-				strings.TrimSuffix(strings.Repeat(one+",", n), ",")
-			st, err := db.db.PrepareContext(context.Background(), q)
-			if err != nil {
-				s.close()
-				db.stmtErr = err
-				return
-			}
-			s.insertObs[i] = st
+	db.stmtMu.Lock()
+	defer db.stmtMu.Unlock()
+	if db.stmts != nil {
+		return db.stmts, nil
+	}
+	s := &ingestStmts{}
+	prepare := func(dst **sql.Stmt, q string) error {
+		st, err := db.db.PrepareContext(context.Background(), q)
+		if err != nil {
+			s.close()
+			return err
 		}
-		for _, p := range []struct {
-			dst **sql.Stmt
-			q   string
-		}{{&s.selSource, selSourceSQL}, {&s.insSource, insSourceSQL}, {&s.updSource, updSourceSQL},
-			{&s.maxObs, maxObsSQL}, {&s.insQrn, insQrnSQL}} {
-			st, err := db.db.PrepareContext(context.Background(), p.q)
-			if err != nil {
-				s.close()
-				db.stmtErr = err
-				return
-			}
-			*p.dst = st
+		*dst = st
+		return nil
+	}
+	one := "(" + strings.TrimSuffix(strings.Repeat("?,", nObsCols), ",") + ")"
+	for i, n := range obsChunks {
+		q := "INSERT INTO observations (" + obsCols + ") VALUES " + strings.TrimSuffix(strings.Repeat(one+",", n), ",")
+		if err := prepare(&s.insertObs[i], q); err != nil {
+			return nil, err
 		}
-		db.stmts = s
-	})
-	return db.stmts, db.stmtErr
+	}
+	for _, p := range []struct {
+		dst **sql.Stmt
+		q   string
+	}{{&s.selSource, selSourceSQL}, {&s.insSource, insSourceSQL}, {&s.updSource, updSourceSQL},
+		{&s.maxObs, maxObsSQL}, {&s.insQrn, insQrnSQL}} {
+		if err := prepare(p.dst, p.q); err != nil {
+			return nil, err
+		}
+	}
+	db.stmts = s
+	return s, nil
 }
 
 // Ingest commits the batch's observations, its quarantined rows and the
@@ -243,7 +251,7 @@ func insertChunks(ctx context.Context, tx *sql.Tx, stmts *ingestStmts, args []an
 		st := tx.StmtContext(ctx, stmts.insertObs[k])
 		for rows >= n {
 			if _, err := st.ExecContext(ctx, args[:n*nObsCols]...); err != nil {
-				if strings.Contains(err.Error(), "UNIQUE") {
+				if isUnique(err) {
 					return fmt.Errorf("observation already stored (same file, generation and line): %w", err)
 				}
 				return err
@@ -253,6 +261,12 @@ func insertChunks(ctx context.Context, tx *sql.Tx, stmts *ingestStmts, args []an
 		}
 	}
 	return nil
+}
+
+// isUnique reports whether err is SQLite's UNIQUE constraint failure.
+func isUnique(err error) bool {
+	var e *msqlite.Error
+	return errors.As(err, &e) && e.Code() == sqlite3.SQLITE_CONSTRAINT_UNIQUE
 }
 
 // checkProvenance accepts the zero value (meaning: the batch's source) or

@@ -249,3 +249,20 @@ func leUint64(b []byte) uint64 {
 	}
 	return x
 }
+
+func TestIngestDuplicateLineNamesIt(t *testing.T) {
+	ctx := context.Background()
+	db, _ := openTemp(t)
+	bt := newBatcher(3)
+	b := bt.next()
+	if _, err := db.Ingest(ctx, b); err != nil {
+		t.Fatal(err)
+	}
+	again := bt.next()
+	again.Observations[2].Line = b.Observations[0].Line // already stored under the same generation
+	_, err := db.Ingest(ctx, again)
+	if err == nil || errors.Is(err, store.ErrStale) || !strings.Contains(err.Error(), "already stored") ||
+		!strings.Contains(err.Error(), "store: ingest bench/in/run.csv") {
+		t.Errorf("Ingest of a stored line: %v, want an error naming the batch and the duplicate", err)
+	}
+}

@@ -70,7 +70,7 @@ import (
 
 	"plumb/store"
 
-	_ "modernc.org/sqlite" // registers the "sqlite" driver
+	_ "modernc.org/sqlite" // registers the "sqlite" driver (the only package that imports it)
 )
 
 //go:embed migrations/*.sql
@@ -101,9 +101,8 @@ type DB struct {
 	mmu    sync.RWMutex
 	models map[string]int64
 
-	stmtOnce sync.Once
-	stmts    *ingestStmts
-	stmtErr  error
+	stmtMu sync.Mutex
+	stmts  *ingestStmts
 }
 
 // Option configures Open.
@@ -155,9 +154,12 @@ func Open(ctx context.Context, path string, opts ...Option) (*DB, error) {
 // Close releases the database. It does not wait for calls in progress to
 // be cancelled; callers stop using the DB first.
 func (db *DB) Close() error {
+	db.stmtMu.Lock()
 	if db.stmts != nil {
 		db.stmts.close()
+		db.stmts = nil
 	}
+	db.stmtMu.Unlock()
 	if err := db.db.Close(); err != nil {
 		return fmt.Errorf("store: close %s: %w", db.path, err)
 	}
