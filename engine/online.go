@@ -31,6 +31,8 @@ import (
 // zero value is not usable; call NewOnline or NewOnlineFrom. An Online is
 // not safe for concurrent use.
 type Online struct {
+	// The state is n, r, diag, diagOK and since (Snapshot and Restore in
+	// online_mark.go save and restore exactly these); the rest is scratch.
 	p int
 	n int
 	r []float64 // (p+1) x (p+1) upper triangular, row-major
