@@ -44,6 +44,15 @@ func anyDrift(ds []driftMeasure) bool {
 	return false
 }
 
+// maxZ is the largest |z| of the measures (0 for none).
+func maxZ(ds []driftMeasure) float64 {
+	m := 0.0
+	for _, d := range ds {
+		m = math.Max(m, math.Abs(d.z()))
+	}
+	return m
+}
+
 func demoModel(t testing.TB) engine.Model {
 	t.Helper()
 	m, err := engine.NewModel(Response, Terms, true)
@@ -262,6 +271,10 @@ func TestScenarioProof(t *testing.T) {
 		}
 		if got := anyDrift(a.drift); got != drifted {
 			t.Errorf("%s: drift out of band %v, want %v", name, got, drifted)
+		}
+		// Not by a hair: 5% of the band on either side of the opening.
+		if z := maxZ(a.drift); r.Expect == ExpectDrift && z < 1.05*DriftK || !drifted && z > 0.95*DriftK {
+			t.Errorf("%s: largest drift %.3f standard errors, too close to the band of %d", name, z, DriftK)
 		}
 	}
 	if len(out.Suspect) != 1 || len(out.OutlierOnly) != 1 || out.FragileFrom == 0 || out.FragileUntil <= out.FragileFrom || out.Drift <= out.FragileUntil || out.Leverage == 0 {

@@ -171,7 +171,7 @@ var thePlan = plan{
 	clearsAt:         1,
 	drift:            []float64{100, 150, 200, 250, 300, 350, 300, 250, 200, 150},
 	driftCount:       21,
-	driftStep:        -0.0018,
+	driftStep:        -0.0017,
 	driftAt:          18,
 }
 
