@@ -476,22 +476,44 @@ func inspectModel(opt *inspectOptions) (engine.Model, error) {
 	for i, sp := range spans {
 		texts[i] = sp.text
 	}
+	// Syntax first, term by term, so that an error points into the
+	// right piece even when two pieces read the same.
+	for _, sp := range spans {
+		if _, err := engine.ParseTerm(sp.text); err != nil {
+			return engine.Model{}, termsErrorAt(opt.terms, sp, err)
+		}
+	}
 	m, err := engine.NewModel(opt.response, texts, !opt.noIntercept)
 	if err != nil {
 		var te *engine.TermError
 		if errors.As(err, &te) {
-			pos := 0
-			for _, sp := range spans {
-				if sp.text == te.Term {
-					pos = sp.start + te.Pos
-					break
+			// A term that repeats an earlier one is reported at the
+			// later piece; other faults at the first piece that has them.
+			var at *termSpan
+			for i := range spans {
+				if spans[i].text == te.Term {
+					at = &spans[i]
+					if !strings.HasPrefix(te.Msg, "same as") {
+						break
+					}
 				}
 			}
-			return engine.Model{}, &termsError{terms: opt.terms, pos: pos, msg: te.Msg, err: err}
+			if at != nil {
+				return engine.Model{}, termsErrorAt(opt.terms, *at, err)
+			}
 		}
 		return engine.Model{}, fmt.Errorf("inspect: %w: %v", errUsage, err)
 	}
 	return m, nil
+}
+
+// termsErrorAt places an engine *TermError found in piece sp of --terms.
+func termsErrorAt(terms string, sp termSpan, err error) error {
+	var te *engine.TermError
+	if !errors.As(err, &te) {
+		return fmt.Errorf("inspect: %w: --terms: %v", errUsage, err)
+	}
+	return &termsError{terms: terms, pos: sp.start + te.Pos, msg: te.Msg, err: err}
 }
 
 // rejectedRow is a data row left out of the fit, with where and why.

@@ -530,6 +530,10 @@ func TestInspectErrors(t *testing.T) {
 			[]string{"never closed", "\n  emf_mv, \"emf mv\n          ^"}},
 		{"empty term", []string{thermo, "--response", "temp_c", "--terms", "emf_mv,,emf_mv^2"}, 2,
 			[]string{"empty term", "\n  emf_mv,,emf_mv^2\n         ^"}},
+		{"repeated term", []string{thermo, "--response", "temp_c", "--terms", "emf_mv, emf_mv^2, emf_mv"}, 2,
+			[]string{"same as term", "(character 19)", "\n  emf_mv, emf_mv^2, emf_mv\n                    ^"}},
+		{"response used as a term", []string{thermo, "--response", "temp_c", "--terms", "emf_mv, temp_c"}, 2,
+			[]string{"response", "\n  emf_mv, temp_c\n          ^"}},
 		{"unknown column", []string{thermo, "--response", "temp_c", "--terms", "emf_mv, emf_v"}, 1,
 			[]string{`"emf_v"`, "column not in header", `"bath"`, `"emf_mv"`, `"operator note"`, `"temp_c"`}},
 		{"unknown response", []string{thermo, "--response", "temp", "--terms", "emf_mv"}, 1,
@@ -1015,4 +1019,36 @@ func BenchmarkInspectCSV(b *testing.B) {
 			}
 		})
 	}
+}
+
+// FuzzInspectTerms: splitting and parsing any --terms value never panics,
+// the pieces put back together with commas give the input, and an error
+// points inside the string.
+func FuzzInspectTerms(f *testing.F) {
+	for _, s := range []string{"a, b, a^2", `"x, y", log(z)^2`, `a, "b`, "a,,b", `"say ""hi""", a*b`, "x^0", "log(", ""} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		spans, err := splitTerms(s)
+		if err == nil {
+			parts := make([]string, len(spans))
+			for i, sp := range spans {
+				parts[i] = sp.text
+				if s[sp.start:sp.start+len(sp.text)] != sp.text {
+					t.Fatalf("piece %d %q does not start at %d of %q", i, sp.text, sp.start, s)
+				}
+			}
+			if strings.Join(parts, ",") != s {
+				t.Fatalf("pieces %q do not rebuild %q", parts, s)
+			}
+		}
+		_, err = inspectModel(&inspectOptions{response: "y", terms: s})
+		var te *termsError
+		if errors.As(err, &te) {
+			if te.pos < 0 || te.pos > len(s) {
+				t.Fatalf("error position %d outside %q", te.pos, s)
+			}
+			_ = te.Error()
+		}
+	})
 }
