@@ -147,39 +147,23 @@ func Judge(inf *Influence, c Cutoffs) []Verdict {
 	rows := inf.Rows
 	out := make([]Verdict, len(rows))
 	ch := newChunking(len(rows), p)
-	counts := make([]uint16, len(rows))
-	total := make([]int, ch.nc)
 	ch.run(func(k int) {
 		lo, hi := ch.bounds(k)
-		buf := make([]Flag, 0, 2*p+9)
-		t := 0
+		// One backing array per chunk; rows take subslices once it has
+		// stopped growing.
+		buf := make([]Flag, 0, (hi-lo)/2+16)
+		ends := make([]int32, hi-lo)
 		for i := lo; i < hi; i++ {
-			buf = j.row(buf[:0], i, &rows[i], &out[i])
-			counts[i] = uint16(len(buf))
-			t += len(buf)
+			buf = j.row(buf, i, &rows[i], &out[i])
+			ends[i-lo] = int32(len(buf))
 		}
-		total[k] = t
-	})
-	off := make([]int, ch.nc+1)
-	for k := range total {
-		off[k+1] = off[k] + total[k]
-	}
-	if off[ch.nc] == 0 {
-		return out
-	}
-	all := make([]Flag, off[ch.nc])
-	ch.run(func(k int) {
-		lo, hi := ch.bounds(k)
-		at := off[k]
-		var v Verdict
+		start := 0
 		for i := lo; i < hi; i++ {
-			cnt := int(counts[i])
-			if cnt == 0 {
-				continue
+			end := int(ends[i-lo])
+			if end > start {
+				out[i].Flags = buf[start:end:end]
 			}
-			fl := j.row(all[at:at:at+cnt], i, &rows[i], &v)
-			out[i].Flags = fl[:cnt:cnt]
-			at += cnt
+			start = end
 		}
 	})
 	return out
