@@ -37,14 +37,16 @@
 //	               suspect: plumb never drops or alters a measurement)
 //	drift          the bench voltmeter's offset creeps downward reading by
 //	               reading until the curve has drifted from its baseline: a
-//	               drift alert opens with the last reading
+//	               drift alert opens three readings before the end
 //
 // Expected summarises the outcomes by line of the feed.
 //
-// The scenario's tests prove each expectation with the engine itself, on
-// the rows the daemon fits when the reading arrives (the model's window of
-// WindowRows rows), with the engine's default cutoffs, the config's
-// fragility conclusions and drift rule; the diagnostics of the planted
+// The scenario's tests prove each expectation with the engine itself, as
+// the daemon computes it: each arriving reading judged against all rows so
+// far with the engine's default cutoffs; at each refresh, the window of the
+// last WindowRows rows, its fragility under the config's conclusions, and
+// its drift from the baseline (the fit of the first BaselineRows rows),
+// judged without the window's suspect rows. The diagnostics of the planted
 // readings are also checked against R.
 //
 // # Use

@@ -218,7 +218,8 @@ func build(pl plan) []Reading {
 		"off the curve in the middle of the range: an outlier, but it barely moves the fit; no alert")
 	// (d) an outlier at the bottom edge.
 	add(PhaseEdgeOutlier, pl.edgeSetpoint, pl.edgeShift, ExpectSuspect,
-		"off the curve at the bottom edge: an outlier that pulls the fit; suspect-point alert")
+		"off the curve at the bottom edge: an outlier that pulls the fit; suspect-point alert, "+
+			"and the prediction at the lower spec limit now rests on this reading (fragile fit)")
 	// (e) readings where the suggestion points.
 	for i, sp := range pl.follow {
 		exp, note := ExpectNothing, "more data near the bottom edge, where plumb suggested"
