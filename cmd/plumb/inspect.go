@@ -55,6 +55,9 @@ file:line:column and the reason: on standard error for the table and csv
 formats, in a "rejected" array for json. --strict refuses the whole file
 instead.
 
+Rows are named by their data row (counting every record after the header,
+unreadable ones included) and by the file line on which they start.
+
 Output formats:
   table  for people: rows worth a look first, the fit, then every row
   json   the full result; undefined values (leverage 1) are null
