@@ -335,6 +335,7 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 		return nil
 	}
 	pos := dec.Offset()
+	startPos := pos
 	buf := w.buf[:0]
 	read, eof, more := 0, false, false
 	for {
@@ -370,7 +371,9 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 		if eof {
 			break
 		}
-		if read >= w.cfg.MaxBatchBytes {
+		// Stop at MaxBatchBytes, but only after some progress: a record
+		// longer than a batch is still read whole.
+		if read >= w.cfg.MaxBatchBytes && pos > startPos {
 			more = true
 			break
 		}

@@ -786,3 +786,18 @@ func (s *syncBuffer) Write(p []byte) (int, error) {
 	return s.b.Write(p)
 }
 func (s *syncBuffer) String() string { s.mu.Lock(); defer s.mu.Unlock(); return s.b.String() }
+
+func TestRecordLongerThanBatch(t *testing.T) {
+	dir := t.TempDir()
+	long := strings.Repeat("7", 600<<10) // longer than a read and a batch, shorter than MaxRecordBytes
+	writeFile(t, filepath.Join(dir, "a.csv"), "x,y\n1,2\n3,0."+long+"\n5,6\n")
+	cfg := testConfig(dir)
+	cfg.MaxBatchBytes = 64
+	sink := newFakeSink(t)
+	start(t, cfg, sink)
+	waitFor(t, "rows", waitLong, func() bool { return len(sink.records("m", "a.csv", 0)) == 3 })
+	recs := sink.records("m", "a.csv", 0)
+	if recs[1].Err != nil || len(recs[1].Raw) != len(long)+4 || recs[1].Values[1] != 7.0/9 || recs[2].Values[0] != 5 {
+		t.Errorf("long record: err %v, raw %d bytes", recs[1].Err, len(recs[1].Raw))
+	}
+}
