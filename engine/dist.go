@@ -138,7 +138,15 @@ func (tt tTail) p2(t float64) float64 {
 }
 
 func (tt tTail) large(t2 float64) (p float64, ok bool) {
-	s0 := math.Log1p(t2 / tt.df)
+	u := t2 / tt.df
+	var s0 float64
+	if u < 1e-4 {
+		// log1p by its series: the first omitted term is below 2e-17
+		// relative.
+		s0 = u * (1 - u*(1.0/2-u*(1.0/3-u*(1.0/4-u/5))))
+	} else {
+		s0 = math.Log1p(u)
+	}
 	X := tt.a * s0
 	if s0 > 0.5 || X > 700 {
 		return 0, false
