@@ -545,6 +545,7 @@ type inspectData struct {
 	header   []string
 	names    []string // selected columns: response first, then predictors
 	cols     map[string][]float64
+	vals     [][]float64 // the same columns, in the order of names
 	rowNo    []int
 	line     []int
 	buf      []byte // the whole file, to find a field of a rejected row
@@ -587,9 +588,10 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 	off, line := hdr.Pos()
 
 	parts := splitRecords(buf, int(off), line, runtime.GOMAXPROCS(0))
+	store := newRowStore(len(names), buf, parts)
 	results := make([]*inspectData, len(parts))
 	if len(parts) == 1 {
-		results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, parts[0])
+		results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, parts[0], store.slot(0))
 	} else {
 		errs := make([]error, len(parts))
 		var wg sync.WaitGroup
@@ -597,7 +599,7 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 			wg.Add(1)
 			go func() {
 				defer wg.Done()
-				results[k], errs[k] = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, parts[k])
+				results[k], errs[k] = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, parts[k], store.slot(k))
 			}()
 		}
 		wg.Wait()
@@ -605,16 +607,21 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 		if err == nil && quoteTrouble(results) {
 			// A malformed quote may end a record elsewhere than quote
 			// parity says: decode the file in one piece after all.
-			whole := part{off: int(off), end: len(buf), line: line}
+			whole := []part{{off: int(off), end: len(buf), line: line}}
+			store = newRowStore(len(names), buf, whole)
 			results = results[:1]
-			results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, whole)
+			results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, whole[0], store.slot(0))
 		}
 	}
 	if err != nil {
 		return nil, fmt.Errorf("inspect: %w", err)
 	}
-	ds := mergeParts(results)
-	ds.file, ds.header, ds.buf = name, header, buf
+	ds := store.merge(results)
+	ds.file, ds.header, ds.buf, ds.names = name, header, buf, names
+	for i, n := range names {
+		ds.cols[n] = ds.vals[i]
+	}
+	ds.vals = nil // cols is the truth from here on (drop edits it)
 	if ds.total == 0 {
 		return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: the file has a header (line %d) but no data rows", name, hdr.HeaderLine())}
 	}
@@ -679,8 +686,85 @@ func splitRecords(buf []byte, off, line, k int) []part {
 	return append(out, part{start, len(buf), startLine})
 }
 
-// decodePart decodes the records of one part with its own decoder.
-func decodePart(name string, dialect decode.Dialect, header []string, headerLine int, names []string, buf []byte, pt part) (*inspectData, error) {
+// rowStore holds the kept rows of all parts in one set of arrays: part k
+// writes from base[k] on, with room for one row per line end in it (plus
+// one for a last line without a newline), which no part can exceed.
+type rowStore struct {
+	cols  [][]float64
+	rowNo []int
+	line  []int
+	base  []int
+	room  []int
+}
+
+func newRowStore(ncols int, buf []byte, parts []part) *rowStore {
+	st := &rowStore{cols: make([][]float64, ncols)}
+	total := 0
+	for _, pt := range parts {
+		n := bytes.Count(buf[pt.off:pt.end], []byte{'\n'}) + 1
+		st.base = append(st.base, total)
+		st.room = append(st.room, n)
+		total += n
+	}
+	for i := range st.cols {
+		st.cols[i] = make([]float64, total)
+	}
+	st.rowNo = make([]int, total)
+	st.line = make([]int, total)
+	return st
+}
+
+// slot is part k's share of the arrays, as zero-length slices with the
+// part's room as capacity.
+func (st *rowStore) slot(k int) *inspectData {
+	b, e := st.base[k], st.base[k]+st.room[k]
+	ds := &inspectData{}
+	ds.rowNo = st.rowNo[b:b:e]
+	ds.line = st.line[b:b:e]
+	ds.cols = map[string][]float64{}
+	ds.vals = make([][]float64, len(st.cols))
+	for i := range st.cols {
+		ds.vals[i] = st.cols[i][b:b:e]
+	}
+	return ds
+}
+
+// merge closes the gaps between the parts (rows they rejected or records
+// spanning several lines) and renumbers the data rows in file order.
+func (st *rowStore) merge(parts []*inspectData) *inspectData {
+	ds := &inspectData{cols: map[string][]float64{}}
+	w := 0
+	for k, p := range parts {
+		n := len(p.rowNo)
+		if n > st.room[k] {
+			panic("plumb: inspect: a part holds more rows than line ends")
+		}
+		base := ds.total
+		for i := 0; i < n; i++ {
+			st.rowNo[w+i] = p.rowNo[i] + base
+		}
+		copy(st.line[w:], p.line)
+		for i := range st.cols {
+			copy(st.cols[i][w:], p.vals[i])
+		}
+		for _, r := range p.rejected {
+			r.Row += base
+			ds.rejected = append(ds.rejected, r)
+		}
+		ds.total += p.total
+		w += n
+	}
+	ds.rowNo, ds.line = st.rowNo[:w], st.line[:w]
+	ds.vals = make([][]float64, len(st.cols))
+	for i := range st.cols {
+		ds.vals[i] = st.cols[i][:w]
+	}
+	return ds
+}
+
+// decodePart decodes the records of one part with its own decoder into
+// slot (see rowStore).
+func decodePart(name string, dialect decode.Dialect, header []string, headerLine int, names []string, buf []byte, pt part, slot *inspectData) (*inspectData, error) {
 	dec := decode.NewDecoder(name, dialect)
 	if err := dec.SetHeader(header, headerLine); err != nil {
 		return nil, err
@@ -689,16 +773,9 @@ func decodePart(name string, dialect decode.Dialect, header []string, headerLine
 		return nil, err
 	}
 	dec.SetOffset(int64(pt.off), pt.line)
-	chunk := buf[pt.off:pt.end]
-	est := bytes.Count(chunk, []byte{'\n'}) + 1
-	ds := &inspectData{names: names, cols: make(map[string][]float64, len(names))}
-	vals := make([][]float64, len(names))
-	for i := range vals {
-		vals[i] = make([]float64, 0, est)
-	}
-	ds.rowNo = make([]int, 0, est)
-	ds.line = make([]int, 0, est)
-	_, err := dec.Feed(chunk, true, func(r decode.Record) error {
+	ds := slot
+	vals := ds.vals
+	_, err := dec.Feed(buf[pt.off:pt.end], true, func(r decode.Record) error {
 		ds.total++
 		if r.Err != nil {
 			ds.rejected = append(ds.rejected, rejectedRow{
@@ -717,9 +794,7 @@ func decodePart(name string, dialect decode.Dialect, header []string, headerLine
 	if err != nil {
 		return nil, err
 	}
-	for i, n := range names {
-		ds.cols[n] = vals[i]
-	}
+	ds.vals = vals
 	return ds, nil
 }
 
@@ -733,40 +808,6 @@ func quoteTrouble(parts []*inspectData) bool {
 		}
 	}
 	return false
-}
-
-// mergeParts joins decoded parts in file order, renumbering data rows.
-func mergeParts(parts []*inspectData) *inspectData {
-	if len(parts) == 1 {
-		return parts[0]
-	}
-	first := parts[0]
-	ds := &inspectData{names: first.names, cols: make(map[string][]float64, len(first.names))}
-	rows := 0
-	for _, p := range parts {
-		rows += len(p.rowNo)
-	}
-	for _, n := range ds.names {
-		ds.cols[n] = make([]float64, 0, rows)
-	}
-	ds.rowNo = make([]int, 0, rows)
-	ds.line = make([]int, 0, rows)
-	for _, p := range parts {
-		base := ds.total
-		for _, r := range p.rowNo {
-			ds.rowNo = append(ds.rowNo, base+r)
-		}
-		ds.line = append(ds.line, p.line...)
-		for _, n := range ds.names {
-			ds.cols[n] = append(ds.cols[n], p.cols[n]...)
-		}
-		for _, r := range p.rejected {
-			r.Row += base
-			ds.rejected = append(ds.rejected, r)
-		}
-		ds.total += p.total
-	}
-	return ds
 }
 
 // rejectLogDomain sets aside, before the design is built, the rows where a
