@@ -9,15 +9,15 @@ import (
 )
 
 // arrival is what the engine says when reading k arrives, as the daemon
-// computes it. The arrival verdict judges the row against the fit of every
-// row so far (the daemon's row-by-row update does not forget rows); the
-// refresh that follows fits the model's window (the last WindowRows rows)
-// and yields the influence table, the fragility and the drift measures
-// (on the window without its suspect rows).
+// computes it. The model fits a window (the last WindowRows rows), so the
+// arrival verdict judges the row against the fit of the window that
+// includes it; the refresh that follows fits the same window and yields
+// the influence table, the fragility and the drift measures (on the window
+// without its suspect rows).
 type arrival struct {
-	verdict engine.Verdict // of reading k, against all rows 0..k
+	verdict engine.Verdict // of reading k, against the window's fit
 	full    engine.Obs     // its diagnostics in that fit
-	n       int            // rows in that fit, k+1
+	n       int            // rows in that fit
 	rows    []Reading      // the window, oldest first; rows[len-1] is reading k
 	fit     *engine.Fit    // of the window
 	inf     *engine.Influence
@@ -119,14 +119,12 @@ func replay(t testing.TB, sc []Reading, cps []Checkpoint) []arrival {
 			t.Fatal(err)
 		}
 		a := arrival{rows: rows, fit: f, inf: inf, frag: fr}
-		all := f
-		if lo > 0 {
-			all = fitRows(t, m, sc[:k+1])
-		}
-		allInf := engine.Diagnose(all)
-		a.verdict = engine.Judge(allInf, engine.DefaultCutoffs())[k]
-		a.full = allInf.Rows[k]
-		a.n = k + 1
+		// A windowed model judges an arriving row against the fit of the
+		// window that includes it.
+		last := len(rows) - 1
+		a.verdict = engine.Judge(inf, engine.DefaultCutoffs())[last]
+		a.full = inf.Rows[last]
+		a.n = len(rows)
 		if k+1 >= BaselineRows {
 			// The drift is judged on the window's fit without the rows
 			// the window judges suspect: a suspect reading has an alert
