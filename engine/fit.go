@@ -233,15 +233,38 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 // compensated dot product of Ogita, Rump & Oishi (2005) "Dot2": as
 // accurate as double-double accumulation, then rounded once.
 func residual2(y, rr float64, x, b []float64) float64 {
-	s, c := twoSum(y, -rr)
-	for j, v := range x {
-		q := -v * b[j]
-		qe := math.FMA(-v, b[j], -q)
-		var se float64
-		s, se = twoSum(s, q)
-		c += se + qe
-	}
+	s, c := residualDD(y, rr, x, b)
 	return s + c
+}
+
+// residualDD returns y - rr - x·b as an unevaluated sum s + c (Dot2, with
+// two interleaved chains for instruction-level parallelism, joined by an
+// error-free sum).
+func residualDD(y, rr float64, x, b []float64) (s, c float64) {
+	s1, c1 := twoSum(y, -rr)
+	var s2, c2 float64
+	b = b[:len(x)]
+	j := 0
+	for ; j+2 <= len(x); j += 2 {
+		q1 := -x[j] * b[j]
+		e1 := math.FMA(-x[j], b[j], -q1)
+		q2 := -x[j+1] * b[j+1]
+		e2 := math.FMA(-x[j+1], b[j+1], -q2)
+		var t1, t2 float64
+		s1, t1 = twoSum(s1, q1)
+		s2, t2 = twoSum(s2, q2)
+		c1 += t1 + e1
+		c2 += t2 + e2
+	}
+	if j < len(x) {
+		q1 := -x[j] * b[j]
+		e1 := math.FMA(-x[j], b[j], -q1)
+		var t1 float64
+		s1, t1 = twoSum(s1, q1)
+		c1 += t1 + e1
+	}
+	s, e := twoSum(s1, s2)
+	return s, c1 + c2 + e
 }
 
 // work holds the state of one Refit: the chunked Householder factors of
@@ -558,14 +581,7 @@ func (w *work) refine(cond float64) []float64 {
 				var ri, fi float64
 				if it == 0 {
 					// Consistent start: r = y - X b0 rounded, f the rest.
-					s1, c1 := twoSum(y[i], 0)
-					for j, v := range row {
-						q := -v * bb[j]
-						qe := math.FMA(-v, bb[j], -q)
-						var se float64
-						s1, se = twoSum(s1, q)
-						c1 += se + qe
-					}
+					s1, c1 := residualDD(y[i], 0, row, bb)
 					ri = s1 + c1
 					fi = (s1 - ri) + c1
 					r[i] = ri
