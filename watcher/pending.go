@@ -37,14 +37,19 @@ func newPending(window time.Duration) *pending {
 // event merges one event for k that happened at now; notBefore (zero if
 // none) holds the file back, e.g. during a retry backoff.
 func (p *pending) event(k fileKey, op fsnotify.Op, now, notBefore time.Time) {
+	due := now.Add(p.window)
+	if notBefore.After(due) {
+		due = notBefore
+	}
 	e := p.entries[k]
 	if e == nil {
-		due := now.Add(p.window)
-		if notBefore.After(due) {
-			due = notBefore
-		}
 		e = &pendingEntry{due: due}
 		p.entries[k] = e
+	} else if due.Before(e.due) {
+		// An event brings forward a file scheduled for later (an idle
+		// flush of a partial last line): the write that completes the
+		// line must not wait for the idle timer.
+		e.due = due
 	}
 	e.ops |= op
 	e.events++
