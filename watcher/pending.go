@@ -22,9 +22,11 @@ type pendingEntry struct {
 
 // pending merges events per file and tells when each file is due. It is
 // the debounce: the first event for a file that is not pending makes it
-// due one window later; further events only merge. An explicit
-// schedule (retry, idle flush, "more to read") can only move a due time
-// earlier. It is used by one goroutine.
+// due one window later; further events merge into it and never delay it
+// (so a steady writer is still read once per window), but they bring
+// forward a file scheduled further out, e.g. for the idle flush of a
+// partial last line. An explicit schedule (retry, idle flush, "more to
+// read") can only move a due time earlier. It is used by one goroutine.
 type pending struct {
 	window  time.Duration
 	entries map[fileKey]*pendingEntry

@@ -265,24 +265,32 @@ func TestBackfillThenAppend(t *testing.T) {
 }
 
 func TestPartialLastLineAndIdleFlush(t *testing.T) {
+	const idle = 1500 * time.Millisecond
 	dir := t.TempDir()
 	a := filepath.Join(dir, "a.csv")
 	writeFile(t, a, "x,y\n1,2\n2,")
+	cfg := testConfig(dir)
+	cfg.IdleFlush = idle
 	sink := newFakeSink(t)
-	start(t, testConfig(dir), sink)
+	start(t, cfg, sink)
 	waitFor(t, "first row", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 1 })
 	time.Sleep(100 * time.Millisecond) // less than IdleFlush
 	if n := len(sink.records("m", "a.csv", 0)); n != 1 {
 		t.Fatalf("partial line consumed early: %d records", n)
 	}
+	// The write completing the line is read at once (one debounce window),
+	// not when the idle timer of the partial line would fire.
 	appended := time.Now()
 	appendFile(t, a, "4\n3,6")
 	waitFor(t, "completed line", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 2 })
+	if el := time.Since(appended); el > idle/2 {
+		t.Errorf("completed line read %v after the write, want about one debounce window", el)
+	}
 	// "3,6" has no newline: after IdleFlush without change it is taken,
 	// not before (the tail cannot have been seen before the append).
 	waitFor(t, "idle flush", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 3 })
-	if el := time.Since(appended); el < 300*time.Millisecond {
-		t.Errorf("idle flush %v after the append, want at least IdleFlush (300ms)", el)
+	if el := time.Since(appended); el < idle {
+		t.Errorf("idle flush %v after the append, want at least IdleFlush (%v)", el, idle)
 	}
 	if got := sink.values("m", "a.csv", 0); !slices.Equal(got, []float64{1, 2, 3}) {
 		t.Errorf("rows %v", got)
