@@ -1,0 +1,82 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
+	"testing"
+
+	"plumb/cmd/plumb/internal/demo"
+)
+
+// TestDemoSummary runs "plumb demo" in-process at high speed and checks,
+// from its JSON summary, that exactly the planted alerts were raised: one
+// suspect point on the edge outlier's line, a fragile fit that resolved
+// itself after the follow-up readings, a drift, and nothing for the benign
+// high-leverage reading or the outlier at low leverage.
+func TestDemoSummary(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs the demo for about 25 s")
+	}
+	dir := t.TempDir()
+	sumPath := filepath.Join(dir, "summary.json")
+	var out, errb bytes.Buffer
+	e := &env{stdin: strings.NewReader(""), stdout: &out, stderr: &errb, getenv: os.Getenv}
+	// 2 s / 6 = a reading every 333 ms: each reading gets a refresh of its
+	// own (refresh is 200 ms in the demo config).
+	code := runMain(context.Background(), e, []string{"demo", "--duration", "28s", "--speed", "6", "--listen", "", "--quiet",
+		"--keep", filepath.Join(dir, "run"), "--summary-json", sumPath})
+	if code != 0 {
+		t.Fatalf("exit %d\nstdout:\n%s\nstderr:\n%s", code, out.String(), errb.String())
+	}
+	b, err := os.ReadFile(sumPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var sum struct {
+		Rows   int `json:"rows"`
+		Fits   int `json:"fits"`
+		Alerts []struct {
+			ID, Kind, Subject, State string
+		} `json:"alerts"`
+	}
+	if err := json.Unmarshal(b, &sum); err != nil {
+		t.Fatal(err)
+	}
+	exp := demo.Expected()
+	if sum.Rows != exp.Lines-1 {
+		t.Errorf("rows = %d, want %d", sum.Rows, exp.Lines-1)
+	}
+	if sum.Fits == 0 {
+		t.Error("no fits")
+	}
+	var got []string
+	for _, a := range sum.Alerts {
+		if a.ID == "" {
+			t.Errorf("alert without id: %+v", a)
+		}
+		got = append(got, a.Kind+" "+a.Subject+" "+a.State)
+	}
+	sort.Strings(got)
+	var want []string
+	for _, l := range exp.Suspect {
+		want = append(want, "suspect_point "+demo.ModelName+"/"+demo.FeedName+":"+strconv.Itoa(l)+" open")
+	}
+	want = append(want, "drift "+demo.ModelName+" open", "fragile_fit "+demo.ModelName+" resolved")
+	sort.Strings(want)
+	if strings.Join(got, "\n") != strings.Join(want, "\n") {
+		t.Errorf("alerts:\n%s\nwant:\n%s\n\ndemo output:\n%s", strings.Join(got, "\n"), strings.Join(want, "\n"), out.String())
+	}
+	for _, a := range sum.Alerts {
+		for _, l := range append(exp.OutlierOnly, exp.Leverage) {
+			if strings.HasSuffix(a.Subject, ":"+strconv.Itoa(l)) {
+				t.Errorf("an alert on benign line %d: %+v", l, a)
+			}
+		}
+	}
+}
