@@ -833,24 +833,27 @@ func fgSign(v float64) int {
 func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt FragilityOptions) FragilityResult {
 	res := FragilityResult{MaxRemoved: opt.MaxRemoved, Limit: opt.Limit}
 	left := opt.Budget
-	all := make([]int, s.n)
-	for i := range all {
-		all[i] = i
-	}
 	ev := s.newEvaluator(checks)
+	// A unit is a pool searched in turn: rows lo..hi-1, or an explicit
+	// list (the ranked candidates). For m = 1 the rows go in blocks, to
+	// bound memory.
+	type unit struct {
+		lo, hi int
+		list   []int
+	}
+	var loaded *unit
+	var rowsBuf []int
 	for m := 1; m <= opt.MaxRemoved && m < s.df; m++ {
 		step := SearchStep{Removed: m}
-		// Pools searched in turn: for m = 1 over all rows, blocks of rows
-		// (to bound memory); otherwise one pool.
-		var units [][]int
+		var units []unit
 		if k := fgBinom(s.n, m); k <= float64(left) {
 			step.Exhaustive, step.Candidates = true, s.n
 			if m == 1 {
 				for lo := 0; lo < s.n; lo += fgBlock {
-					units = append(units, all[lo:min(lo+fgBlock, s.n)])
+					units = append(units, unit{lo: lo, hi: min(lo+fgBlock, s.n)})
 				}
 			} else {
-				units = [][]int{all}
+				units = []unit{{lo: 0, hi: s.n}}
 			}
 		} else {
 			L := min(len(ranked), opt.Candidates)
@@ -862,14 +865,26 @@ func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt Fragilit
 			}
 			pool := append([]int(nil), ranked[:L]...)
 			sort.Ints(pool)
-			units = [][]int{pool}
+			units = []unit{{list: pool}}
 			step.Candidates = L
 		}
 		ev.setSize(m)
 		found := false
-		for _, unit := range units {
-			if !fgSamePool(ev.pool, unit) {
-				ev.load(unit)
+		for _, u := range units {
+			same := loaded != nil && loaded.lo == u.lo && loaded.hi == u.hi &&
+				fgSamePool(loaded.list, u.list)
+			if !same {
+				pool := u.list
+				if pool == nil {
+					rowsBuf = rowsBuf[:0]
+					for i := u.lo; i < u.hi; i++ {
+						rowsBuf = append(rowsBuf, i)
+					}
+					pool = rowsBuf
+				}
+				ev.load(pool)
+				uu := u
+				loaded = &uu
 			}
 			if found = ev.run(&step, &res); found {
 				break
