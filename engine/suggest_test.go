@@ -318,14 +318,12 @@ func TestSuggestDelivery(t *testing.T) {
 			}
 		}
 	}
-	// Brute force on the augmented data: refit with 3 readings at the
+	// Brute force on the augmented data: refit with r readings at the
 	// point on the fitted surface and remove every set of up to 3 of the
 	// original rows; the band keeps its full-data centre and width.
-	for _, sg := range s {
-		z := []float64{1, sg.At["cases"], sg.At["distance"]}
+	brute := func(z []float64, r int) int {
 		X, y := f.X(), f.Y()
 		n, p := X.Dims()
-		r := sg.Replicates
 		Xa := mat.NewDense(n+r, p, nil)
 		Xa.Slice(0, n, 0, p).(*mat.Dense).Copy(X)
 		ya := append(append([]float64(nil), y...), make([]float64, r)...)
@@ -339,8 +337,6 @@ func TestSuggestDelivery(t *testing.T) {
 			t.Fatal(err)
 		}
 		half := 1 * f.Coef[2].StdError
-		idx := 0
-	search:
 		for m := 1; m <= 3; m++ {
 			set := make([]int, m)
 			for a := range set {
@@ -349,8 +345,7 @@ func TestSuggestDelivery(t *testing.T) {
 			for {
 				h, err := frDrop(g, set)
 				if err == nil && math.Abs(h.Coef[2].Estimate-f.Coef[2].Estimate) > half {
-					idx = m
-					break search
+					return m
 				}
 				a := m - 1
 				for a >= 0 && set[a] == n-m+a {
@@ -365,8 +360,27 @@ func TestSuggestDelivery(t *testing.T) {
 				}
 			}
 		}
-		if sg.Effect.FragilityAfter != idx {
+		return 0
+	}
+	fragile := func(idx int) bool { return idx > 0 && idx <= 2 }
+	for _, sg := range s {
+		z := []float64{1, sg.At["cases"], sg.At["distance"]}
+		if idx := brute(z, sg.Replicates); sg.Effect.FragilityAfter != idx {
 			t.Errorf("at %v: fragility after %d, brute force %d", sg.At, sg.Effect.FragilityAfter, idx)
+		}
+		// The smallest number of readings that ends the fragility.
+		switch e := sg.Effect.EndsFragility; {
+		case e > 0:
+			if fragile(brute(z, e)) {
+				t.Errorf("at %v: %d readings said to end the fragility; brute force: still fragile", sg.At, e)
+			}
+			if e > 1 && !fragile(brute(z, e-1)) {
+				t.Errorf("at %v: %d readings said to be the fewest; brute force: %d suffice", sg.At, e, e-1)
+			}
+		default:
+			if !fragile(brute(z, 20)) {
+				t.Errorf("at %v: said not ended by 20 readings; brute force: it is", sg.At)
+			}
 		}
 	}
 }
