@@ -30,9 +30,8 @@ func (db *DB) RecordFit(ctx context.Context, f store.FitRecord, changes []store.
 		return fail(fmt.Errorf("terms: %w", err))
 	}
 	type change struct {
-		at   any
-		c    *store.VerdictChange
-		args []any
+		at any // encoded time
+		c  *store.VerdictChange
 	}
 	cs := make([]change, len(changes))
 	for i := range changes {
