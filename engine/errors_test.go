@@ -227,3 +227,32 @@ func TestShapePanics(t *testing.T) {
 		})
 	}
 }
+
+// Values far larger in a later chunk than in the first one overflow the
+// provisional prescaling; Refit must notice and redo the factorization
+// with the global range.
+func TestRefitLateHugeValue(t *testing.T) {
+	n := 3 * chunkRows
+	x := make([]float64, n)
+	y := make([]float64, n)
+	for i := range x {
+		x[i] = float64(i % 97)
+		y[i] = 1 + 0.5*x[i] + math.Sin(float64(i))
+	}
+	x[n-1] = 1e200
+	f := fitXY(t, x, y)
+	if !f.finite() {
+		t.Fatalf("non-finite fit: %+v", f.Coef)
+	}
+	inf := Diagnose(f)
+	if h := inf.Rows[n-1].Leverage; math.Abs(h-1) > 1e-9 {
+		t.Errorf("leverage of the huge row = %v, want 1", h)
+	}
+	sh := 0.0
+	for _, o := range inf.Rows {
+		sh += o.Leverage
+	}
+	if math.Abs(sh-2) > 1e-9 {
+		t.Errorf("Σh = %v, want 2", sh)
+	}
+}

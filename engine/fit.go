@@ -362,9 +362,16 @@ func (w *work) factor() error {
 	if nonFinite || !allFinite(w.S) {
 		// Values far larger than those of the first chunk overflowed the
 		// prescaled sums of squares: redo with the global ranges.
+		big := make([]float64, k)
+		for i := 0; i < n; i++ {
+			row := w.xd[i*w.stride : i*w.stride+p]
+			for j, v := range row {
+				big[j] = math.Max(big[j], math.Abs(v-cen[j]))
+			}
+			big[p] = math.Max(big[p], math.Abs(w.y[i]-cen[p]))
+		}
 		for j := 0; j < k; j++ {
-			c := cen[j]
-			w.pre[j] = pow2Inv(math.Max(math.Abs(mn[j]-c), math.Abs(mx[j]-c)))
+			w.pre[j] = pow2Inv(big[j])
 		}
 		w.qrPass(cen)
 		if !allFinite(w.S) {
@@ -458,22 +465,18 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 			st.min[j] = math.Inf(1)
 			st.max[j] = math.Inf(-1)
 		}
+		// X columns: a non-finite value turns bad[j] into NaN (v*0), and
+		// a column is constant in the chunk when no value differs from the
+		// first; the offending row is looked up only when needed.
+		bad := make([]float64, p)
+		first := w.xd[lo*w.stride : lo*w.stride+p]
+		differs := make([]bool, p)
 		for i := lo; i < hi; i++ {
 			row := w.xd[i*w.stride : i*w.stride+p]
 			ii := i - lo
 			for j, v := range row {
-				if v-v != 0 {
-					if st.badRow < 0 {
-						st.badRow, st.badCol = i, j
-					}
-				} else {
-					if v < st.min[j] {
-						st.min[j] = v
-					}
-					if v > st.max[j] {
-						st.max[j] = v
-					}
-				}
+				bad[j] += v * 0
+				differs[j] = differs[j] || v != first[j]
 				d := v - cen[j]
 				st.sum[j] += d
 				a[j*mr+ii] = d * pre[j]
@@ -496,6 +499,23 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 			}
 			st.sum[p] += v - cen[p]
 			a[p*mr+ii] = v * pre[p]
+		}
+		for j := 0; j < p; j++ {
+			if bad[j] != 0 {
+				for i := lo; i < hi; i++ {
+					if v := w.xd[i*w.stride+j]; v-v != 0 {
+						if st.badRow < 0 || i < st.badRow || (i == st.badRow && j < st.badCol) {
+							st.badRow, st.badCol = i, j
+						}
+						break
+					}
+				}
+			}
+			// min/max stand for "constant in this chunk" from here on.
+			st.min[j], st.max[j] = first[j], first[j]
+			if differs[j] {
+				st.max[j] = math.Inf(1)
+			}
 		}
 		if st.badRow < 0 {
 			houseQR(a, mr, p, k, w.taus[c*p:(c+1)*p])
