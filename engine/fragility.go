@@ -755,6 +755,38 @@ func (ev *fragEval) trapped(set []int) bool {
 // v = L^-1 e_S; false when a pivot is below fgSingularPivot.
 func (ev *fragEval) factor(set []int) bool {
 	s, m := ev.s, ev.m
+	if m == 3 {
+		// Unrolled: the ranked search spends most of its subsets here.
+		a, b, c := set[0], set[1], set[2]
+		a11, a22, a33 := 1-ev.h[a], 1-ev.h[b], 1-ev.h[c]
+		a21 := -fgDot(ev.x[b], ev.u[a])
+		a31 := -fgDot(ev.x[c], ev.u[a])
+		a32 := -fgDot(ev.x[c], ev.u[b])
+		if !(a11 > fgSingularPivot) {
+			return false
+		}
+		l11 := math.Sqrt(a11)
+		l21, l31 := a21/l11, a31/l11
+		d2 := a22 - l21*l21
+		if !(d2 > fgSingularPivot) {
+			return false
+		}
+		l22 := math.Sqrt(d2)
+		l32 := (a32 - l31*l21) / l22
+		d3 := a33 - l31*l31 - l32*l32
+		if !(d3 > fgSingularPivot) {
+			return false
+		}
+		l33 := math.Sqrt(d3)
+		l := ev.l[:9]
+		l[0], l[3], l[4], l[6], l[7], l[8] = l11, l21, l22, l31, l32, l33
+		ea, eb, ec := s.e[ev.pool[a]], s.e[ev.pool[b]], s.e[ev.pool[c]]
+		v0 := ea / l11
+		v1 := (eb - l21*v0) / l22
+		v2 := (ec - l31*v0 - l32*v1) / l33
+		ev.v[0], ev.v[1], ev.v[2] = v0, v1, v2
+		return true
+	}
 	for a := 0; a < m; a++ {
 		xa := ev.x[set[a]]
 		for b := 0; b <= a; b++ {
@@ -841,7 +873,8 @@ func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt Fragilit
 		lo, hi int
 		list   []int
 	}
-	var loaded *unit
+	var loaded unit
+	haveLoaded := false
 	var rowsBuf []int
 	for m := 1; m <= opt.MaxRemoved && m < s.df; m++ {
 		step := SearchStep{Removed: m}
@@ -871,7 +904,7 @@ func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt Fragilit
 		ev.setSize(m)
 		found := false
 		for _, u := range units {
-			same := loaded != nil && loaded.lo == u.lo && loaded.hi == u.hi &&
+			same := haveLoaded && loaded.lo == u.lo && loaded.hi == u.hi &&
 				fgSamePool(loaded.list, u.list)
 			if !same {
 				pool := u.list
@@ -883,8 +916,7 @@ func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt Fragilit
 					pool = rowsBuf
 				}
 				ev.load(pool)
-				uu := u
-				loaded = &uu
+				loaded, haveLoaded = u, true
 			}
 			if found = ev.run(&step, &res); found {
 				break
@@ -903,7 +935,7 @@ func (s *fragSearch) searchRanked(checks []fragCheck, ranked []int, opt Fragilit
 }
 
 // fgBlock is the number of rows loaded at a time for the m = 1 pass.
-const fgBlock = 8192
+const fgBlock = 1024
 
 // fgSamePool reports whether a and b are the same rows.
 func fgSamePool(a, b []int) bool {
