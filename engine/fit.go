@@ -170,11 +170,12 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	if cond > maxCondition || math.IsNaN(cond) {
 		return nil, fmt.Errorf("%w: %w", ErrIllConditioned, mat.Condition(cond))
 	}
-	b := ws.refine(cond)
+	fitted := make([]float64, n)
+	b, db0, single := ws.refine(cond, fitted)
 
 	// Final pass: residuals, fitted values, RSS in double-double, TSS.
 	xd, stride := ws.xd, ws.stride
-	fitted := make([]float64, n)
+	f0 := fitted // holds the it0 remainders when single
 	res := ws.r
 	rssPart := make([]dd, ch.nc)
 	tssPart := make([]float64, 2*ch.nc)
@@ -185,7 +186,19 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 		var t1, t2 float64
 		for i := lo; i < hi; i++ {
 			row := xd[i*stride : i*stride+p]
-			e := residual2(y[i], 0, row, b)
+			var e float64
+			if single {
+				// r0 + f0 = y - X b0 to double-double accuracy and
+				// b = b0 + db0, so e = r0 + (f0 - x·db0): the small
+				// terms in double, then one rounding.
+				t := f0[i]
+				for j, v := range row {
+					t = math.FMA(-v, db0[j], t)
+				}
+				e = res[i] + t
+			} else {
+				e = residual2(y[i], 0, row, b)
+			}
 			res[i] = e
 			fitted[i] = y[i] - e
 			q := e * e
@@ -550,7 +563,10 @@ func allFinite(v []float64) bool {
 // system [I X; X' 0][r; b] = [y; 0] (Björck 1967) from the consistent
 // start r = y - X b0, with y - r - Xb and X'r accumulated in extended
 // precision. The factors are those of the scaled design.
-func (w *work) refine(cond float64) []float64 {
+//
+// It also returns the first correction db0 and whether it was the only
+// one; then w.r holds r0 = fl(y - X b0) and f0 the remainders y - X b0 - r0.
+func (w *work) refine(cond float64, f0 []float64) (b, db0 []float64, single bool) {
 	n, p, k := w.n, w.p, w.k
 	ch, sc, R := w.ch, &w.sc, w.R
 	sm := ch.nc * p
@@ -561,9 +577,11 @@ func (w *work) refine(cond float64) []float64 {
 		c0[i] = w.S[p*sm+i] / w.pre[p]
 	}
 	solveUpper(R, p, c0)
-	b := make([]float64, p)
+	b = make([]float64, p)
 	sc.fromW(b, c0)
 	cvec := c0
+	db0 = make([]float64, p)
+	single = true
 
 	w.r = make([]float64, n)
 	r := w.r
@@ -605,6 +623,7 @@ func (w *work) refine(cond float64) []float64 {
 					ri = s1 + c1
 					fi = (s1 - ri) + c1
 					r[i] = ri
+					f0[i] = fi
 				} else {
 					ri = r[i]
 					fi = residual2(y[i], ri, row, bb)
@@ -642,6 +661,11 @@ func (w *work) refine(cond float64) []float64 {
 		}
 		solveUpper(R, p, dc)
 		sc.fromW(db, dc)
+		if it == 0 {
+			copy(db0, db)
+		} else {
+			single = false
+		}
 		cmax := 0.0
 		for j := 0; j < p; j++ {
 			b[j] += db[j]
@@ -679,7 +703,7 @@ func (w *work) refine(cond float64) []float64 {
 		applyQ(w.S, sm, p, w.tauS, s)
 	}
 	w.blocks, w.S = nil, nil
-	return b
+	return b, db0, single
 }
 
 // finish computes the inverse factors, coefficient table and summary

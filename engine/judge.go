@@ -138,6 +138,9 @@ func Judge(inf *Influence, c Cutoffs) []Verdict {
 	f := inf.Fit
 	n, p := f.N, f.P
 	j := judge{lim: CutoffLimits(c, n, p), names: f.Model.Names(), c: c, grubbsRow: -1}
+	j.minCook = math.Min(j.lim.CookAbsolute, j.lim.CookSize)
+	j.minDFFITS = math.Min(j.lim.DFFITSAbsolute, j.lim.DFFITSSize)
+	j.minDFBETAS = math.Min(j.lim.DFBETASAbsolute, j.lim.DFBETASSize)
 	if c.Test == GrubbsTest {
 		j.gr = Grubbs(f.Residuals, c.Alpha)
 		if j.gr.Outlier {
@@ -170,16 +173,33 @@ func Judge(inf *Influence, c Cutoffs) []Verdict {
 }
 
 type judge struct {
-	lim       Limits
-	names     []string
-	c         Cutoffs
-	gr        GrubbsResult
-	grubbsRow int
+	lim                            Limits
+	minCook, minDFFITS, minDFBETAS float64
+	names                          []string
+	c                              Cutoffs
+	gr                             GrubbsResult
+	grubbsRow                      int
 }
 
 // row appends the flags of one row to dst and sets the verdict's booleans.
 func (j *judge) row(dst []Flag, i int, o *Obs, v *Verdict) []Flag {
 	lim := &j.lim
+	// Fast path: below the smaller cutoff of every measure, no flag.
+	if o.Cook <= j.minCook && math.Abs(o.DFFITS) <= j.minDFFITS && o.Leverage <= lim.Leverage &&
+		math.Abs(o.COVRATIO-1) <= lim.COVRATIO && i != j.grubbsRow &&
+		(j.c.Test != BonferroniTest || !(o.BonferroniP < j.c.Alpha)) {
+		quiet := true
+		for _, d := range o.DFBETAS {
+			if math.Abs(d) > j.minDFBETAS {
+				quiet = false
+				break
+			}
+		}
+		if quiet {
+			*v = Verdict{}
+			return dst
+		}
+	}
 	abs, size := false, false
 	if o.Cook > lim.CookAbsolute {
 		dst = append(dst, Flag{MeasureCook, FamilyAbsolute, "", o.Cook, lim.CookAbsolute})
