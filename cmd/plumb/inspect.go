@@ -1110,36 +1110,6 @@ type jsonCoef struct {
 	Upper95  jnum   `json:"upper_95"`
 }
 
-type jsonFlag struct {
-	Measure string  `json:"measure"`
-	Family  string  `json:"family"`
-	Value   jnum    `json:"value"`
-	Cutoff  jnum    `json:"cutoff"`
-	Term    *string `json:"term"`
-	Words   string  `json:"words"`
-}
-
-type jsonRow struct {
-	Row                 int        `json:"row"`
-	Line                int        `json:"line"`
-	Fitted              jnum       `json:"fitted"`
-	Leverage            jnum       `json:"leverage"`
-	Residual            jnum       `json:"residual"`
-	StudentizedInternal jnum       `json:"studentized_internal"`
-	StudentizedExternal jnum       `json:"studentized_external"`
-	Cook                jnum       `json:"cooks_distance"`
-	DFFITS              jnum       `json:"dffits"`
-	DFBETAS             jmap       `json:"dfbetas"`
-	COVRATIO            jnum       `json:"covratio"`
-	OutlierP            jnum       `json:"outlier_p"`
-	OutlierPBonferroni  jnum       `json:"outlier_p_bonferroni"`
-	Verdict             string     `json:"verdict"`
-	Outlier             bool       `json:"outlier"`
-	Influential         bool       `json:"influential"`
-	Notable             bool       `json:"notable"`
-	Flags               []jsonFlag `json:"flags"`
-}
-
 type jsonFragility struct {
 	Index        *int   `json:"index"`
 	Searched     string `json:"searched"`
@@ -1290,7 +1260,6 @@ type jsonReport struct {
 	Coefficients []jsonCoef        `json:"coefficients"`
 	VIF          *jmap             `json:"vif"`
 	Cutoffs      jsonCutoffs       `json:"cutoffs"`
-	Rows         []jsonRow         `json:"rows"`
 	Rejected     []rejectedRow     `json:"rejected"`
 	Fragility    *jsonFragility    `json:"fragility,omitempty"`
 	Suggestions  *[]jsonSuggestion `json:"suggestions,omitempty"`
@@ -1361,45 +1330,121 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		}
 		rep.VIF = &v
 	}
-	rep.Rows = make([]jsonRow, len(r.inf.Rows))
-	for i, o := range r.inf.Rows {
-		v := r.verdicts[i]
-		jr := jsonRow{
-			Row: r.ds.rowNo[i], Line: r.ds.line[i],
-			Fitted:              jnum(f.Fitted[i]),
-			Leverage:            jnum(o.Leverage),
-			Residual:            jnum(o.Residual),
-			StudentizedInternal: jnum(o.StudentInternal),
-			StudentizedExternal: jnum(o.StudentExternal),
-			Cook:                jnum(o.Cook),
-			DFFITS:              jnum(o.DFFITS),
-			DFBETAS:             jmap{keys: r.names, vals: o.DFBETAS},
-			COVRATIO:            jnum(o.COVRATIO),
-			OutlierP:            jnum(o.OutlierP),
-			OutlierPBonferroni:  jnum(o.BonferroniP),
-			Verdict:             v.Word(),
-			Outlier:             v.Outlier,
-			Influential:         v.Influential,
-			Notable:             v.Notable,
-			Flags:               []jsonFlag{},
-		}
-		for _, fl := range v.Flags {
-			jf := jsonFlag{Measure: fl.Measure, Family: fl.Family, Value: jnum(fl.Value), Cutoff: jnum(fl.Cutoff), Words: flagWords(fl)}
-			if fl.Term != "" {
-				t := fl.Term
-				jf.Term = &t
-			}
-			jr.Flags = append(jr.Flags, jf)
-		}
-		rep.Rows[i] = jr
-	}
-	bw := bufio.NewWriterSize(w, 1<<16)
-	enc := json.NewEncoder(bw)
-	enc.SetIndent("", "  ")
-	if err := enc.Encode(rep); err != nil {
+	head, err := json.MarshalIndent(rep, "", "  ")
+	if err != nil {
 		return err
 	}
+	// The rows are streamed after the rest, one compact object a line, so
+	// that a large file needs no document-sized buffer.
+	head = bytes.TrimRight(head, " \n}")
+	bw := bufio.NewWriterSize(w, 1<<16)
+	bw.Write(head)
+	bw.WriteString(",\n  \"rows\": [")
+	qnames := make([][]byte, len(r.names))
+	for j, n := range r.names {
+		qnames[j], _ = json.Marshal(n)
+	}
+	var buf []byte
+	for i := range r.inf.Rows {
+		buf = buf[:0]
+		if i > 0 {
+			buf = append(buf, ',')
+		}
+		buf = append(buf, "\n    "...)
+		buf = r.appendJSONRow(buf, i, qnames)
+		bw.Write(buf)
+	}
+	if len(r.inf.Rows) > 0 {
+		bw.WriteString("\n  ")
+	}
+	bw.WriteString("]\n}\n")
 	return bw.Flush()
+}
+
+func appendJSONNum(dst []byte, x float64) []byte {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return append(dst, "null"...)
+	}
+	return strconv.AppendFloat(dst, x, 'g', -1, 64)
+}
+
+func appendJSONString(dst []byte, s string) []byte {
+	b, _ := json.Marshal(s)
+	return append(dst, b...)
+}
+
+// appendJSONRow writes row i as one JSON object: row, line, fitted, the
+// measures, dfbetas by term, the verdict and the crossed cutoffs.
+func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte {
+	o := &r.inf.Rows[i]
+	v := &r.verdicts[i]
+	num := func(key string, x float64) {
+		dst = append(dst, ',', '"')
+		dst = append(dst, key...)
+		dst = append(dst, '"', ':')
+		dst = appendJSONNum(dst, x)
+	}
+	flag := func(key string, b bool) {
+		dst = append(dst, ',', '"')
+		dst = append(dst, key...)
+		dst = append(dst, '"', ':')
+		dst = strconv.AppendBool(dst, b)
+	}
+	dst = append(dst, `{"row":`...)
+	dst = strconv.AppendInt(dst, int64(r.ds.rowNo[i]), 10)
+	dst = append(dst, `,"line":`...)
+	dst = strconv.AppendInt(dst, int64(r.ds.line[i]), 10)
+	num("fitted", r.fit.Fitted[i])
+	num("leverage", o.Leverage)
+	num("residual", o.Residual)
+	num("studentized_internal", o.StudentInternal)
+	num("studentized_external", o.StudentExternal)
+	num("cooks_distance", o.Cook)
+	num("dffits", o.DFFITS)
+	dst = append(dst, `,"dfbetas":{`...)
+	for j, x := range o.DFBETAS {
+		if j > 0 {
+			dst = append(dst, ',')
+		}
+		dst = append(dst, qnames[j]...)
+		dst = append(dst, ':')
+		dst = appendJSONNum(dst, x)
+	}
+	dst = append(dst, '}')
+	num("covratio", o.COVRATIO)
+	num("outlier_p", o.OutlierP)
+	num("outlier_p_bonferroni", o.BonferroniP)
+	dst = append(dst, `,"verdict":"`...)
+	dst = append(dst, v.Word()...)
+	dst = append(dst, '"')
+	flag("outlier", v.Outlier)
+	flag("influential", v.Influential)
+	flag("notable", v.Notable)
+	dst = append(dst, `,"flags":[`...)
+	for k, fl := range v.Flags {
+		if k > 0 {
+			dst = append(dst, ',')
+		}
+		dst = append(dst, `{"measure":`...)
+		dst = appendJSONString(dst, fl.Measure)
+		dst = append(dst, `,"family":`...)
+		dst = appendJSONString(dst, fl.Family)
+		dst = append(dst, `,"value":`...)
+		dst = appendJSONNum(dst, fl.Value)
+		dst = append(dst, `,"cutoff":`...)
+		dst = appendJSONNum(dst, fl.Cutoff)
+		dst = append(dst, `,"term":`...)
+		if fl.Term == "" {
+			dst = append(dst, "null"...)
+		} else {
+			dst = appendJSONString(dst, fl.Term)
+		}
+		dst = append(dst, `,"words":`...)
+		dst = appendJSONString(dst, flagWords(fl))
+		dst = append(dst, '}')
+	}
+	dst = append(dst, "]}"...)
+	return dst
 }
 
 // ---------------------------------------------------------------- CSV
