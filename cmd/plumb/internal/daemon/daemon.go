@@ -282,6 +282,9 @@ func (d *Daemon) Run(ctx context.Context, reload <-chan *config.Config) error {
 		select {
 		case err := <-errc:
 			stop()
+			if errors.Is(err, errRestart) {
+				continue
+			}
 			return err
 		case cfg := <-reload:
 			stop()
@@ -325,8 +328,19 @@ func (d *Daemon) runPipeline(ctx context.Context) error {
 	d.mu.RUnlock()
 
 	var srcs []watcher.Source
+	var missing []string
 	for _, name := range order {
 		m := models[name]
+		folder := cfg.Resolve(m.cfg.Folder)
+		if fi, err := os.Stat(folder); err != nil || !fi.IsDir() {
+			// One model's missing folder never stops the others: the model
+			// waits, blocked with the reason, and the pipeline restarts
+			// when the folder appears.
+			reason := fmt.Sprintf("folder %s does not exist (or is not a folder); waiting for it", folder)
+			m.setState(ctx, stateBlocked, reason, alerts.CauseNotFittable)
+			missing = append(missing, folder)
+			continue
+		}
 		states, err := d.store.Sources(ctx, name)
 		if err != nil {
 			return err
@@ -334,7 +348,7 @@ func (d *Daemon) runPipeline(ctx context.Context) error {
 		delim := m.cfg.Delimiter[0]
 		srcs = append(srcs, watcher.Source{
 			Model:     name,
-			Folder:    cfg.Resolve(m.cfg.Folder),
+			Folder:    folder,
 			Pattern:   m.cfg.Pattern,
 			Recursive: m.cfg.Recursive,
 			Dialect:   decode.Dialect{Delimiter: delim, Comment: m.cfg.Comment, DecimalComma: m.cfg.DecimalComma},
@@ -343,30 +357,82 @@ func (d *Daemon) runPipeline(ctx context.Context) error {
 			States:    toFileStates(states),
 		})
 	}
-	w, err := watcher.New(watcher.Config{
-		Sources:   srcs,
-		Debounce:  cfg.Watch.Debounce.Duration,
-		IdleFlush: cfg.Watch.IdleFlush.Duration,
-		Rescan:    cfg.Watch.Rescan.Duration,
-		Progress:  d.opts.Progress,
-	}, sink{d}, d.log)
-	if err != nil {
-		return err
+	var w *watcher.Watcher
+	if len(srcs) > 0 {
+		var err error
+		w, err = watcher.New(watcher.Config{
+			Sources:   srcs,
+			Debounce:  cfg.Watch.Debounce.Duration,
+			IdleFlush: cfg.Watch.IdleFlush.Duration,
+			Rescan:    cfg.Watch.Rescan.Duration,
+			Progress:  d.opts.Progress,
+		}, sink{d}, d.log)
+		if err != nil {
+			return err
+		}
+		defer w.Close()
 	}
-	defer w.Close()
 
+	// pctx ends with ctx, or earlier when a missing folder appears and the
+	// pipeline must be built again.
+	pctx, stopPipeline := context.WithCancel(ctx)
+	defer stopPipeline()
 	var wg sync.WaitGroup
 	wg.Add(1)
 	go func() {
 		defer wg.Done()
-		d.refreshLoop(ctx, cfg.Watch.Refresh.Duration)
+		d.refreshLoop(pctx, cfg.Watch.Refresh.Duration)
 	}()
-	err = w.Run(ctx)
+	if len(missing) > 0 {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			if d.awaitFolders(pctx, missing, cfg.Watch.Rescan.Duration) {
+				stopPipeline()
+			}
+		}()
+	}
+	var err error
+	if w != nil {
+		err = w.Run(pctx)
+	} else {
+		<-pctx.Done() // every folder is missing: wait for one to appear
+	}
+	stopPipeline()
 	wg.Wait()
 	if errors.Is(err, context.Canceled) {
 		err = nil
 	}
+	if err == nil && ctx.Err() == nil {
+		return errRestart // a missing folder appeared
+	}
 	return err
+}
+
+// errRestart asks Run to build the pipeline again.
+var errRestart = errors.New("daemon: restart the pipeline")
+
+// awaitFolders polls the missing folders every interval and reports true
+// as soon as one exists, false when ctx ends.
+func (d *Daemon) awaitFolders(ctx context.Context, folders []string, every time.Duration) bool {
+	if every <= 0 {
+		every = 5 * time.Second
+	}
+	t := time.NewTicker(every)
+	defer t.Stop()
+	for {
+		select {
+		case <-ctx.Done():
+			return false
+		case <-t.C:
+		}
+		for _, f := range folders {
+			if fi, err := os.Stat(f); err == nil && fi.IsDir() {
+				d.log.Info("watched folder appeared", "folder", f)
+				return true
+			}
+		}
+	}
 }
 
 // refreshLoop refreshes dirty models, each at most once per interval, and
@@ -440,8 +506,8 @@ func (s sink) Notice(ctx context.Context, n watcher.Notice) {
 	if m == nil {
 		return
 	}
-	switch n.Kind {
-	case watcher.HeaderChanged, watcher.Error:
+	switch {
+	case n.Blocked && (n.Kind == watcher.HeaderChanged || n.Kind == watcher.Error):
 		what := "header of %s changed: %s"
 		if n.Kind == watcher.Error {
 			what = "%s cannot be read: %s"
