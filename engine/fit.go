@@ -681,9 +681,6 @@ func (w *work) refine(cond float64, f0 []float64) (b, db0 []float64, single bool
 			n2 += dc[j] * dc[j]
 			cmin = math.Min(cmin, den)
 		}
-		if debugRefine {
-			fmt.Println("refine", it, nd, rho*math.Sqrt(n2)/cmin, b)
-		}
 		if nd <= eps || math.IsNaN(nd) {
 			break
 		}
@@ -927,7 +924,6 @@ func invertUpper(R []float64, p int) []float64 {
 	return inv
 }
 
-var debugRefine = false
 
 // pow2Inv returns the power of two nearest 1/v from below in magnitude
 // (1 for v = 0 or non-finite v), so that v*pow2Inv(v) lies in [0.5, 1).
