@@ -924,7 +924,6 @@ func invertUpper(R []float64, p int) []float64 {
 	return inv
 }
 
-
 // pow2Inv returns the power of two nearest 1/v from below in magnitude
 // (1 for v = 0 or non-finite v), so that v*pow2Inv(v) lies in [0.5, 1).
 func pow2Inv(v float64) float64 {
