@@ -175,14 +175,17 @@ func hcut(p *plot.Plot, y, x0, x1 float64, dash []vg.Length, label string) error
 func fitPlot(d view.ModelDetail, predictor string) (*plot.Plot, error) {
 	p := newPlot("Data and fit", predictor, d.Response)
 	if c, ok := d.Curve(predictor); ok && len(c.X) > 1 {
-		var band plotter.XYs
+		var band, lower plotter.XYs
 		for i := range c.X {
-			band = append(band, plotter.XY{X: float64(c.X[i]), Y: float64(c.Upper[i])})
+			if i < len(c.Lower) && i < len(c.Upper) && c.X[i].Finite() && c.Lower[i].Finite() && c.Upper[i].Finite() {
+				band = append(band, plotter.XY{X: float64(c.X[i]), Y: float64(c.Upper[i])})
+				lower = append(lower, plotter.XY{X: float64(c.X[i]), Y: float64(c.Lower[i])})
+			}
 		}
-		for i := len(c.X) - 1; i >= 0; i-- {
-			band = append(band, plotter.XY{X: float64(c.X[i]), Y: float64(c.Lower[i])})
+		for i := len(lower) - 1; i >= 0; i-- {
+			band = append(band, lower[i])
 		}
-		if poly, err := plotter.NewPolygon(band); err == nil {
+		if poly, err := plotter.NewPolygon(band); err == nil && len(band) > 2 {
 			poly.Color = greenSoft
 			poly.LineStyle.Width = 0
 			p.Add(poly)
@@ -190,13 +193,17 @@ func fitPlot(d view.ModelDetail, predictor string) (*plot.Plot, error) {
 		}
 		var mid plotter.XYs
 		for i := range c.X {
-			mid = append(mid, plotter.XY{X: float64(c.X[i]), Y: float64(c.Y[i])})
+			if i < len(c.Y) && c.X[i].Finite() && c.Y[i].Finite() {
+				mid = append(mid, plotter.XY{X: float64(c.X[i]), Y: float64(c.Y[i])})
+			}
 		}
-		l, err := line(p, mid, green, vg.Points(1.6), nil)
-		if err != nil {
-			return nil, err
+		if len(mid) > 1 {
+			l, err := line(p, mid, green, vg.Points(1.6), nil)
+			if err != nil {
+				return nil, err
+			}
+			p.Legend.Add("fitted", l)
 		}
-		p.Legend.Add("fitted", l)
 		// A rising curve fills the top right corner: put the legend left.
 		if len(c.Y) > 1 && c.Y[len(c.Y)-1] > c.Y[0] {
 			p.Legend.Left = true
@@ -243,9 +250,14 @@ func fitPlot(d view.ModelDetail, predictor string) (*plot.Plot, error) {
 
 func influencePlot(d view.ModelDetail) (*plot.Plot, error) {
 	p := newPlot("Residual against leverage", "leverage h", "studentized residual t")
-	xmax := float64(d.Cutoffs.Leverage) * 1.1
+	xmax, ymax, ymin := 0.0, 0.0, 0.0
+	if lev := float64(d.Cutoffs.Leverage); finite(lev) {
+		xmax = lev * 1.1
+	}
 	tc := float64(d.Cutoffs.TCritical)
-	ymax, ymin := tc, -tc
+	if finite(tc) {
+		ymax, ymin = tc, -tc
+	}
 	for _, pt := range d.Points {
 		if v := float64(pt.Leverage); finite(v) {
 			xmax = math.Max(xmax, v*1.05)
@@ -376,7 +388,7 @@ func historyPlot(fits []view.FitView, term string, band *view.DriftBand) (*plot.
 	for _, e := range est {
 		lo, hi = math.Min(lo, e.Y), math.Max(hi, e.Y)
 	}
-	if band != nil {
+	if band != nil && band.Lower.Finite() && band.Upper.Finite() {
 		lo, hi = math.Min(lo, float64(band.Lower)), math.Max(hi, float64(band.Upper))
 	}
 	w := math.Max(hi-lo, math.Abs(hi)*1e-6+1e-12)
@@ -392,6 +404,16 @@ func headroom(p *plot.Plot, frac float64) {
 
 // render writes the plot as SVG or PNG at the given size.
 func render(w io.Writer, p *plot.Plot, format string, width, height vg.Length) error {
+	// A non-finite axis bound would stall the tick search: fall back.
+	for _, a := range []*plot.Axis{&p.X, &p.Y} {
+		switch {
+		case !finite(a.Min) || !finite(a.Max) || a.Min > a.Max:
+			a.Min, a.Max = 0, 1
+		case a.Min == a.Max:
+			d := math.Max(math.Abs(a.Min)*0.1, 1)
+			a.Min, a.Max = a.Min-d, a.Max+d
+		}
+	}
 	switch format {
 	case "svg":
 		c := vgsvg.New(width, height)

@@ -4,6 +4,8 @@ import (
 	"bytes"
 	"errors"
 	"image/png"
+	"io"
+	"math"
 	"regexp"
 	"strings"
 	"testing"
@@ -139,5 +141,41 @@ func TestChart(t *testing.T) {
 	}
 	if err := HistoryChart(&buf, dm.d, dm.fits, "nope", "svg"); err == nil {
 		t.Error("history of an unknown term: no error")
+	}
+}
+
+// Undefined diagnostics (NaN, ±Inf) are left out of the charts, never a
+// failure and never a NaN coordinate.
+func TestWriteUndefinedValues(t *testing.T) {
+	nan, inf := view.NaN(), view.Float(math.Inf(1))
+	d := view.ModelDetail{
+		ModelSummary: view.ModelSummary{Name: "edge", State: view.StateJudging, Response: "y",
+			Terms: []string{"intercept", "x"}, Predictors: []string{"x"}, MaxCook: nan},
+		N: 3, P: 2, Sigma: nan, RSquared: 1,
+		Cutoffs: view.Cutoffs{Leverage: nan, CookAbsolute: nan, CookSizeAdjusted: 4.0 / 3, TCritical: nan, Alpha: 0.05},
+		Points: []view.Point{
+			{Row: 0, X: map[string]view.Float{"x": 1}, Y: 2, Fitted: 2, Leverage: 1, StudentizedExternal: nan, Cook: nan, Verdict: view.VerdictOrdinary},
+			{Row: 1, X: map[string]view.Float{"x": 2}, Y: 4, Fitted: 4, Leverage: 0.5, StudentizedExternal: inf, Cook: inf, Verdict: view.VerdictNotable},
+			{Row: 2, X: map[string]view.Float{"x": 3}, Y: 5, Leverage: 0.5, StudentizedExternal: 0.3, Cook: 0.1, Verdict: view.VerdictOrdinary},
+		},
+		Curves:      []view.Curve{{Predictor: "x", X: []view.Float{1, 2, 3}, Y: []view.Float{2, nan, 5}, Lower: []view.Float{nan, 3, 4}, Upper: []view.Float{inf, 5, 6}}},
+		Suggestions: []view.Suggestion{{At: map[string]view.Float{"x": nan}, Text: "n/a"}},
+		Drift:       []view.DriftBand{{Term: "x", Baseline: nan, Lower: nan, Upper: nan}},
+	}
+	fits := []view.FitView{
+		{Terms: []string{"intercept", "x"}, Estimates: []view.Float{nan, 1}, StdErrors: []view.Float{nan, inf}},
+		{Terms: []string{"intercept", "x"}, Estimates: []view.Float{0, 2}, StdErrors: []view.Float{1, nan}},
+	}
+	var buf bytes.Buffer
+	if err := Write(&buf, d, fits, nil, Options{}); err != nil {
+		t.Fatal(err)
+	}
+	if m := regexp.MustCompile(`(?i)="[^"]*\b(nan|[+-]?inf)\b[^"]*"`).FindString(buf.String()); m != "" {
+		t.Errorf("non-finite value in markup: %s", m)
+	}
+	for _, name := range []string{ChartFit, ChartInfluence, ChartCooks} {
+		if err := Chart(io.Discard, d, name, "png"); err != nil {
+			t.Errorf("%s: %v", name, err)
+		}
 	}
 }

@@ -404,6 +404,9 @@ func historyChart(fits []view.FitView, term string, band *view.DriftBand) templa
 			continue
 		}
 		e := float64(f.Estimates[j])
+		if !finite(e) {
+			continue
+		}
 		se := math.NaN()
 		if j < len(f.StdErrors) {
 			se = float64(f.StdErrors[j])
