@@ -51,6 +51,10 @@ type Dispatcher struct {
 	Jitter func() float64
 	// Logger receives failures; nil means slog.Default().
 	Logger *slog.Logger
+	// OnAttempt, when set, is told the outcome of every send attempt (for
+	// metrics). It is called from the dispatcher's goroutines and must not
+	// block.
+	OnAttempt func(route string, ok bool)
 
 	ledger Ledger
 	routes map[string]*Route
@@ -231,6 +235,9 @@ func (d *Dispatcher) work(ctx context.Context, name string, ds []Delivery) (int,
 		now = d.now()
 		x.Attempts++
 		x.UpdatedAt = now
+		if d.OnAttempt != nil {
+			d.OnAttempt(name, err == nil)
+		}
 		if err == nil {
 			x.State, x.LastError = DeliveryDelivered, ""
 			sent++

@@ -42,7 +42,7 @@ func TestPendingDebounce(t *testing.T) {
 	t.Run("continuous writes still flush every window", func(t *testing.T) {
 		p := newPending(win)
 		flushes := 0
-		now := t0
+		var now time.Time
 		for i := 0; i < 1000; i++ { // one write per millisecond for a second
 			now = t0.Add(time.Duration(i) * time.Millisecond)
 			p.event(a, fsnotify.Write, now, time.Time{})
@@ -126,7 +126,7 @@ func TestChanged(t *testing.T) {
 		prefix []byte
 		want   NoticeKind
 	}{
-		{"append", identity{ino: 7, size: int64(len(grown))}, grown[:len(grown)], 0},
+		{"append", identity{ino: 7, size: int64(len(grown))}, grown, 0},
 		{"same", identity{ino: 7, size: int64(len(content))}, content, 0},
 		{"new inode", identity{ino: 8, size: int64(len(grown))}, grown, Rotated},
 		{"shrank below offset", identity{ino: 7, size: 4}, content[:4], Truncated},

@@ -177,6 +177,7 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	}
 	dispatch = alerts.NewDispatcher(ledger{d.store}, rs)
 	dispatch.Logger = d.log
+	dispatch.OnAttempt = d.metrics.delivery
 
 	for _, name := range order {
 		m := models[name]
