@@ -103,7 +103,8 @@ func (m *modelRT) summary(openAlerts int) view.ModelSummary {
 
 // fragView converts the latest fragility result. Caller holds mu.
 func (m *modelRT) fragView() view.Fragility {
-	f := view.Fragility{Computed: true, K: m.cfg.Fragility.MaxRemoved}
+	f := view.Fragility{Computed: true, K: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit,
+		Fragile: m.frag.Fragile, Searched: m.frag.Searched}
 	if m.frag.Index > 0 {
 		f.Found = true
 		f.Index = m.frag.Index
@@ -167,7 +168,7 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 		for k, x := range s.At {
 			at[k] = view.Float(x)
 		}
-		d.Suggestions = append(d.Suggestions, view.Suggestion{At: at, Text: s.Text, DGain: view.Float(s.DGain)})
+		d.Suggestions = append(d.Suggestions, view.Suggestion{At: at, Text: s.Text, DGain: view.Float(s.DGain), Replicates: s.Replicates})
 	}
 	if b := m.baseline; b != nil {
 		k := m.cfg.Alerts.Drift.K
@@ -271,6 +272,8 @@ func fitView(f store.FitRecord) view.FitView {
 		MaxCook   *float64 `json:"max_cooks_distance"`
 		Fragility struct {
 			Conclusion string `json:"conclusion"`
+			Searched   string `json:"searched"`
+			Fragile    bool   `json:"fragile"`
 		} `json:"fragility"`
 	}
 	if json.Unmarshal([]byte(f.Detail), &detail) == nil {
@@ -278,6 +281,8 @@ func fitView(f store.FitRecord) view.FitView {
 			fv.MaxCook = view.Float(*detail.MaxCook)
 		}
 		fv.Fragility.Conclusion = detail.Fragility.Conclusion
+		fv.Fragility.Searched = detail.Fragility.Searched
+		fv.Fragility.Fragile = detail.Fragility.Fragile
 	}
 	return fv
 }
