@@ -717,7 +717,11 @@ func sgText(cols []string, sg Suggestion, fopt FragilityOptions, opt SuggestOpti
 		case ef.EndsFragility == 0:
 			parts = append(parts, fmt.Sprintf("up to %d readings here do not end the fragility", opt.MaxReplicates))
 		case ef.EndsFragility != sg.Replicates:
-			parts = append(parts, fmt.Sprintf("%d readings here end the fragility", ef.EndsFragility))
+			if ef.EndsFragility == 1 {
+				parts = append(parts, "1 reading here ends the fragility")
+			} else {
+				parts = append(parts, fmt.Sprintf("%d readings here end the fragility", ef.EndsFragility))
+			}
 		}
 	}
 	if len(parts) > 0 {
