@@ -197,3 +197,59 @@ terms = ["x", "x^2"]
 	b.ReportMetric(all[len(all)/2], "p50-ms")
 	b.ReportMetric(all[len(all)*99/100], "p99-ms")
 }
+
+// BenchmarkManyModels feeds 100 models together (one folder each, rows
+// appended round-robin in bursts) through the real watcher and reports
+// the time until every model holds every row, and the spread between the
+// first and the last model to finish: no model may starve.
+func BenchmarkManyModels(b *testing.B) {
+	const models, rows, bursts = 100, 1000, 10
+	var total, spread []float64
+	for b.Loop() {
+		b.StopTimer()
+		dir := b.TempDir()
+		var body strings.Builder
+		for i := 0; i < models; i++ {
+			fmt.Fprintf(&body, lineModel, fmt.Sprintf("m%03d", i), fmt.Sprintf("in%03d", i), false)
+			if err := os.MkdirAll(filepath.Join(dir, fmt.Sprintf("in%03d", i)), 0o755); err != nil {
+				b.Fatal(err)
+			}
+		}
+		c := testConfig(b, dir, body.String())
+		r := start(b, c)
+		rng := rand.New(rand.NewPCG(4, 4))
+		b.StartTimer()
+		t0 := time.Now()
+		for k := 0; k < bursts; k++ {
+			for i := 0; i < models; i++ {
+				feed(b, filepath.Join(dir, fmt.Sprintf("in%03d", i), "f.csv"), rng, k*rows/bursts, rows/bursts, k == 0)
+			}
+		}
+		done := make([]time.Duration, models)
+		waitFor(b, "every model complete", func() bool {
+			all := true
+			for i := 0; i < models; i++ {
+				if done[i] != 0 {
+					continue
+				}
+				if count(b, r.d.store, fmt.Sprintf("m%03d", i)) == rows {
+					done[i] = time.Since(t0)
+				} else {
+					all = false
+				}
+			}
+			return all
+		})
+		b.StopTimer()
+		slices.Sort(done)
+		total = append(total, done[models-1].Seconds())
+		spread = append(spread, (done[models-1] - done[0]).Seconds())
+		r.stop(b)
+		b.StartTimer()
+	}
+	slices.Sort(total)
+	slices.Sort(spread)
+	b.ReportMetric(total[len(total)/2], "s-all-done")
+	b.ReportMetric(spread[len(spread)/2], "s-spread")
+	b.ReportMetric(float64(models*rows)/total[len(total)/2], "rows/s")
+}
