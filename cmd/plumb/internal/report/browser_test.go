@@ -13,40 +13,9 @@ import (
 	cdplog "github.com/chromedp/cdproto/log"
 	"github.com/chromedp/cdproto/runtime"
 	"github.com/chromedp/chromedp"
+
+	"plumb/cmd/plumb/internal/browsertest"
 )
-
-const chromiumPath = "/usr/bin/chromium"
-
-// profileDir is a fresh chromium profile. It is removed with retries:
-// chromium's helper processes can still write there for a moment after
-// the browser stops, which would fail t.TempDir's cleanup.
-func profileDir(t testing.TB) string {
-	t.Helper()
-	dir, err := os.MkdirTemp("", "plumb-chromium-")
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		for range 50 {
-			if os.RemoveAll(dir) == nil {
-				return
-			}
-			time.Sleep(100 * time.Millisecond)
-		}
-	})
-	return dir
-}
-
-func artifactDir(t testing.TB) string {
-	t.Helper()
-	if d := os.Getenv("PLUMB_ARTIFACTS"); d != "" {
-		if err := os.MkdirAll(d, 0o755); err != nil {
-			t.Fatal(err)
-		}
-		return d
-	}
-	return t.TempDir()
-}
 
 // TestBrowserReport opens a generated report file in headless Debian
 // chromium (offline flags, fresh profile), checks that each chart renders
@@ -56,10 +25,10 @@ func TestBrowserReport(t *testing.T) {
 	if testing.Short() {
 		t.Skip("browser test skipped under -short")
 	}
-	if _, err := os.Stat(chromiumPath); err != nil {
-		t.Skipf("browser test skipped: %s not found (apt-get install -y chromium)", chromiumPath)
+	if _, err := os.Stat(browsertest.ChromiumPath); err != nil {
+		t.Skipf("browser test skipped: %s not found (apt-get install -y chromium)", browsertest.ChromiumPath)
 	}
-	dir := artifactDir(t)
+	dir := browsertest.ArtifactDir(t)
 	path := filepath.Join(dir, "report-bench-b.html")
 	if err := os.WriteFile(path, []byte(writeDemo(t)), 0o644); err != nil {
 		t.Fatal(err)
@@ -67,7 +36,7 @@ func TestBrowserReport(t *testing.T) {
 	dm := loadDemo(t)
 
 	opts := append(chromedp.DefaultExecAllocatorOptions[:],
-		chromedp.ExecPath(chromiumPath),
+		chromedp.ExecPath(browsertest.ChromiumPath),
 		chromedp.Flag("headless", true),
 		chromedp.NoSandbox,
 		chromedp.DisableGPU,
@@ -76,7 +45,7 @@ func TestBrowserReport(t *testing.T) {
 		chromedp.Flag("disable-background-networking", true),
 		chromedp.Flag("disable-component-update", true),
 		chromedp.Flag("disable-sync", true),
-		chromedp.UserDataDir(profileDir(t)),
+		chromedp.UserDataDir(browsertest.ProfileDir(t)),
 		chromedp.WindowSize(1100, 900),
 	)
 	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)

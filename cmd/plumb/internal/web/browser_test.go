@@ -15,43 +15,10 @@ import (
 	"github.com/chromedp/cdproto/runtime"
 	"github.com/chromedp/chromedp"
 
+	"plumb/cmd/plumb/internal/browsertest"
 	"plumb/cmd/plumb/internal/view"
 	"plumb/cmd/plumb/internal/view/viewtest"
 )
-
-const chromiumPath = "/usr/bin/chromium"
-
-// artifactDir is where screenshots go: $PLUMB_ARTIFACTS or a temp dir.
-// profileDir is a fresh chromium profile. It is removed with retries:
-// chromium's helper processes can still write there for a moment after
-// the browser stops, which would fail t.TempDir's cleanup.
-func profileDir(t testing.TB) string {
-	t.Helper()
-	dir, err := os.MkdirTemp("", "plumb-chromium-")
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		for range 50 {
-			if os.RemoveAll(dir) == nil {
-				return
-			}
-			time.Sleep(100 * time.Millisecond)
-		}
-	})
-	return dir
-}
-
-func artifactDir(t testing.TB) string {
-	t.Helper()
-	if d := os.Getenv("PLUMB_ARTIFACTS"); d != "" {
-		if err := os.MkdirAll(d, 0o755); err != nil {
-			t.Fatal(err)
-		}
-		return d
-	}
-	return t.TempDir()
-}
 
 // browser starts headless Debian chromium with the flags this machine
 // needs (no background networking, fresh profile) and collects console
@@ -61,11 +28,11 @@ func browser(t *testing.T) (context.Context, func() []string) {
 	if testing.Short() {
 		t.Skip("browser test skipped under -short")
 	}
-	if _, err := os.Stat(chromiumPath); err != nil {
-		t.Skipf("browser test skipped: %s not found (apt-get install -y chromium)", chromiumPath)
+	if _, err := os.Stat(browsertest.ChromiumPath); err != nil {
+		t.Skipf("browser test skipped: %s not found (apt-get install -y chromium)", browsertest.ChromiumPath)
 	}
 	opts := append(chromedp.DefaultExecAllocatorOptions[:],
-		chromedp.ExecPath(chromiumPath),
+		chromedp.ExecPath(browsertest.ChromiumPath),
 		chromedp.Flag("headless", true),
 		chromedp.NoSandbox,
 		chromedp.DisableGPU,
@@ -74,7 +41,7 @@ func browser(t *testing.T) (context.Context, func() []string) {
 		chromedp.Flag("disable-background-networking", true),
 		chromedp.Flag("disable-component-update", true),
 		chromedp.Flag("disable-sync", true),
-		chromedp.UserDataDir(profileDir(t)),
+		chromedp.UserDataDir(browsertest.ProfileDir(t)),
 		chromedp.WindowSize(1360, 1000),
 	)
 	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)
@@ -155,7 +122,7 @@ func screenshot(t *testing.T, ctx context.Context, name string) {
 	if err != nil {
 		t.Fatalf("screenshot %s: %v", name, err)
 	}
-	p := filepath.Join(artifactDir(t), name)
+	p := filepath.Join(browsertest.ArtifactDir(t), name)
 	if err := os.WriteFile(p, buf, 0o644); err != nil {
 		t.Fatal(err)
 	}
