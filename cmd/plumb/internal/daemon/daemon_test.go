@@ -229,8 +229,13 @@ func TestHeaderChangeBlocks(t *testing.T) {
 	feed(t, file, rng, 0, 20, true)
 	r := start(t, c)
 	waitFor(t, "20 rows", func() bool { return count(t, r.d.store, "m") == 20 })
-	// Rewrite the file in place with the columns swapped.
-	if err := os.WriteFile(file, []byte("id,y,x\n1,2,3\n"), 0o644); err != nil {
+	// Replace the file (by rename, so the watcher sees the new content
+	// whole) with one whose header has another column instead of x.
+	tmp := filepath.Join(dir, "in", ".a.csv.tmp")
+	if err := os.WriteFile(tmp, []byte("id,temp,y\n1,2,3\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Rename(tmp, file); err != nil {
 		t.Fatal(err)
 	}
 	waitFor(t, "blocked", func() bool {

@@ -175,8 +175,13 @@ func (m *modelRT) refresh(ctx context.Context) error {
 	m.d.metrics.fit(name, time.Since(start), fit.N, frag, maxCook)
 
 	// Alerts. A fit that succeeds clears a blocked model.
-	if err := m.d.blocked(ctx, alerts.BlockedCondition{Model: name, Blocked: false}); err != nil {
-		m.log.Error("alert", "err", err)
+	m.mu.Lock()
+	stillBlocked := len(m.headerBlocked) > 0
+	m.mu.Unlock()
+	if !stillBlocked {
+		if err := m.d.blocked(ctx, alerts.BlockedCondition{Model: name, Blocked: false}); err != nil {
+			m.log.Error("alert", "err", err)
+		}
 	}
 	var top *alerts.Suggestion
 	if len(sugg) > 0 {
@@ -478,6 +483,12 @@ func fmtNum(v float64) string {
 // setState records the model's state when it changes.
 func (m *modelRT) setState(ctx context.Context, state, reason, cause string) {
 	m.mu.Lock()
+	if state != stateBlocked && len(m.headerBlocked) > 0 {
+		// A file of the model is blocked (its header changed while a
+		// refit was under way): the model stays blocked until it clears.
+		m.mu.Unlock()
+		return
+	}
 	changed := m.state != state || m.reason != reason
 	m.state, m.reason, m.cause = state, reason, cause
 	m.mu.Unlock()
