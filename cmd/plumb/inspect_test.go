@@ -953,9 +953,11 @@ func TestInspectDelimiter(t *testing.T) {
 // benchArgs is the 6-coefficient model the benchmark fits.
 var benchArgs = []string{"--response", "reading", "--terms", "emf_mv, bath_c, rh_pct, pressure_kpa, emf_mv^2", "--format", "csv"}
 
-// writeBenchCSV writes the seeded benchmark data: the same generator as
-// testdata/bench/gen_bench_csv.go (keep them in step), an invented
-// thermocouple calibration bench.
+// writeBenchCSV writes the seeded benchmark data of an invented
+// thermocouple calibration bench (the fictitious Ketterby instrument
+// workshop). testdata/bench/inspect_vs_r.sh writes its file through
+// TestWriteBenchCSV, so the Go benchmark and the comparison with R read
+// the same bytes.
 func writeBenchCSV(w *bufio.Writer, rows int, seed uint64) {
 	r := rand.New(rand.NewPCG(seed, 0x6b65747465726279))
 	stations := []string{"bench A", "bench B", `"bench C, left"`, "bench D"}
@@ -987,6 +989,36 @@ func writeBenchCSV(w *bufio.Writer, rows int, seed uint64) {
 		b = strconv.AppendFloat(b, y, 'f', 3, 64)
 		b = append(b, '\n')
 		w.Write(b)
+	}
+}
+
+// TestWriteBenchCSV writes the benchmark CSV to $PLUMB_BENCH_CSV
+// ($PLUMB_BENCH_ROWS rows, default 100,000, seed 1) for
+// testdata/bench/inspect_vs_r.sh; without the variable it does nothing.
+func TestWriteBenchCSV(t *testing.T) {
+	path := os.Getenv("PLUMB_BENCH_CSV")
+	if path == "" {
+		t.Skip("set PLUMB_BENCH_CSV to write the benchmark file")
+	}
+	rows := 100000
+	if v := os.Getenv("PLUMB_BENCH_ROWS"); v != "" {
+		n, err := strconv.Atoi(v)
+		if err != nil || n < 1 {
+			t.Fatalf("PLUMB_BENCH_ROWS = %q: want a positive number", v)
+		}
+		rows = n
+	}
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := bufio.NewWriterSize(f, 1<<16)
+	writeBenchCSV(w, rows, 1)
+	if err := w.Flush(); err != nil {
+		t.Fatal(err)
+	}
+	if err := f.Close(); err != nil {
+		t.Fatal(err)
 	}
 }
 

@@ -27,7 +27,7 @@ command -v Rscript >/dev/null 2>&1 || { echo "inspect_vs_r.sh: Rscript not found
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 
-go run testdata/bench/gen_bench_csv.go -rows "$rows" -seed 1 > "$tmp/bench.csv"
+PLUMB_BENCH_CSV="$tmp/bench.csv" PLUMB_BENCH_ROWS="$rows" go test -count=1 -run "^TestWriteBenchCSV$" ./cmd/plumb >/dev/null
 go build -o "$tmp/plumb" ./cmd/plumb
 cat > "$tmp/job.R" <<'RSCRIPT'
 args <- commandArgs(trailingOnly = TRUE)
