@@ -1,17 +1,12 @@
 package report
 
 import (
-	"context"
 	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
-	"sync"
 	"testing"
-	"time"
 
-	cdplog "github.com/chromedp/cdproto/log"
-	"github.com/chromedp/cdproto/runtime"
 	"github.com/chromedp/chromedp"
 
 	"plumb/cmd/plumb/internal/browsertest"
@@ -22,12 +17,6 @@ import (
 // with its plotted elements, that nothing is fetched and nothing is
 // logged as an error, and saves a screenshot.
 func TestBrowserReport(t *testing.T) {
-	if testing.Short() {
-		t.Skip("browser test skipped under -short")
-	}
-	if _, err := os.Stat(browsertest.ChromiumPath); err != nil {
-		t.Skipf("browser test skipped: %s not found (apt-get install -y chromium)", browsertest.ChromiumPath)
-	}
 	dir := browsertest.ArtifactDir(t)
 	path := filepath.Join(dir, "report-bench-b.html")
 	if err := os.WriteFile(path, []byte(writeDemo(t)), 0o644); err != nil {
@@ -35,46 +24,7 @@ func TestBrowserReport(t *testing.T) {
 	}
 	dm := loadDemo(t)
 
-	opts := append(chromedp.DefaultExecAllocatorOptions[:],
-		chromedp.ExecPath(browsertest.ChromiumPath),
-		chromedp.Flag("headless", true),
-		chromedp.NoSandbox,
-		chromedp.DisableGPU,
-		chromedp.Flag("disable-quic", true),
-		chromedp.NoFirstRun,
-		chromedp.Flag("disable-background-networking", true),
-		chromedp.Flag("disable-component-update", true),
-		chromedp.Flag("disable-sync", true),
-		chromedp.UserDataDir(browsertest.ProfileDir(t)),
-		chromedp.WindowSize(1100, 900),
-	)
-	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)
-	defer cancelA()
-	ctx, cancelB := chromedp.NewContext(actx)
-	defer cancelB()
-	ctx, cancelT := context.WithTimeout(ctx, 90*time.Second)
-	defer cancelT()
-
-	var mu sync.Mutex
-	var problems []string
-	if err := chromedp.Listen(ctx, func(ev any) {
-		mu.Lock()
-		defer mu.Unlock()
-		switch ev := ev.(type) {
-		case *runtime.EventConsoleAPICalled:
-			if ev.Type == runtime.ConsoleAPICalledTypeError {
-				problems = append(problems, "console error")
-			}
-		case *runtime.EventExceptionThrown:
-			problems = append(problems, (&chromedp.ExceptionError{ExceptionDetails: ev.ExceptionDetails}).Error())
-		case *cdplog.EventEntryAdded:
-			if ev.Entry.Level == cdplog.EntryLevelError {
-				problems = append(problems, ev.Entry.Text+" "+ev.Entry.URL)
-			}
-		}
-	}); err != nil {
-		t.Fatalf("start chromium: %v", err)
-	}
+	ctx, problems := browsertest.Start(t, 1100, 900, false)
 	if err := chromedp.Do(ctx, chromedp.Navigate("file://"+path), chromedp.WaitVisible(chromedp.CSS(`svg[data-chart=cooks]`))); err != nil {
 		t.Fatal(err)
 	}
@@ -125,9 +75,7 @@ func TestBrowserReport(t *testing.T) {
 		t.Fatal(err)
 	}
 	t.Logf("report: %s, screenshot: %s", path, shot)
-	mu.Lock()
-	defer mu.Unlock()
-	for _, p := range problems {
+	for _, p := range problems() {
 		t.Errorf("browser reported: %s", p)
 	}
 }

@@ -7,12 +7,9 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
-	"sync"
 	"testing"
 	"time"
 
-	cdplog "github.com/chromedp/cdproto/log"
-	"github.com/chromedp/cdproto/runtime"
 	"github.com/chromedp/chromedp"
 
 	"plumb/cmd/plumb/internal/browsertest"
@@ -20,65 +17,11 @@ import (
 	"plumb/cmd/plumb/internal/view/viewtest"
 )
 
-// browser starts headless Debian chromium with the flags this machine
-// needs (no background networking, fresh profile) and collects console
-// errors and uncaught exceptions.
+// browser starts chromium for the dashboard tests; console and log
+// warnings count as problems too.
 func browser(t *testing.T) (context.Context, func() []string) {
 	t.Helper()
-	if testing.Short() {
-		t.Skip("browser test skipped under -short")
-	}
-	if _, err := os.Stat(browsertest.ChromiumPath); err != nil {
-		t.Skipf("browser test skipped: %s not found (apt-get install -y chromium)", browsertest.ChromiumPath)
-	}
-	opts := append(chromedp.DefaultExecAllocatorOptions[:],
-		chromedp.ExecPath(browsertest.ChromiumPath),
-		chromedp.Flag("headless", true),
-		chromedp.NoSandbox,
-		chromedp.DisableGPU,
-		chromedp.Flag("disable-quic", true),
-		chromedp.NoFirstRun,
-		chromedp.Flag("disable-background-networking", true),
-		chromedp.Flag("disable-component-update", true),
-		chromedp.Flag("disable-sync", true),
-		chromedp.UserDataDir(browsertest.ProfileDir(t)),
-		chromedp.WindowSize(1360, 1000),
-	)
-	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)
-	ctx, cancelB := chromedp.NewContext(actx)
-	ctx, cancelT := context.WithTimeout(ctx, 90*time.Second)
-	t.Cleanup(func() { cancelT(); cancelB(); cancelA() })
-
-	var mu sync.Mutex
-	var problems []string
-	err := chromedp.Listen(ctx, func(ev any) {
-		mu.Lock()
-		defer mu.Unlock()
-		switch ev := ev.(type) {
-		case *runtime.EventConsoleAPICalled:
-			if ev.Type == runtime.ConsoleAPICalledTypeError || ev.Type == runtime.ConsoleAPICalledTypeWarning {
-				var parts []string
-				for _, a := range ev.Args {
-					parts = append(parts, string(a.Value)+a.Description)
-				}
-				problems = append(problems, fmt.Sprintf("console.%s: %s", ev.Type, strings.Join(parts, " ")))
-			}
-		case *runtime.EventExceptionThrown:
-			problems = append(problems, (&chromedp.ExceptionError{ExceptionDetails: ev.ExceptionDetails}).Error())
-		case *cdplog.EventEntryAdded:
-			if ev.Entry.Level == cdplog.EntryLevelError || ev.Entry.Level == cdplog.EntryLevelWarning {
-				problems = append(problems, fmt.Sprintf("log %s: %s %s", ev.Entry.Level, ev.Entry.Text, ev.Entry.URL))
-			}
-		}
-	})
-	if err != nil {
-		t.Fatalf("start chromium: %v", err)
-	}
-	return ctx, func() []string {
-		mu.Lock()
-		defer mu.Unlock()
-		return append([]string(nil), problems...)
-	}
+	return browsertest.Start(t, 1360, 1000, true)
 }
 
 // count returns how many elements match the CSS selector.
