@@ -91,9 +91,9 @@ func TestDelivery(t *testing.T) {
 		}
 		check("D", o.Cook, w.d, dDec)
 		check("DFFITS", o.DFFITS, w.dffits, 4)
-		check("DFBETAS b0", o.DFBETAS[0], w.dfb0, 4)
-		check("DFBETAS b1", o.DFBETAS[1], w.dfb1, 4)
-		check("DFBETAS b2", o.DFBETAS[2], w.dfb2, 4)
+		check("DFBETAS b0", inf.DFBETASRow(w.obs - 1)[0], w.dfb0, 4)
+		check("DFBETAS b1", inf.DFBETASRow(w.obs - 1)[1], w.dfb1, 4)
+		check("DFBETAS b2", inf.DFBETASRow(w.obs - 1)[2], w.dfb2, 4)
 		check("COVRATIO", o.COVRATIO, w.c, 4)
 	}
 	// Published D9 = 3.41835 (C) against full precision 3.4193 (X): 1e-3

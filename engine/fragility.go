@@ -1071,23 +1071,23 @@ func fgRankRows(inf *Influence, b []float64, k int) []int {
 	if k > n {
 		k = n
 	}
-	var keys []func(o *Obs) float64
-	keys = append(keys,
-		func(o *Obs) float64 { return o.Cook },
-		func(o *Obs) float64 { return o.Leverage },
-		func(o *Obs) float64 { return math.Abs(o.StudentExternal) },
-	)
+	keys := []func(i int) float64{
+		func(i int) float64 { return rows[i].Cook },
+		func(i int) float64 { return rows[i].Leverage },
+		func(i int) float64 { return math.Abs(rows[i].StudentExternal) },
+	}
+	p := inf.Fit.P
 	for j := range b {
-		keys = append(keys, func(o *Obs) float64 {
-			if j < len(o.DFBETAS) {
-				return math.Abs(o.DFBETAS[j])
+		keys = append(keys, func(i int) float64 {
+			if j < p {
+				return math.Abs(inf.DFBETAS[i*p+j])
 			}
 			return math.NaN()
 		})
 	}
 	lists := make([][]int, len(keys))
 	for q, key := range keys {
-		lists[q] = fgTopK(n, k, func(i int) float64 { return key(&rows[i]) })
+		lists[q] = fgTopK(n, k, key)
 	}
 	out := make([]int, 0, k)
 	seen := make(map[int]bool, k)

@@ -7,24 +7,36 @@ import (
 
 // Obs holds the diagnostics of one observation (formulas in the package
 // documentation). Values that are undefined, for example every deletion
-// measure of a row with leverage 1, are NaN.
+// measure of a row with leverage 1, are NaN. Its DFBETAS are kept apart,
+// in Influence.DFBETAS, so that a table of a million rows holds no
+// pointers for the garbage collector to trace.
 type Obs struct {
-	Leverage        float64   // h_ii = x_i'(X'X)^-1 x_i
-	Residual        float64   // e_i = y_i - x_i'b
-	StudentInternal float64   // r_i = e_i/(s√(1-h))
-	StudentExternal float64   // t_i = e_i/(s_(i)√(1-h))
-	Cook            float64   // D_i = r_i² h/(p(1-h))
-	DFFITS          float64   // t_i √(h/(1-h))
-	DFBETAS         []float64 // per coefficient, in Fit.Coef order
-	COVRATIO        float64   // (s_(i)²/s²)^p/(1-h)
-	OutlierP        float64   // two-sided p of t_i on n-p-1 df (unadjusted)
-	BonferroniP     float64   // min(1, n·OutlierP)
+	Leverage        float64 // h_ii = x_i'(X'X)^-1 x_i
+	Residual        float64 // e_i = y_i - x_i'b
+	StudentInternal float64 // r_i = e_i/(s√(1-h))
+	StudentExternal float64 // t_i = e_i/(s_(i)√(1-h))
+	Cook            float64 // D_i = r_i² h/(p(1-h))
+	DFFITS          float64 // t_i √(h/(1-h))
+	COVRATIO        float64 // (s_(i)²/s²)^p/(1-h)
+	OutlierP        float64 // two-sided p of t_i on n-p-1 df (unadjusted)
+	BonferroniP     float64 // min(1, n·OutlierP)
 }
 
 // Influence is the per-observation table of a fit, Rows in row order.
+// DFBETAS holds every row's DFBETAS, one coefficient after another in
+// Fit.Coef order, row after row: row i's are DFBETAS[i*P : (i+1)*P]
+// (DFBETASRow).
 type Influence struct {
-	Fit  *Fit
-	Rows []Obs
+	Fit     *Fit
+	Rows    []Obs
+	DFBETAS []float64
+}
+
+// DFBETASRow returns row i's DFBETAS, one per coefficient in Fit.Coef
+// order (a view into inf.DFBETAS).
+func (inf *Influence) DFBETASRow(i int) []float64 {
+	p := inf.Fit.P
+	return inf.DFBETAS[i*p : (i+1)*p : (i+1)*p]
 }
 
 // deletedRecompute: rows whose deleted residual sum of squares is below
@@ -46,8 +58,8 @@ const (
 func Diagnose(f *Fit) *Influence {
 	n, p := f.N, f.P
 	d := newDiag(f)
-	inf := &Influence{Fit: f, Rows: make([]Obs, n)}
 	dfb := make([]float64, n*p)
+	inf := &Influence{Fit: f, Rows: make([]Obs, n), DFBETAS: dfb}
 	ch := newChunking(n, p)
 	type cand struct {
 		row int
@@ -60,11 +72,9 @@ func Diagnose(f *Fit) *Influence {
 		w := make([]float64, p)
 		v := make([]float64, p)
 		for i := lo; i < hi; i++ {
-			o := &inf.Rows[i]
-			o.DFBETAS = dfb[i*p : (i+1)*p : (i+1)*p]
 			h := d.row(w, v, i)
 			del, ok := d.deleted(f.Residuals[i], h)
-			d.fill(o, f.Residuals[i], h, v, del)
+			d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], f.Residuals[i], h, v, del)
 			if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
 				cands[c] = append(cands[c], cand{i, del})
 			}
@@ -90,7 +100,7 @@ func Diagnose(f *Fit) *Influence {
 	v := make([]float64, p)
 	for k, i := range rows {
 		h := d.row(w, v, i)
-		d.fill(&inf.Rows[i], f.Residuals[i], h, v, dels[k])
+		d.fill(&inf.Rows[i], inf.DFBETASRow(i), f.Residuals[i], h, v, dels[k])
 	}
 	return inf
 }
@@ -239,9 +249,9 @@ func (d *diag) deletedExact(rows []int) []float64 {
 	return out
 }
 
-// fill computes the row's measures from e, h, v = (X'X)^-1 x_i and the
-// deleted residual sum of squares del.
-func (d *diag) fill(o *Obs, e, h float64, v []float64, del float64) {
+// fill computes the row's measures, its DFBETAS into dfb, from e, h,
+// v = (X'X)^-1 x_i and the deleted residual sum of squares del.
+func (d *diag) fill(o *Obs, dfb []float64, e, h float64, v []float64, del float64) {
 	o.Residual = e
 	o.Leverage = h
 	om := 1 - h
@@ -255,8 +265,8 @@ func (d *diag) fill(o *Obs, e, h float64, v []float64, del float64) {
 	if math.IsNaN(del) {
 		o.StudentExternal, o.DFFITS, o.COVRATIO = nan, nan, nan
 		o.OutlierP, o.BonferroniP = nan, nan
-		for j := range o.DFBETAS {
-			o.DFBETAS[j] = nan
+		for j := range dfb {
+			dfb[j] = nan
 		}
 		return
 	}
@@ -267,8 +277,8 @@ func (d *diag) fill(o *Obs, e, h float64, v []float64, del float64) {
 	o.StudentExternal = ti
 	o.DFFITS = ti * math.Sqrt(h/om)
 	scale := e / (om * si)
-	for j := range o.DFBETAS {
-		o.DFBETAS[j] = v[j] * scale * d.kj[j]
+	for j := range dfb {
+		dfb[j] = v[j] * scale * d.kj[j]
 	}
 	o.COVRATIO = powInt(s2i/d.s2, d.p) / om
 	pv := d.tail.p2(ti)

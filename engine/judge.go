@@ -1,6 +1,7 @@
 package engine
 
 import (
+	"fmt"
 	"math"
 	"sort"
 )
@@ -147,10 +148,15 @@ func CutoffLimits(c Cutoffs, n, p int) Limits {
 
 // Judge applies the cutoffs to every row of inf and returns one verdict per
 // row. Both families are always evaluated and reported; c.Family decides
-// which one makes a row influential. NaN measures cross no cutoff.
+// which one makes a row influential. NaN measures cross no cutoff. An
+// Influence built by hand may leave DFBETAS nil: then no DFBETAS cutoff is
+// applied; otherwise it must hold P values per row.
 func Judge(inf *Influence, c Cutoffs) []Verdict {
 	f := inf.Fit
 	n, p := f.N, f.P
+	if inf.DFBETAS != nil && len(inf.DFBETAS) != len(inf.Rows)*p {
+		panic(fmt.Sprintf("engine: Judge: %d DFBETAS for %d rows of %d coefficients", len(inf.DFBETAS), len(inf.Rows), p))
+	}
 	var lim Limits
 	if c.Cook == CookFMedian && !anyCookAbove(inf.Rows, fMedianFloor) {
 		// No row can cross the F-median cutoff, which is never below
@@ -182,8 +188,12 @@ func Judge(inf *Influence, c Cutoffs) []Verdict {
 		// stopped growing.
 		buf := make([]Flag, 0, (hi-lo)/2+16)
 		ends := make([]int32, hi-lo)
+		var dfb []float64
 		for i := lo; i < hi; i++ {
-			buf = j.row(buf, i, &rows[i], &out[i])
+			if inf.DFBETAS != nil {
+				dfb = inf.DFBETAS[i*p : (i+1)*p]
+			}
+			buf = j.row(buf, i, &rows[i], dfb, &out[i])
 			ends[i-lo] = int32(len(buf))
 		}
 		start := 0
@@ -208,14 +218,14 @@ type judge struct {
 }
 
 // row appends the flags of one row to dst and sets the verdict's booleans.
-func (j *judge) row(dst []Flag, i int, o *Obs, v *Verdict) []Flag {
+func (j *judge) row(dst []Flag, i int, o *Obs, dfb []float64, v *Verdict) []Flag {
 	lim := &j.lim
 	// Fast path: below the smaller cutoff of every measure, no flag.
 	if o.Cook <= j.minCook && math.Abs(o.DFFITS) <= j.minDFFITS && o.Leverage <= lim.Leverage &&
 		math.Abs(o.COVRATIO-1) <= lim.COVRATIO && i != j.grubbsRow &&
 		(j.c.Test != BonferroniTest || !(o.BonferroniP < j.c.Alpha)) {
 		quiet := true
-		for _, d := range o.DFBETAS {
+		for _, d := range dfb {
 			if math.Abs(d) > j.minDFBETAS {
 				quiet = false
 				break
@@ -235,7 +245,7 @@ func (j *judge) row(dst []Flag, i int, o *Obs, v *Verdict) []Flag {
 		dst = append(dst, Flag{MeasureDFFITS, FamilyAbsolute, "", o.DFFITS, lim.DFFITSAbsolute})
 		abs = true
 	}
-	for k, d := range o.DFBETAS {
+	for k, d := range dfb {
 		if math.Abs(d) > lim.DFBETASAbsolute {
 			dst = append(dst, Flag{MeasureDFBETAS, FamilyAbsolute, j.names[k], d, lim.DFBETASAbsolute})
 			abs = true
@@ -253,7 +263,7 @@ func (j *judge) row(dst []Flag, i int, o *Obs, v *Verdict) []Flag {
 		dst = append(dst, Flag{MeasureDFFITS, FamilySizeAdjusted, "", o.DFFITS, lim.DFFITSSize})
 		size = true
 	}
-	for k, d := range o.DFBETAS {
+	for k, d := range dfb {
 		if math.Abs(d) > lim.DFBETASSize {
 			dst = append(dst, Flag{MeasureDFBETAS, FamilySizeAdjusted, j.names[k], d, lim.DFBETASSize})
 			size = true

@@ -149,7 +149,7 @@ func TestLeverageOne(t *testing.T) {
 	}
 	inf := Diagnose(f)
 	o := inf.Rows[5]
-	if math.Abs(o.Leverage-1) > 1e-12 || !math.IsNaN(o.Cook) || !math.IsNaN(o.StudentExternal) || !math.IsNaN(o.DFBETAS[0]) {
+	if math.Abs(o.Leverage-1) > 1e-12 || !math.IsNaN(o.Cook) || !math.IsNaN(o.StudentExternal) || !math.IsNaN(inf.DFBETASRow(5)[0]) {
 		t.Errorf("leverage-1 row: %+v", o)
 	}
 	v := Judge(inf, DefaultCutoffs())[5]

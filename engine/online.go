@@ -212,8 +212,8 @@ func (o *Online) exactDiag() {
 // its diagnostics against the fit that includes it, as Diagnose would give
 // for the last row of all rows so far: leverage, residual, studentized
 // residuals, Cook's distance, DFFITS, DFBETAS, COVRATIO and the outlier
-// p-values (Bonferroni with n = N()). The DFBETAS slice is owned by o and
-// overwritten by the next Add; copy it to keep it. Values that are
+// p-values (Bonferroni with n = N()); its DFBETAS are then given by
+// o.DFBETAS. Values that are
 // undefined (h = 1, taken as 1 - h < 2^-46 as in Diagnose) are NaN. The second result is false, and Obs is zero,
 // while N() <= P()+1 or the rows so far do not determine the fit.
 //
@@ -275,7 +275,7 @@ func (o *Online) Add(x []float64, y float64) (Obs, bool) {
 	if h > 1 {
 		h = 1
 	}
-	ob := Obs{Leverage: h, Residual: e, DFBETAS: o.dfb}
+	ob := Obs{Leverage: h, Residual: e}
 	// Like Diagnose: with 1 - h below 2^-46 the row is, to working
 	// precision, fitted exactly and its deletion measures are undefined.
 	if 1-h < 0x1p-46 {
@@ -305,3 +305,8 @@ func (o *Online) Add(x []float64, y float64) (Obs, bool) {
 	ob.BonferroniP = math.Min(1, n*ob.OutlierP)
 	return ob, true
 }
+
+// DFBETAS returns the DFBETAS of the row of the last Add that returned
+// true, one per coefficient. The slice is owned by o and overwritten by
+// the next Add; copy it to keep it.
+func (o *Online) DFBETAS() []float64 { return o.dfb }

@@ -295,12 +295,10 @@ func TestRReference(t *testing.T) {
 				for i := range want {
 					want[i] = val(c.DFBETAS[i][j])
 				}
-				got := get(func(o engine.Obs) float64 {
-					if len(o.DFBETAS) != p {
-						return math.NaN()
-					}
-					return o.DFBETAS[j]
-				})
+				got := make([]float64, n)
+				for i := range got {
+					got[i] = inf.DFBETASRow(i)[j]
+				}
 				compareVec(t, "dfbetas["+names[j]+"]", c.Labels, got, want)
 			}
 			// Outlier p-values, each on its own scale (see above).

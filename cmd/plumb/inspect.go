@@ -1402,7 +1402,7 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 	num("cooks_distance", o.Cook)
 	num("dffits", o.DFFITS)
 	dst = append(dst, `,"dfbetas":{`...)
-	for j, x := range o.DFBETAS {
+	for j, x := range r.inf.DFBETASRow(i) {
 		if j > 0 {
 			dst = append(dst, ',')
 		}
@@ -1521,7 +1521,7 @@ func (r *inspectResult) appendCSVRows(dst []byte, lo, hi int) []byte {
 		dst = appendCSVNum(dst, o.Cook)
 		dst = append(dst, ',')
 		dst = appendCSVNum(dst, o.DFFITS)
-		for _, x := range o.DFBETAS {
+		for _, x := range r.inf.DFBETASRow(i) {
 			dst = append(dst, ',')
 			dst = appendCSVNum(dst, x)
 		}
@@ -1890,7 +1890,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	g.add("row", "line", "leverage", "residual", "stud. int.", "stud. ext.", "Cook's D", "DFFITS", "largest DFBETAS", "(term)", "COVRATIO", "Bonferroni p", "verdict")
 	for i, o := range r.inf.Rows {
 		big, bigAt := math.NaN(), -1
-		for j, x := range o.DFBETAS {
+		for j, x := range r.inf.DFBETASRow(i) {
 			if bigAt < 0 || math.Abs(x) > math.Abs(big) {
 				big, bigAt = x, j
 			}

@@ -317,13 +317,14 @@ func (m *modelRT) ingest(ctx context.Context, b watcher.Batch) error {
 		}
 		p := pending{rec: rec, vals: rec.Values, t: t}
 		o, ok := m.online.Add(m.xrow, rec.Values[0])
+		dfb := m.online.DFBETAS()
 		n := m.online.N()
 		if m.windowed() {
-			o, n, ok = m.windowArrival(rows, p)
+			o, dfb, n, ok = m.windowArrival(rows, p)
 		}
 		if ok && n >= m.minRows {
-			v := m.judgeArrival(o, n)
-			p.diag = diagnostics(o, v)
+			v := m.judgeArrival(o, dfb, n)
+			p.diag = diagnostics(o, dfb, v)
 		}
 		rows = append(rows, p)
 	}
@@ -383,13 +384,14 @@ func quarantineRow(model string, b watcher.Batch, rec decode.Record, col int, re
 	}
 }
 
-// diagnostics converts the engine's measures of one row into the stored form.
-func diagnostics(o engine.Obs, v engine.Verdict) *store.Diagnostics {
+// diagnostics converts the engine's measures of one row, with its DFBETAS,
+// into the stored form.
+func diagnostics(o engine.Obs, dfb []float64, v engine.Verdict) *store.Diagnostics {
 	flags, _ := json.Marshal(flagsJSON(v.Flags))
 	return &store.Diagnostics{
 		Leverage: o.Leverage, Residual: o.Residual,
 		StudentizedInternal: o.StudentInternal, StudentizedExternal: o.StudentExternal,
-		CooksDistance: o.Cook, DFFITS: o.DFFITS, DFBETAS: slices.Clone(o.DFBETAS),
+		CooksDistance: o.Cook, DFFITS: o.DFFITS, DFBETAS: slices.Clone(dfb),
 		COVRATIO: o.COVRATIO, OutlierPBonferroni: o.BonferroniP,
 		Verdict: v.Word(), Flags: string(flags),
 	}
@@ -423,10 +425,10 @@ func finite(v float64) float64 {
 // includes it, with the model's cutoffs for n = the rows so far. The
 // outlier test at arrival is the Bonferroni test; a model configured for
 // the Grubbs test gets it at each refresh, which sees all residuals.
-func (m *modelRT) judgeArrival(o engine.Obs, n int) engine.Verdict {
+func (m *modelRT) judgeArrival(o engine.Obs, dfb []float64, n int) engine.Verdict {
 	c := m.cut
 	c.Test = engine.BonferroniTest
-	one := &engine.Influence{Fit: &engine.Fit{Model: m.spec, N: n, P: m.spec.P()}, Rows: []engine.Obs{o}}
+	one := &engine.Influence{Fit: &engine.Fit{Model: m.spec, N: n, P: m.spec.P()}, Rows: []engine.Obs{o}, DFBETAS: dfb}
 	return engine.Judge(one, c)[0]
 }
 
@@ -441,7 +443,7 @@ func (m *modelRT) windowed() bool {
 // and this one, cut to the window. The online fit covers all rows, so a
 // windowed model refits its window per arriving row (O(w p²) for a window
 // of w rows). Caller holds mu.
-func (m *modelRT) windowArrival(batch []pending, p pending) (engine.Obs, int, bool) {
+func (m *modelRT) windowArrival(batch []pending, p pending) (engine.Obs, []float64, int, bool) {
 	type row struct {
 		vals []float64
 		t    int64
@@ -480,7 +482,7 @@ func (m *modelRT) windowArrival(batch []pending, p pending) (engine.Obs, int, bo
 	}
 	n := len(stored) + len(all)
 	if n <= m.spec.P()+1 {
-		return engine.Obs{}, n, false
+		return engine.Obs{}, nil, n, false
 	}
 	cols := make(map[string][]float64, len(m.vals))
 	names := m.numeric()
@@ -496,12 +498,12 @@ func (m *modelRT) windowArrival(batch []pending, p pending) (engine.Obs, int, bo
 	}
 	X, y, err := m.spec.Design(cols)
 	if err != nil {
-		return engine.Obs{}, n, false
+		return engine.Obs{}, nil, n, false
 	}
 	f, err := engine.Refit(m.spec, X, y)
 	if err != nil {
-		return engine.Obs{}, n, false
+		return engine.Obs{}, nil, n, false
 	}
 	inf := engine.Diagnose(f)
-	return inf.Rows[n-1], n, true
+	return inf.Rows[n-1], inf.DFBETASRow(n - 1), n, true
 }
