@@ -107,17 +107,18 @@ func Diagnose(f *Fit) *Influence {
 
 // diag holds what every row's diagnostics share.
 type diag struct {
-	f        *Fit
-	p        int
-	xd       []float64
-	stride   int
-	kj       []float64 // 1/sqrt(C_jj)
-	invScale []float64
-	xs       []float64 // scratch (one diag per goroutine)
-	tail     tTail
-	s2, s    float64
-	df1      float64
-	nf, fp   float64
+	f      *Fit
+	p      int
+	xd     []float64
+	stride int
+	kj     []float64 // 1/sqrt(C_jj)
+	riS    []float64 // R^-1 with row j divided by scale_j
+	xs     []float64 // scratch (one diag per goroutine)
+	tail   tTail
+	table  *tailTable // nil for small fits
+	s2, s  float64
+	df1    float64
+	nf, fp float64
 }
 
 func newDiag(f *Fit) *diag {
@@ -126,12 +127,18 @@ func newDiag(f *Fit) *diag {
 	d := &diag{f: f, p: p, xd: raw.Data, stride: raw.Stride, kj: make([]float64, p),
 		s2: f.RSS / float64(f.N-p), df1: float64(f.N - p - 1), nf: float64(f.N), fp: float64(p)}
 	d.s = math.Sqrt(d.s2)
-	d.invScale = make([]float64, p)
-	for j := range d.invScale {
-		d.invScale[j] = 1 / f.sc.scale[j]
+	d.riS = make([]float64, p*p)
+	for j := 0; j < p; j++ {
+		inv := 1 / f.sc.scale[j]
+		for l := j; l < p; l++ {
+			d.riS[j*p+l] = f.ri[j*p+l] * inv
+		}
 	}
 	d.xs = make([]float64, p)
 	d.tail = newTTail(d.df1)
+	if f.N >= tailTableRows && d.df1 >= largeDF {
+		d.table = newTailTable(d.tail)
+	}
 	for j := 0; j < p; j++ {
 		c := 0.0
 		for l := 0; l < p; l++ {
@@ -144,7 +151,8 @@ func newDiag(f *Fit) *diag {
 
 // row returns h_i and sets v = (X'X)^-1 x_i; w is scratch. With
 // w = T^-T x_i (the scaled, centred row), q = R^-T w gives h = |q|², and
-// v = M q with M = T^-1 R^-1 precomputed.
+// v = M q with M = T^-1 R^-1 precomputed. M is upper triangular (T^-1
+// and R^-1 both are), so v_j needs only q_l for l >= j.
 func (d *diag) row(w, v []float64, i int) float64 {
 	p := d.p
 	d.q(w, i)
@@ -154,9 +162,11 @@ func (d *diag) row(w, v []float64, i int) float64 {
 	}
 	m := d.f.m
 	for j := 0; j < p; j++ {
-		mj := m[j*p : (j+1)*p]
+		mj := m[j*p+j : (j+1)*p]
+		wj := w[j:p]
+		wj = wj[:len(mj)]
 		s := 0.0
-		for l, q := range w {
+		for l, q := range wj {
 			s += mj[l] * q
 		}
 		v[j] = s
@@ -167,24 +177,23 @@ func (d *diag) row(w, v []float64, i int) float64 {
 	return h
 }
 
-// q sets w = R^-T T^-T x_i, using R^-1 precomputed (R^-T is lower
-// triangular: q_l = Σ_{j<=l} Rinv_jl w_j).
+// q sets w = R^-T T^-T x_i, using R^-1 with its rows divided by the
+// column scales (riS, precomputed): R^-T is lower triangular, so
+// q_l = Σ_{j<=l} riS_jl (x_ij - mean_j).
 func (d *diag) q(w []float64, i int) {
 	p := d.p
 	row := d.xd[i*d.stride : i*d.stride+p]
 	sc := &d.f.sc
 	x := d.xs[:p]
 	if sc.intercept {
-		x[0] = row[0] * d.invScale[0]
+		x[0] = row[0]
 		for j := 1; j < p; j++ {
-			x[j] = (row[j] - sc.mean[j]*row[0]) * d.invScale[j]
+			x[j] = row[j] - sc.mean[j]*row[0]
 		}
 	} else {
-		for j := 0; j < p; j++ {
-			x[j] = row[j] * d.invScale[j]
-		}
+		copy(x, row)
 	}
-	ri := d.f.ri
+	ri := d.riS
 	for l := 0; l < p; l++ {
 		s := 0.0
 		for j := 0; j <= l; j++ {
@@ -281,7 +290,12 @@ func (d *diag) fill(o *Obs, dfb []float64, e, h float64, v []float64, del float6
 		dfb[j] = v[j] * scale * d.kj[j]
 	}
 	o.COVRATIO = powInt(s2i/d.s2, d.p) / om
-	pv := d.tail.p2(ti)
+	var pv float64
+	if d.table != nil {
+		pv = d.table.p2(ti)
+	} else {
+		pv = d.tail.p2(ti)
+	}
 	o.OutlierP = pv
 	o.BonferroniP = math.Min(1, d.nf*pv)
 }
