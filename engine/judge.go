@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"sync"
 )
 
 // Family selects which cutoff family decides "influential".
@@ -184,9 +185,10 @@ func Judge(inf *Influence, c Cutoffs) []Verdict {
 	ch := newChunking(len(rows), p)
 	ch.run(func(k int) {
 		lo, hi := ch.bounds(k)
-		// One backing array per chunk; rows take subslices once it has
-		// stopped growing.
-		buf := make([]Flag, 0, (hi-lo)/2+16)
+		// The chunk's flags go to a reused scratch buffer first, then
+		// into one exactly sized backing array that rows take subslices of.
+		sp := flagScratch.Get().(*[]Flag)
+		buf := (*sp)[:0]
 		ends := make([]int32, hi-lo)
 		var dfb []float64
 		for i := lo; i < hi; i++ {
@@ -196,17 +198,27 @@ func Judge(inf *Influence, c Cutoffs) []Verdict {
 			buf = j.row(buf, i, &rows[i], dfb, &out[i])
 			ends[i-lo] = int32(len(buf))
 		}
-		start := 0
-		for i := lo; i < hi; i++ {
-			end := int(ends[i-lo])
-			if end > start {
-				out[i].Flags = buf[start:end:end]
+		if len(buf) > 0 {
+			flags := make([]Flag, len(buf))
+			copy(flags, buf)
+			start := 0
+			for i := lo; i < hi; i++ {
+				end := int(ends[i-lo])
+				if end > start {
+					out[i].Flags = flags[start:end:end]
+				}
+				start = end
 			}
-			start = end
 		}
+		clear(buf)
+		*sp = buf
+		flagScratch.Put(sp)
 	})
 	return out
 }
+
+// flagScratch holds the per-chunk scratch buffers of Judge.
+var flagScratch = sync.Pool{New: func() any { b := make([]Flag, 0, 1024); return &b }}
 
 type judge struct {
 	lim                            Limits
