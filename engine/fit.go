@@ -481,22 +481,48 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 		// X columns: a non-finite value turns bad[j] into NaN (v*0), and
 		// a column is constant in the chunk when no value differs from the
 		// first; the offending row is looked up only when needed.
+		// Column by column, so that the accumulators stay in registers.
 		bad := make([]float64, p)
 		first := w.xd[lo*w.stride : lo*w.stride+p]
 		differs := make([]bool, p)
-		for i := lo; i < hi; i++ {
-			row := w.xd[i*w.stride : i*w.stride+p]
-			ii := i - lo
-			for j, v := range row {
-				bad[j] += v * 0
-				differs[j] = differs[j] || v != first[j]
-				d := v - cen[j]
-				st.sum[j] += d
-				a[j*mr+ii] = d * pre[j]
+		for j := 0; j < p; j++ {
+			col := a[j*mr : (j+1)*mr]
+			cj, pj, fj := cen[j], pre[j], first[j]
+			var b0, b1, s0, s1 float64
+			diff := false
+			x := w.xd[lo*w.stride+j:]
+			stride := w.stride
+			ii := 0
+			for ; ii+2 <= mr; ii += 2 {
+				v0, v1 := x[ii*stride], x[(ii+1)*stride]
+				b0 += v0 * 0
+				b1 += v1 * 0
+				if v0 != fj || v1 != fj {
+					diff = true
+				}
+				d0, d1 := v0-cj, v1-cj
+				s0 += d0
+				s1 += d1
+				col[ii] = d0 * pj
+				col[ii+1] = d1 * pj
 			}
-			if intercept && row[0] != 1 {
+			if ii < mr {
+				v0 := x[ii*stride]
+				b0 += v0 * 0
+				diff = diff || v0 != fj
+				d0 := v0 - cj
+				s0 += d0
+				col[ii] = d0 * pj
+			}
+			bad[j] = b0 + b1
+			st.sum[j] = s0 + s1
+			differs[j] = diff
+			if j == 0 && intercept && (diff || fj != 1) {
 				st.badOne = true
 			}
+		}
+		for i := lo; i < hi; i++ {
+			ii := i - lo
 			v := w.y[i]
 			if v-v != 0 {
 				if st.badRow < 0 {
