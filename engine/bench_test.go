@@ -36,7 +36,8 @@ func randomProblem(tb testing.TB, seed uint64, n, p int) (Model, *mat.Dense, []f
 	return m, mat.NewDense(n, p, data), y
 }
 
-// BenchmarkInfluence times the full table: fit, diagnostics and verdicts.
+// BenchmarkInfluence times the full table: fit, diagnostics and verdicts
+// (Refit and Assess, the route of plumb inspect and the daemon's refresh).
 func BenchmarkInfluence(b *testing.B) {
 	for _, n := range []int{1e4, 1e5, 1e6} {
 		for _, p := range []int{3, 6} {
@@ -49,8 +50,7 @@ func BenchmarkInfluence(b *testing.B) {
 					if err != nil {
 						b.Fatal(err)
 					}
-					inf := Diagnose(f)
-					_ = Judge(inf, c)
+					_, _ = Assess(f, c)
 				}
 			})
 		}
@@ -81,6 +81,12 @@ func BenchmarkStages(b *testing.B) {
 		b.ReportAllocs()
 		for b.Loop() {
 			Judge(inf, DefaultCutoffs())
+		}
+	})
+	b.Run("Assess", func(b *testing.B) {
+		b.ReportAllocs()
+		for b.Loop() {
+			Assess(f, DefaultCutoffs())
 		}
 	})
 }

@@ -56,10 +56,31 @@ const (
 // in double-double as Σ_{k≠i}(e_k + h_ki e_i/(1-h_i))², the residuals of
 // the fit without row i, which loses nothing.
 func Diagnose(f *Fit) *Influence {
+	inf, _ := diagnose(f, nil)
+	return inf
+}
+
+// Assess computes the table of f and judges every row: the same result as
+// Judge(Diagnose(f), c), in one pass over the rows, each chunk judged
+// while its measures are still in cache. This is the route for a whole
+// table; Diagnose and Judge remain for a table judged under several sets
+// of cutoffs.
+func Assess(f *Fit, c Cutoffs) (*Influence, []Verdict) {
+	return diagnose(f, &c)
+}
+
+// diagnose computes the table and, when c is not nil, the verdicts.
+func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 	n, p := f.N, f.P
 	d := newDiag(f)
 	dfb := make([]float64, n*p)
 	inf := &Influence{Fit: f, Rows: make([]Obs, n), DFBETAS: dfb}
+	var j *judge
+	var out []Verdict
+	if c != nil {
+		j = newJudge(f, *c, nil)
+		out = make([]Verdict, n)
+	}
 	ch := newChunking(n, p)
 	type cand struct {
 		row int
@@ -79,13 +100,16 @@ func Diagnose(f *Fit) *Influence {
 				cands[c] = append(cands[c], cand{i, del})
 			}
 		}
+		if j != nil {
+			j.chunk(inf, out, lo, hi)
+		}
 	})
 	var all []cand
 	for _, cs := range cands {
 		all = append(all, cs...)
 	}
 	if len(all) == 0 {
-		return inf
+		return inf, out
 	}
 	sort.Slice(all, func(a, b int) bool { return all[a].d < all[b].d })
 	if len(all) > maxRecompute {
@@ -101,8 +125,11 @@ func Diagnose(f *Fit) *Influence {
 	for k, i := range rows {
 		h := d.row(w, v, i)
 		d.fill(&inf.Rows[i], inf.DFBETASRow(i), f.Residuals[i], h, v, dels[k])
+		if j != nil {
+			j.one(inf, out, i)
+		}
 	}
-	return inf
+	return inf, out
 }
 
 // diag holds what every row's diagnostics share.

@@ -154,15 +154,29 @@ func CutoffLimits(c Cutoffs, n, p int) Limits {
 // applied; otherwise it must hold P values per row.
 func Judge(inf *Influence, c Cutoffs) []Verdict {
 	f := inf.Fit
-	n, p := f.N, f.P
+	p := f.P
 	if inf.DFBETAS != nil && len(inf.DFBETAS) != len(inf.Rows)*p {
 		panic(fmt.Sprintf("engine: Judge: %d DFBETAS for %d rows of %d coefficients", len(inf.DFBETAS), len(inf.Rows), p))
 	}
+	j := newJudge(f, c, inf.Rows)
+	out := make([]Verdict, len(inf.Rows))
+	ch := newChunking(len(inf.Rows), p)
+	ch.run(func(k int) {
+		lo, hi := ch.bounds(k)
+		j.chunk(inf, out, lo, hi)
+	})
+	return out
+}
+
+// newJudge prepares the cutoffs for f. With rows given and the F-median
+// rule, a table in which no Cook's distance reaches fMedianFloor skips the
+// F quantile: no row can cross the cutoff, which is never below the
+// floor (the quantile's inverse incomplete beta dominates the cost of
+// judging one arriving row).
+func newJudge(f *Fit, c Cutoffs, rows []Obs) *judge {
+	n, p := f.N, f.P
 	var lim Limits
-	if c.Cook == CookFMedian && !anyCookAbove(inf.Rows, fMedianFloor) {
-		// No row can cross the F-median cutoff, which is never below
-		// fMedianFloor: skip the inverse incomplete beta (it dominates the
-		// cost of judging one arriving row).
+	if c.Cook == CookFMedian && rows != nil && !anyCookAbove(rows, fMedianFloor) {
 		c1 := c
 		c1.Cook = CookOne
 		lim = CutoffLimits(c1, n, p)
@@ -170,7 +184,7 @@ func Judge(inf *Influence, c Cutoffs) []Verdict {
 	} else {
 		lim = CutoffLimits(c, n, p)
 	}
-	j := judge{lim: lim, names: f.Model.Names(), c: c, grubbsRow: -1}
+	j := &judge{lim: lim, names: f.Model.Names(), c: c, grubbsRow: -1, p: p}
 	j.minCook = math.Min(j.lim.CookAbsolute, j.lim.CookSize)
 	j.minDFFITS = math.Min(j.lim.DFFITSAbsolute, j.lim.DFFITSSize)
 	j.minDFBETAS = math.Min(j.lim.DFBETASAbsolute, j.lim.DFBETASSize)
@@ -180,41 +194,48 @@ func Judge(inf *Influence, c Cutoffs) []Verdict {
 			j.grubbsRow = j.gr.Index
 		}
 	}
-	rows := inf.Rows
-	out := make([]Verdict, len(rows))
-	ch := newChunking(len(rows), p)
-	ch.run(func(k int) {
-		lo, hi := ch.bounds(k)
-		// The chunk's flags go to a reused scratch buffer first, then
-		// into one exactly sized backing array that rows take subslices of.
-		sp := flagScratch.Get().(*[]Flag)
-		buf := (*sp)[:0]
-		ends := make([]int32, hi-lo)
-		var dfb []float64
+	return j
+}
+
+// chunk judges rows [lo, hi) of inf into out. The chunk's flags go to a
+// reused scratch buffer first, then into one exactly sized backing array
+// that the rows take subslices of.
+func (j *judge) chunk(inf *Influence, out []Verdict, lo, hi int) {
+	p := j.p
+	sp := flagScratch.Get().(*[]Flag)
+	buf := (*sp)[:0]
+	ends := make([]int32, hi-lo)
+	var dfb []float64
+	for i := lo; i < hi; i++ {
+		if inf.DFBETAS != nil {
+			dfb = inf.DFBETAS[i*p : (i+1)*p]
+		}
+		buf = j.row(buf, i, &inf.Rows[i], dfb, &out[i])
+		ends[i-lo] = int32(len(buf))
+	}
+	if len(buf) > 0 {
+		flags := make([]Flag, len(buf))
+		copy(flags, buf)
+		start := 0
 		for i := lo; i < hi; i++ {
-			if inf.DFBETAS != nil {
-				dfb = inf.DFBETAS[i*p : (i+1)*p]
+			end := int(ends[i-lo])
+			if end > start {
+				out[i].Flags = flags[start:end:end]
 			}
-			buf = j.row(buf, i, &rows[i], dfb, &out[i])
-			ends[i-lo] = int32(len(buf))
+			start = end
 		}
-		if len(buf) > 0 {
-			flags := make([]Flag, len(buf))
-			copy(flags, buf)
-			start := 0
-			for i := lo; i < hi; i++ {
-				end := int(ends[i-lo])
-				if end > start {
-					out[i].Flags = flags[start:end:end]
-				}
-				start = end
-			}
-		}
-		clear(buf)
-		*sp = buf
-		flagScratch.Put(sp)
-	})
-	return out
+	}
+	clear(buf)
+	*sp = buf
+	flagScratch.Put(sp)
+}
+
+// one judges row i alone, with flags of its own.
+func (j *judge) one(inf *Influence, out []Verdict, i int) {
+	out[i] = Verdict{}
+	if fl := j.row(nil, i, &inf.Rows[i], inf.DFBETASRow(i), &out[i]); len(fl) > 0 {
+		out[i].Flags = fl[:len(fl):len(fl)]
+	}
 }
 
 // flagScratch holds the per-chunk scratch buffers of Judge.
@@ -227,6 +248,7 @@ type judge struct {
 	c                              Cutoffs
 	gr                             GrubbsResult
 	grubbsRow                      int
+	p                              int
 }
 
 // row appends the flags of one row to dst and sets the verdict's booleans.

@@ -986,7 +986,7 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 		}
 		break
 	}
-	inf := engine.Diagnose(fit)
+	inf, verdicts := engine.Assess(fit, opt.cutoffs)
 	res := &inspectResult{
 		file:     ds.file,
 		ds:       ds,
@@ -994,7 +994,7 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 		names:    m.Names(),
 		fit:      fit,
 		inf:      inf,
-		verdicts: engine.Judge(inf, opt.cutoffs),
+		verdicts: verdicts,
 		cutoffs:  opt.cutoffs,
 		limits:   engine.CutoffLimits(opt.cutoffs, fit.N, fit.P),
 

@@ -80,8 +80,7 @@ func (m *modelRT) refresh(ctx context.Context) error {
 		}
 		return nil
 	}
-	inf := engine.Diagnose(fit)
-	verdicts := engine.Judge(inf, m.cut)
+	inf, verdicts := engine.Assess(fit, m.cut)
 
 	var frag *engine.FragilityResult
 	if *m.cfg.Fragility.Enabled {
