@@ -637,9 +637,6 @@ func (w *work) refine(cond float64, f0 []float64) (b, db0 []float64, single bool
 			}
 			gs := gpart[2*c*p : (2*c+1)*p]
 			gc := gpart[(2*c+1)*p : (2*c+2)*p]
-			for j := range gs {
-				gs[j], gc[j] = 0, 0
-			}
 			for i := lo; i < hi; i++ {
 				row := xd[i*stride : i*stride+p]
 				var ri, fi float64
@@ -655,13 +652,35 @@ func (w *work) refine(cond float64, f0 []float64) (b, db0 []float64, single bool
 					fi = residual2(y[i], ri, row, bb)
 				}
 				z[i-lo] = fi
-				for j, v := range row {
-					q := v * ri
-					qe := math.FMA(v, ri, -q)
-					var se float64
-					gs[j], se = twoSum(gs[j], q)
-					gc[j] += se + qe
+			}
+			// X'r of the chunk in double-double, column by column with
+			// two interleaved accumulators held in registers.
+			rc := r[lo:hi]
+			for j := 0; j < p; j++ {
+				x := xd[lo*stride+j:]
+				var s0, c0, s1, c1 float64
+				i := 0
+				for ; i+2 <= len(rc); i += 2 {
+					v0, v1 := x[i*stride], x[(i+1)*stride]
+					q0, q1 := v0*rc[i], v1*rc[i+1]
+					e0, e1 := math.FMA(v0, rc[i], -q0), math.FMA(v1, rc[i+1], -q1)
+					var t0, t1 float64
+					s0, t0 = twoSum(s0, q0)
+					s1, t1 = twoSum(s1, q1)
+					c0 += t0 + e0
+					c1 += t1 + e1
 				}
+				if i < len(rc) {
+					v0 := x[i*stride]
+					q0 := v0 * rc[i]
+					e0 := math.FMA(v0, rc[i], -q0)
+					var t0 float64
+					s0, t0 = twoSum(s0, q0)
+					c0 += t0 + e0
+				}
+				var t float64
+				gs[j], t = twoSum(s0, s1)
+				gc[j] = c0 + c1 + t
 			}
 			applyQT(a, mr, p, tau, z)
 			copy(s[c*p:(c+1)*p], z[:p])
