@@ -11,8 +11,10 @@
 //	m, err := engine.NewModel("signal", []string{"conc", "conc^2", "log(flow)", "conc*temp"}, true)
 //	X, y, err := m.Design(columns)      // columns: map[string][]float64
 //	fit, err := engine.Refit(m, X, y)
-//	inf := engine.Diagnose(fit)
-//	verdicts := engine.Judge(inf, engine.DefaultCutoffs())
+//	inf, verdicts := engine.Assess(fit, engine.DefaultCutoffs())
+//
+// (Assess is Judge(Diagnose(fit), c) in one pass; Judge alone re-judges a
+// table under other cutoffs.)
 //
 // Term grammar (our own notation):
 //
