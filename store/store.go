@@ -70,6 +70,12 @@ type Store interface {
 	// Fits returns the model's fits, oldest first, at most limit (<= 0: all),
 	// starting after the fit id afterID.
 	Fits(ctx context.Context, model string, afterID int64, limit int) ([]FitRecord, error)
+	// LatestFits returns the model's n most recent fits, oldest first
+	// (n <= 0: all, as Fits). A backend reads only those n (an index on
+	// model and id, read backwards), so the dashboard and the report can
+	// chart the latest fits without paging through the whole history. An
+	// unknown model gives no fits, not an error.
+	LatestFits(ctx context.Context, model string, n int) ([]FitRecord, error)
 	// LastFit returns the model's most recent fit, or ErrNotFound.
 	LastFit(ctx context.Context, model string) (FitRecord, error)
 	// VerdictChanges returns the verdict history of one observation, oldest
@@ -82,6 +88,10 @@ type Store interface {
 	// Quarantined returns quarantined rows of the model (model "" for all),
 	// newest last, paginated by id.
 	Quarantined(ctx context.Context, model string, afterID int64, limit int) ([]QuarantineRow, error)
+	// LatestQuarantined returns the n most recent quarantined rows of the
+	// model (model "" for all), oldest first (n <= 0: all), reading only
+	// those. An unknown model gives no rows, not an error.
+	LatestQuarantined(ctx context.Context, model string, n int) ([]QuarantineRow, error)
 	// CountQuarantined returns how many rows of the model (model "" for
 	// all) are quarantined.
 	CountQuarantined(ctx context.Context, model string) (int64, error)

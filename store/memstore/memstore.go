@@ -343,6 +343,23 @@ func (s *Store) Fits(ctx context.Context, model string, afterID int64, limit int
 	return out, nil
 }
 
+// LatestFits returns the model's n most recent fits (n <= 0: all), oldest
+// first.
+func (s *Store) LatestFits(ctx context.Context, model string, n int) ([]store.FitRecord, error) {
+	if err := s.begin(ctx); err != nil {
+		return nil, fmt.Errorf("store: latest fits %s: %w", model, err)
+	}
+	defer s.mu.Unlock()
+	var out []store.FitRecord
+	for i := len(s.fits) - 1; i >= 0 && (n <= 0 || len(out) < n); i-- {
+		if s.fits[i].Model == model {
+			out = append(out, copyFit(s.fits[i]))
+		}
+	}
+	slices.Reverse(out)
+	return out, nil
+}
+
 // LastFit returns the model's most recent fit, or store.ErrNotFound.
 func (s *Store) LastFit(ctx context.Context, model string) (store.FitRecord, error) {
 	if err := s.begin(ctx); err != nil {
@@ -402,6 +419,23 @@ func (s *Store) Quarantined(ctx context.Context, model string, afterID int64, li
 			out = append(out, q)
 		}
 	}
+	return out, nil
+}
+
+// LatestQuarantined returns the n most recent quarantined rows of the
+// model ("" for all; n <= 0: all), oldest first.
+func (s *Store) LatestQuarantined(ctx context.Context, model string, n int) ([]store.QuarantineRow, error) {
+	if err := s.begin(ctx); err != nil {
+		return nil, fmt.Errorf("store: latest quarantined %s: %w", model, err)
+	}
+	defer s.mu.Unlock()
+	var out []store.QuarantineRow
+	for i := len(s.quar) - 1; i >= 0 && (n <= 0 || len(out) < n); i-- {
+		if model == "" || s.quar[i].Model == model {
+			out = append(out, s.quar[i])
+		}
+	}
+	slices.Reverse(out)
 	return out, nil
 }
 

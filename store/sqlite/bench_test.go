@@ -220,3 +220,63 @@ func BenchmarkRecordFit(b *testing.B) {
 		i++
 	}
 }
+
+// BenchmarkLatestFits reads the latest 300 fits of a model (what the
+// dashboard and the report chart) from histories of two sizes: with
+// LatestFits the cost stays flat, while paging through Fits, as a reader
+// without LatestFits must, grows with the history.
+func BenchmarkLatestFits(b *testing.B) {
+	const keep = 300
+	for _, total := range []int{1000, 20000} {
+		db, _ := openTemp(b)
+		ctx := context.Background()
+		ids, err := db.Ingest(ctx, newBatcher(10).next())
+		if err != nil {
+			b.Fatal(err)
+		}
+		at := time.Date(2026, 3, 14, 9, 0, 0, 0, time.UTC)
+		for i := range total {
+			for _, model := range []string{"bench", "other"} { // two models share the table
+				f := store.FitRecord{Model: model, At: at.Add(time.Duration(i) * time.Second), N: 1000, P: 3,
+					Terms: []string{"intercept", "x1", "x2"}, Estimates: []float64{1.5, 2, -0.5}, StdErrors: []float64{0.01, 0.02, 0.03},
+					Sigma: 0.1, RSquared: 0.99, Fragility: -1, FragilityK: 3, Detail: `{"max_cooks_distance":0.01}`, LastObsID: ids[len(ids)-1]}
+				if _, err := db.RecordFit(ctx, f, nil); err != nil {
+					b.Fatal(err)
+				}
+			}
+		}
+		b.Run(fmt.Sprintf("history=%d/latest", total), func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				fs, err := db.LatestFits(ctx, "bench", keep)
+				if err != nil || len(fs) != keep {
+					b.Fatalf("LatestFits = %d fits, %v", len(fs), err)
+				}
+			}
+		})
+		b.Run(fmt.Sprintf("history=%d/paged", total), func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				var kept []store.FitRecord
+				var after int64
+				for {
+					page, err := db.Fits(ctx, "bench", after, 1000)
+					if err != nil {
+						b.Fatal(err)
+					}
+					kept = append(kept, page...)
+					if len(kept) > keep {
+						kept = kept[len(kept)-keep:]
+					}
+					if len(page) < 1000 {
+						break
+					}
+					after = page[len(page)-1].ID
+				}
+				if len(kept) != keep {
+					b.Fatalf("paged: %d fits", len(kept))
+				}
+			}
+		})
+	}
+}

@@ -5,6 +5,7 @@ import (
 	"database/sql"
 	"errors"
 	"fmt"
+	"slices"
 
 	"plumb/store"
 )
@@ -138,21 +139,64 @@ func (db *DB) Fits(ctx context.Context, model string, afterID int64, limit int) 
 	if !ok {
 		return nil, nil
 	}
-	rows, err := db.db.QueryContext(ctx, fitSelect+"WHERE model_id = ? AND id > ? ORDER BY id LIMIT ?", mid, afterID, sqlLimit(limit))
+	rows, err := db.db.QueryContext(ctx, fitsQuery, mid, afterID, sqlLimit(limit))
 	if err != nil {
 		return fail(err)
 	}
+	out, err := scanFits(rows, model)
+	if err != nil {
+		return fail(err)
+	}
+	return out, nil
+}
+
+// The fit queries, kept as constants so that a test can check their query
+// plans: both walk the index fits_model (model_id, id), forwards or
+// backwards, and stop after LIMIT rows.
+const (
+	fitsQuery       = fitSelect + "WHERE model_id = ? AND id > ? ORDER BY id LIMIT ?"
+	latestFitsQuery = fitSelect + "WHERE model_id = ? ORDER BY id DESC LIMIT ?"
+)
+
+// LatestFits returns the model's n most recent fits, oldest first (n <= 0:
+// all). It reads the index fits_model backwards from the newest fit and
+// stops after n rows, so its cost does not grow with the history.
+func (db *DB) LatestFits(ctx context.Context, model string, n int) ([]store.FitRecord, error) {
+	fail := func(err error) ([]store.FitRecord, error) {
+		return nil, fmt.Errorf("store: latest fits %s: %w", model, err)
+	}
+	mid, ok, err := db.lookupModel(ctx, db.db, model)
+	if err != nil {
+		return fail(err)
+	}
+	if !ok {
+		return nil, nil
+	}
+	rows, err := db.db.QueryContext(ctx, latestFitsQuery, mid, sqlLimit(n))
+	if err != nil {
+		return fail(err)
+	}
+	out, err := scanFits(rows, model)
+	if err != nil {
+		return fail(err)
+	}
+	slices.Reverse(out)
+	return out, nil
+}
+
+// scanFits reads every row of rows (fitSelect columns) and closes it.
+func scanFits(rows *sql.Rows, model string) ([]store.FitRecord, error) {
 	defer rows.Close()
 	var out []store.FitRecord
 	for rows.Next() {
 		f := store.FitRecord{Model: model}
 		if err := scanFit(rows, &f); err != nil {
-			return fail(err)
+			return nil, err
 		}
 		out = append(out, f)
 	}
 	if err := rows.Err(); err != nil {
-		return fail(err)
+		return nil, err
 	}
 	return out, nil
 }

@@ -5,6 +5,7 @@ import (
 	"database/sql"
 	"errors"
 	"fmt"
+	"slices"
 
 	"plumb/store"
 )
@@ -15,25 +16,79 @@ func (db *DB) Quarantined(ctx context.Context, model string, afterID int64, limi
 	fail := func(err error) ([]store.QuarantineRow, error) {
 		return nil, fmt.Errorf("store: quarantined %s: %w", model, err)
 	}
-	rows, err := db.db.QueryContext(ctx, `SELECT q.id, m.name, s.path, q.generation, q.line, q.col, q.raw, q.reason, q.at
-		FROM quarantine q JOIN models m ON m.id = q.model_id JOIN sources s ON s.id = q.source_id
+	rows, err := db.db.QueryContext(ctx, quarantineSelect+`
 		WHERE (? = '' OR m.name = ?) AND q.id > ? ORDER BY q.id LIMIT ?`, model, model, afterID, sqlLimit(limit))
 	if err != nil {
 		return fail(err)
 	}
+	out, err := scanQuarantine(rows)
+	if err != nil {
+		return fail(err)
+	}
+	return out, nil
+}
+
+const quarantineSelect = `SELECT q.id, m.name, s.path, q.generation, q.line, q.col, q.raw, q.reason, q.at
+	FROM quarantine q JOIN models m ON m.id = q.model_id JOIN sources s ON s.id = q.source_id`
+
+// The queries of LatestQuarantined, kept as constants so that a test can
+// check their query plans: one model's rows walk the index
+// quarantine_model (model_id, id) backwards, all models' rows the primary
+// key backwards; both stop after LIMIT rows.
+const (
+	latestQuarantineQuery    = quarantineSelect + " WHERE q.model_id = ? ORDER BY q.id DESC LIMIT ?"
+	latestQuarantineAllQuery = quarantineSelect + " ORDER BY q.id DESC LIMIT ?"
+)
+
+// LatestQuarantined returns the n most recent quarantined rows of the
+// model (model "" for all models), oldest first (n <= 0: all). It reads
+// backwards from the newest row and stops after n, so its cost does not
+// grow with the quarantine.
+func (db *DB) LatestQuarantined(ctx context.Context, model string, n int) ([]store.QuarantineRow, error) {
+	fail := func(err error) ([]store.QuarantineRow, error) {
+		return nil, fmt.Errorf("store: latest quarantined %s: %w", model, err)
+	}
+	var rows *sql.Rows
+	var err error
+	if model == "" {
+		rows, err = db.db.QueryContext(ctx, latestQuarantineAllQuery, sqlLimit(n))
+	} else {
+		mid, ok, lerr := db.lookupModel(ctx, db.db, model)
+		if lerr != nil {
+			return fail(lerr)
+		}
+		if !ok {
+			return nil, nil
+		}
+		rows, err = db.db.QueryContext(ctx, latestQuarantineQuery, mid, sqlLimit(n))
+	}
+	if err != nil {
+		return fail(err)
+	}
+	out, err := scanQuarantine(rows)
+	if err != nil {
+		return fail(err)
+	}
+	slices.Reverse(out)
+	return out, nil
+}
+
+// scanQuarantine reads every row of rows (quarantineSelect columns) and
+// closes it.
+func scanQuarantine(rows *sql.Rows) ([]store.QuarantineRow, error) {
 	defer rows.Close()
 	var out []store.QuarantineRow
 	for rows.Next() {
 		var q store.QuarantineRow
 		var at sql.NullInt64
 		if err := rows.Scan(&q.ID, &q.Model, &q.Path, &q.Generation, &q.Line, &q.Column, &q.Raw, &q.Reason, &at); err != nil {
-			return fail(err)
+			return nil, err
 		}
 		q.At = decTime(at)
 		out = append(out, q)
 	}
 	if err := rows.Err(); err != nil {
-		return fail(err)
+		return nil, err
 	}
 	return out, nil
 }

@@ -17,7 +17,8 @@
 // ingest (store.ErrStale on a batch that does not advance the read
 // position, generations after a rotation, atomicity of a failed batch),
 // exact round-trips of values, diagnostics (NaN included) and times,
-// pagination, store.ErrNotFound, the alert upsert keeping FirstSeen, the
+// pagination (and the latest-n reads, which must agree with it),
+// store.ErrNotFound, the alert upsert keeping FirstSeen, the
 // outbox ordering, and use from several goroutines (run it under -race).
 package storetest
 
@@ -52,7 +53,9 @@ func Run(t *testing.T, open Opener) {
 		{"ObservationsPagination", testObservationsPagination},
 		{"ObservationAt", testObservationAt},
 		{"Quarantine", testQuarantine},
+		{"LatestQuarantined", testLatestQuarantined},
 		{"Fits", testFits},
+		{"LatestFits", testLatestFits},
 		{"VerdictChanges", testVerdictChanges},
 		{"RecordFitAtomic", testRecordFitAtomic},
 		{"ModelStates", testModelStates},
@@ -588,23 +591,7 @@ func testQuarantine(t *testing.T, s store.Store) {
 		q.Model, q.Path, q.Generation = m, "q.csv", 1
 		want = append(want, q)
 	}
-	check := func(t *testing.T, got, want []store.QuarantineRow) {
-		t.Helper()
-		if len(got) != len(want) {
-			t.Fatalf("got %d rows, want %d: %+v", len(got), len(want), got)
-		}
-		for i := range got {
-			g, w := got[i], want[i]
-			if g.Model != w.Model || g.Path != w.Path || g.Generation != w.Generation || g.Line != w.Line ||
-				g.Column != w.Column || g.Raw != w.Raw || g.Reason != w.Reason || g.ID == 0 {
-				t.Errorf("row %d = %+v, want %+v", i, g, w)
-			}
-			sameTime(t, "At", g.At, w.At)
-			if i > 0 && g.ID <= got[i-1].ID {
-				t.Errorf("ids not increasing: %d after %d", g.ID, got[i-1].ID)
-			}
-		}
-	}
+	check := checkQuarantine
 	all, err := s.Quarantined(ctx, "", 0, 0)
 	if err != nil {
 		t.Fatal(err)
@@ -627,6 +614,130 @@ func testQuarantine(t *testing.T, s store.Store) {
 	}
 	if n := count(t, s, "cal"); n != 0 {
 		t.Errorf("quarantined rows counted as observations: %d", n)
+	}
+}
+
+// checkQuarantine compares quarantined rows field by field (IDs only for
+// being set and increasing, unless want carries them).
+func checkQuarantine(t *testing.T, got, want []store.QuarantineRow) {
+	t.Helper()
+	if len(got) != len(want) {
+		t.Fatalf("got %d rows, want %d: %+v", len(got), len(want), got)
+	}
+	for i := range got {
+		g, w := got[i], want[i]
+		if g.Model != w.Model || g.Path != w.Path || g.Generation != w.Generation || g.Line != w.Line ||
+			g.Column != w.Column || g.Raw != w.Raw || g.Reason != w.Reason || g.ID == 0 || (w.ID != 0 && g.ID != w.ID) {
+			t.Errorf("row %d = %+v, want %+v", i, g, w)
+		}
+		sameTime(t, "At", g.At, w.At)
+		if i > 0 && g.ID <= got[i-1].ID {
+			t.Errorf("ids not increasing: %d after %d", g.ID, got[i-1].ID)
+		}
+	}
+}
+
+// tail returns the last n items of s (all when n <= 0 or n > len(s)).
+func tail[T any](s []T, n int) []T {
+	if n <= 0 || n > len(s) {
+		return s
+	}
+	return s[len(s)-n:]
+}
+
+// testLatestQuarantined: the latest n rows, oldest first, are the tail of
+// the full listing, per model and for all models; n <= 0 gives all.
+func testLatestQuarantined(t *testing.T, s store.Store) {
+	ctx := ctxT(t)
+	for _, model := range []string{"", "cal", "none"} {
+		if got, err := s.LatestQuarantined(ctx, model, 3); err != nil || len(got) != 0 {
+			t.Errorf("LatestQuarantined(%q) of an empty store = %v, %v; want none", model, got, err)
+		}
+	}
+	// Seven rows of cal, three of other, interleaved so that the ids of
+	// one model are not contiguous; one batch of cal holds two rows.
+	var all, cal []store.QuarantineRow
+	line := map[string]int{}
+	for i, bt := range []struct {
+		model string
+		rows  int
+	}{{"cal", 1}, {"other", 1}, {"cal", 2}, {"cal", 1}, {"other", 1}, {"cal", 1}, {"cal", 1}, {"other", 1}, {"cal", 1}} {
+		var b store.Batch
+		for range bt.rows {
+			line[bt.model]++
+			n := line[bt.model]
+			b.Quarantine = append(b.Quarantine, store.QuarantineRow{Line: n + 1, Column: i + 1,
+				Raw: fmt.Sprintf("%s row %d,,<x>", bt.model, n), Reason: fmt.Sprintf("field count %d", n),
+				At: t0.Add(time.Duration(i) * time.Second)})
+		}
+		b.Source = source(bt.model, "q.csv", 1, int64(10*line[bt.model]), line[bt.model]+1)
+		mustIngest(t, s, b)
+		for _, q := range b.Quarantine {
+			q.Model, q.Path, q.Generation = bt.model, "q.csv", 1
+			all = append(all, q)
+			if bt.model == "cal" {
+				cal = append(cal, q)
+			}
+		}
+	}
+	if len(cal) != 7 || len(all) != 10 {
+		t.Fatalf("setup: %d rows of cal, %d in all", len(cal), len(all))
+	}
+	// The ids come from the full listing, which the conformance test of
+	// Quarantined holds to the same order.
+	full, err := s.Quarantined(ctx, "", 0, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkQuarantine(t, full, all)
+	for i := range all {
+		all[i].ID = full[i].ID
+	}
+	cal = cal[:0]
+	for _, q := range all {
+		if q.Model == "cal" {
+			cal = append(cal, q)
+		}
+	}
+	for _, tt := range []struct {
+		name  string
+		model string
+		n     int
+		want  []store.QuarantineRow
+	}{
+		{"one", "cal", 1, tail(cal, 1)},
+		{"some", "cal", 3, tail(cal, 3)},
+		{"exactly all", "cal", 7, cal},
+		{"more than all", "cal", 50, cal},
+		{"zero means all", "cal", 0, cal},
+		{"negative means all", "cal", -1, cal},
+		{"all models", "", 4, tail(all, 4)},
+		{"all models, all rows", "", 0, all},
+		{"unknown model", "none", 5, nil},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			got, err := s.LatestQuarantined(ctx, tt.model, tt.n)
+			if err != nil {
+				t.Fatal(err)
+			}
+			checkQuarantine(t, got, tt.want)
+		})
+	}
+	// A new row is at the end at once.
+	b := store.Batch{Source: source("cal", "q.csv", 1, 1000, 99),
+		Quarantine: []store.QuarantineRow{{Line: 99, Column: 3, Raw: "late", Reason: "empty field", At: t0.Add(time.Hour)}}}
+	mustIngest(t, s, b)
+	got, err := s.LatestQuarantined(ctx, "cal", 2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(got) != 2 || got[0].ID != cal[len(cal)-1].ID || got[1].Raw != "late" {
+		t.Errorf("after one more row: %+v, want cal's last old row then the new one", got)
+	}
+	cctx, cancel := context.WithCancel(ctx)
+	cancel()
+	if _, err := s.LatestQuarantined(cctx, "cal", 2); !errors.Is(err, context.Canceled) {
+		t.Errorf("LatestQuarantined under a cancelled context: %v, want context.Canceled", err)
 	}
 }
 
@@ -702,6 +813,93 @@ func testFits(t *testing.T, s store.Store) {
 	checkFit(t, last, want[len(want)-1])
 	if f, err := s.Fits(ctx, "none", 0, 0); err != nil || len(f) != 0 {
 		t.Errorf("Fits(unknown model) = %v, %v; want none", f, err)
+	}
+}
+
+// testLatestFits: the latest n fits, oldest first, are the tail of Fits;
+// n <= 0 gives all; the last one is LastFit; other models' fits never
+// appear.
+func testLatestFits(t *testing.T, s store.Store) {
+	ctx := ctxT(t)
+	if got, err := s.LatestFits(ctx, "cal", 3); err != nil || len(got) != 0 {
+		t.Errorf("LatestFits of a model without fits = %v, %v; want none", got, err)
+	}
+	ids := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 12))
+	var cal []store.FitRecord
+	for i := range 10 {
+		model := "cal"
+		if i%3 == 1 {
+			model = "other" // interleaved, so that cal's ids are not contiguous
+		}
+		f := fitRecord(model, i, ids[i])
+		if i == 5 {
+			f.Sigma, f.RSquared = math.NaN(), math.NaN()
+			f.Estimates, f.StdErrors, f.Terms = nil, nil, nil
+		}
+		id, err := s.RecordFit(ctx, f, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		f.ID = id
+		if model == "cal" {
+			cal = append(cal, f)
+		}
+	}
+	if len(cal) != 7 {
+		t.Fatalf("setup: %d fits of cal", len(cal))
+	}
+	for _, tt := range []struct {
+		name  string
+		model string
+		n     int
+		want  []store.FitRecord
+	}{
+		{"one", "cal", 1, tail(cal, 1)},
+		{"some", "cal", 3, tail(cal, 3)},
+		{"exactly all", "cal", 7, cal},
+		{"more than all", "cal", 1000, cal},
+		{"zero means all", "cal", 0, cal},
+		{"negative means all", "cal", -5, cal},
+		{"unknown model", "none", 3, nil},
+		{"all models is not a model", "", 3, nil},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			got, err := s.LatestFits(ctx, tt.model, tt.n)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(got) != len(tt.want) {
+				t.Fatalf("LatestFits(%q, %d) = %d fits, want %d", tt.model, tt.n, len(got), len(tt.want))
+			}
+			for i := range tt.want {
+				checkFit(t, got[i], tt.want[i])
+			}
+		})
+	}
+	last, err := s.LastFit(ctx, "cal")
+	if err != nil {
+		t.Fatal(err)
+	}
+	one, err := s.LatestFits(ctx, "cal", 1)
+	if err != nil || len(one) != 1 {
+		t.Fatalf("LatestFits(1) = %v, %v", one, err)
+	}
+	checkFit(t, one[0], last)
+	// A fit recorded now is the newest at once.
+	f := fitRecord("cal", 20, ids[10])
+	if f.ID, err = s.RecordFit(ctx, f, nil); err != nil {
+		t.Fatal(err)
+	}
+	two, err := s.LatestFits(ctx, "cal", 2)
+	if err != nil || len(two) != 2 {
+		t.Fatalf("LatestFits(2) after one more fit = %v, %v", two, err)
+	}
+	checkFit(t, two[0], cal[len(cal)-1])
+	checkFit(t, two[1], f)
+	cctx, cancel := context.WithCancel(ctx)
+	cancel()
+	if _, err := s.LatestFits(cctx, "cal", 2); !errors.Is(err, context.Canceled) {
+		t.Errorf("LatestFits under a cancelled context: %v, want context.Canceled", err)
 	}
 }
 
