@@ -14,9 +14,15 @@ import (
 )
 
 // viewSource is the daemon seen by the web server and the report writer.
+// Besides view.Source it offers the optional view.RecentFitter and
+// view.RecentQuarantiner, which read only the newest rows from the store.
 type viewSource struct{ d *Daemon }
 
-var _ view.Source = viewSource{}
+var (
+	_ view.Source            = viewSource{}
+	_ view.RecentFitter      = viewSource{}
+	_ view.RecentQuarantiner = viewSource{}
+)
 
 // View returns the daemon as a view.Source (for the report command).
 func (d *Daemon) View() view.Source { return viewSource{d} }
@@ -253,6 +259,25 @@ func (v viewSource) Fits(ctx context.Context, name string, after int64, limit in
 	return out, nil
 }
 
+// RecentFits returns the model's latest n fits, oldest first, reading only
+// those from the store (store.LatestFits). n <= 0 gives the whole history,
+// as view.RecentFitter says; a model that is not configured is
+// view.ErrNotFound, as for Fits.
+func (v viewSource) RecentFits(ctx context.Context, name string, n int) ([]view.FitView, error) {
+	if _, err := v.model(name); err != nil {
+		return nil, err
+	}
+	fs, err := v.d.store.LatestFits(ctx, name, n)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]view.FitView, len(fs))
+	for i, f := range fs {
+		out[i] = fitView(f)
+	}
+	return out, nil
+}
+
 func fitView(f store.FitRecord) view.FitView {
 	fv := view.FitView{ID: f.ID, At: f.At, N: f.N, P: f.P, Terms: f.Terms, Sigma: view.Float(f.Sigma),
 		RSquared: view.Float(f.RSquared), LastObsID: f.LastObsID, MaxCook: view.NaN()}
@@ -325,11 +350,27 @@ func (v viewSource) Quarantine(ctx context.Context, model string, after int64, l
 	if err != nil {
 		return nil, err
 	}
+	return quarantineViews(qs), nil
+}
+
+// RecentQuarantine returns the latest n quarantined rows of the model
+// (model "" for all), oldest first, reading only those from the store
+// (store.LatestQuarantined). n <= 0 gives every row; like Quarantine, a
+// model with no rows (or none configured) gives none.
+func (v viewSource) RecentQuarantine(ctx context.Context, model string, n int) ([]view.QuarantineView, error) {
+	qs, err := v.d.store.LatestQuarantined(ctx, model, n)
+	if err != nil {
+		return nil, err
+	}
+	return quarantineViews(qs), nil
+}
+
+func quarantineViews(qs []store.QuarantineRow) []view.QuarantineView {
 	out := make([]view.QuarantineView, len(qs))
 	for i, q := range qs {
 		out[i] = view.QuarantineView{ID: q.ID, Model: q.Model, File: q.Path, Line: q.Line, Column: q.Column, Raw: q.Raw, Reason: q.Reason, At: q.At}
 	}
-	return out, nil
+	return out
 }
 
 func (v viewSource) Alerts(ctx context.Context, f view.AlertFilter) ([]view.AlertView, error) {

@@ -85,8 +85,23 @@ type Source interface {
 // RecentFitter is an optional interface of a Source that can return the
 // latest n fits of a model (oldest first) without paging through the
 // whole history. The dashboard and report use it when present.
+//
+// n <= 0 asks for the whole history (as a limit of 0 does in the store).
+// A model that does not exist gives an error wrapping ErrNotFound, as
+// Fits does.
 type RecentFitter interface {
 	RecentFits(ctx context.Context, name string, n int) ([]FitView, error)
+}
+
+// RecentQuarantiner is an optional interface of a Source that can return
+// the latest n quarantined rows of a model (model "" for all), in
+// ascending id order like every list of a Source, without paging through
+// the whole quarantine. The report uses it when present.
+//
+// n <= 0 asks for every row. Like Quarantine, a model that does not exist
+// gives no rows.
+type RecentQuarantiner interface {
+	RecentQuarantine(ctx context.Context, model string, n int) ([]QuarantineView, error)
 }
 
 var (

@@ -330,4 +330,26 @@ func (f *Fake) RecentFits(ctx context.Context, name string, n int) ([]view.FitVi
 	return slices.Clone(all), nil
 }
 
-var _ view.RecentFitter = (*Fake)(nil)
+// RecentQuarantine implements view.RecentQuarantiner.
+func (f *Fake) RecentQuarantine(ctx context.Context, model string, n int) ([]view.QuarantineView, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	if f.err != nil {
+		return nil, f.err
+	}
+	var sel []view.QuarantineView
+	for _, q := range f.quar {
+		if model == "" || q.Model == model {
+			sel = append(sel, q)
+		}
+	}
+	if n > 0 && len(sel) > n {
+		sel = sel[len(sel)-n:]
+	}
+	return sel, nil
+}
+
+var (
+	_ view.RecentFitter      = (*Fake)(nil)
+	_ view.RecentQuarantiner = (*Fake)(nil)
+)

@@ -69,3 +69,39 @@ func TestFakeLifecycle(t *testing.T) {
 		t.Errorf("calls = %+v", c)
 	}
 }
+
+// The fake's latest-n reads are the tails of its paged lists.
+func TestFakeRecent(t *testing.T) {
+	ctx := context.Background()
+	f := Demo()
+	all, _ := f.Quarantine(ctx, "bench-b", 0, 0)
+	if len(all) != 2 {
+		t.Fatalf("demo quarantine = %d rows, want 2", len(all))
+	}
+	for _, tt := range []struct {
+		model string
+		n     int
+		want  []view.QuarantineView
+	}{
+		{"bench-b", 1, all[1:]}, {"bench-b", 5, all}, {"bench-b", 0, all}, {"", -1, all}, {"nope", 3, nil},
+	} {
+		got, err := f.RecentQuarantine(ctx, tt.model, tt.n)
+		if err != nil || len(got) != len(tt.want) {
+			t.Errorf("RecentQuarantine(%q, %d) = %d rows, %v; want %d", tt.model, tt.n, len(got), err, len(tt.want))
+			continue
+		}
+		for i := range got {
+			if got[i].ID != tt.want[i].ID {
+				t.Errorf("RecentQuarantine(%q, %d)[%d] = id %d, want %d", tt.model, tt.n, i, got[i].ID, tt.want[i].ID)
+			}
+		}
+	}
+	fits, _ := f.Fits(ctx, "bench-b", 0, 0)
+	last, err := f.RecentFits(ctx, "bench-b", 3)
+	if err != nil || len(last) != 3 || last[2].ID != fits[len(fits)-1].ID || last[0].ID != fits[len(fits)-3].ID {
+		t.Errorf("RecentFits(3) = %v, %v; want the last 3 of %d", last, err, len(fits))
+	}
+	if _, err := f.RecentFits(ctx, "nope", 3); !errors.Is(err, view.ErrNotFound) {
+		t.Errorf("RecentFits of an unknown model: %v, want ErrNotFound", err)
+	}
+}
