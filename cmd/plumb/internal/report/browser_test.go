@@ -1,6 +1,7 @@
 package report
 
 import (
+	"bytes"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -62,6 +63,13 @@ func TestBrowserReport(t *testing.T) {
 	if len(resources) != 0 {
 		t.Errorf("the report fetched %v", resources)
 	}
+	quar, err := chromedp.Run(ctx, chromedp.Evaluate[int](`document.querySelectorAll('table.quarantine tr[data-quarantine]').length`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if quar != 2 {
+		t.Errorf("%d quarantined rows listed, want the demo's 2", quar)
+	}
 	caution, err := chromedp.Run(ctx, chromedp.Text(chromedp.CSS(`.caution`)))
 	if err != nil || !strings.Contains(caution, "qualified staff") {
 		t.Errorf("caution: %q, %v", caution, err)
@@ -75,6 +83,71 @@ func TestBrowserReport(t *testing.T) {
 		t.Fatal(err)
 	}
 	t.Logf("report: %s, screenshot: %s", path, shot)
+	for _, p := range problems() {
+		t.Errorf("browser reported: %s", p)
+	}
+}
+
+// TestBrowserQuarantine opens a report whose quarantined rows carry markup,
+// characters that do not print and a 5,000-character line: the browser
+// must build no element from the data, show the text as it stood, and
+// keep the long line from widening the page.
+func TestBrowserQuarantine(t *testing.T) {
+	dir := browsertest.ArtifactDir(t)
+	path := filepath.Join(dir, "report-quarantine.html")
+	dm := loadDemo(t)
+	d := dm.d
+	d.Quarantined = 1234
+	var buf bytes.Buffer
+	if err := Render(&buf, Contents{Detail: d, Fits: dm.fits, Alerts: dm.alerts, Quarantine: hostile()}, Options{MaxQuarantine: 4}); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(path, buf.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	ctx, problems := browsertest.Start(t, 1100, 900, false)
+	if err := chromedp.Do(ctx, chromedp.Navigate("file://"+path), chromedp.WaitVisible(chromedp.CSS(`table.quarantine`))); err != nil {
+		t.Fatal(err)
+	}
+	got, err := chromedp.Run(ctx, chromedp.Evaluate[map[string]any](`(() => ({
+		scripts: document.querySelectorAll('script').length,
+		imgs: document.querySelectorAll('img').length,
+		rows: document.querySelectorAll('table.quarantine tr[data-quarantine]').length,
+		oldest: !!document.querySelector('tr[data-quarantine="1"]'),
+		raw: document.querySelector('tr[data-quarantine="5"] td.raw').textContent,
+		more: document.querySelector('[data-quarantine-more]').textContent,
+		overflow: document.documentElement.scrollWidth - document.documentElement.clientWidth,
+		longHeight: document.querySelector('tr[data-quarantine="2"] td.raw').getBoundingClientRect().height,
+	}))()`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got["scripts"].(float64) != 0 || got["imgs"].(float64) != 0 {
+		t.Errorf("data became elements: %v", got)
+	}
+	if got["rows"].(float64) != 4 || got["raw"] != "11,2" || got["oldest"] != false {
+		t.Errorf("rows listed %v, newest raw %q, oldest listed %v; want the newest 4", got["rows"], got["raw"], got["oldest"])
+	}
+	if m, _ := got["more"].(string); !strings.Contains(m, "1230 older rows not listed") {
+		t.Errorf("more line %q", m)
+	}
+	if got["overflow"].(float64) > 0 {
+		t.Errorf("the page is %v px wider than the window", got["overflow"])
+	}
+	if h := got["longHeight"].(float64); h > 400 {
+		t.Errorf("the cut long line is %v px tall", h)
+	}
+	text, err := chromedp.Run(ctx, chromedp.Text(chromedp.CSS(`tr[data-quarantine="3"] td.raw`)))
+	if err != nil || text != `9,\x00\t12\u00a0500,\xff` {
+		t.Errorf("row 3 shows %q, %v; want its characters marked", text, err)
+	}
+	shot, err := chromedp.Run(ctx, chromedp.FullScreenshot(100))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(dir, "report-quarantine.png"), shot, 0o644); err != nil {
+		t.Fatal(err)
+	}
 	for _, p := range problems() {
 		t.Errorf("browser reported: %s", p)
 	}

@@ -4,15 +4,29 @@
 // gonum/plot, no external resource of any kind), or a single chart as SVG
 // or PNG.
 //
-//	err := report.Write(f, detail, fits, alerts, report.Options{})
-//	err := report.Chart(f, detail, report.ChartCooks, "png")
+//	c, err := report.Collect(ctx, src, "bench-b", report.Options{})
+//	err = report.Render(f, c, report.Options{})
+//	err = report.Chart(f, c.Detail, report.ChartCooks, "png")
 //
 // The page holds the fit (coefficients with intervals, σ, R²), the charts
 // (data and fitted curve with the suggested collection points, residual
 // against leverage with its cutoffs, Cook's distance with its cutoffs, each
 // coefficient's history with its drift band), the notable rows of the
-// influence table with their provenance, the fragility of the fit, where
-// to collect more data, the alert history and the caution.
+// influence table with their provenance, the rows that could not be read
+// (quarantined), the fragility of the fit, where to collect more data, the
+// alert history and the caution.
+//
+// # Rows that could not be read
+//
+// The newest quarantined rows (Options.MaxQuarantine, 50 by default) are
+// listed newest first with file:line:column, the reason and the text as
+// read; a line says how many older ones are not listed and names the
+// daemon's API request that lists them all. The text is escaped for HTML
+// and every character that would not print as itself (a tab, a NUL, a
+// no-break space, a bidirectional override, a byte that is not UTF-8) is
+// shown as a marked escape such as \t or \u00a0, so the page shows what the
+// file holds and data can never become markup. Text longer than 200
+// characters (a reason, 300) is cut, with a note giving its full length.
 //
 // Report and the dashboard consume the same view.ModelDetail: the numbers
 // are the daemon's, nothing is computed here but layout.
@@ -48,6 +62,26 @@ type Options struct {
 	// HistoryKeep bounds how many of the latest fits the history charts
 	// show (default 300).
 	HistoryKeep int
+	// MaxQuarantine bounds the quarantined rows listed (default 50); the
+	// report counts the rest and says where to see them all.
+	MaxQuarantine int
+}
+
+// withDefaults fills in the documented defaults.
+func (o Options) withDefaults() Options {
+	if o.Generated.IsZero() {
+		o.Generated = time.Now()
+	}
+	if o.MaxRows <= 0 {
+		o.MaxRows = 50
+	}
+	if o.HistoryKeep <= 0 {
+		o.HistoryKeep = 300
+	}
+	if o.MaxQuarantine <= 0 {
+		o.MaxQuarantine = 50
+	}
+	return o
 }
 
 type figure struct {
@@ -68,23 +102,24 @@ type pageData struct {
 	Counts      string
 	Alerts      []view.AlertView
 	FitCount    int
+	Quarantine  quarSection
 }
 
 // Write writes the model's report as one self-contained HTML document.
 // fits is the fit history, oldest first; alerts are the model's alerts
-// (any order; shown newest first).
+// (any order; shown newest first). Write lists no quarantined rows, only
+// their number (d.Quarantined) and where to see them; Render with the
+// Contents that Collect gathers lists them.
 func Write(w io.Writer, d view.ModelDetail, fits []view.FitView, alerts []view.AlertView, opts Options) error {
+	return Render(w, Contents{Detail: d, Fits: fits, Alerts: alerts}, opts)
+}
+
+// Render writes the report of c as one self-contained HTML document.
+func Render(w io.Writer, c Contents, opts Options) error {
+	d, fits, alerts := c.Detail, c.Fits, c.Alerts
+	opts = opts.withDefaults()
 	if opts.Title == "" {
 		opts.Title = "plumb report: " + d.Name
-	}
-	if opts.Generated.IsZero() {
-		opts.Generated = time.Now()
-	}
-	if opts.MaxRows <= 0 {
-		opts.MaxRows = 50
-	}
-	if opts.HistoryKeep <= 0 {
-		opts.HistoryKeep = 300
 	}
 	if len(fits) > opts.HistoryKeep {
 		fits = fits[len(fits)-opts.HistoryKeep:]
@@ -185,6 +220,7 @@ func Write(w io.Writer, d view.ModelDetail, fits []view.FitView, alerts []view.A
 		}
 	}
 	pd.Counts = strings.Join(parts, ", ")
+	pd.Quarantine = quarantineSection(d.Name, d.Quarantined, c.Quarantine, opts.MaxQuarantine)
 	pd.Alerts = slices.Clone(alerts)
 	slices.SortStableFunc(pd.Alerts, func(a, b view.AlertView) int { return b.LastSeen.Compare(a.LastSeen) })
 	if err := page.Execute(w, pd); err != nil {
@@ -278,6 +314,10 @@ th { text-align: left; font-weight: 600; font-size: 11px; color: var(--muted); b
 td { border-bottom: 1px solid #ece7dd; padding: 4px 6px; vertical-align: top; }
 td.n { text-align: right; }
 td.m { font-family: "DejaVu Sans Mono", monospace; font-size: 11.5px; }
+td.where { white-space: nowrap; }
+td.raw { white-space: pre-wrap; word-break: break-all; max-width: 420px; }
+.esc { font-family: "DejaVu Sans Mono", monospace; font-size: 10.5px; color: var(--hot); background: #f4e3dc; border-radius: 2px; padding: 0 2px; }
+.cut { color: var(--muted); font-family: system-ui, "Segoe UI", "Noto Sans", "DejaVu Sans", sans-serif; font-style: italic; white-space: normal; }
 figure { margin: 14px 0; page-break-inside: avoid; }
 figure svg { width: 100%; height: auto; display: block; }
 figcaption { color: var(--muted); font-size: 12px; margin-top: 2px; }
@@ -329,6 +369,20 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 </table>
 {{if .NotableMore}}<p class="meta">… and {{.NotableMore}} more notable rows not listed.</p>{{end}}
 {{else}}<p class="empty">No row crosses a cutoff under the current fit.</p>{{end}}
+
+<h2 id="quarantine">Rows that could not be read</h2>
+{{with .Quarantine}}
+{{if .Rows}}
+<p class="meta" data-quarantine-total="{{.Total}}">{{.Total}} row{{if ne .Total 1}}s{{end}} of this model could not be read. plumb keeps each one aside in its history exactly as read, with the reason: it is not in the fit, and plumb neither corrects nor deletes it nor changes the file. Listed: the newest {{len .Rows}}, newest first. Characters that do not print are shown marked, e.g. <span class="esc">\t</span> for a tab.</p>
+<table class="quarantine">
+<thead><tr><th>file:line:column</th><th>reason</th><th>text as read</th><th>quarantined</th></tr></thead>
+<tbody>{{range .Rows}}<tr data-quarantine="{{.ID}}"><td class="m where">{{.Where}}</td><td>{{.Reason}}{{if .ReasonCut}}<span class="cut"> … (cut)</span>{{end}}</td><td class="m raw">{{.Raw}}{{if .RawCut}}<span class="cut" data-cut> … (cut: the first {{.RawShown}} of {{.RawTotal}} characters shown)</span>{{end}}</td><td>{{.At}}</td></tr>{{end}}</tbody>
+</table>
+{{if .More}}<p class="meta" data-quarantine-more="{{.More}}">… and {{.More}} older row{{if ne .More 1}}s{{end}} not listed. The daemon's API lists every one, oldest first: <span class="m">GET {{.API}}</span>, then add <span class="m">&amp;after=</span> the last id of a page for the next; the dashboard's model page shows the latest.</p>{{end}}
+{{else if .Total}}
+<p class="meta" data-quarantine-total="{{.Total}}" data-quarantine-more="{{.More}}">{{.Total}} row{{if ne .Total 1}}s{{end}} of this model could not be read; plumb keeps them aside, unchanged, and they are not in the fit. They are not listed in this report. The daemon's API lists every one, oldest first: <span class="m">GET {{.API}}</span>, then add <span class="m">&amp;after=</span> the last id of a page for the next.</p>
+{{else}}<p class="empty">No row of this model has been quarantined.</p>{{end}}
+{{end}}
 
 <h2>Fragility</h2>
 {{with .D.Fragility}}

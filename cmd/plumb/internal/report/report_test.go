@@ -33,11 +33,17 @@ func loadDemo(t testing.TB) demo {
 	return demo{d, fits, al}
 }
 
+// writeDemo renders the demo model's report as the report command does:
+// Collect from the source, then Render.
 func writeDemo(t testing.TB) string {
 	t.Helper()
-	dm := loadDemo(t)
+	opts := Options{Generated: time.Date(2026, 3, 14, 10, 0, 0, 0, time.UTC)}
+	c, err := Collect(t.Context(), viewtest.Demo(), "bench-b", opts)
+	if err != nil {
+		t.Fatal(err)
+	}
 	var buf bytes.Buffer
-	if err := Write(&buf, dm.d, dm.fits, dm.alerts, Options{Generated: time.Date(2026, 3, 14, 10, 0, 0, 0, time.UTC)}); err != nil {
+	if err := Render(&buf, c, opts); err != nil {
 		t.Fatal(err)
 	}
 	return buf.String()
@@ -56,6 +62,10 @@ func TestWriteContents(t *testing.T) {
 		"sp-3c1d9a70b2e45f18",                 // alert history
 		"dr-07aa4be19c2f6d35",                 // a resolved alert is in the history too
 		"Generated 2026-03-14 10:00:00Z",
+		// The demo's two quarantined rows, newest first, with position,
+		// reason and text as read.
+		`<tr data-quarantine="2"><td class="m where">run-0314.csv:23:1</td><td>column 1 &#34;output_mv&#34;: empty field</td><td class="m raw">,105</td>`,
+		`<tr data-quarantine="1"><td class="m where">run-0314.csv:9:2</td>`,
 	} {
 		if !strings.Contains(html, want) {
 			t.Errorf("report lacks %q", want)
