@@ -21,6 +21,7 @@ import (
 	"sync/atomic"
 	"unicode/utf8"
 
+	"plumb/cmd/plumb/internal/numfmt"
 	"plumb/engine"
 	"plumb/watcher/decode"
 )
@@ -1474,6 +1475,10 @@ func appendCSVField(dst []byte, s string) []byte {
 	return append(dst, '"')
 }
 
+// appendCSVNum appends x with csvDigits significant digits, as
+// strconv.AppendFloat(dst, x, 'g', csvDigits, 64) would (numfmt.AppendG is
+// byte for byte the same, in less than half the time); NaN and ±Inf give an
+// empty field.
 func appendCSVNum(dst []byte, x float64) []byte {
 	switch {
 	case math.IsNaN(x) || math.IsInf(x, 0):
@@ -1481,7 +1486,7 @@ func appendCSVNum(dst []byte, x float64) []byte {
 	case x == 1: // most Bonferroni p-values
 		return append(dst, '1')
 	}
-	return strconv.AppendFloat(dst, x, 'g', csvDigits, 64)
+	return numfmt.AppendG(dst, x, csvDigits)
 }
 
 func (r *inspectResult) csvHeader() []byte {
