@@ -252,11 +252,7 @@ func (v viewSource) Fits(ctx context.Context, name string, after int64, limit in
 	if err != nil {
 		return nil, err
 	}
-	out := make([]view.FitView, len(fs))
-	for i, f := range fs {
-		out[i] = fitView(f)
-	}
-	return out, nil
+	return fitViews(fs), nil
 }
 
 // RecentFits returns the model's latest n fits, oldest first, reading only
@@ -271,11 +267,15 @@ func (v viewSource) RecentFits(ctx context.Context, name string, n int) ([]view.
 	if err != nil {
 		return nil, err
 	}
+	return fitViews(fs), nil
+}
+
+func fitViews(fs []store.FitRecord) []view.FitView {
 	out := make([]view.FitView, len(fs))
 	for i, f := range fs {
 		out[i] = fitView(f)
 	}
-	return out, nil
+	return out
 }
 
 func fitView(f store.FitRecord) view.FitView {

@@ -218,12 +218,7 @@ func (f *Fake) Quarantine(ctx context.Context, model string, after int64, limit 
 	if f.err != nil {
 		return nil, f.err
 	}
-	var sel []view.QuarantineView
-	for _, q := range f.quar {
-		if model == "" || q.Model == model {
-			sel = append(sel, q)
-		}
-	}
+	sel := f.quarantineOf(model)
 	return page(sel, func(v view.QuarantineView) int64 { return v.ID }, after, limit), nil
 }
 
@@ -330,6 +325,18 @@ func (f *Fake) RecentFits(ctx context.Context, name string, n int) ([]view.FitVi
 	return slices.Clone(all), nil
 }
 
+// quarantineOf returns the quarantined rows of model ("" for all) in id
+// order. Caller holds mu.
+func (f *Fake) quarantineOf(model string) []view.QuarantineView {
+	var sel []view.QuarantineView
+	for _, q := range f.quar {
+		if model == "" || q.Model == model {
+			sel = append(sel, q)
+		}
+	}
+	return sel
+}
+
 // RecentQuarantine implements view.RecentQuarantiner.
 func (f *Fake) RecentQuarantine(ctx context.Context, model string, n int) ([]view.QuarantineView, error) {
 	f.mu.Lock()
@@ -337,12 +344,7 @@ func (f *Fake) RecentQuarantine(ctx context.Context, model string, n int) ([]vie
 	if f.err != nil {
 		return nil, f.err
 	}
-	var sel []view.QuarantineView
-	for _, q := range f.quar {
-		if model == "" || q.Model == model {
-			sel = append(sel, q)
-		}
-	}
+	sel := f.quarantineOf(model)
 	if n > 0 && len(sel) > n {
 		sel = sel[len(sel)-n:]
 	}
