@@ -10,7 +10,6 @@ import (
 
 	"plumb/cmd/plumb/internal/daemon"
 	"plumb/cmd/plumb/internal/report"
-	"plumb/cmd/plumb/internal/view"
 )
 
 func init() {
@@ -59,9 +58,19 @@ func runReport(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	src := d.View()
-	detail, err := src.Model(ctx, name)
+	// Everything is read before the output file is made, so an unknown
+	// model leaves no empty file behind.
+	var c report.Contents
+	if *format == "html" {
+		c, err = report.Collect(ctx, src, name, report.Options{})
+	} else {
+		c.Detail, err = src.Model(ctx, name)
+		if err != nil {
+			err = fmt.Errorf("report: %w", err)
+		}
+	}
 	if err != nil {
-		return fmt.Errorf("report: %w", err)
+		return err
 	}
 	var w io.Writer = e.stdout
 	if *out != "" {
@@ -75,15 +84,7 @@ func runReport(ctx context.Context, e *env, args []string) error {
 		w = bw
 	}
 	if *format != "html" {
-		return report.Chart(w, detail, *chart, *format)
+		return report.Chart(w, c.Detail, *chart, *format)
 	}
-	fits, err := src.Fits(ctx, name, 0, 100000)
-	if err != nil {
-		return err
-	}
-	as, err := src.Alerts(ctx, view.AlertFilter{Model: name, Limit: 1000})
-	if err != nil {
-		return err
-	}
-	return report.Write(w, detail, fits, as, report.Options{})
+	return report.Render(w, c, report.Options{})
 }
