@@ -543,7 +543,8 @@ func TestPow10Table(t *testing.T) {
 	}
 	// The table covers every exponent the code asks for: s = prec−1−E
 	// with E = ⌊log₁₀ x⌋ from -324 (2^-1074) to 308 (MaxFloat64).
-	if lo, hi := 1-1-308, MaxPrec-1-(-324); lo < pow10Min || hi > pow10Max {
+	const minPrec = 1
+	if lo, hi := minPrec-1-308, MaxPrec-1-(-324); lo < pow10Min || hi > pow10Max {
 		t.Errorf("the table spans 10^%d…10^%d, the code needs 10^%d…10^%d", pow10Min, pow10Max, lo, hi)
 	}
 }
