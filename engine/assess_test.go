@@ -1,9 +1,13 @@
 package engine
 
 import (
+	"fmt"
 	"math"
+	"math/rand/v2"
 	"reflect"
 	"testing"
+
+	"gonum.org/v1/gonum/mat"
 )
 
 // TestAssessEqualsJudgeDiagnose: the one-pass Assess gives bit for bit the
@@ -77,4 +81,66 @@ func sameBits(a, b []float64) bool {
 func sameObs(a, b Obs) bool {
 	return sameBits([]float64{a.Leverage, a.Residual, a.StudentInternal, a.StudentExternal, a.Cook, a.DFFITS, a.COVRATIO, a.OutlierP, a.BonferroniP},
 		[]float64{b.Leverage, b.Residual, b.StudentInternal, b.StudentExternal, b.Cook, b.DFFITS, b.COVRATIO, b.OutlierP, b.BonferroniP})
+}
+
+// TestBlockEqualsRow: the blocked kernel of diagnose gives the leverage
+// and (X'X)^-1 x_i of the one-row kernel (same operations, same order;
+// only the sign of an exact zero may differ), with and without an
+// intercept, for p = 1..8, over full and partial blocks.
+func TestBlockEqualsRow(t *testing.T) {
+	for _, intercept := range []bool{true, false} {
+		for p := 1; p <= 8; p++ {
+			if intercept && p == 1 {
+				continue
+			}
+			n := 3*blockRows + 17
+			rng := rand.New(rand.NewPCG(uint64(p), 5))
+			terms := make([]string, 0, p)
+			for j := len(terms); j < p; j++ {
+				if intercept && j == p-1 {
+					break
+				}
+				terms = append(terms, fmt.Sprintf("x%d", j+1))
+			}
+			m, err := NewModel("y", terms, intercept)
+			if err != nil {
+				t.Fatal(err)
+			}
+			X := mat.NewDense(n, p, nil)
+			y := make([]float64, n)
+			for i := 0; i < n; i++ {
+				for j := 0; j < p; j++ {
+					v := 1e3 + 50*rng.NormFloat64()
+					if intercept && j == 0 {
+						v = 1
+					}
+					X.Set(i, j, v)
+				}
+				y[i] = rng.NormFloat64()
+			}
+			f, err := Refit(m, X, y)
+			if err != nil {
+				t.Fatalf("intercept %v p %d: %v", intercept, p, err)
+			}
+			d := newDiag(f)
+			b := new(block)
+			b.init(p)
+			w, v := make([]float64, p), make([]float64, p)
+			for lo := 0; lo < n; lo += blockRows {
+				nb := min(blockRows, n-lo)
+				d.block(b, lo, nb)
+				for r := 0; r < nb; r++ {
+					h := d.row(w, v, lo+r)
+					if b.h[r] != h {
+						t.Fatalf("intercept %v p %d row %d: block h %v, row h %v", intercept, p, lo+r, b.h[r], h)
+					}
+					for j := 0; j < p; j++ {
+						if got := b.v[j*blockRows+r]; got != v[j] {
+							t.Fatalf("intercept %v p %d row %d: block v[%d] %v, row %v", intercept, p, lo+r, j, got, v[j])
+						}
+					}
+				}
+			}
+		}
+	}
 }

@@ -3,6 +3,7 @@ package engine
 import (
 	"math"
 	"sort"
+	"sync"
 )
 
 // Obs holds the diagnostics of one observation (formulas in the package
@@ -73,15 +74,27 @@ func Assess(f *Fit, c Cutoffs) (*Influence, []Verdict) {
 func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 	n, p := f.N, f.P
 	d := newDiag(f)
-	dfb := make([]float64, n*p)
-	inf := &Influence{Fit: f, Rows: make([]Obs, n), DFBETAS: dfb}
+	ch := newChunking(n, p)
+	var (
+		obs []Obs
+		dfb []float64
+		out []Verdict
+	)
+	// The outputs are zeroed as they are allocated, on the allocating
+	// goroutine: on two for a large table (about 150 MB at a million rows).
+	ch.alloc(
+		func() { obs = make([]Obs, n) },
+		func() {
+			dfb = make([]float64, n*p)
+			if c != nil {
+				out = make([]Verdict, n)
+			}
+		})
+	inf := &Influence{Fit: f, Rows: obs, DFBETAS: dfb}
 	var j *judge
-	var out []Verdict
 	if c != nil {
 		j = newJudge(f, *c, nil)
-		out = make([]Verdict, n)
 	}
-	ch := newChunking(n, p)
 	type cand struct {
 		row int
 		d   float64
@@ -90,14 +103,24 @@ func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 	ch.run(func(c int) {
 		lo, hi := ch.bounds(c)
 		d := d.clone()
-		w := make([]float64, p)
+		bk := blocks.Get().(*block)
+		defer blocks.Put(bk)
+		bk.init(p)
 		v := make([]float64, p)
-		for i := lo; i < hi; i++ {
-			h := d.row(w, v, i)
-			del, ok := d.deleted(f.Residuals[i], h)
-			d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], f.Residuals[i], h, v, del)
-			if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
-				cands[c] = append(cands[c], cand{i, del})
+		for b0 := lo; b0 < hi; b0 += blockRows {
+			nb := min(blockRows, hi-b0)
+			d.block(bk, b0, nb)
+			for r := 0; r < nb; r++ {
+				i := b0 + r
+				h := bk.h[r]
+				for j := range v {
+					v[j] = bk.v[j*blockRows+r]
+				}
+				del, ok := d.deleted(f.Residuals[i], h)
+				d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], f.Residuals[i], h, v, del)
+				if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
+					cands[c] = append(cands[c], cand{i, del})
+				}
 			}
 		}
 		if j != nil {
@@ -324,7 +347,12 @@ func (d *diag) fill(o *Obs, dfb []float64, e, h float64, v []float64, del float6
 		pv = d.tail.p2(ti)
 	}
 	o.OutlierP = pv
-	o.BonferroniP = math.Min(1, d.nf*pv)
+	// min(1, n·p) without math.Min, which is not inlined (NaN stays NaN).
+	bp := d.nf * pv
+	if bp > 1 {
+		bp = 1
+	}
+	o.BonferroniP = bp
 }
 
 // powInt returns x^k for k >= 0 by repeated squaring.
@@ -345,4 +373,97 @@ func (d *diag) clone() *diag {
 	c := *d
 	c.xs = make([]float64, d.p)
 	return &c
+}
+
+// blockRows is the number of rows whose leverage and (X'X)^-1 x_i are
+// computed together, column by column: the loops then run over rows,
+// whose iterations are independent, instead of along one row's short
+// dependent sums.
+const blockRows = 64
+
+// block holds one block's values, each quantity blockRows apart: x the
+// centred rows, q = R^-T T^-T x, v = (X'X)^-1 x and h = |q|².
+type block struct {
+	x, q, v []float64
+	h       [blockRows]float64
+	buf     []float64
+}
+
+// blocks holds the per-chunk block scratch of diagnose.
+var blocks = sync.Pool{New: func() any { return new(block) }}
+
+// init sizes b for p coefficients, reusing its space when it is enough.
+func (b *block) init(p int) {
+	m := p * blockRows
+	buf := b.buf
+	if cap(buf) < 3*m {
+		buf = make([]float64, 3*m)
+		b.buf = buf
+	}
+	b.x, b.q, b.v = buf[:m], buf[m:2*m], buf[2*m:3*m]
+}
+
+// block computes rows [lo, lo+nb) into b: the same operations in the same
+// order as row, so the same values bit for bit.
+func (d *diag) block(b *block, lo, nb int) {
+	p := d.p
+	sc := &d.f.sc
+	const B = blockRows
+	for r := 0; r < nb; r++ {
+		row := d.xd[(lo+r)*d.stride : (lo+r)*d.stride+p]
+		b.x[r] = row[0]
+		if sc.intercept {
+			for j := 1; j < p; j++ {
+				b.x[j*B+r] = row[j] - sc.mean[j]*row[0]
+			}
+		} else {
+			for j := 1; j < p; j++ {
+				b.x[j*B+r] = row[j]
+			}
+		}
+	}
+	ri := d.riS
+	h := b.h[:nb]
+	for r := range h {
+		h[r] = 0
+	}
+	for l := 0; l < p; l++ {
+		q := b.q[l*B : l*B+nb]
+		x0 := b.x[:nb]
+		c := ri[l]
+		for r, x := range x0 {
+			q[r] = c * x
+		}
+		for j := 1; j <= l; j++ {
+			xj := b.x[j*B : j*B+nb]
+			c := ri[j*p+l]
+			for r, x := range xj {
+				q[r] += c * x
+			}
+		}
+		for r, v := range q {
+			h[r] += v * v
+		}
+	}
+	m := d.f.m
+	for j := 0; j < p; j++ {
+		v := b.v[j*B : j*B+nb]
+		q := b.q[j*B : j*B+nb]
+		c := m[j*p+j]
+		for r, x := range q {
+			v[r] = c * x
+		}
+		for l := j + 1; l < p; l++ {
+			q := b.q[l*B : l*B+nb]
+			c := m[j*p+l]
+			for r, x := range q {
+				v[r] += c * x
+			}
+		}
+	}
+	for r := range h {
+		if h[r] > 1 {
+			h[r] = 1
+		}
+	}
 }

@@ -168,3 +168,21 @@ func (ch chunking) run(fn func(c int)) {
 	}
 	wg.Wait()
 }
+
+// alloc calls every fn, concurrently when the problem is large enough to
+// run in parallel: for allocating large outputs, which Go zeroes on the
+// allocating goroutine.
+func (ch chunking) alloc(fns ...func()) {
+	if ch.n < parallelRows || runtime.GOMAXPROCS(0) <= 1 {
+		for _, fn := range fns {
+			fn()
+		}
+		return
+	}
+	var wg sync.WaitGroup
+	for _, fn := range fns[1:] {
+		wg.Go(fn)
+	}
+	fns[0]()
+	wg.Wait()
+}
