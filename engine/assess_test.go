@@ -135,7 +135,7 @@ func TestBlockEqualsRow(t *testing.T) {
 						t.Fatalf("intercept %v p %d row %d: block h %v, row h %v", intercept, p, lo+r, b.h[r], h)
 					}
 					for j := 0; j < p; j++ {
-						if got := b.v[j*blockRows+r]; got != v[j] {
+						if got := b.v[j][r]; got != v[j] {
 							t.Fatalf("intercept %v p %d row %d: block v[%d] %v, row %v", intercept, p, lo+r, j, got, v[j])
 						}
 					}

@@ -107,6 +107,10 @@ func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 		defer blocks.Put(bk)
 		bk.init(p)
 		v := make([]float64, p)
+		var cf chunkFlags
+		if j != nil {
+			cf = j.begin(lo, hi)
+		}
 		for b0 := lo; b0 < hi; b0 += blockRows {
 			nb := min(blockRows, hi-b0)
 			d.block(bk, b0, nb)
@@ -114,7 +118,7 @@ func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 				i := b0 + r
 				h := bk.h[r]
 				for j := range v {
-					v[j] = bk.v[j*blockRows+r]
+					v[j] = bk.v[j][r]
 				}
 				del, ok := d.deleted(f.Residuals[i], h)
 				d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], f.Residuals[i], h, v, del)
@@ -122,9 +126,13 @@ func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 					cands[c] = append(cands[c], cand{i, del})
 				}
 			}
+			if j != nil {
+				// Judged while the block's measures are in cache.
+				cf.rows(inf, out, b0, b0+nb)
+			}
 		}
 		if j != nil {
-			j.chunk(inf, out, lo, hi)
+			cf.end(out)
 		}
 	})
 	var all []cand
@@ -381,89 +389,102 @@ func (d *diag) clone() *diag {
 // dependent sums.
 const blockRows = 64
 
-// block holds one block's values, each quantity blockRows apart: x the
-// centred rows, q = R^-T T^-T x, v = (X'X)^-1 x and h = |q|².
+// block holds one block's values, a row of blockRows per coefficient: x
+// the centred rows, q = R^-T T^-T x, v = (X'X)^-1 x, and h = |q|². Rows
+// past the block's end hold stale values that are computed and not read.
 type block struct {
-	x, q, v []float64
-	h       [blockRows]float64
-	buf     []float64
+	x, q, v []vec
+	h       vec
 }
+
+// vec is one quantity of a block's rows: fixed length, so the loops over
+// it carry no bounds checks.
+type vec = [blockRows]float64
 
 // blocks holds the per-chunk block scratch of diagnose.
 var blocks = sync.Pool{New: func() any { return new(block) }}
 
 // init sizes b for p coefficients, reusing its space when it is enough.
 func (b *block) init(p int) {
-	m := p * blockRows
-	buf := b.buf
-	if cap(buf) < 3*m {
-		buf = make([]float64, 3*m)
-		b.buf = buf
+	if cap(b.x) < p {
+		buf := make([]vec, 3*p)
+		b.x, b.q, b.v = buf[:p:p], buf[p:2*p:2*p], buf[2*p:]
 	}
-	b.x, b.q, b.v = buf[:m], buf[m:2*m], buf[2*m:3*m]
+	b.x, b.q, b.v = b.x[:p], b.q[:p], b.v[:p]
 }
 
 // block computes rows [lo, lo+nb) into b: the same operations in the same
-// order as row, so the same values bit for bit.
+// order as row, so the same values bit for bit. Two terms go into each
+// pass over a sum, which keeps the order of its additions.
 func (d *diag) block(b *block, lo, nb int) {
 	p := d.p
 	sc := &d.f.sc
-	const B = blockRows
+	x := b.x
 	for r := 0; r < nb; r++ {
 		row := d.xd[(lo+r)*d.stride : (lo+r)*d.stride+p]
-		b.x[r] = row[0]
+		x[0][r] = row[0]
 		if sc.intercept {
 			for j := 1; j < p; j++ {
-				b.x[j*B+r] = row[j] - sc.mean[j]*row[0]
+				x[j][r] = row[j] - sc.mean[j]*row[0]
 			}
 		} else {
 			for j := 1; j < p; j++ {
-				b.x[j*B+r] = row[j]
+				x[j][r] = row[j]
 			}
 		}
 	}
 	ri := d.riS
-	h := b.h[:nb]
-	for r := range h {
-		h[r] = 0
-	}
+	h := &b.h
+	*h = vec{}
 	for l := 0; l < p; l++ {
-		q := b.q[l*B : l*B+nb]
-		x0 := b.x[:nb]
-		c := ri[l]
-		for r, x := range x0 {
-			q[r] = c * x
-		}
-		for j := 1; j <= l; j++ {
-			xj := b.x[j*B : j*B+nb]
-			c := ri[j*p+l]
-			for r, x := range xj {
-				q[r] += c * x
-			}
-		}
-		for r, v := range q {
-			h[r] += v * v
+		// q_l = Σ_{j<=l} riS_jl x_j, j ascending.
+		q := &b.q[l]
+		triSum(q, x[:l+1], ri[l:], p)
+		for r := range q {
+			h[r] += q[r] * q[r]
 		}
 	}
 	m := d.f.m
 	for j := 0; j < p; j++ {
-		v := b.v[j*B : j*B+nb]
-		q := b.q[j*B : j*B+nb]
-		c := m[j*p+j]
-		for r, x := range q {
-			v[r] = c * x
-		}
-		for l := j + 1; l < p; l++ {
-			q := b.q[l*B : l*B+nb]
-			c := m[j*p+l]
-			for r, x := range q {
-				v[r] += c * x
-			}
-		}
+		// v_j = Σ_{l>=j} M_jl q_l, l ascending.
+		triSum(&b.v[j], b.q[j:], m[j*p+j:], 1)
 	}
 	for r := range h {
 		if h[r] > 1 {
 			h[r] = 1
+		}
+	}
+}
+
+// triSum sets dst = Σ_k c[k*step]·src[k] over k in order, rounding as
+// the running sum s = 0; s += c·src[k] does.
+func triSum(dst *vec, src []vec, c []float64, step int) {
+	a := &src[0]
+	ca := c[0]
+	if len(src) == 1 {
+		for r := range dst {
+			dst[r] = ca * a[r]
+		}
+		return
+	}
+	bb := &src[1]
+	cb := c[step]
+	for r := range dst {
+		dst[r] = ca*a[r] + cb*bb[r]
+	}
+	k := 2
+	for ; k+2 <= len(src); k += 2 {
+		a, bb := &src[k], &src[k+1]
+		ca, cb := c[k*step], c[(k+1)*step]
+		for r := range dst {
+			dst[r] = (dst[r] + ca*a[r]) + cb*bb[r]
+		}
+	}
+	if k < len(src) {
+		a := &src[k]
+		ca := c[k*step]
+		for r := range dst {
+			dst[r] += ca * a[r]
 		}
 	}
 }

@@ -197,28 +197,52 @@ func newJudge(f *Fit, c Cutoffs, rows []Obs) *judge {
 	return j
 }
 
-// chunk judges rows [lo, hi) of inf into out. The chunk's flags go to a
-// reused scratch buffer first, then into one exactly sized backing array
-// that the rows take subslices of.
+// chunk judges rows [lo, hi) of inf into out.
 func (j *judge) chunk(inf *Influence, out []Verdict, lo, hi int) {
-	p := j.p
+	cf := j.begin(lo, hi)
+	cf.rows(inf, out, lo, hi)
+	cf.end(out)
+}
+
+// chunkFlags collects the flags of one chunk of rows: in a reused scratch
+// buffer first, then (end) in one exactly sized backing array that the
+// rows' verdicts take subslices of.
+type chunkFlags struct {
+	j      *judge
+	sp     *[]Flag
+	buf    []Flag
+	ends   []int32
+	lo, hi int
+}
+
+// begin starts judging the chunk [lo, hi).
+func (j *judge) begin(lo, hi int) chunkFlags {
 	sp := flagScratch.Get().(*[]Flag)
-	buf := (*sp)[:0]
-	ends := make([]int32, hi-lo)
+	return chunkFlags{j: j, sp: sp, buf: (*sp)[:0], ends: make([]int32, hi-lo), lo: lo, hi: hi}
+}
+
+// rows judges rows [lo, hi) of the chunk, in order after those before.
+func (cf *chunkFlags) rows(inf *Influence, out []Verdict, lo, hi int) {
+	p := cf.j.p
 	var dfb []float64
 	for i := lo; i < hi; i++ {
 		if inf.DFBETAS != nil {
 			dfb = inf.DFBETAS[i*p : (i+1)*p]
 		}
-		buf = j.row(buf, i, &inf.Rows[i], dfb, &out[i])
-		ends[i-lo] = int32(len(buf))
+		cf.buf = cf.j.row(cf.buf, i, &inf.Rows[i], dfb, &out[i])
+		cf.ends[i-cf.lo] = int32(len(cf.buf))
 	}
+}
+
+// end hands the chunk's flags to its verdicts and returns the scratch.
+func (cf *chunkFlags) end(out []Verdict) {
+	buf := cf.buf
 	if len(buf) > 0 {
 		flags := make([]Flag, len(buf))
 		copy(flags, buf)
 		start := 0
-		for i := lo; i < hi; i++ {
-			end := int(ends[i-lo])
+		for i := cf.lo; i < cf.hi; i++ {
+			end := int(cf.ends[i-cf.lo])
 			if end > start {
 				out[i].Flags = flags[start:end:end]
 			}
@@ -226,8 +250,8 @@ func (j *judge) chunk(inf *Influence, out []Verdict, lo, hi int) {
 		}
 	}
 	clear(buf)
-	*sp = buf
-	flagScratch.Put(sp)
+	*cf.sp = buf
+	flagScratch.Put(cf.sp)
 }
 
 // one judges row i alone, with flags of its own.
