@@ -33,9 +33,11 @@
 //
 // Refit never forms the normal equations. It centres (with an intercept)
 // and scales the columns, computes a Householder QR over chunks of rows,
-// merges the chunk factors (TSQR), and refines the solution of the
-// augmented system [I X; X' 0][r; b] = [y; 0] with residuals accumulated in
-// double-double arithmetic against the original X. On the NIST StRD linear
+// merges the chunk factors (TSQR), and refines the solution with
+// residuals accumulated in double-double arithmetic against the original X:
+// on the corrected seminormal equations R'R dc = W'r when the scaled design
+// is well conditioned (condition number up to 1e4; only R is needed), on
+// the augmented system [I X; X' 0][r; b] = [y; 0] otherwise. On the NIST StRD linear
 // least-squares datasets it reproduces the certified values to the
 // precision the double-precision data allow (see TestNIST).
 //

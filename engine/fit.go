@@ -3,6 +3,7 @@ package engine
 import (
 	"fmt"
 	"math"
+	"sync"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -73,6 +74,11 @@ const (
 	maxCondition = 1e12
 	// maxRefine bounds the refinement steps.
 	maxRefine = 10
+	// seminormalCond: up to this condition number of the scaled design
+	// the solution is refined on the corrected seminormal equations,
+	// which need only R; above it, on the augmented system, which needs
+	// the chunks' Householder reflectors kept.
+	seminormalCond = 1e4
 )
 
 // scaling maps the design X to the scaled design W = X T^-1 whose columns
@@ -126,12 +132,17 @@ func (s *scaling) fromW(b, c []float64) {
 //     two, and computes a Householder QR of the chunk;
 //   - the stacked chunk R factors are factored again (TSQR); the columns
 //     of the resulting R are scaled to unit length, W = X T^-1;
-//   - never the normal equations: the solution is refined on the augmented
-//     system [I X; X' 0][r; b] = [y; 0] (Björck 1967) from the consistent
-//     start r = y - X b0, with y - r - Xb and X'r accumulated in extended
-//     precision (compensated products and sums) against the original X,
-//     and the corrections solved with the QR factors, until the predicted
-//     next correction is below rounding level.
+//   - never the normal equations X'X: the QR solution b0 is refined with
+//     residuals and X'r accumulated in extended precision (compensated
+//     products and sums) against the original X, until the predicted next
+//     correction is below rounding level. A well-conditioned design
+//     (scaled condition number at most seminormalCond, the usual case)
+//     takes the corrections from the corrected seminormal equations
+//     R'R dc = W'(y - Xb) (Björck 1987), which need R only, so no chunk's
+//     reflectors are kept; a worse-conditioned one is factored again,
+//     keeping them, and refined on the augmented system
+//     [I X; X' 0][r; b] = [y; 0] (Björck 1967) from the consistent start
+//     r = y - X b0, each correction of r and b solved with the QR factors.
 //
 // Large problems are split over up to GOMAXPROCS goroutines inside the
 // call; results do not depend on their number.
@@ -171,7 +182,19 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 		return nil, fmt.Errorf("%w: %w", ErrIllConditioned, mat.Condition(cond))
 	}
 	fitted := make([]float64, n)
-	b, db0, single := ws.refine(cond, fitted)
+	var b, db0 []float64
+	single := true
+	if cond <= seminormalCond {
+		b, db0 = ws.refineSemi(cond, fitted)
+	} else {
+		// The augmented refinement needs every chunk's reflectors:
+		// factor again, keeping them (the same factors, bit for bit).
+		ws.keep = true
+		if err := ws.factor(); err != nil {
+			return nil, err
+		}
+		b, db0, single = ws.refine(cond, fitted)
+	}
 
 	// Final pass: residuals, fitted values, RSS in double-double, TSS.
 	xd, stride := ws.xd, ws.stride
@@ -293,6 +316,7 @@ type work struct {
 	ybar      float64
 	ssCentred []float64 // Σ(x_j - x̄_j)², for the VIF
 
+	keep   bool      // keep every chunk's reflectors in blocks (refine needs them)
 	blocks []float64 // per chunk, column-major m x k: reflectors, then z
 	taus   []float64 // per chunk reflector scalars
 	S      []float64 // stacked chunk R factors (nc·p x k), column-major
@@ -460,8 +484,10 @@ func (w *work) provisional(lo, hi int, cen []float64) {
 func (w *work) qrPass(cen []float64) []chunkStat {
 	n, p, k := w.n, w.p, w.k
 	ch := w.ch
-	if w.blocks == nil {
+	if w.keep && w.blocks == nil {
 		w.blocks = make([]float64, n*k)
+	}
+	if w.S == nil {
 		w.taus = make([]float64, ch.nc*p)
 		w.S = make([]float64, ch.nc*p*k)
 	}
@@ -472,7 +498,17 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 	ch.run(func(c int) {
 		lo, hi := ch.bounds(c)
 		mr := hi - lo
-		a := w.blocks[lo*k : hi*k]
+		var a []float64
+		if w.keep {
+			a = w.blocks[lo*k : hi*k]
+		} else {
+			sp := qrScratch.Get().(*[]float64)
+			if cap(*sp) < mr*k {
+				*sp = make([]float64, mr*k)
+			}
+			a = (*sp)[:mr*k]
+			defer qrScratch.Put(sp)
+		}
 		st := chunkStat{sum: make([]float64, k), min: make([]float64, k), max: make([]float64, k), badRow: -1}
 		for j := range st.min {
 			st.min[j] = math.Inf(1)
@@ -575,6 +611,9 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 	})
 	return stats
 }
+
+// qrScratch holds chunk blocks for a qrPass that keeps no reflectors.
+var qrScratch = sync.Pool{New: func() any { return new([]float64) }}
 
 func allFinite(v []float64) bool {
 	for _, x := range v {
@@ -711,41 +750,162 @@ func (w *work) refine(cond float64, f0 []float64) (b, db0 []float64, single bool
 		} else {
 			single = false
 		}
-		cmax := 0.0
-		for j := 0; j < p; j++ {
-			b[j] += db[j]
-			cvec[j] += dc[j]
-			cmax = math.Max(cmax, math.Abs(cvec[j]))
-		}
-		// Componentwise relative size of the correction, and the
-		// normwise size over the smallest component.
-		nd, n2, cmin := 0.0, 0.0, math.Inf(1)
-		for j := 0; j < p; j++ {
-			den := math.Max(math.Abs(cvec[j]), eps*cmax)
-			nd = math.Max(nd, math.Abs(dc[j])/den)
-			n2 += dc[j] * dc[j]
-			cmin = math.Min(cmin, den)
-		}
-		if nd <= eps || math.IsNaN(nd) {
+		if w.converged(b, db, cvec, dc, &rho, &prev, it) {
 			break
 		}
-		if it > 0 {
-			ratio := nd / prev
-			if ratio > 0.5 {
-				break // no further progress
-			}
-			rho = math.Max(rho, ratio)
-		}
-		// Stop when the next correction is predicted below rounding level.
-		if rho*math.Sqrt(n2)/cmin <= eps/2 {
-			break
-		}
-		prev = nd
 		copy(s[:p], h)
 		applyQ(w.S, sm, p, w.tauS, s)
 	}
 	w.blocks, w.S = nil, nil
 	return b, db0, single
+}
+
+// converged applies the correction (b += db, cvec += dc, the scaled
+// coefficients) of step it and reports whether to stop: the correction is
+// at rounding level, no longer shrinks by half, or the next one, predicted
+// by the contraction rho (raised to the observed ratio), is below it.
+// prev carries the relative size of the last correction.
+func (w *work) converged(b, db, cvec, dc []float64, rho, prev *float64, it int) bool {
+	const eps = 0x1p-52
+	p := w.p
+	cmax := 0.0
+	for j := 0; j < p; j++ {
+		b[j] += db[j]
+		cvec[j] += dc[j]
+		cmax = math.Max(cmax, math.Abs(cvec[j]))
+	}
+	// Componentwise relative size of the correction, and the
+	// normwise size over the smallest component.
+	nd, n2, cmin := 0.0, 0.0, math.Inf(1)
+	for j := 0; j < p; j++ {
+		den := math.Max(math.Abs(cvec[j]), eps*cmax)
+		nd = math.Max(nd, math.Abs(dc[j])/den)
+		n2 += dc[j] * dc[j]
+		cmin = math.Min(cmin, den)
+	}
+	if nd <= eps || math.IsNaN(nd) {
+		return true
+	}
+	if it > 0 {
+		ratio := nd / *prev
+		if ratio > 0.5 {
+			return true // no further progress
+		}
+		*rho = math.Max(*rho, ratio)
+	}
+	// Stop when the next correction is predicted below rounding level.
+	if *rho*math.Sqrt(n2)/cmin <= eps/2 {
+		return true
+	}
+	*prev = nd
+	return false
+}
+
+// refineSemi returns the least-squares coefficients, refined on the
+// corrected seminormal equations (Björck 1987): from b0 of the QR
+// factors, each step computes r + f = y - Xb to double-double accuracy
+// (r rounded, f the rest), g = X'(r + f) with X'r in extended precision,
+// and the correction T^-1 R^-1 R^-T T^-T g, which needs R only. A step
+// contracts the error by about κ² eps, so it serves well-conditioned
+// designs (κ <= seminormalCond); it stops as refine does.
+//
+// It also returns the last correction db; w.r and f0 then hold r and f
+// for b - db, so that the residuals of b are r + (f - X db).
+func (w *work) refineSemi(cond float64, f0 []float64) (b, db []float64) {
+	n, p := w.n, w.p
+	ch, sc, R := w.ch, &w.sc, w.R
+	sm := ch.nc * p
+	xd, stride, y := w.xd, w.stride, w.y
+
+	c0 := make([]float64, p)
+	for i := 0; i < p; i++ {
+		c0[i] = w.S[p*sm+i] / w.pre[p]
+	}
+	solveUpper(R, p, c0)
+	b = make([]float64, p)
+	sc.fromW(b, c0)
+	cvec := c0
+	db = make([]float64, p)
+
+	w.r = make([]float64, n)
+	r := w.r
+	// Per chunk and column: X'r as s + c, then X'f.
+	gpart := make([]float64, 3*ch.nc*p)
+	dc := make([]float64, p)
+	const eps = 0x1p-52
+	rho := 16 * float64(p) * cond * cond * eps
+	prev := math.Inf(1)
+	for it := 0; it < maxRefine; it++ {
+		bb := b
+		ch.run(func(c int) {
+			lo, hi := ch.bounds(c)
+			for i := lo; i < hi; i++ {
+				row := xd[i*stride : i*stride+p]
+				s1, c1 := residualDD(y[i], 0, row, bb)
+				ri := s1 + c1
+				r[i] = ri
+				f0[i] = (s1 - ri) + c1
+			}
+			gs := gpart[3*c*p : (3*c+1)*p]
+			gc := gpart[(3*c+1)*p : (3*c+2)*p]
+			gf := gpart[(3*c+2)*p : (3*c+3)*p]
+			rc := r[lo:hi]
+			fc := f0[lo:hi]
+			fc = fc[:len(rc)]
+			for j := 0; j < p; j++ {
+				x := xd[lo*stride+j:]
+				var s0, c0, s1, c1, u0, u1 float64
+				i := 0
+				for ; i+2 <= len(rc); i += 2 {
+					v0, v1 := x[i*stride], x[(i+1)*stride]
+					q0, q1 := v0*rc[i], v1*rc[i+1]
+					e0, e1 := math.FMA(v0, rc[i], -q0), math.FMA(v1, rc[i+1], -q1)
+					var t0, t1 float64
+					s0, t0 = twoSum(s0, q0)
+					s1, t1 = twoSum(s1, q1)
+					c0 += t0 + e0
+					c1 += t1 + e1
+					u0 += v0 * fc[i]
+					u1 += v1 * fc[i+1]
+				}
+				if i < len(rc) {
+					v0 := x[i*stride]
+					q0 := v0 * rc[i]
+					e0 := math.FMA(v0, rc[i], -q0)
+					var t0 float64
+					s0, t0 = twoSum(s0, q0)
+					c0 += t0 + e0
+					u0 += v0 * fc[i]
+				}
+				var t float64
+				gs[j], t = twoSum(s0, s1)
+				gc[j] = c0 + c1 + t
+				gf[j] = u0 + u1
+			}
+		})
+		// g = X'(r + f), gW = T^-T g, dc = R^-1 R^-T gW.
+		g := make([]dd, p)
+		for c := 0; c < ch.nc; c++ {
+			for j := 0; j < p; j++ {
+				g[j] = g[j].add(gpart[3*c*p+j]).add(gpart[(3*c+1)*p+j]).add(gpart[(3*c+2)*p+j])
+			}
+		}
+		for j := 0; j < p; j++ {
+			v := g[j]
+			if sc.intercept && j > 0 {
+				v = v.addDD(g[0].mulDD(dd{-sc.mean[j], 0}))
+			}
+			dc[j] = v.float() / sc.scale[j]
+		}
+		solveUpperT(R, p, dc)
+		solveUpper(R, p, dc)
+		sc.fromW(db, dc)
+		if w.converged(b, db, cvec, dc, &rho, &prev, it) {
+			break
+		}
+	}
+	w.S = nil
+	return b, db
 }
 
 // finish computes the inverse factors, coefficient table and summary

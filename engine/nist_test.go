@@ -99,7 +99,7 @@ func TestNIST(t *testing.T) {
 	sets := []string{"Norris", "Pontius", "NoInt1", "NoInt2", "Filip", "Longley",
 		"Wampler1", "Wampler2", "Wampler3", "Wampler4", "Wampler5"}
 	var table strings.Builder
-	fmt.Fprintf(&table, "\n%-9s %6s %6s %6s %6s\n", "dataset", "coef", "stderr", "sigma", "R2")
+	fmt.Fprintf(&table, "\n%-9s %6s %6s %6s %6s %9s  %s\n", "dataset", "coef", "stderr", "sigma", "R2", "cond", "refined on")
 	for _, name := range sets {
 		d := loadNIST(t, name)
 		m, cols := d.model(t)
@@ -121,7 +121,11 @@ func TestNIST(t *testing.T) {
 		}
 		sig := lre(f.Sigma, d.Certified.ResidualSD)
 		r2 := lre(f.RSquared, d.Certified.RSquared)
-		fmt.Fprintf(&table, "%-9s %6.1f %6.1f %6.1f %6.1f\n", name, minC, minS, sig, r2)
+		path := "augmented system"
+		if f.Condition <= seminormalCond {
+			path = "seminormal equations"
+		}
+		fmt.Fprintf(&table, "%-9s %6.1f %6.1f %6.1f %6.1f %9.2g  %s\n", name, minC, minS, sig, r2, f.Condition, path)
 		want := 9.0
 		if name == "Filip" {
 			want = 7
