@@ -2,6 +2,8 @@ package engine
 
 import (
 	"math"
+
+	"gonum.org/v1/gonum/blas/gonum"
 	"runtime"
 	"sync"
 	"sync/atomic"
@@ -57,37 +59,21 @@ func houseQR(a []float64, m, p, k int, tau []float64) {
 	}
 }
 
-// dot returns Σ x_i y_i (len(y) >= len(x)), with four partial sums.
+// dot returns Σ x_i y_i (len(y) >= len(x)), by gonum's BLAS (vector
+// kernels on amd64).
 func dot(x, y []float64) float64 {
-	y = y[:len(x)]
-	var s0, s1, s2, s3 float64
-	i := 0
-	for ; i+4 <= len(x); i += 4 {
-		s0 += x[i] * y[i]
-		s1 += x[i+1] * y[i+1]
-		s2 += x[i+2] * y[i+2]
-		s3 += x[i+3] * y[i+3]
-	}
-	for ; i < len(x); i++ {
-		s0 += x[i] * y[i]
-	}
-	return (s0 + s1) + (s2 + s3)
+	n := len(x)
+	return bl.Ddot(n, x, 1, y[:n], 1)
 }
 
 // axpy sets y += a x (len(y) >= len(x)).
 func axpy(a float64, x, y []float64) {
-	y = y[:len(x)]
-	i := 0
-	for ; i+4 <= len(x); i += 4 {
-		y[i] += a * x[i]
-		y[i+1] += a * x[i+1]
-		y[i+2] += a * x[i+2]
-		y[i+3] += a * x[i+3]
-	}
-	for ; i < len(x); i++ {
-		y[i] += a * x[i]
-	}
+	n := len(x)
+	bl.Daxpy(n, a, x, 1, y[:n], 1)
 }
+
+// bl is gonum's pure-Go BLAS.
+var bl gonum.Implementation
 
 // applyQT overwrites x (length m) with Q'x for the reflectors stored in the
 // m x p block a.
