@@ -313,8 +313,7 @@ func fitView(f store.FitRecord) view.FitView {
 }
 
 func (v viewSource) Observations(ctx context.Context, name string, after int64, limit int) ([]view.ObservationView, error) {
-	m, err := v.model(name)
-	if err != nil {
+	if _, err := v.model(name); err != nil {
 		return nil, err
 	}
 	obs, err := v.d.store.Observations(ctx, name, store.ObsQuery{AfterID: after, Limit: limit})
@@ -325,7 +324,6 @@ func (v viewSource) Observations(ctx context.Context, name string, after int64, 
 	if err != nil {
 		return nil, err
 	}
-	_ = m
 	out := make([]view.ObservationView, len(obs))
 	for i, o := range obs {
 		ov := view.ObservationView{ID: o.ID, File: o.Path, Generation: o.Generation, Line: o.Line, Raw: o.Raw,

@@ -96,7 +96,7 @@ type RecentFitter interface {
 // RecentQuarantiner is an optional interface of a Source that can return
 // the latest n quarantined rows of a model (model "" for all), in
 // ascending id order like every list of a Source, without paging through
-// the whole quarantine. The report uses it when present.
+// the whole quarantine. The dashboard and report use it when present.
 //
 // n <= 0 asks for every row. Like Quarantine, a model that does not exist
 // gives no rows.

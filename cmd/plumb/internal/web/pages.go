@@ -224,8 +224,17 @@ func (s *server) recentFits(ctx context.Context, name string, n int) ([]view.Fit
 }
 
 // recentQuarantine returns the latest n quarantined rows of the model,
-// newest first, reading at most 10 pages.
+// newest first: from view.RecentQuarantiner when the source has it,
+// otherwise reading at most 10 pages.
 func (s *server) recentQuarantine(ctx context.Context, model string, n int) ([]view.QuarantineView, error) {
+	if rq, ok := s.src.(view.RecentQuarantiner); ok {
+		keep, err := rq.RecentQuarantine(ctx, model, n)
+		if err != nil {
+			return nil, err
+		}
+		slices.Reverse(keep)
+		return keep, nil
+	}
 	var keep []view.QuarantineView
 	var after int64
 	for range 10 {

@@ -95,3 +95,28 @@ func BenchmarkModelPage(b *testing.B) {
 		})
 	}
 }
+
+// The model page lists the latest quarantined rows, newest first, however
+// long the quarantine: past the ten pages the paging fallback reads.
+func TestModelPageLatestQuarantine(t *testing.T) {
+	src := bigModel(t, 200)
+	const rows = 12*MaxLimit + 7
+	for i := 1; i <= rows; i++ {
+		src.AddQuarantine(view.QuarantineView{Model: "big", File: "big.csv", Line: i + 1, Column: 2,
+			Raw: "1,x", Reason: `column 2 "y": not a number`})
+	}
+	w := serve(t, New(src, Options{}), call{method: "GET", path: "/models/big"})
+	if w.Code != 200 {
+		t.Fatalf("status %d", w.Code)
+	}
+	body := w.Body.String()
+	newest := fmt.Sprintf("big.csv:%d:2", rows+1)
+	next := fmt.Sprintf("big.csv:%d:2", rows)
+	i, j := strings.Index(body, newest), strings.Index(body, next)
+	if i < 0 || j < 0 || i > j {
+		t.Errorf("model page: newest quarantined row %s at %d, the one before at %d; want both, newest first", newest, i, j)
+	}
+	if strings.Contains(body, fmt.Sprintf("big.csv:%d:2", 10*MaxLimit+1)) {
+		t.Error("model page lists a row far from the latest")
+	}
+}
