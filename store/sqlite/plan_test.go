@@ -12,6 +12,7 @@ import (
 // model's history in full nor sorts it in a temporary b-tree, so their cost
 // does not grow with the history. (All models' quarantine is the table
 // itself: "SCAN q" reads it backwards by primary key and stops at LIMIT.)
+// The paged reads (Fits, Quarantined) seek to the page's first row.
 func TestLatestQueryPlans(t *testing.T) {
 	ctx := context.Background()
 	db, err := Open(ctx, filepath.Join(t.TempDir(), "history.db"))
@@ -29,6 +30,8 @@ func TestLatestQueryPlans(t *testing.T) {
 		{"Fits", fitsQuery, []any{1, 0, 1000}, "SEARCH fits USING INDEX fits_model (model_id=? AND id>?)"},
 		{"LatestQuarantined", latestQuarantineQuery, []any{1, 50}, "SEARCH q USING INDEX quarantine_model (model_id=?)"},
 		{"LatestQuarantined all models", latestQuarantineAllQuery, []any{50}, "SCAN q"},
+		{"Quarantined", quarantineQuery, []any{1, 0, 1000}, "SEARCH q USING INDEX quarantine_model (model_id=? AND id>?)"},
+		{"Quarantined all models", quarantineAllQuery, []any{0, 1000}, "SEARCH q USING INTEGER PRIMARY KEY (rowid>?)"},
 	} {
 		t.Run(tt.name, func(t *testing.T) {
 			rows, err := db.db.QueryContext(ctx, "EXPLAIN QUERY PLAN "+tt.query, tt.args...)

@@ -16,8 +16,20 @@ func (db *DB) Quarantined(ctx context.Context, model string, afterID int64, limi
 	fail := func(err error) ([]store.QuarantineRow, error) {
 		return nil, fmt.Errorf("store: quarantined %s: %w", model, err)
 	}
-	rows, err := db.db.QueryContext(ctx, quarantineSelect+`
-		WHERE (? = '' OR m.name = ?) AND q.id > ? ORDER BY q.id LIMIT ?`, model, model, afterID, sqlLimit(limit))
+	var rows *sql.Rows
+	var err error
+	if model == "" {
+		rows, err = db.db.QueryContext(ctx, quarantineAllQuery, afterID, sqlLimit(limit))
+	} else {
+		mid, ok, lerr := db.lookupModel(ctx, db.db, model)
+		if lerr != nil {
+			return fail(lerr)
+		}
+		if !ok {
+			return nil, nil
+		}
+		rows, err = db.db.QueryContext(ctx, quarantineQuery, mid, afterID, sqlLimit(limit))
+	}
 	if err != nil {
 		return fail(err)
 	}
@@ -35,6 +47,13 @@ const quarantineSelect = `SELECT q.id, m.name, s.path, q.generation, q.line, q.c
 // check their query plans: one model's rows walk the index
 // quarantine_model (model_id, id) backwards, all models' rows the primary
 // key backwards; both stop after LIMIT rows.
+// The queries of Quarantined: one model's rows walk quarantine_model
+// forward from afterID, all models' rows the primary key.
+const (
+	quarantineQuery    = quarantineSelect + " WHERE q.model_id = ? AND q.id > ? ORDER BY q.id LIMIT ?"
+	quarantineAllQuery = quarantineSelect + " WHERE q.id > ? ORDER BY q.id LIMIT ?"
+)
+
 const (
 	latestQuarantineQuery    = quarantineSelect + " WHERE q.model_id = ? ORDER BY q.id DESC LIMIT ?"
 	latestQuarantineAllQuery = quarantineSelect + " ORDER BY q.id DESC LIMIT ?"
