@@ -76,6 +76,9 @@ type Store interface {
 	// chart the latest fits without paging through the whole history. An
 	// unknown model gives no fits, not an error.
 	LatestFits(ctx context.Context, model string, n int) ([]FitRecord, error)
+	// CountFits returns how many fits the model has (0 for an unknown
+	// model), without reading them.
+	CountFits(ctx context.Context, model string) (int64, error)
 	// LastFit returns the model's most recent fit, or ErrNotFound.
 	LastFit(ctx context.Context, model string) (FitRecord, error)
 	// VerdictChanges returns the verdict history of one observation, oldest

@@ -360,6 +360,21 @@ func (s *Store) LatestFits(ctx context.Context, model string, n int) ([]store.Fi
 	return out, nil
 }
 
+// CountFits returns how many fits the model has.
+func (s *Store) CountFits(ctx context.Context, model string) (int64, error) {
+	if err := s.begin(ctx); err != nil {
+		return 0, fmt.Errorf("store: count fits %s: %w", model, err)
+	}
+	defer s.mu.Unlock()
+	var n int64
+	for _, f := range s.fits {
+		if f.Model == model {
+			n++
+		}
+	}
+	return n, nil
+}
+
 // LastFit returns the model's most recent fit, or store.ErrNotFound.
 func (s *Store) LastFit(ctx context.Context, model string) (store.FitRecord, error) {
 	if err := s.begin(ctx); err != nil {

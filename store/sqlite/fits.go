@@ -184,6 +184,21 @@ func (db *DB) LatestFits(ctx context.Context, model string, n int) ([]store.FitR
 	return out, nil
 }
 
+// CountFits returns how many fits the model has (0 for an unknown model),
+// counting entries of the index fits_model.
+func (db *DB) CountFits(ctx context.Context, model string) (int64, error) {
+	var n int64
+	err := db.db.QueryRowContext(ctx, countFitsQuery, model).Scan(&n)
+	if err != nil {
+		return 0, fmt.Errorf("store: count fits %s: %w", model, err)
+	}
+	return n, nil
+}
+
+// countFitsQuery counts one model's fits (a query-plan test checks that it
+// reads the index, not the fit rows).
+const countFitsQuery = `SELECT COUNT(*) FROM fits WHERE model_id = (SELECT id FROM models WHERE name = ?)`
+
 // scanFits reads every row of rows (fitSelect columns) and closes it.
 func scanFits(rows *sql.Rows, model string) ([]store.FitRecord, error) {
 	defer rows.Close()

@@ -30,6 +30,7 @@ func TestLatestQueryPlans(t *testing.T) {
 		{"Fits", fitsQuery, []any{1, 0, 1000}, "SEARCH fits USING INDEX fits_model (model_id=? AND id>?)"},
 		{"LatestQuarantined", latestQuarantineQuery, []any{1, 50}, "SEARCH q USING INDEX quarantine_model (model_id=?)"},
 		{"LatestQuarantined all models", latestQuarantineAllQuery, []any{50}, "SCAN q"},
+		{"CountFits", countFitsQuery, []any{"cal"}, "SEARCH fits USING COVERING INDEX fits_model (model_id=?)"},
 		{"Quarantined", quarantineQuery, []any{1, 0, 1000}, "SEARCH q USING INDEX quarantine_model (model_id=? AND id>?)"},
 		{"Quarantined all models", quarantineAllQuery, []any{0, 1000}, "SEARCH q USING INTEGER PRIMARY KEY (rowid>?)"},
 	} {

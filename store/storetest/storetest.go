@@ -824,6 +824,9 @@ func testLatestFits(t *testing.T, s store.Store) {
 	if got, err := s.LatestFits(ctx, "cal", 3); err != nil || len(got) != 0 {
 		t.Errorf("LatestFits of a model without fits = %v, %v; want none", got, err)
 	}
+	if n, err := s.CountFits(ctx, "cal"); err != nil || n != 0 {
+		t.Errorf("CountFits of a model without fits = %d, %v; want 0", n, err)
+	}
 	ids := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 12))
 	var cal []store.FitRecord
 	for i := range 10 {
@@ -876,6 +879,11 @@ func testLatestFits(t *testing.T, s store.Store) {
 			}
 		})
 	}
+	for model, want := range map[string]int64{"cal": 7, "other": 3, "none": 0, "": 0} {
+		if n, err := s.CountFits(ctx, model); err != nil || n != want {
+			t.Errorf("CountFits(%q) = %d, %v; want %d", model, n, err, want)
+		}
+	}
 	last, err := s.LastFit(ctx, "cal")
 	if err != nil {
 		t.Fatal(err)
@@ -896,10 +904,16 @@ func testLatestFits(t *testing.T, s store.Store) {
 	}
 	checkFit(t, two[0], cal[len(cal)-1])
 	checkFit(t, two[1], f)
+	if n, err := s.CountFits(ctx, "cal"); err != nil || n != 8 {
+		t.Errorf("CountFits after one more fit = %d, %v; want 8", n, err)
+	}
 	cctx, cancel := context.WithCancel(ctx)
 	cancel()
 	if _, err := s.LatestFits(cctx, "cal", 2); !errors.Is(err, context.Canceled) {
 		t.Errorf("LatestFits under a cancelled context: %v, want context.Canceled", err)
+	}
+	if _, err := s.CountFits(cctx, "cal"); !errors.Is(err, context.Canceled) {
+		t.Errorf("CountFits under a cancelled context: %v, want context.Canceled", err)
 	}
 }
 

@@ -174,6 +174,15 @@ func TestIngestJudgeRestart(t *testing.T) {
 	if n != 65 {
 		t.Errorf("in-memory rows %d, want 65", n)
 	}
+	// The fit count and the last fit survive the restart: the count
+	// carried over plus this run's fits is what the store holds.
+	waitFor(t, "fit count as stored", func() bool {
+		stored, err := r.d.store.CountFits(context.Background(), "m")
+		last, lerr := r.d.store.LastFit(context.Background(), "m")
+		m.mu.Lock()
+		defer m.mu.Unlock()
+		return err == nil && lerr == nil && stored >= 2 && m.fits == stored && m.fitID == last.ID
+	})
 }
 
 // TestModelsIsolated: a model whose data cannot be fitted is blocked with a

@@ -235,13 +235,14 @@ func (m *modelRT) restore(ctx context.Context, s store.Store) error {
 		return err
 	}
 	m.quarantined = q
-	fits, err := s.Fits(ctx, m.cfg.Name, 0, 0)
-	if err != nil {
+	// Count the fits and find the last one without reading the history.
+	if m.fits, err = s.CountFits(ctx, m.cfg.Name); err != nil {
 		return err
 	}
-	m.fits = int64(len(fits))
-	if len(fits) > 0 {
-		m.fitID = fits[len(fits)-1].ID
+	if last, err := s.LastFit(ctx, m.cfg.Name); err == nil {
+		m.fitID = last.ID
+	} else if !errors.Is(err, store.ErrNotFound) {
+		return err
 	}
 	m.dirty = len(m.ids) > 0
 	return nil
