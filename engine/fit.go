@@ -637,14 +637,7 @@ func (w *work) refine(cond float64, f0 []float64) (b, db0 []float64, single bool
 	sm := ch.nc * p
 	xd, stride, y := w.xd, w.stride, w.y
 
-	c0 := make([]float64, p)
-	for i := 0; i < p; i++ {
-		c0[i] = w.S[p*sm+i] / w.pre[p]
-	}
-	solveUpper(R, p, c0)
-	b = make([]float64, p)
-	sc.fromW(b, c0)
-	cvec := c0
+	b, cvec := w.start()
 	db0 = make([]float64, p)
 	single = true
 
@@ -652,6 +645,7 @@ func (w *work) refine(cond float64, f0 []float64) (b, db0 []float64, single bool
 	r := w.r
 	s := make([]float64, sm)
 	gpart := make([]float64, 2*ch.nc*p)
+	gfs := make([]float64, ch.nc*p)
 	dc := make([]float64, p)
 	db := make([]float64, p)
 	h := make([]float64, p)
@@ -692,35 +686,9 @@ func (w *work) refine(cond float64, f0 []float64) (b, db0 []float64, single bool
 				}
 				z[i-lo] = fi
 			}
-			// X'r of the chunk in double-double, column by column with
-			// two interleaved accumulators held in registers.
-			rc := r[lo:hi]
-			for j := 0; j < p; j++ {
-				x := xd[lo*stride+j:]
-				var s0, c0, s1, c1 float64
-				i := 0
-				for ; i+2 <= len(rc); i += 2 {
-					v0, v1 := x[i*stride], x[(i+1)*stride]
-					q0, q1 := v0*rc[i], v1*rc[i+1]
-					e0, e1 := math.FMA(v0, rc[i], -q0), math.FMA(v1, rc[i+1], -q1)
-					var t0, t1 float64
-					s0, t0 = twoSum(s0, q0)
-					s1, t1 = twoSum(s1, q1)
-					c0 += t0 + e0
-					c1 += t1 + e1
-				}
-				if i < len(rc) {
-					v0 := x[i*stride]
-					q0 := v0 * rc[i]
-					e0 := math.FMA(v0, rc[i], -q0)
-					var t0 float64
-					s0, t0 = twoSum(s0, q0)
-					c0 += t0 + e0
-				}
-				var t float64
-				gs[j], t = twoSum(s0, s1)
-				gc[j] = c0 + c1 + t
-			}
+			// X'r of the chunk in double-double (X'f, in gf, is not used:
+			// Q'f carries f into the correction).
+			xtr(xd[lo*stride:], stride, p, r[lo:hi], z[:mr], gs, gc, gfs[c*p:(c+1)*p])
 			applyQT(a, mr, p, tau, z)
 			copy(s[c*p:(c+1)*p], z[:p])
 		})
@@ -801,6 +769,59 @@ func (w *work) converged(b, db, cvec, dc []float64, rho, prev *float64, it int) 
 	return false
 }
 
+// start returns the QR solution b0 and its coefficients c0 in the scaled
+// design (from the merged factors: R c0 = the top of Q'y).
+func (w *work) start() (b, c []float64) {
+	p := w.p
+	sm := w.ch.nc * p
+	c = make([]float64, p)
+	for i := 0; i < p; i++ {
+		c[i] = w.S[p*sm+i] / w.pre[p]
+	}
+	solveUpper(w.R, p, c)
+	b = make([]float64, p)
+	w.sc.fromW(b, c)
+	return b, c
+}
+
+// xtr sets, for the rows of x (row-major with the given stride, p columns
+// used) against r and f (one value a row), gs + gc = X'r in double-double
+// and gf = X'f in double: column by column, with two interleaved
+// accumulators held in registers.
+func xtr(x []float64, stride, p int, r, f, gs, gc, gf []float64) {
+	f = f[:len(r)]
+	for j := 0; j < p; j++ {
+		x := x[j:]
+		var s0, c0, s1, c1, u0, u1 float64
+		i := 0
+		for ; i+2 <= len(r); i += 2 {
+			v0, v1 := x[i*stride], x[(i+1)*stride]
+			q0, q1 := v0*r[i], v1*r[i+1]
+			e0, e1 := math.FMA(v0, r[i], -q0), math.FMA(v1, r[i+1], -q1)
+			var t0, t1 float64
+			s0, t0 = twoSum(s0, q0)
+			s1, t1 = twoSum(s1, q1)
+			c0 += t0 + e0
+			c1 += t1 + e1
+			u0 += v0 * f[i]
+			u1 += v1 * f[i+1]
+		}
+		if i < len(r) {
+			v0 := x[i*stride]
+			q0 := v0 * r[i]
+			e0 := math.FMA(v0, r[i], -q0)
+			var t0 float64
+			s0, t0 = twoSum(s0, q0)
+			c0 += t0 + e0
+			u0 += v0 * f[i]
+		}
+		var t float64
+		gs[j], t = twoSum(s0, s1)
+		gc[j] = c0 + c1 + t
+		gf[j] = u0 + u1
+	}
+}
+
 // refineSemi returns the least-squares coefficients, refined on the
 // corrected seminormal equations (Björck 1987): from b0 of the QR
 // factors, each step computes r + f = y - Xb to double-double accuracy
@@ -814,17 +835,9 @@ func (w *work) converged(b, db, cvec, dc []float64, rho, prev *float64, it int) 
 func (w *work) refineSemi(cond float64, f0 []float64) (b, db []float64) {
 	n, p := w.n, w.p
 	ch, sc, R := w.ch, &w.sc, w.R
-	sm := ch.nc * p
 	xd, stride, y := w.xd, w.stride, w.y
 
-	c0 := make([]float64, p)
-	for i := 0; i < p; i++ {
-		c0[i] = w.S[p*sm+i] / w.pre[p]
-	}
-	solveUpper(R, p, c0)
-	b = make([]float64, p)
-	sc.fromW(b, c0)
-	cvec := c0
+	b, cvec := w.start()
 	db = make([]float64, p)
 
 	w.r = make([]float64, n)
@@ -849,39 +862,7 @@ func (w *work) refineSemi(cond float64, f0 []float64) (b, db []float64) {
 			gs := gpart[3*c*p : (3*c+1)*p]
 			gc := gpart[(3*c+1)*p : (3*c+2)*p]
 			gf := gpart[(3*c+2)*p : (3*c+3)*p]
-			rc := r[lo:hi]
-			fc := f0[lo:hi]
-			fc = fc[:len(rc)]
-			for j := 0; j < p; j++ {
-				x := xd[lo*stride+j:]
-				var s0, c0, s1, c1, u0, u1 float64
-				i := 0
-				for ; i+2 <= len(rc); i += 2 {
-					v0, v1 := x[i*stride], x[(i+1)*stride]
-					q0, q1 := v0*rc[i], v1*rc[i+1]
-					e0, e1 := math.FMA(v0, rc[i], -q0), math.FMA(v1, rc[i+1], -q1)
-					var t0, t1 float64
-					s0, t0 = twoSum(s0, q0)
-					s1, t1 = twoSum(s1, q1)
-					c0 += t0 + e0
-					c1 += t1 + e1
-					u0 += v0 * fc[i]
-					u1 += v1 * fc[i+1]
-				}
-				if i < len(rc) {
-					v0 := x[i*stride]
-					q0 := v0 * rc[i]
-					e0 := math.FMA(v0, rc[i], -q0)
-					var t0 float64
-					s0, t0 = twoSum(s0, q0)
-					c0 += t0 + e0
-					u0 += v0 * fc[i]
-				}
-				var t float64
-				gs[j], t = twoSum(s0, s1)
-				gc[j] = c0 + c1 + t
-				gf[j] = u0 + u1
-			}
+			xtr(xd[lo*stride:], stride, p, r[lo:hi], f0[lo:hi], gs, gc, gf)
 		})
 		// g = X'(r + f), gW = T^-T g, dc = R^-1 R^-T gW.
 		g := make([]dd, p)

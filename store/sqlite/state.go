@@ -16,24 +16,7 @@ func (db *DB) Quarantined(ctx context.Context, model string, afterID int64, limi
 	fail := func(err error) ([]store.QuarantineRow, error) {
 		return nil, fmt.Errorf("store: quarantined %s: %w", model, err)
 	}
-	var rows *sql.Rows
-	var err error
-	if model == "" {
-		rows, err = db.db.QueryContext(ctx, quarantineAllQuery, afterID, sqlLimit(limit))
-	} else {
-		mid, ok, lerr := db.lookupModel(ctx, db.db, model)
-		if lerr != nil {
-			return fail(lerr)
-		}
-		if !ok {
-			return nil, nil
-		}
-		rows, err = db.db.QueryContext(ctx, quarantineQuery, mid, afterID, sqlLimit(limit))
-	}
-	if err != nil {
-		return fail(err)
-	}
-	out, err := scanQuarantine(rows)
+	out, err := db.queryQuarantine(ctx, model, quarantineAllQuery, quarantineQuery, afterID, sqlLimit(limit))
 	if err != nil {
 		return fail(err)
 	}
@@ -67,29 +50,33 @@ func (db *DB) LatestQuarantined(ctx context.Context, model string, n int) ([]sto
 	fail := func(err error) ([]store.QuarantineRow, error) {
 		return nil, fmt.Errorf("store: latest quarantined %s: %w", model, err)
 	}
-	var rows *sql.Rows
-	var err error
-	if model == "" {
-		rows, err = db.db.QueryContext(ctx, latestQuarantineAllQuery, sqlLimit(n))
-	} else {
-		mid, ok, lerr := db.lookupModel(ctx, db.db, model)
-		if lerr != nil {
-			return fail(lerr)
-		}
-		if !ok {
-			return nil, nil
-		}
-		rows, err = db.db.QueryContext(ctx, latestQuarantineQuery, mid, sqlLimit(n))
-	}
-	if err != nil {
-		return fail(err)
-	}
-	out, err := scanQuarantine(rows)
+	out, err := db.queryQuarantine(ctx, model, latestQuarantineAllQuery, latestQuarantineQuery, sqlLimit(n))
 	if err != nil {
 		return fail(err)
 	}
 	slices.Reverse(out)
 	return out, nil
+}
+
+// queryQuarantine runs all (model "") or one (the model's id, then args)
+// and scans the rows; an unknown model has none.
+func (db *DB) queryQuarantine(ctx context.Context, model, all, one string, args ...any) ([]store.QuarantineRow, error) {
+	if model == "" {
+		rows, err := db.db.QueryContext(ctx, all, args...)
+		if err != nil {
+			return nil, err
+		}
+		return scanQuarantine(rows)
+	}
+	mid, ok, err := db.lookupModel(ctx, db.db, model)
+	if err != nil || !ok {
+		return nil, err
+	}
+	rows, err := db.db.QueryContext(ctx, one, append([]any{mid}, args...)...)
+	if err != nil {
+		return nil, err
+	}
+	return scanQuarantine(rows)
 }
 
 // scanQuarantine reads every row of rows (quarantineSelect columns) and
