@@ -114,6 +114,14 @@ type Store interface {
 	// UpdatedAt equal to CreatedAt. A delivery whose non-empty EventID is
 	// already enqueued for the same Route is skipped, so a retried PutAlert
 	// never enqueues an event twice.
+	//
+	// a.Revision makes the write conditional: n >= 1 writes only when the
+	// stored alert has revision n-1 (revision 1: when there is no stored
+	// alert, or one of revision 0), and otherwise writes nothing and
+	// returns ErrChanged (wrapped), so that a read-modify-write cannot
+	// overwrite a change made in between (an acknowledgement by another
+	// process). 0 writes unconditionally. Either way the stored revision
+	// becomes one more than before (1 for a new alert).
 	PutAlert(ctx context.Context, a AlertRecord, deliveries []Delivery) error
 	// Alert returns one alert by id.
 	Alert(ctx context.Context, id string) (AlertRecord, error)
@@ -133,6 +141,10 @@ type Store interface {
 	// Close releases the store.
 	Close() error
 }
+
+// ErrChanged is returned (wrapped) by PutAlert when the stored alert is
+// not at the revision the write expects: it changed since it was read.
+var ErrChanged = errors.New("store: the alert changed since it was read")
 
 // ErrStale is returned (wrapped) by Ingest for a batch whose offset does
 // not advance the stored read position.
@@ -290,6 +302,8 @@ type AlertRecord struct {
 	LastSeen  time.Time
 	// Doc is the alert's full JSON document as the alerts package made it.
 	Doc string
+	// Revision counts the alert's writes (see PutAlert).
+	Revision int64
 }
 
 // AlertQuery selects alerts.

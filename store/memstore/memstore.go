@@ -538,9 +538,14 @@ func (s *Store) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []
 		ds[i] = copyDelivery(d)
 	}
 	a.FirstSeen, a.LastSeen = utc(a.FirstSeen), utc(a.LastSeen)
-	if old, ok := s.alerts[a.ID]; ok && !old.FirstSeen.IsZero() {
+	old, had := s.alerts[a.ID]
+	if a.Revision > 0 && old.Revision != a.Revision-1 {
+		return fail(fmt.Errorf("%w: revision %d stored, %d written", store.ErrChanged, old.Revision, a.Revision))
+	}
+	if had && !old.FirstSeen.IsZero() {
 		a.FirstSeen = old.FirstSeen
 	}
+	a.Revision = old.Revision + 1
 	s.alerts[a.ID] = a
 	for _, d := range ds {
 		ev := [2]string{d.Route, d.EventID}

@@ -77,12 +77,7 @@ func (db *DB) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []st
 		dargs[i] = []any{d.AlertID, d.Route, d.EventID, payload, string(d.State), d.Attempts, ts[0], d.LastError, ts[1], ts[2]}
 	}
 	err = db.write(ctx, func(tx *sql.Tx) error {
-		if _, err := tx.ExecContext(ctx, `INSERT INTO alerts (id, model, kind, subject, severity, state, first_seen, last_seen, doc)
-			VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)
-			ON CONFLICT (id) DO UPDATE SET model = excluded.model, kind = excluded.kind, subject = excluded.subject,
-				severity = excluded.severity, state = excluded.state, last_seen = excluded.last_seen, doc = excluded.doc,
-				first_seen = COALESCE(alerts.first_seen, excluded.first_seen)`,
-			a.ID, a.Model, a.Kind, a.Subject, a.Severity, a.State, first, last, a.Doc); err != nil {
+		if err := putAlertRow(ctx, tx, a, first, last); err != nil {
 			return err
 		}
 		if len(dargs) == 0 {
@@ -107,11 +102,57 @@ func (db *DB) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []st
 	return nil
 }
 
-const alertSelect = "SELECT id, model, kind, subject, severity, state, first_seen, last_seen, doc FROM alerts "
+// putAlertRow writes the alert row: unconditionally for revision 0, else
+// only at the expected stored revision (see store.Store.PutAlert). Each
+// case begins with a write, so the transaction holds the write lock before
+// it reads anything.
+func putAlertRow(ctx context.Context, tx *sql.Tx, a store.AlertRecord, first, last any) error {
+	if a.Revision == 0 {
+		_, err := tx.ExecContext(ctx, `INSERT INTO alerts (id, model, kind, subject, severity, state, first_seen, last_seen, doc, revision)
+			VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, 1)
+			ON CONFLICT (id) DO UPDATE SET model = excluded.model, kind = excluded.kind, subject = excluded.subject,
+				severity = excluded.severity, state = excluded.state, last_seen = excluded.last_seen, doc = excluded.doc,
+				first_seen = COALESCE(alerts.first_seen, excluded.first_seen), revision = alerts.revision + 1`,
+			a.ID, a.Model, a.Kind, a.Subject, a.Severity, a.State, first, last, a.Doc)
+		return err
+	}
+	res, err := tx.ExecContext(ctx, `UPDATE alerts SET model = ?, kind = ?, subject = ?, severity = ?, state = ?,
+		last_seen = ?, doc = ?, first_seen = COALESCE(first_seen, ?), revision = revision + 1
+		WHERE id = ? AND revision = ?`,
+		a.Model, a.Kind, a.Subject, a.Severity, a.State, last, a.Doc, first, a.ID, a.Revision-1)
+	if err != nil {
+		return err
+	}
+	n, err := res.RowsAffected()
+	if err != nil || n == 1 {
+		return err
+	}
+	if a.Revision == 1 {
+		res, err := tx.ExecContext(ctx, `INSERT INTO alerts (id, model, kind, subject, severity, state, first_seen, last_seen, doc, revision)
+			VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, 1) ON CONFLICT (id) DO NOTHING`,
+			a.ID, a.Model, a.Kind, a.Subject, a.Severity, a.State, first, last, a.Doc)
+		if err != nil {
+			return err
+		}
+		if n, err := res.RowsAffected(); err != nil || n == 1 {
+			return err
+		}
+	}
+	var stored int64
+	switch err := tx.QueryRowContext(ctx, `SELECT revision FROM alerts WHERE id = ?`, a.ID).Scan(&stored); {
+	case errors.Is(err, sql.ErrNoRows):
+		return fmt.Errorf("%w: no alert stored, revision %d written", store.ErrChanged, a.Revision)
+	case err != nil:
+		return err
+	}
+	return fmt.Errorf("%w: revision %d stored, %d written", store.ErrChanged, stored, a.Revision)
+}
+
+const alertSelect = "SELECT id, model, kind, subject, severity, state, first_seen, last_seen, doc, revision FROM alerts "
 
 func scanAlert(sc scanner, a *store.AlertRecord) error {
 	var first, last sql.NullInt64
-	if err := sc.Scan(&a.ID, &a.Model, &a.Kind, &a.Subject, &a.Severity, &a.State, &first, &last, &a.Doc); err != nil {
+	if err := sc.Scan(&a.ID, &a.Model, &a.Kind, &a.Subject, &a.Severity, &a.State, &first, &last, &a.Doc, &a.Revision); err != nil {
 		return err
 	}
 	a.FirstSeen = decTime(first)

@@ -2,8 +2,10 @@ package sqlite_test
 
 import (
 	"context"
+	"database/sql"
 	"errors"
 	"math"
+	"os"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -264,5 +266,52 @@ func TestIngestDuplicateLineNamesIt(t *testing.T) {
 	if err == nil || errors.Is(err, store.ErrStale) || !strings.Contains(err.Error(), "already stored") ||
 		!strings.Contains(err.Error(), "store: ingest bench/in/run.csv") {
 		t.Errorf("Ingest of a stored line: %v, want an error naming the batch and the duplicate", err)
+	}
+}
+
+// TestMigrateAlertRevision: a database made at schema version 1 (no alert
+// revisions) opens at the latest version; its alerts read as revision 0,
+// and the first conditional write (revision 1) goes through once.
+func TestMigrateAlertRevision(t *testing.T) {
+	ctx := context.Background()
+	path := filepath.Join(t.TempDir(), "v1.db")
+	init, err := os.ReadFile(filepath.Join("migrations", "0001_init.sql"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	raw, err := sql.Open("sqlite", path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, q := range []string{
+		`CREATE TABLE schema_version (version INTEGER PRIMARY KEY, name TEXT NOT NULL, applied_at INTEGER NOT NULL)`,
+		string(init),
+		`INSERT INTO schema_version VALUES (1, '0001_init.sql', 0)`,
+		`INSERT INTO alerts (id, model, kind, subject, severity, state, first_seen, last_seen, doc)
+			VALUES ('old', 'cal', 'drift', 'cal', 'warning', 'open', 1, 2, '{}')`,
+	} {
+		if _, err := raw.ExecContext(ctx, q); err != nil {
+			t.Fatalf("build a version 1 database: %v", err)
+		}
+	}
+	raw.Close()
+	db, err := sqlite.Open(ctx, path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	if v, err := db.SchemaVersion(ctx); err != nil || v != sqlite.LatestSchemaVersion() {
+		t.Fatalf("SchemaVersion = %d, %v; want %d", v, err, sqlite.LatestSchemaVersion())
+	}
+	a, err := db.Alert(ctx, "old")
+	if err != nil || a.Revision != 0 || a.State != "open" {
+		t.Fatalf("migrated alert = %+v, %v; want it at revision 0", a, err)
+	}
+	a.State, a.Revision = "acknowledged", 1
+	if err := db.PutAlert(ctx, a, nil); err != nil {
+		t.Fatalf("first conditional write: %v", err)
+	}
+	if err := db.PutAlert(ctx, a, nil); !errors.Is(err, store.ErrChanged) {
+		t.Errorf("the same write again: %v, want ErrChanged", err)
 	}
 }

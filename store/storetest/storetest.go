@@ -60,6 +60,7 @@ func Run(t *testing.T, open Opener) {
 		{"RecordFitAtomic", testRecordFitAtomic},
 		{"ModelStates", testModelStates},
 		{"AlertUpsert", testAlertUpsert},
+		{"AlertRevisions", testAlertRevisions},
 		{"AlertsQuery", testAlertsQuery},
 		{"Outbox", testOutbox},
 		{"Concurrent", testConcurrent},
@@ -1053,6 +1054,84 @@ func alert(id, model, kind, subject string, seen time.Time) store.AlertRecord {
 	return store.AlertRecord{
 		ID: id, Model: model, Kind: kind, Subject: subject, Severity: "warning", State: "open",
 		FirstSeen: seen, LastSeen: seen, Doc: fmt.Sprintf(`{"id":%q}`, id),
+	}
+}
+
+// testAlertRevisions: every write counts a revision; a conditional write
+// at the wrong revision (the alert changed since it was read, or a new
+// alert that exists already) is ErrChanged and writes nothing, neither
+// the alert nor its deliveries.
+func testAlertRevisions(t *testing.T, s store.Store) {
+	ctx := ctxT(t)
+	rev := func(id string) int64 {
+		t.Helper()
+		a, err := s.Alert(ctx, id)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return a.Revision
+	}
+	a := alert("r1", "cal", "suspect", "a.csv:3", t0)
+	a.Revision = 2
+	if err := s.PutAlert(ctx, a, nil); !errors.Is(err, store.ErrChanged) {
+		t.Errorf("revision 2 of a new alert: %v, want ErrChanged", err)
+	}
+	if _, err := s.Alert(ctx, "r1"); !errors.Is(err, store.ErrNotFound) {
+		t.Errorf("a conflicting write stored the alert: %v", err)
+	}
+	a.Revision = 1
+	if err := s.PutAlert(ctx, a, nil); err != nil {
+		t.Fatalf("revision 1 of a new alert: %v", err)
+	}
+	if r := rev("r1"); r != 1 {
+		t.Errorf("new alert at revision %d, want 1", r)
+	}
+	// Two writers read revision 1; the first write wins.
+	first, second := a, a
+	first.Revision, second.Revision = 2, 2
+	first.State, first.Doc = "acknowledged", `{"id":"r1","ack":true}`
+	second.Doc = `{"id":"r1","count":2}`
+	if err := s.PutAlert(ctx, first, nil); err != nil {
+		t.Fatalf("first writer: %v", err)
+	}
+	d := store.Delivery{Route: "log", EventID: "r1-9", Payload: []byte("{}")}
+	if err := s.PutAlert(ctx, second, []store.Delivery{d}); !errors.Is(err, store.ErrChanged) {
+		t.Errorf("second writer at a stale revision: %v, want ErrChanged", err)
+	}
+	got, err := s.Alert(ctx, "r1")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got.Revision != 2 || got.State != "acknowledged" || got.Doc != first.Doc {
+		t.Errorf("after the conflict: %+v, want the first writer's at revision 2", got)
+	}
+	if ds, err := s.Deliveries(ctx, "", 0); err != nil || len(ds) != 0 {
+		t.Errorf("a conflicting write enqueued %d deliveries (%v)", len(ds), err)
+	}
+	// A new alert written as new when it exists already conflicts too.
+	again := a
+	again.Revision = 1
+	if err := s.PutAlert(ctx, again, nil); !errors.Is(err, store.ErrChanged) {
+		t.Errorf("revision 1 of an existing alert: %v, want ErrChanged", err)
+	}
+	// Unconditional writes count too; the retried write at the re-read
+	// revision goes through.
+	second.Revision = 0
+	if err := s.PutAlert(ctx, second, nil); err != nil {
+		t.Fatal(err)
+	}
+	if r := rev("r1"); r != 3 {
+		t.Errorf("after an unconditional write revision %d, want 3", r)
+	}
+	second.Revision = 4
+	if err := s.PutAlert(ctx, second, []store.Delivery{d}); err != nil {
+		t.Fatalf("write at the current revision: %v", err)
+	}
+	if r := rev("r1"); r != 4 {
+		t.Errorf("revision %d, want 4", r)
+	}
+	if ds, err := s.Deliveries(ctx, "", 0); err != nil || len(ds) != 1 {
+		t.Errorf("%d deliveries after the write (%v), want 1", len(ds), err)
 	}
 }
 
