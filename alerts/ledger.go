@@ -20,7 +20,11 @@ import (
 type Ledger interface {
 	// PutAlert inserts or updates the alert with a.ID and, in the same
 	// transaction, enqueues the deliveries (their ID is assigned by the
-	// ledger).
+	// ledger). With a.Revision n >= 1 it writes only when the stored
+	// alert is at revision n-1 (n = 1: none stored, or one at revision 0)
+	// and otherwise writes nothing and returns an error wrapping
+	// ErrChanged; 0 writes unconditionally. The stored revision becomes
+	// one more than before. The Manager always writes conditionally.
 	PutAlert(ctx context.Context, a AlertRecord, deliveries []Delivery) error
 	// Alert returns one alert by id, or an error wrapping a not-found
 	// sentinel of the ledger's own.
@@ -49,6 +53,7 @@ type AlertRecord struct {
 	FirstSeen time.Time
 	LastSeen  time.Time
 	Doc       string
+	Revision  int64 // counts the alert's writes (see Ledger.PutAlert)
 }
 
 // AlertQuery selects alerts (store.AlertQuery).

@@ -34,6 +34,11 @@ func (l *memLedger) PutAlert(ctx context.Context, a AlertRecord, ds []Delivery) 
 	if l.failPut != nil {
 		return l.failPut
 	}
+	old := l.alerts[a.ID]
+	if a.Revision > 0 && old.Revision != a.Revision-1 {
+		return fmt.Errorf("alert %s: revision %d stored, %d written: %w", a.ID, old.Revision, a.Revision, ErrChanged)
+	}
+	a.Revision = old.Revision + 1
 	l.alerts[a.ID] = a
 	for _, d := range ds {
 		l.nextID++

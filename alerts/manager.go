@@ -14,6 +14,15 @@ import (
 // already resolved.
 var ErrNotOpen = errors.New("alerts: alert is resolved")
 
+// ErrChanged is what a Ledger's conditional PutAlert returns (wrapped)
+// when the stored alert is not at the expected revision: another writer
+// changed it since it was read.
+var ErrChanged = errors.New("alerts: the alert changed since it was read")
+
+// maxRetries bounds how often a change is read and applied again after a
+// conflicting write by another process.
+const maxRetries = 8
+
 // Config configures a Manager.
 type Config struct {
 	// Rules apply to every model without an entry in ModelRules. Every
@@ -43,6 +52,10 @@ type Config struct {
 // alert's current record from the ledger before changing it, and Tick
 // reloads the cache, so an acknowledgement or resolution written by
 // another Manager on the same ledger (an offline command) is respected.
+// Every write is conditional on the revision read: a change written by
+// another process in between makes the write fail with ErrChanged, and
+// the Manager reads the alert again and reapplies its change, so nothing
+// written in between is lost.
 // Only Managers change alerts: another process may acknowledge or resolve,
 // but only the daemon's Manager should report conditions.
 type Manager struct {
@@ -51,7 +64,7 @@ type Manager struct {
 
 	mu       sync.Mutex
 	loaded   bool
-	open     map[string]string // id -> doc of every alert not resolved
+	open     map[string]cached // every alert not resolved, by id
 	lastData map[string]time.Time
 }
 
@@ -93,12 +106,18 @@ func NewManager(l Ledger, c Config) (*Manager, error) {
 	if c.Now == nil {
 		c.Now = time.Now
 	}
-	m := &Manager{ledger: l, cfg: c, open: make(map[string]string), lastData: make(map[string]time.Time)}
+	m := &Manager{ledger: l, cfg: c, open: make(map[string]cached), lastData: make(map[string]time.Time)}
 	start := c.Now()
 	for model := range c.ModelRules {
 		m.lastData[model] = start
 	}
 	return m, nil
+}
+
+// cached is an alert as last read or written: its document and revision.
+type cached struct {
+	doc string
+	rev int64
 }
 
 func (m *Manager) rules(model string) Rules {
@@ -122,7 +141,7 @@ func (m *Manager) load(ctx context.Context) error {
 			}
 			for _, r := range recs {
 				if State(r.State) != StateResolved {
-					m.open[r.ID] = r.Doc
+					m.open[r.ID] = cached{r.Doc, r.Revision}
 				}
 			}
 			if len(recs) < page {
@@ -139,27 +158,41 @@ func (m *Manager) load(ctx context.Context) error {
 // acknowledgement from the command line, may have changed it). With ask
 // false the ledger is read only when the cache says the alert is not
 // resolved, so a condition that is clear costs no ledger access in the
-// common case. It returns nil when there is no alert.
-func (m *Manager) find(ctx context.Context, id, model string, kind Kind, subject string, ask bool) (*Alert, error) {
+// common case. It returns nil when there is no alert, and the revision
+// read (0 for none).
+func (m *Manager) find(ctx context.Context, id, model string, kind Kind, subject string, ask bool) (*Alert, int64, error) {
 	if _, ok := m.open[id]; !ok && !ask {
-		return nil, nil
+		return nil, 0, nil
 	}
 	recs, err := m.ledger.Alerts(ctx, AlertQuery{Model: model, Kind: string(kind), Subject: subject, Limit: 1})
 	if err != nil {
-		return nil, fmt.Errorf("alerts: look up %s: %w", id, err)
+		return nil, 0, fmt.Errorf("alerts: look up %s: %w", id, err)
 	}
 	for _, r := range recs {
 		if r.ID == id {
 			if State(r.State) == StateResolved {
 				delete(m.open, id)
 			} else {
-				m.open[id] = r.Doc
+				m.open[id] = cached{r.Doc, r.Revision}
 			}
-			return decodeDoc(id, r.Doc)
+			a, err := decodeDoc(id, r.Doc)
+			return a, r.Revision, err
 		}
 	}
 	delete(m.open, id)
-	return nil, nil
+	return nil, 0, nil
+}
+
+// retry runs op until it does not fail with ErrChanged, at most
+// maxRetries more times; op reads the alert afresh each time (retried
+// says it is not the first).
+func retry[T any](op func(retried bool) (T, error)) (T, error) {
+	for i := 0; ; i++ {
+		v, err := op(i > 0)
+		if !errors.Is(err, ErrChanged) || i == maxRetries {
+			return v, err
+		}
+	}
 }
 
 func decodeDoc(id, doc string) (*Alert, error) {
@@ -183,14 +216,19 @@ type change struct {
 }
 
 // apply runs the lifecycle for one report and returns the alert as stored
-// (nil when there is none).
+// (nil when there is none). After a conflicting write it reads the alert
+// from the ledger again, whatever the cache says.
 func (m *Manager) apply(ctx context.Context, now time.Time, c change) (*Alert, error) {
 	if err := m.load(ctx); err != nil {
 		return nil, err
 	}
+	return retry(func(retried bool) (*Alert, error) { return m.applyOnce(ctx, now, c, retried) })
+}
+
+func (m *Manager) applyOnce(ctx context.Context, now time.Time, c change, ask bool) (*Alert, error) {
 	rule := m.rules(c.model).rule(c.kind)
 	id := ID(c.model, c.kind, c.subject)
-	a, err := m.find(ctx, id, c.model, c.kind, c.subject, c.active && rule.Enabled)
+	a, rev, err := m.find(ctx, id, c.model, c.kind, c.subject, ask || (c.active && rule.Enabled))
 	if err != nil {
 		return nil, err
 	}
@@ -201,7 +239,7 @@ func (m *Manager) apply(ctx context.Context, now time.Time, c change) (*Alert, e
 		a.State = StateResolved
 		a.Resolution = &ResolutionInfo{At: now, Auto: true, Note: c.note}
 		a.Summary = "Resolved: " + a.Summary
-		return a, m.put(ctx, now, a, Resolved)
+		return a, m.put(ctx, now, a, Resolved, rev)
 	}
 	if !rule.Enabled {
 		return nil, nil
@@ -227,12 +265,14 @@ func (m *Manager) apply(ctx context.Context, now time.Time, c change) (*Alert, e
 	if a.Measures == nil {
 		a.Measures = []Measure{}
 	}
-	return a, m.put(ctx, now, a, t)
+	return a, m.put(ctx, now, a, t, rev)
 }
 
 // put stores the alert and, when t is set, its next event for every route
-// that takes it.
-func (m *Manager) put(ctx context.Context, now time.Time, a *Alert, t Transition) error {
+// that takes it, provided the stored alert is still at revision rev (the
+// one read; 0 for a new alert). Otherwise it returns an error wrapping
+// ErrChanged and a is to be read again.
+func (m *Manager) put(ctx context.Context, now time.Time, a *Alert, t Transition, rev int64) error {
 	var ds []Delivery
 	if t != "" {
 		a.Sequence++
@@ -254,8 +294,11 @@ func (m *Manager) put(ctx context.Context, now time.Time, a *Alert, t Transition
 	}
 	rec := AlertRecord{ID: a.ID, Model: a.Model, Kind: string(a.Kind), Subject: a.Subject,
 		Severity: string(a.Severity), State: string(a.State), FirstSeen: a.FirstSeen, LastSeen: a.LastSeen,
-		Doc: string(doc)}
+		Doc: string(doc), Revision: rev + 1}
 	if err := m.ledger.PutAlert(ctx, rec, ds); err != nil {
+		if errors.Is(err, ErrChanged) {
+			delete(m.open, a.ID)
+		}
 		return fmt.Errorf("alerts: store alert %s: %w", a.ID, err)
 	}
 	if len(ds) > 0 && m.cfg.OnEnqueue != nil {
@@ -264,7 +307,7 @@ func (m *Manager) put(ctx context.Context, now time.Time, a *Alert, t Transition
 	if a.State == StateResolved {
 		delete(m.open, a.ID)
 	} else {
-		m.open[a.ID] = string(doc)
+		m.open[a.ID] = cached{string(doc), rec.Revision}
 	}
 	return nil
 }
@@ -382,7 +425,7 @@ func (m *Manager) Tick(ctx context.Context, now time.Time) error {
 	defer m.mu.Unlock()
 	// Start from the ledger's view: states changed by another process
 	// (an offline acknowledgement) must not get reminders.
-	m.loaded, m.open = false, make(map[string]string)
+	m.loaded, m.open = false, make(map[string]cached)
 	if err := m.load(ctx); err != nil {
 		return err
 	}
@@ -414,30 +457,45 @@ func (m *Manager) Tick(ctx context.Context, now time.Time) error {
 	}
 	sort.Strings(ids)
 	for _, id := range ids {
-		a, err := decodeDoc(id, m.open[id])
-		if err != nil {
-			errs = append(errs, err)
-			continue
-		}
-		every := m.rules(a.Model).rule(a.Kind).Renotify
-		if a.State != StateOpen || every <= 0 || now.Sub(a.NotifiedAt) < every {
-			continue
-		}
-		errs = append(errs, m.put(ctx, now, a, Reminder))
+		_, err := retry(func(retried bool) (*Alert, error) { return m.remind(ctx, now, id, retried) })
+		errs = append(errs, err)
 	}
 	return errors.Join(errs...)
 }
 
-// byID returns an alert by id from the ledger.
-func (m *Manager) byID(ctx context.Context, id string) (*Alert, error) {
-	if err := m.load(ctx); err != nil {
+// remind sends the alert's reminder when it is open and due: judged on
+// the cached record, or on the ledger's after a conflict.
+func (m *Manager) remind(ctx context.Context, now time.Time, id string, fresh bool) (*Alert, error) {
+	c := m.open[id]
+	if fresh {
+		rec, err := m.ledger.Alert(ctx, id)
+		if err != nil {
+			return nil, fmt.Errorf("alerts: alert %s: %w", id, err)
+		}
+		c = cached{rec.Doc, rec.Revision}
+	}
+	a, err := decodeDoc(id, c.doc)
+	if err != nil {
 		return nil, err
+	}
+	every := m.rules(a.Model).rule(a.Kind).Renotify
+	if a.State != StateOpen || every <= 0 || now.Sub(a.NotifiedAt) < every {
+		return nil, nil
+	}
+	return a, m.put(ctx, now, a, Reminder, c.rev)
+}
+
+// byID returns an alert by id from the ledger, with its revision.
+func (m *Manager) byID(ctx context.Context, id string) (*Alert, int64, error) {
+	if err := m.load(ctx); err != nil {
+		return nil, 0, err
 	}
 	rec, err := m.ledger.Alert(ctx, id)
 	if err != nil {
-		return nil, fmt.Errorf("alerts: alert %s: %w", id, err)
+		return nil, 0, fmt.Errorf("alerts: alert %s: %w", id, err)
 	}
-	return decodeDoc(id, rec.Doc)
+	a, err := decodeDoc(id, rec.Doc)
+	return a, rec.Revision, err
 }
 
 // Get returns an alert by id. A missing id gives the ledger's not-found
@@ -445,7 +503,8 @@ func (m *Manager) byID(ctx context.Context, id string) (*Alert, error) {
 func (m *Manager) Get(ctx context.Context, id string) (*Alert, error) {
 	m.mu.Lock()
 	defer m.mu.Unlock()
-	return m.byID(ctx, id)
+	a, _, err := m.byID(ctx, id)
+	return a, err
 }
 
 // Ack acknowledges an open alert: who has seen it and is on it. It sends an
@@ -454,21 +513,23 @@ func (m *Manager) Get(ctx context.Context, id string) (*Alert, error) {
 func (m *Manager) Ack(ctx context.Context, id, note, who string) (*Alert, error) {
 	m.mu.Lock()
 	defer m.mu.Unlock()
-	a, err := m.byID(ctx, id)
-	if err != nil {
-		return nil, err
-	}
 	now := m.cfg.Now()
-	switch a.State {
-	case StateResolved:
-		return a, fmt.Errorf("alerts: acknowledge %s: %w", id, ErrNotOpen)
-	case StateAcknowledged:
+	return retry(func(bool) (*Alert, error) {
+		a, rev, err := m.byID(ctx, id)
+		if err != nil {
+			return nil, err
+		}
+		switch a.State {
+		case StateResolved:
+			return a, fmt.Errorf("alerts: acknowledge %s: %w", id, ErrNotOpen)
+		case StateAcknowledged:
+			a.Ack = &AckInfo{By: who, Note: note, At: now}
+			return a, m.put(ctx, now, a, "", rev)
+		}
+		a.State = StateAcknowledged
 		a.Ack = &AckInfo{By: who, Note: note, At: now}
-		return a, m.put(ctx, now, a, "")
-	}
-	a.State = StateAcknowledged
-	a.Ack = &AckInfo{By: who, Note: note, At: now}
-	return a, m.put(ctx, now, a, Acknowledged)
+		return a, m.put(ctx, now, a, Acknowledged, rev)
+	})
 }
 
 // Resolve resolves an alert by hand and sends a "resolved" event. If its
@@ -477,16 +538,18 @@ func (m *Manager) Ack(ctx context.Context, id, note, who string) (*Alert, error)
 func (m *Manager) Resolve(ctx context.Context, id, note string) (*Alert, error) {
 	m.mu.Lock()
 	defer m.mu.Unlock()
-	a, err := m.byID(ctx, id)
-	if err != nil {
-		return nil, err
-	}
-	if a.State == StateResolved {
-		return a, fmt.Errorf("alerts: resolve %s: %w", id, ErrNotOpen)
-	}
 	now := m.cfg.Now()
-	a.State = StateResolved
-	a.Resolution = &ResolutionInfo{At: now, Note: note}
-	a.Summary = "Resolved: " + a.Summary
-	return a, m.put(ctx, now, a, Resolved)
+	return retry(func(bool) (*Alert, error) {
+		a, rev, err := m.byID(ctx, id)
+		if err != nil {
+			return nil, err
+		}
+		if a.State == StateResolved {
+			return a, fmt.Errorf("alerts: resolve %s: %w", id, ErrNotOpen)
+		}
+		a.State = StateResolved
+		a.Resolution = &ResolutionInfo{At: now, Note: note}
+		a.Summary = "Resolved: " + a.Summary
+		return a, m.put(ctx, now, a, Resolved, rev)
+	})
 }

@@ -559,3 +559,89 @@ func TestSilenceOfAFeedThatNeverDelivers(t *testing.T) {
 		t.Errorf("%v %+v", a, a.Blocked)
 	}
 }
+
+// interposer is a Ledger that runs before, once, just ahead of the next
+// PutAlert: another writer acting between a Manager's read and its write.
+type interposer struct {
+	*memLedger
+	before func()
+}
+
+func (l *interposer) PutAlert(ctx context.Context, a AlertRecord, ds []Delivery) error {
+	if f := l.before; f != nil {
+		l.before = nil
+		f()
+	}
+	return l.memLedger.PutAlert(ctx, a, ds)
+}
+
+// TestAckBetweenReadAndWriteIsKept: an acknowledgement written by another
+// process after the daemon's Manager read the alert and before it wrote
+// its update is not overwritten: the write conflicts, the Manager reads
+// again and applies its update on top of the acknowledgement. The same
+// holds for a resolution met by a reminder, and an ack met by a
+// resolution from a third Manager.
+func TestAckBetweenReadAndWriteIsKept(t *testing.T) {
+	ctx := context.Background()
+	h := newHarness(t, func(c *Config) { c.Rules.SuspectPoint.Renotify = time.Hour })
+	a := mustAlert(t)(h.m.Point(ctx, suspectRow(212)))
+	il := &interposer{memLedger: h.l}
+	daemon, err := NewManager(il, Config{Rules: DefaultRules(), Routes: testRoutes(), Now: h.clock.Now})
+	if err != nil {
+		t.Fatal(err)
+	}
+	cli, err := NewManager(h.l, Config{Rules: DefaultRules(), Now: h.clock.Now})
+	if err != nil {
+		t.Fatal(err)
+	}
+	il.before = func() {
+		if _, err := cli.Ack(ctx, a.ID, "on it", "duty analyst"); err != nil {
+			t.Errorf("ack: %v", err)
+		}
+	}
+	upd := mustAlert(t)(daemon.Point(ctx, suspectRow(212)))
+	if il.before != nil {
+		t.Fatal("the ack did not run between the read and the write")
+	}
+	rec := h.l.alerts[a.ID]
+	stored, err := DecodeAlert([]byte(rec.Doc))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for what, got := range map[string]*Alert{"returned": upd, "stored": stored} {
+		if got.State != StateAcknowledged || got.Ack == nil || got.Ack.By != "duty analyst" || got.Count != 2 {
+			t.Errorf("%s after an ack in between: state %s ack %+v count %d; want acknowledged, the ack kept, count 2",
+				what, got.State, got.Ack, got.Count)
+		}
+	}
+
+	// A reminder that meets a resolution made in between is not sent,
+	// and the alert stays resolved (the outside Manager has no routes, so
+	// its resolution enqueues nothing either).
+	b := mustAlert(t)(h.m.Point(ctx, suspectRow(300)))
+	before := len(eventsOf(t, h.l, "oncall"))
+	rules := DefaultRules()
+	rules.SuspectPoint.Renotify = time.Hour
+	ticker, err := NewManager(il, Config{Rules: rules, Routes: testRoutes(), Now: h.clock.Now})
+	if err != nil {
+		t.Fatal(err)
+	}
+	il.before = func() {
+		if _, err := cli.Resolve(ctx, b.ID, "handled"); err != nil {
+			t.Errorf("resolve: %v", err)
+		}
+	}
+	if err := ticker.Tick(ctx, h.clock.Add(2*time.Hour)); err != nil {
+		t.Fatal(err)
+	}
+	if il.before != nil {
+		t.Fatal("the resolution did not run between the read and the write")
+	}
+	if st := h.l.alerts[b.ID].State; st != string(StateResolved) {
+		t.Errorf("after a reminder met a resolution: state %s, want resolved", st)
+	}
+	// The acknowledged alert a gets no reminder; b's was withdrawn.
+	if got := len(eventsOf(t, h.l, "oncall")); got != before {
+		t.Errorf("%d events after the tick, want %d: a reminder went out for an alert resolved in between", got, before)
+	}
+}

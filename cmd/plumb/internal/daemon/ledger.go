@@ -2,6 +2,8 @@ package daemon
 
 import (
 	"context"
+	"errors"
+	"fmt"
 	"time"
 
 	"plumb/alerts"
@@ -21,7 +23,11 @@ func (l ledger) PutAlert(ctx context.Context, a alerts.AlertRecord, ds []alerts.
 	for i, d := range ds {
 		out[i] = toStoreDelivery(d)
 	}
-	return l.s.PutAlert(ctx, store.AlertRecord(a), out)
+	err := l.s.PutAlert(ctx, store.AlertRecord(a), out)
+	if errors.Is(err, store.ErrChanged) {
+		return fmt.Errorf("%w: %w", alerts.ErrChanged, err)
+	}
+	return err
 }
 
 func (l ledger) Alert(ctx context.Context, id string) (alerts.AlertRecord, error) {
