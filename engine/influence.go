@@ -322,7 +322,7 @@ func (d *diag) deletedExact(rows []int) []float64 {
 // fill computes the row's measures, its DFBETAS into dfb, from e, h,
 // v = (X'X)^-1 x_i and the deleted residual sum of squares del. It
 // divides twice (by 1-h and by s_(i)); the rest multiplies by reciprocals
-// computed once per fit, which moves no value by more than an ulp or two.
+// computed once per fit, which moves each value by a few ulps at most.
 func (d *diag) fill(o *Obs, dfb []float64, e, h float64, v []float64, del float64) {
 	o.Residual = e
 	o.Leverage = h

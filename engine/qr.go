@@ -2,11 +2,11 @@ package engine
 
 import (
 	"math"
-
-	"gonum.org/v1/gonum/blas/gonum"
 	"runtime"
 	"sync"
 	"sync/atomic"
+
+	"gonum.org/v1/gonum/blas/gonum"
 )
 
 // Householder QR kernels on column-major blocks, and the row-chunk layout
@@ -72,7 +72,7 @@ func axpy(a float64, x, y []float64) {
 	bl.Daxpy(n, a, x, 1, y[:n], 1)
 }
 
-// bl is gonum's pure-Go BLAS.
+// bl is gonum's BLAS (Go with assembly kernels on amd64, no cgo).
 var bl gonum.Implementation
 
 // applyQT overwrites x (length m) with Q'x for the reflectors stored in the
