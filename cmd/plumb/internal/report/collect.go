@@ -3,7 +3,6 @@ package report
 import (
 	"context"
 	"fmt"
-	"slices"
 
 	"plumb/cmd/plumb/internal/view"
 )
@@ -25,14 +24,8 @@ type Contents struct {
 	Quarantine []view.QuarantineView
 }
 
-// Bounds of what Collect reads from a Source.
-const (
-	// collectAlerts is the most alerts Collect reads.
-	collectAlerts = 1000
-	// collectPage is the page size Collect uses with a Source that lacks
-	// the optional latest-n reads (the largest page the web API serves).
-	collectPage = 1000
-)
+// collectAlerts is the most alerts Collect reads from a Source.
+const collectAlerts = 1000
 
 // Collect gathers one model's report from src: its current picture, the
 // latest opts.HistoryKeep fits, its alerts (at most 1000, newest first)
@@ -48,61 +41,14 @@ func Collect(ctx context.Context, src view.Source, model string, opts Options) (
 		return Contents{}, fmt.Errorf("report: %w", err)
 	}
 	c := Contents{Detail: d}
-	if c.Fits, err = latestFits(ctx, src, model, opts.HistoryKeep); err != nil {
+	if c.Fits, err = view.LatestFits(ctx, src, model, opts.HistoryKeep); err != nil {
 		return Contents{}, fmt.Errorf("report: fits of %s: %w", model, err)
 	}
 	if c.Alerts, err = src.Alerts(ctx, view.AlertFilter{Model: model, Limit: collectAlerts}); err != nil {
 		return Contents{}, fmt.Errorf("report: alerts of %s: %w", model, err)
 	}
-	if c.Quarantine, err = latestQuarantine(ctx, src, model, opts.MaxQuarantine); err != nil {
+	if c.Quarantine, err = view.LatestQuarantine(ctx, src, model, opts.MaxQuarantine); err != nil {
 		return Contents{}, fmt.Errorf("report: quarantine of %s: %w", model, err)
 	}
 	return c, nil
-}
-
-// latestFits returns the model's latest n fits (n > 0), oldest first.
-func latestFits(ctx context.Context, src view.Source, model string, n int) ([]view.FitView, error) {
-	if rf, ok := src.(view.RecentFitter); ok {
-		return rf.RecentFits(ctx, model, n)
-	}
-	return tailPages(n, func(after int64) ([]view.FitView, error) {
-		return src.Fits(ctx, model, after, collectPage)
-	}, func(f view.FitView) int64 { return f.ID })
-}
-
-// latestQuarantine returns the model's latest n quarantined rows (n > 0),
-// oldest first.
-func latestQuarantine(ctx context.Context, src view.Source, model string, n int) ([]view.QuarantineView, error) {
-	if rq, ok := src.(view.RecentQuarantiner); ok {
-		return rq.RecentQuarantine(ctx, model, n)
-	}
-	return tailPages(n, func(after int64) ([]view.QuarantineView, error) {
-		return src.Quarantine(ctx, model, after, collectPage)
-	}, func(q view.QuarantineView) int64 { return q.ID })
-}
-
-// tailPages reads pages in ascending id order until a short page and
-// keeps the last n items. A page that does not advance the id (a Source
-// that ignores after) ends the reading rather than loop.
-func tailPages[T any](n int, page func(after int64) ([]T, error), id func(T) int64) ([]T, error) {
-	var keep []T
-	var after int64
-	for {
-		items, err := page(after)
-		if err != nil {
-			return nil, err
-		}
-		keep = append(keep, items...)
-		if len(keep) > n {
-			keep = slices.Delete(keep, 0, len(keep)-n)
-		}
-		if len(items) < collectPage {
-			return keep, nil
-		}
-		last := id(items[len(items)-1])
-		if last <= after {
-			return keep, nil
-		}
-		after = last
-	}
 }

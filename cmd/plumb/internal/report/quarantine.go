@@ -161,10 +161,10 @@ func visible(s string, limit int) (h template.HTML, total int, cut bool) {
 
 // grouped formats n with commas between groups of three digits: 1,048,576.
 func grouped(n int) string {
-	s := strconv.Itoa(n)
 	if n < 0 {
 		return "-" + grouped(-n)
 	}
+	s := strconv.Itoa(n)
 	for i := len(s) - 3; i > 0; i -= 3 {
 		s = s[:i] + "," + s[i:]
 	}

@@ -199,62 +199,6 @@ func (s *server) pageOverview(w http.ResponseWriter, r *http.Request) {
 // historyKeep is how many of the latest fits the model page charts.
 const historyKeep = 300
 
-// recentFits pages through the fit history and keeps the latest n.
-func (s *server) recentFits(ctx context.Context, name string, n int) ([]view.FitView, error) {
-	if rf, ok := s.src.(view.RecentFitter); ok {
-		return rf.RecentFits(ctx, name, n)
-	}
-	var keep []view.FitView
-	var after int64
-	for range 200 { // at most 200k fits read per page view
-		page, err := s.src.Fits(ctx, name, after, MaxLimit)
-		if err != nil {
-			return nil, err
-		}
-		keep = append(keep, page...)
-		if len(keep) > n {
-			keep = keep[len(keep)-n:]
-		}
-		if len(page) < MaxLimit {
-			break
-		}
-		after = page[len(page)-1].ID
-	}
-	return keep, nil
-}
-
-// recentQuarantine returns the latest n quarantined rows of the model,
-// newest first: from view.RecentQuarantiner when the source has it,
-// otherwise reading at most 10 pages.
-func (s *server) recentQuarantine(ctx context.Context, model string, n int) ([]view.QuarantineView, error) {
-	if rq, ok := s.src.(view.RecentQuarantiner); ok {
-		keep, err := rq.RecentQuarantine(ctx, model, n)
-		if err != nil {
-			return nil, err
-		}
-		slices.Reverse(keep)
-		return keep, nil
-	}
-	var keep []view.QuarantineView
-	var after int64
-	for range 10 {
-		page, err := s.src.Quarantine(ctx, model, after, MaxLimit)
-		if err != nil {
-			return nil, err
-		}
-		keep = append(keep, page...)
-		if len(keep) > n {
-			keep = keep[len(keep)-n:]
-		}
-		if len(page) < MaxLimit {
-			break
-		}
-		after = page[len(page)-1].ID
-	}
-	slices.Reverse(keep)
-	return keep, nil
-}
-
 func (s *server) pageModel(w http.ResponseWriter, r *http.Request) {
 	ctx, cancel := s.ctx(r)
 	defer cancel()
@@ -264,7 +208,7 @@ func (s *server) pageModel(w http.ResponseWriter, r *http.Request) {
 		s.pageError(w, r, err)
 		return
 	}
-	fits, err := s.recentFits(ctx, name, historyKeep)
+	fits, err := view.LatestFits(ctx, s.src, name, historyKeep)
 	if err != nil {
 		s.pageError(w, r, err)
 		return
@@ -274,13 +218,14 @@ func (s *server) pageModel(w http.ResponseWriter, r *http.Request) {
 		s.pageError(w, r, err)
 		return
 	}
-	quar, err := s.recentQuarantine(ctx, name, 20)
+	quar, err := view.LatestQuarantine(ctx, s.src, name, 20)
 	if err != nil {
 		s.pageError(w, r, err)
 		return
 	}
 	mp := buildModelPage(md, fits, r.URL.Query().Get("x"))
 	mp.Alerts = als
+	slices.Reverse(quar) // newest first
 	mp.Quarantine = quar
 	d := s.base(ctx, "model", name)
 	d.Model = mp
