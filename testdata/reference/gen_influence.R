@@ -218,3 +218,112 @@ write_case("ketterby_balance",
   "invented: Ketterby instrument workshop, balance check-weight drift (set.seed(99))",
   balance, dev_mg ~ day + log(rh_pct), "dev_mg", c("day", "log(rh_pct)"),
   labels = sprintf("day-%02d", 1:25))
+
+# Forward predictions with intervals, for engine/predict_rgolden_test.go.
+# Oracle: R stats predict.lm(se.fit = TRUE, interval = "confidence" and
+# "prediction", level = ...); the prediction interval for the mean of m new
+# readings uses pred.var = sigma^2 / m. One file per case in
+# <out_dir>/predict/, each with the data, the model in plumb's terms and
+# the points (new predictor values chosen here: inside the data, at a data
+# point and beyond the data).
+write_predictions <- function(name, source, data, formula, response, terms,
+                              newdata, intercept = TRUE, transform = "",
+                              levels = c(0.95, 0.99), readings = c(1, 4)) {
+  fit <- lm(formula, data = data)
+  sigma <- summary(fit)$sigma
+  cols <- unique(c(response, all.vars(formula)[-1]))
+  pcols <- setdiff(cols, response)
+  L <- character()
+  add <- function(...) L <<- c(L, paste0(...))
+  add("{")
+  add("  \"source\": ", jstr(source), ",")
+  add("  \"oracle\": ", jstr("R stats: lm, predict.lm(se.fit = TRUE, interval = \"confidence\" / \"prediction\", level, pred.var = sigma^2/m)"), ",")
+  add("  \"r_version\": ", jstr(R.version.string), ",")
+  add("  \"dataset\": ", jstr(name), ",")
+  add("  \"formula\": ", jstr(paste(deparse(formula, width.cutoff = 500L), collapse = " ")), ",")
+  add("  \"response\": ", jstr(response), ",")
+  add("  \"response_transform\": ", jstr(transform), ",")
+  add("  \"terms\": ", jsarr(terms), ",")
+  add("  \"intercept\": ", if (intercept) "true" else "false", ",")
+  add("  \"data\": {")
+  for (i in seq_along(cols)) {
+    add("    ", jstr(cols[i]), ": ", jdata(data[[cols[i]]]), if (i < length(cols)) "," else "")
+  }
+  add("  },")
+  add("  \"points\": [")
+  rows <- character()
+  for (i in seq_len(nrow(newdata))) {
+    nd <- newdata[i, , drop = FALSE]
+    at <- paste(vapply(pcols, function(cn) paste0(jstr(cn), ": ", sub("^\\[(.*)\\]$", "\\1", jdata(nd[[cn]]))), ""), collapse = ", ")
+    for (lev in levels) {
+      for (m in readings) {
+        cf <- predict(fit, nd, se.fit = TRUE, interval = "confidence", level = lev)
+        pr <- predict(fit, nd, se.fit = TRUE, interval = "prediction", level = lev,
+                      pred.var = sigma^2 / m)
+        rows <- c(rows, paste0("    {\"at\": {", at, "}, \"level\": ", lev, ", \"readings\": ", m,
+          ", \"fit\": ", jnum(cf$fit[1, "fit"]), ", \"se_fit\": ", jnum(cf$se.fit[1]),
+          ", \"df\": ", cf$df, ", \"residual_scale\": ", jnum(cf$residual.scale),
+          ", \"confidence\": [", jnum(cf$fit[1, "lwr"]), ", ", jnum(cf$fit[1, "upr"]), "]",
+          ", \"prediction\": [", jnum(pr$fit[1, "lwr"]), ", ", jnum(pr$fit[1, "upr"]), "]}"))
+      }
+    }
+  }
+  add(paste(rows, collapse = ",\n"))
+  add("  ]")
+  add("}")
+  dir.create(file.path(out_dir, "predict"), showWarnings = FALSE)
+  path <- file.path(out_dir, "predict", paste0(name, ".json"))
+  writeLines(L, path)
+  cat("wrote", path, "\n")
+}
+
+write_predictions("cars",
+  "R datasets::cars; Ezekiel (1930), Methods of Correlation Analysis, Wiley",
+  cars, dist ~ speed, "dist", c("speed"),
+  data.frame(speed = c(4, 12.5, 15, 25, 32)))
+
+write_predictions("cars_quadratic_no_intercept",
+  "R datasets::cars; Ezekiel (1930); quadratic through the origin",
+  cars, dist ~ 0 + speed + I(speed^2), "dist", c("speed", "speed^2"),
+  data.frame(speed = c(2, 10.5, 25, 30)), intercept = FALSE)
+
+write_predictions("women_quadratic",
+  "R datasets::women; The World Almanac and Book of Facts (1975)",
+  women, weight ~ height + I(height^2), "weight", c("height", "height^2"),
+  data.frame(height = c(58, 64.5, 72, 76)))
+
+write_predictions("pressure_log_cubic",
+  "R datasets::pressure; Weast (1973), Handbook of Chemistry and Physics, CRC Press",
+  pressure, log(pressure) ~ temperature + I(temperature^2) + I(temperature^3),
+  "pressure", c("temperature", "temperature^2", "temperature^3"),
+  data.frame(temperature = c(0, 125, 250, 333, 380)), transform = "log")
+
+write_predictions("trees_log",
+  "R datasets::trees; Ryan, Joiner & Ryan (1976), Minitab Student Handbook, Duxbury",
+  trees, log(Volume) ~ log(Girth) + log(Height),
+  "Volume", c("log(Girth)", "log(Height)"),
+  data.frame(Girth = c(8.3, 13, 21), Height = c(70, 76, 90)), transform = "log")
+
+write_predictions("stackloss",
+  "R datasets::stackloss; Brownlee (1960), Statistical Theory and Methodology in Science and Engineering, Wiley",
+  stackloss, stack.loss ~ Air.Flow + Water.Temp + Acid.Conc.,
+  "stack.loss", c("Air.Flow", "Water.Temp", "Acid.Conc."),
+  data.frame(Air.Flow = c(50, 62, 80), Water.Temp = c(18, 21, 27), Acid.Conc. = c(72, 87, 93)))
+
+write_predictions("ketterby_thermocouple",
+  "invented: Ketterby instrument workshop, thermocouple bath calibration (set.seed(20261201))",
+  thermo, temp_c ~ emf_mv + I(emf_mv^2), "temp_c", c("emf_mv", "emf_mv^2"),
+  data.frame(emf_mv = c(0, 2.5, 25, 46, 61.5, 70)))
+
+write_predictions("ketterby_flowmeter",
+  "invented: Ketterby instrument workshop, differential-pressure flow meter (set.seed(7331))",
+  flowdat, `flow rate (l/min)` ~ `pressure drop (kPa)` * `fluid temp`,
+  "flow rate (l/min)",
+  c("\"pressure drop (kPa)\"", "\"fluid temp\"", "\"pressure drop (kPa)\"*\"fluid temp\""),
+  data.frame(`pressure drop (kPa)` = c(5, 40, 140, 160), `fluid temp` = c(12, 25, 38, 20),
+             check.names = FALSE))
+
+write_predictions("ketterby_balance",
+  "invented: Ketterby instrument workshop, balance check-weight drift (set.seed(99))",
+  balance, dev_mg ~ day + log(rh_pct), "dev_mg", c("day", "log(rh_pct)"),
+  data.frame(day = c(1, 13, 30), rh_pct = c(30, 47.5, 70)))
