@@ -84,4 +84,62 @@
 // These cutoffs are guides, not tests: they point at rows worth a second
 // look. The engine flags; it never deletes or alters a measurement, and
 // decisions stay with qualified staff under local quality procedures.
+//
+// # Predictions
+//
+// At a point x0, given as a value for each predictor column
+// (Fit.PredictAt builds the design row through the model, so powers, logs
+// and products work; Fit.PredictRow takes a design row; Fit.PredictGrid
+// varies one column over a grid with the others fixed, for bands), with
+// b the estimates, s = Sigma, ν = DF = n-p and t = t(1-(1-level)/2; ν):
+//
+//	fitted value          ŷ0 = x0'b   (accumulated in double-double)
+//	leverage              h0 = x0'(X'X)^-1 x0 = |R^-T T^-T x0|²   (Fit.Leverage)
+//	standard error        se = s √h0
+//	confidence interval   ŷ0 ± t s √h0                      (the mean response)
+//	prediction interval   ŷ0 ± t s √(1/(m w0) + h0)         (the mean of m new readings)
+//
+// IntervalOptions sets the level (default 0.95), m (default 1) and w0, the
+// weight of each new reading on the scale of the fit's weights (default
+// 1: a new reading has variance σ²/w0). Nothing forms X'X: h0 comes from
+// the triangular factor of the scaled design. For a weighted fit the same
+// formulas hold with s² = Σ w_i e_i²/(n-p) and (X'WX)^-1 in place of
+// (X'X)^-1, provided Sigma and Leverage (of a design row without its
+// weight) are the weighted ones. Checked against R's predict.lm.
+//
+// # Inverse prediction
+//
+// For a line or polynomial in one predictor column x (every term a power
+// of x, with or without an intercept), f(x) = Σ b_j x^k_j, a reading y0
+// (the mean of m new readings) and the calibrated range [lo, hi]
+// (NewCalibration; by default the range of x in the fit's data),
+// Calibration.Invert returns:
+//
+//	estimate            x̂ with f(x̂) = y0 in [lo, hi]; Status says when
+//	                    there is none (below-range, above-range) or
+//	                    several (Roots lists them; Estimate is NaN)
+//	uncertainty         u = s √(1/(m w0) + h(x̂)) / |f'(x̂)|   (delta method)
+//	inversion set       {x in [lo, hi] : |y0 - f(x)| <= t s √(1/(m w0) + h(x))}
+//	                    (NIST/SEMATECH e-Handbook §4.5.2.1; for a line,
+//	                    Fieller's interval)
+//
+// The set's ends are the roots of the band equation
+// g(x) = (y0 - f(x))² - t²s²(1/(m w0) + h(x)), a polynomial of degree 2k
+// (k the highest power), with f and h evaluated from the fit as above.
+// Its roots (and those of f(x) - y0) are isolated by interpolating at
+// Chebyshev points of the range and splitting the range at the critical
+// points of the interpolant, found by recursion over its derivatives; on
+// each monotone piece a sign change is refined by Brent's bracketed
+// search on g itself until the bracket is at most 4·eps·|x| + eps·(hi-lo)
+// wide (eps = 2^-52). A double root where g touches zero without changing
+// sign is not reported.
+//
+// The answer says plainly what kind of set it is (Shape): one bounded
+// interval; one interval that reaches an end of the range (the data do
+// not bound x there, and the open bound of Interval is NaN, not the range
+// end); the whole range; several disjoint intervals (Parts lists them,
+// Interval is NaN); or empty. Inverse.Note words it. An inverse
+// prediction of a fit with p <= 6 takes well under 50 µs, predictions
+// over a 1,000-point grid at p = 6 under 1 ms (BenchmarkInvert,
+// BenchmarkPredictGrid).
 package engine
