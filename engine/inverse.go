@@ -161,10 +161,10 @@ func NewCalibration(f *Fit, column string, rng Interval) (*Calibration, error) {
 		if first < 0 {
 			return nil, fmt.Errorf("%w: the model has no term %q, so the calibrated range must be given", ErrBadOption, c.column)
 		}
-		X := f.X()
+		raw := f.X().RawMatrix()
 		lo, hi := math.Inf(1), math.Inf(-1)
 		for i := 0; i < f.N; i++ {
-			v := X.At(i, first)
+			v := raw.Data[i*raw.Stride+first]
 			lo, hi = math.Min(lo, v), math.Max(hi, v)
 		}
 		rng = Interval{lo, hi}
@@ -280,7 +280,8 @@ func (c *Calibration) Invert(y0 float64, o IntervalOptions) (Inverse, error) {
 }
 
 // Invert is NewCalibration(f, "", Interval{}) followed by Invert: the
-// inverse prediction of y0 over the range of the fit's data.
+// inverse prediction of y0 over the range of the fit's data. Finding that
+// range reads every row; to invert many readings, keep one Calibration.
 func (f *Fit) Invert(y0 float64, o IntervalOptions) (Inverse, error) {
 	c, err := NewCalibration(f, "", Interval{})
 	if err != nil {
