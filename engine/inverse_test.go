@@ -78,8 +78,8 @@ func invRelErr(got, want, scale float64) float64 {
 // §3.2; NIST/SEMATECH e-Handbook §4.5.2.1): the interval ends are the
 // roots of (ȳ0 - a - b x)² = t²s²(1/m + 1/n + (x - x̄)²/Sxx), and the
 // delta-method uncertainty is (s/|b|)·√(1/m + 1/n + (x̂ - x̄)²/Sxx).
-// Agreement 1e-12 relative (the bar CHECKS.md §A6 sets for the
-// quadratic-root and bisection routes).
+// Agreement 1e-12 relative: the closed form and the bracketed search are
+// two routes to the same roots in double precision.
 func TestInverseLineFieller(t *testing.T) {
 	x, y := gaugeLine()
 	f := invPolyFit(t, x, y, []string{"x"}, true)
