@@ -107,6 +107,12 @@
 // (X'X)^-1, provided Sigma and Leverage (of a design row without its
 // weight) are the weighted ones. Checked against R's predict.lm.
 //
+// ShiftAt states how far the curve moved at a checkpoint x0 between an
+// earlier fit and a later one, in the response's units: Change =
+// ŷ_new(x0) - ŷ_old(x0) with standard error s √(h_old - h_new) when the
+// earlier fit's rows are all among the later one's, s √(h_old + h_new)
+// when the fits share no row.
+//
 // # Inverse prediction
 //
 // For a line or polynomial in one predictor column x (every term a power
