@@ -27,7 +27,7 @@ type Shift struct {
 }
 
 // ShiftAt returns the shift at design row x0 between old and new, two
-// unweighted fits of the same model, whose rows relate as overlap says.
+// fits of the same model, whose rows relate as overlap says.
 // With h(x0) = x0'(X'X)^-1 x0 of each fit (Leverage) and σ estimated by
 // new.Sigma (under the hypothesis of no change both fits share σ; the
 // later fit usually has more degrees of freedom):
@@ -36,7 +36,9 @@ type Shift struct {
 //	Disjoint   Var(Change) = σ² (h_old(x0) + h_new(x0))
 //
 // For nested rows Cov(b_old, b_new) = σ² C_old X_old'X_old C_new =
-// σ² C_new, hence the difference. A nested variance below 0 from rounding
+// σ² C_new, hence the difference. For weighted fits the same holds with
+// (X'WX)^-1, when shared rows carry the same weight in both fits and
+// Leverage and Sigma are the weighted ones. A nested variance below 0 from rounding
 // is taken as 0. A curve compared with fixed (pinned) coefficients needs
 // no ShiftAt: the standard error is that of the new fit (PredictRow).
 // Models that differ, an x0 of the wrong length or an unknown overlap
