@@ -396,7 +396,12 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 		if dataErr != nil {
 			return nil, dataErr
 		}
-		if region, err = RegionExcludingSuspect(f.Model, data, v[:f.N]); err != nil {
+		vn := v
+		if len(vn) != f.N { // a short verdict list: the rest count as not suspect
+			vn = make([]Verdict, f.N)
+			copy(vn, v)
+		}
+		if region, err = RegionExcludingSuspect(f.Model, data, vn); err != nil {
 			return nil, err
 		}
 	}
@@ -441,6 +446,16 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 			}
 		}
 		return math.Sqrt(dist)
+	}
+	// nearDist is scaledDist for a suggestion and a suspect setting: a
+	// column of zero width counts only when the values differ.
+	nearDist := func(a, b []float64) float64 {
+		for k := range cols {
+			if hi[k] == lo[k] && a[k] != b[k] {
+				return math.Inf(1)
+			}
+		}
+		return scaledDist(a, b)
 	}
 	watched, flagged := sgWatched(inf, v)
 	crit := opt.Criterion
@@ -621,7 +636,7 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 			sg.At[col] = c.pt[jj]
 		}
 		for _, sp := range suspects {
-			if scaledDist(c.pt, sp.pt) <= opt.Near {
+			if nearDist(c.pt, sp.pt) <= opt.Near {
 				sg.Kind = SuggestRemeasure
 				sg.Suspect = append(sg.Suspect, sp.row+1)
 			}

@@ -359,3 +359,25 @@ func TestSuggestRemeasure(t *testing.T) {
 		t.Error("no suggestion at the suspect reading's setting; the case does not exercise the re-measurement")
 	}
 }
+
+// TestSuggestRemeasureEdges: a region of zero width does not make every
+// suspect reading "near" (only one at that very value is), and a verdict
+// list shorter than the fit is taken as the rest not suspect.
+func TestSuggestRemeasureEdges(t *testing.T) {
+	f, cols, v := srBadLine(t, 95)
+	for _, tc := range []struct {
+		at   float64
+		kind string
+	}{{50, engine.SuggestCoverage}, {95, engine.SuggestRemeasure}} {
+		s, err := engine.Suggest(f, nil, v, engine.Region{"x": {tc.at, tc.at}}, engine.SuggestOptions{Data: cols, Top: 1})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(s) != 1 || s[0].Kind != tc.kind {
+			t.Errorf("region x = %v: %+v, want one suggestion of kind %s", tc.at, s, tc.kind)
+		}
+	}
+	if _, err := engine.Suggest(f, nil, v[:3], nil, engine.SuggestOptions{Data: cols}); err != nil {
+		t.Errorf("short verdict list: %v", err)
+	}
+}
