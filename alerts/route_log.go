@@ -22,13 +22,7 @@ func (s *logSender) Send(ctx context.Context, d Delivery) error {
 	if err := json.Unmarshal(e.Data, &a); err != nil {
 		return Permanent(fmt.Errorf("decode alert of event %s: %w", d.EventID, err))
 	}
-	level := slog.LevelInfo
-	switch a.Severity {
-	case SeverityWarning:
-		level = slog.LevelWarn
-	case SeverityCritical:
-		level = slog.LevelError
-	}
+	level := logLevel(a)
 	attrs := []slog.Attr{
 		slog.String("route", s.name),
 		slog.String("event_id", e.ID),
@@ -50,4 +44,23 @@ func (s *logSender) Send(ctx context.Context, d Delivery) error {
 	attrs = append(attrs, slog.String("caution", a.Caution))
 	s.log.LogAttrs(ctx, level, a.Summary, attrs...)
 	return nil
+}
+
+// logLevel is the level of an event's record: it follows the event, not
+// only the alert's severity. Opening, reopening and reminding of an alert
+// are logged at its severity (info, warning: WARN, critical: ERROR); an
+// acknowledgement or a resolution is news that the condition is in hand
+// or gone, logged at INFO whatever the severity.
+func logLevel(a Alert) slog.Level {
+	switch a.Event {
+	case Acknowledged, Resolved:
+		return slog.LevelInfo
+	}
+	switch a.Severity {
+	case SeverityWarning:
+		return slog.LevelWarn
+	case SeverityCritical:
+		return slog.LevelError
+	}
+	return slog.LevelInfo
 }

@@ -23,6 +23,36 @@ package engine
 // added, removal sets drawn from the recorded rows only; bands and
 // checkpoints keep their full-data centres and widths, and significance
 // is judged against the augmented fit's own verdict.
+//
+// # Ranking
+//
+// The candidates are first ordered by the Criterion's score, and the Pool
+// best of them that lie at least Separation apart are kept. For each of
+// those the fragility index after the readings is computed, and they are
+// ranked by what the readings achieve:
+//
+//  1. those after which the fit is no longer fragile come first;
+//  2. then the larger rise of the fragility index (an index of 0, no
+//     breaking set up to MaxRemoved, counts as MaxRemoved + 1);
+//  3. then the Criterion's score: the D-optimal gain 1 + r d, or, when
+//     Judge flagged rows (CriterionAuto), the drop of their Cook's
+//     distances, ties broken by the D-optimal gain.
+//
+// A point after whose readings the index is lower (the fit would rest on
+// fewer rows) is not offered at all: adding data there would make the
+// conclusions easier to overturn, which is the opposite of coverage. So
+// no listed suggestion does less for the index than one below it, and
+// fewer than Top may be listed.
+//
+// # Suspect readings
+//
+// The default region is the range of the rows not judged suspect
+// (RegionExcludingSuspect), so that one wrong reading far outside the
+// operating range does not pull the suggestions out to it. The settings
+// of suspect readings inside the region are candidates too; a suggestion
+// within Near of such a setting has Kind SuggestRemeasure and is worded
+// "re-measure near ...": readings there check the suspect one rather than
+// cover new ground.
 
 import (
 	"errors"
@@ -82,17 +112,60 @@ func RegionOf(m Model, cols map[string][]float64) (Region, error) {
 	return reg, nil
 }
 
+// RegionExcludingSuspect returns, for each predictor column of m, the
+// range of the rows of cols whose verdict in v is not "suspect" (both an
+// outlier and influential; see Verdict.Word), non-finite values ignored.
+// It is the default operating region of Suggest: a suspect reading far
+// outside the others does not widen it. v[i] is the verdict of row i of
+// every column; a length mismatch is a caller bug and panics. When every
+// row is suspect, the range of all rows is returned.
+func RegionExcludingSuspect(m Model, cols map[string][]float64, v []Verdict) (Region, error) {
+	keep := make(map[string][]float64, len(cols))
+	anyKept := false
+	for _, c := range m.Columns() {
+		x, ok := cols[c]
+		if !ok {
+			return nil, &RegionError{Column: c, Msg: "column missing from the data"}
+		}
+		if len(x) != len(v) {
+			panic(fmt.Sprintf("engine: RegionExcludingSuspect: column %q has %d rows, %d verdicts", c, len(x), len(v)))
+		}
+		var k []float64
+		for i, xi := range x {
+			if v[i].Word() != "suspect" {
+				k = append(k, xi)
+			}
+		}
+		keep[c] = k
+		anyKept = anyKept || len(k) > 0
+	}
+	if !anyKept {
+		return RegionOf(m, cols)
+	}
+	return RegionOf(m, keep)
+}
+
 // ObservedRegion recovers the observed range of each predictor column from
 // the design of f. A column can be recovered when some term is that
 // column alone, its log, or an odd power of either; otherwise the error
 // (a *RegionError) asks for an explicit Region (see RegionOf).
 func ObservedRegion(f *Fit) (Region, error) {
+	cols, err := DesignColumns(f)
+	if err != nil {
+		return nil, err
+	}
+	return RegionOf(f.Model, cols)
+}
+
+// DesignColumns recovers the values of each predictor column, row by row,
+// from the design of f, as ObservedRegion does (errors alike).
+func DesignColumns(f *Fit) (map[string][]float64, error) {
 	X := f.X()
 	off := 0
 	if f.Model.Intercept {
 		off = 1
 	}
-	reg := Region{}
+	out := make(map[string][]float64)
 	for _, c := range f.Model.Columns() {
 		found := false
 		for k, t := range f.Model.Terms {
@@ -100,7 +173,7 @@ func ObservedRegion(f *Fit) (Region, error) {
 				continue
 			}
 			fc := t.Factors[0]
-			lo, hi := math.Inf(1), math.Inf(-1)
+			vals := make([]float64, f.N)
 			for i := 0; i < f.N; i++ {
 				v := X.At(i, off+k)
 				if fc.Power != 1 {
@@ -109,9 +182,9 @@ func ObservedRegion(f *Fit) (Region, error) {
 				if fc.Log {
 					v = math.Exp(v)
 				}
-				lo, hi = math.Min(lo, v), math.Max(hi, v)
+				vals[i] = v
 			}
-			reg[c] = [2]float64{lo, hi}
+			out[c] = vals
 			found = true
 			break
 		}
@@ -119,7 +192,7 @@ func ObservedRegion(f *Fit) (Region, error) {
 			return nil, &RegionError{Column: c, Msg: "its range cannot be recovered from the terms; pass a Region (RegionOf)"}
 		}
 	}
-	return reg, nil
+	return out, nil
 }
 
 // Criterion orders candidate points.
@@ -148,6 +221,10 @@ type SuggestOptions struct {
 	MaxReplicates int
 	// Top is the number of suggestions (default 3).
 	Top int
+	// Pool is the number of distinct points, best by the Criterion,
+	// whose effect on the fragility index is computed before they are
+	// ranked (default 2 x Top; at least Top).
+	Pool int
 	// Grid is the number of grid points per axis for up to three
 	// predictor columns (default 201, 41 and 21 for 1, 2 and 3 columns).
 	Grid int
@@ -171,7 +248,27 @@ type SuggestOptions struct {
 	Before *FragilityResult
 	// Label names a 1-based data row in the text (default "row 212").
 	Label func(row int) string
+	// Data, when set, holds the predictor columns of the fit's rows, in
+	// the order of its design (as given to Model.Design). It gives the
+	// settings of suspect readings and, with region nil, the default
+	// region. When nil they are recovered from the design
+	// (DesignColumns); when that is not possible the default region is
+	// an error and no suggestion is typed as a re-measurement.
+	Data map[string][]float64
+	// Near is the distance, in region coordinates scaled to [0, 1] per
+	// column, within which a suggestion counts as at a suspect reading's
+	// setting (default 0.05).
+	Near float64
 }
+
+// Kinds of Suggestion.
+const (
+	// SuggestCoverage: readings where the data are thin.
+	SuggestCoverage = "coverage"
+	// SuggestRemeasure: readings at the setting of a reading judged
+	// suspect, to check it ("re-measure near ...").
+	SuggestRemeasure = "remeasure"
+)
 
 // RowEffect is the effect of the proposed readings on one watched row
 // (1-based data row).
@@ -200,10 +297,19 @@ type Effect struct {
 	EndsFragility int
 	// Searched is how the fragility search after the readings was done.
 	Searched string
+	// IndexGain is how much the readings raise the fragility index,
+	// with an index of 0 (none found up to MaxRemoved) counted as
+	// MaxRemoved + 1; never negative in a listed suggestion.
+	IndexGain int
 }
 
 // Suggestion is one proposed point.
 type Suggestion struct {
+	// Kind is SuggestCoverage or SuggestRemeasure.
+	Kind string
+	// Suspect lists the 1-based data rows judged suspect whose setting
+	// is within Near of At (set for SuggestRemeasure).
+	Suspect []int
 	// At gives the predictor columns' values.
 	At map[string]float64
 	// Replicates is the number of readings proposed there.
@@ -225,12 +331,15 @@ const (
 	DefaultTop           = 3
 	DefaultPoints        = 2000
 	DefaultSeparation    = 0.25
+	DefaultNear          = 0.05
 	maxWatched           = 10
 )
 
 // Suggest proposes where in region to take more readings, best first (see
 // the file documentation). inf and v may be nil (then Diagnose and Judge
-// with DefaultCutoffs are used); region nil means ObservedRegion(f).
+// with DefaultCutoffs are used); region nil means the range of the rows
+// not judged suspect (RegionExcludingSuspect on opt.Data, or on the
+// columns recovered from the design).
 // Errors: *RegionError, *ConclusionError.
 func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOptions) ([]Suggestion, error) {
 	if opt.Replicates <= 0 {
@@ -242,11 +351,17 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	if opt.Top <= 0 {
 		opt.Top = DefaultTop
 	}
+	if opt.Pool < opt.Top {
+		opt.Pool = max(opt.Top, 2*opt.Top)
+	}
 	if opt.Points <= 0 {
 		opt.Points = DefaultPoints
 	}
 	if opt.Separation <= 0 {
 		opt.Separation = DefaultSeparation
+	}
+	if opt.Near <= 0 {
+		opt.Near = DefaultNear
 	}
 	if opt.Label == nil {
 		opt.Label = func(row int) string { return "row " + strconv.Itoa(row) }
@@ -260,8 +375,33 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	if len(cols) == 0 {
 		return nil, &RegionError{Column: "", Msg: "the model has no predictor columns"}
 	}
+	if inf == nil {
+		inf = Diagnose(f)
+	}
+	if v == nil {
+		v = Judge(inf, DefaultCutoffs())
+	}
+	// The predictor values of the rows: given, or recovered.
+	data, dataErr := opt.Data, error(nil)
+	if data != nil {
+		for _, c := range cols {
+			if len(data[c]) != f.N {
+				return nil, &RegionError{Column: c, Msg: fmt.Sprintf("Data has %d values, the fit %d rows", len(data[c]), f.N)}
+			}
+		}
+	} else {
+		data, dataErr = DesignColumns(f)
+	}
 	if region == nil {
-		if region, err = ObservedRegion(f); err != nil {
+		if dataErr != nil {
+			return nil, dataErr
+		}
+		vn := v
+		if len(vn) != f.N { // a short verdict list: the rest count as not suspect
+			vn = make([]Verdict, f.N)
+			copy(vn, v)
+		}
+		if region, err = RegionExcludingSuspect(f.Model, data, vn); err != nil {
 			return nil, err
 		}
 	}
@@ -279,11 +419,43 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 		}
 		lo[k], hi[k] = b[0], b[1]
 	}
-	if inf == nil {
-		inf = Diagnose(f)
+	// Settings of the suspect readings (when the data are known).
+	type setting struct {
+		row int // 0-based
+		pt  []float64
 	}
-	if v == nil {
-		v = Judge(inf, DefaultCutoffs())
+	var suspects []setting
+	if dataErr == nil {
+		for i := 0; i < f.N && i < len(v); i++ {
+			if v[i].Word() != "suspect" {
+				continue
+			}
+			pt := make([]float64, len(cols))
+			for k, c := range cols {
+				pt[k] = data[c][i]
+			}
+			suspects = append(suspects, setting{row: i, pt: pt})
+		}
+	}
+	scaledDist := func(a, b []float64) float64 {
+		var dist float64
+		for k := range cols {
+			if hi[k] > lo[k] {
+				dk := (a[k] - b[k]) / (hi[k] - lo[k])
+				dist += dk * dk
+			}
+		}
+		return math.Sqrt(dist)
+	}
+	// nearDist is scaledDist for a suggestion and a suspect setting: a
+	// column of zero width counts only when the values differ.
+	nearDist := func(a, b []float64) float64 {
+		for k := range cols {
+			if hi[k] == lo[k] && a[k] != b[k] {
+				return math.Inf(1)
+			}
+		}
+		return scaledDist(a, b)
 	}
 	watched, flagged := sgWatched(inf, v)
 	crit := opt.Criterion
@@ -305,8 +477,18 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 		}
 	}
 
-	// Score every candidate.
+	// Score every candidate: the grid or space-filling set, and the
+	// settings of suspect readings inside the region.
 	pts := sgCandidates(lo, hi, opt)
+	for _, sp := range suspects {
+		inside := true
+		for k := range cols {
+			inside = inside && sp.pt[k] >= lo[k] && sp.pt[k] <= hi[k]
+		}
+		if inside {
+			pts = append(pts, sp.pt)
+		}
+	}
 	colIdx := make(map[string]int, len(cols))
 	for k, c := range cols {
 		colIdx[c] = k
@@ -348,22 +530,15 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 		return cands[a].d > cands[b].d
 	})
 
-	// Pick distinct regions.
+	// The pool: the best distinct points by the criterion.
 	var picks []scored
 	for _, c := range cands {
-		if len(picks) == opt.Top {
+		if len(picks) == opt.Pool {
 			break
 		}
 		far := true
 		for _, q := range picks {
-			var dist float64
-			for k := range cols {
-				if hi[k] > lo[k] {
-					dk := (c.pt[k] - q.pt[k]) / (hi[k] - lo[k])
-					dist += dk * dk
-				}
-			}
-			if math.Sqrt(dist) < opt.Separation {
+			if scaledDist(c.pt, q.pt) < opt.Separation {
 				far = false
 				break
 			}
@@ -377,21 +552,15 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	if fgNeedsRanking(f.N, fopt) {
 		ranked = fgRankRows(inf, base.b, fopt.Candidates)
 	}
-	// Design rows of the picks.
-	zs := make([][]float64, 0, len(picks))
-	kept := picks[:0]
-	for _, c := range picks {
-		zc := make([]float64, p)
-		if err := f.Model.DesignRow(zc, func(col string) float64 { return c.pt[colIdx[col]] }); err != nil {
-			continue
-		}
-		zs = append(zs, zc)
-		kept = append(kept, c)
+	zs := make([][]float64, len(picks))
+	for k, c := range picks {
+		zs[k] = make([]float64, p)
+		// The design row exists: it was scored above.
+		_ = f.Model.DesignRow(zs[k], func(col string) float64 { return c.pt[colIdx[col]] })
 	}
-	picks = kept
 
-	// Fragility now and after the readings at each pick: independent
-	// searches, run on up to two cores.
+	// Fragility now and after the readings at each point of the pool:
+	// independent searches, run on up to two cores.
 	var before FragilityResult
 	afters := make([]FragilityResult, len(picks))
 	sgParallel(1+len(picks), func(k int) {
@@ -405,17 +574,46 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 		}
 		afters[k-1] = base.augmented(zs[k-1], opt.Replicates).searchRanked(checks, ranked, fopt)
 	})
-	ends := make([]int, len(picks))
+
+	// Rank by what the readings achieve (see the file documentation);
+	// drop the points that would lower the index.
+	eff := func(idx int) int {
+		if idx == 0 {
+			return fopt.MaxRemoved + 1
+		}
+		return idx
+	}
+	order := make([]int, 0, len(picks))
+	for k := range picks {
+		if eff(afters[k].Index) >= eff(before.Index) {
+			order = append(order, k)
+		}
+	}
+	ends := func(k int) bool { return before.Fragile && !afters[k].Fragile }
+	sort.SliceStable(order, func(a, b int) bool {
+		ka, kb := order[a], order[b]
+		if ends(ka) != ends(kb) {
+			return ends(ka)
+		}
+		return afters[ka].Index != afters[kb].Index && eff(afters[ka].Index) > eff(afters[kb].Index)
+	})
+	if len(order) > opt.Top {
+		order = order[:opt.Top]
+	}
+
+	// The fewest readings that end the fragility, at each listed point.
+	endsAt := make([]int, len(order))
 	if before.Fragile {
-		sgParallel(len(picks), func(k int) {
+		sgParallel(len(order), func(j int) {
+			k := order[j]
 			fragileWith := func(rr int) bool {
 				return base.augmented(zs[k], rr).searchRanked(checks, ranked, fopt).Fragile
 			}
 			if !afters[k].Fragile {
-				ends[k] = opt.Replicates
+				endsAt[j] = opt.Replicates
 				for rr := 1; rr < opt.Replicates; rr++ {
 					if !fragileWith(rr) {
-						ends[k] = rr
+						endsAt[j] = rr
 						break
 					}
 				}
@@ -423,18 +621,25 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 			}
 			for rr := opt.Replicates + 1; rr <= opt.MaxReplicates; rr++ {
 				if !fragileWith(rr) {
-					ends[k] = rr
+					endsAt[j] = rr
 					break
 				}
 			}
 		})
 	}
 
-	out := make([]Suggestion, 0, len(picks))
-	for k, c := range picks {
-		sg := Suggestion{At: make(map[string]float64, len(cols)), Replicates: opt.Replicates, D: c.d, DGain: 1 + c.d}
-		for j, col := range cols {
-			sg.At[col] = c.pt[j]
+	out := make([]Suggestion, 0, len(order))
+	for j, k := range order {
+		c := picks[k]
+		sg := Suggestion{Kind: SuggestCoverage, At: make(map[string]float64, len(cols)), Replicates: opt.Replicates, D: c.d, DGain: 1 + c.d}
+		for jj, col := range cols {
+			sg.At[col] = c.pt[jj]
+		}
+		for _, sp := range suspects {
+			if nearDist(c.pt, sp.pt) <= opt.Near {
+				sg.Kind = SuggestRemeasure
+				sg.Suspect = append(sg.Suspect, sp.row+1)
+			}
 		}
 		fgMatVec(u, base.c, zs[k], p)
 		ef := Effect{DetRatio: 1 + r*c.d, FragilityBefore: before.Index, FragileBefore: before.Fragile}
@@ -449,7 +654,8 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 		}
 		after := afters[k]
 		ef.FragilityAfter, ef.FragileAfter, ef.Searched = after.Index, after.Fragile, after.Searched
-		ef.EndsFragility = ends[k]
+		ef.IndexGain = eff(after.Index) - eff(before.Index)
+		ef.EndsFragility = endsAt[j]
 		sg.Effect = ef
 		sg.Text = sgText(cols, sg, fopt, opt)
 		out = append(out, sg)
@@ -670,12 +876,30 @@ func sgText(cols []string, sg Suggestion, fopt FragilityOptions, opt SuggestOpti
 	if sg.Replicates == 1 {
 		word = "reading"
 	}
-	fmt.Fprintf(&b, "add %d %s near ", sg.Replicates, word)
-	for k, c := range cols {
-		if k > 0 {
-			b.WriteString(", ")
+	at := func() {
+		for k, c := range cols {
+			if k > 0 {
+				b.WriteString(", ")
+			}
+			fmt.Fprintf(&b, "%s = %s", c, sgNum(sg.At[c], 5))
 		}
-		fmt.Fprintf(&b, "%s = %s", c, sgNum(sg.At[c], 5))
+	}
+	if sg.Kind != SuggestRemeasure {
+		fmt.Fprintf(&b, "add %d %s near ", sg.Replicates, word)
+		at()
+	} else {
+		b.WriteString("re-measure near ")
+		at()
+		fmt.Fprintf(&b, " with %d %s", sg.Replicates, word)
+		var rows []string
+		for _, r := range sg.Suspect {
+			rows = append(rows, opt.Label(r))
+		}
+		verbS := "was"
+		if len(rows) > 1 {
+			verbS = "were"
+		}
+		fmt.Fprintf(&b, ", where %s %s judged suspect", strings.Join(rows, " and "), verbS)
 	}
 	ef := sg.Effect
 	fmt.Fprintf(&b, " (det(X'X) x %s)", sgNum(ef.DetRatio, 3))

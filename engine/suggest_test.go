@@ -158,7 +158,7 @@ func TestSuggestDeliveryD(t *testing.T) {
 	if region["cases"] != [2]float64{2, 30} || region["distance"] != [2]float64{36, 1460} {
 		t.Errorf("observed region %v", region)
 	}
-	best := sgD(t, f, nil)
+	best := sgD(t, f, region)
 	if best.At["cases"] != 30 || best.At["distance"] != 36 || math.Abs(best.D-2.2079) > 5e-5 {
 		t.Errorf("best point %v, d = %.5f; want (30, 36), 2.2079", best.At, best.D)
 	}
@@ -278,7 +278,13 @@ func TestSuggestEqualLeverage(t *testing.T) {
 func TestSuggestDelivery(t *testing.T) {
 	f := frDeliveryFit(t)
 	c := engine.Conclusions{Coefficients: []engine.CoefBand{{Term: "distance", K: 1}}}
-	s, err := engine.Suggest(f, nil, nil, nil, engine.SuggestOptions{
+	// The observed region (row 9, judged suspect, included; the default
+	// region leaves it out: TestSuggestRegionExcludesSuspect).
+	region, err := engine.ObservedRegion(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := engine.Suggest(f, nil, nil, region, engine.SuggestOptions{
 		Conclusions: c,
 		Label:       func(row int) string { return "line " + itoa(row+1) + " of delivery.csv" },
 	})
@@ -293,8 +299,16 @@ func TestSuggestDelivery(t *testing.T) {
 	for _, sg := range s[1:] {
 		t.Logf("%s", sg.Text)
 	}
-	if !strings.HasPrefix(top.Text, "add 3 readings near cases = ") || !strings.Contains(top.Text, "line 10 of delivery.csv") {
-		t.Errorf("text %q", top.Text)
+	// Row 9 (line 10) is judged suspect, and the best point is its own
+	// setting: a re-measurement, not new coverage.
+	if top.Kind != engine.SuggestRemeasure || len(top.Suspect) != 1 || top.Suspect[0] != 9 ||
+		!strings.HasPrefix(top.Text, "re-measure near cases = 30, distance = 1460 with 3 readings, where line 10 of delivery.csv was judged suspect") {
+		t.Errorf("kind %q, suspect rows %v, text %q", top.Kind, top.Suspect, top.Text)
+	}
+	for _, sg := range s[1:] {
+		if sg.Kind != engine.SuggestCoverage || !strings.HasPrefix(sg.Text, "add 3 readings near cases = ") {
+			t.Errorf("kind %q, text %q", sg.Kind, sg.Text)
+		}
 	}
 	if top.Effect.FragilityBefore != 1 || !top.Effect.FragileBefore {
 		t.Errorf("fragility before %d, want 1 (row 9 alone moves distance by > 1 SE)", top.Effect.FragilityBefore)
@@ -488,9 +502,11 @@ func ExampleSuggest() {
 	f, _ := engine.Refit(m, X, y)
 	s, _ := engine.Suggest(f, nil, nil, nil, engine.SuggestOptions{Top: 1,
 		Conclusions: engine.Conclusions{Coefficients: []engine.CoefBand{{Term: "distance", K: 1}}}})
-	fmt.Println(s[0].Text)
+	fmt.Println(s[0].Kind + ": " + s[0].Text)
+	// Row 9 (cases 30, distance 1460) is judged suspect, so the default
+	// region is the range of the other rows.
 	// Output:
-	// add 3 readings near cases = 30, distance = 1460 (det(X'X) x 2.49): leverage of row 9 falls 0.5 -> 0.2, Cook's distance 3.4 -> 0.61; leverage of row 22 falls 0.39 -> 0.29, Cook's distance 0.45 -> 0.28; fragility index rises 1 -> 2; up to 20 readings here do not end the fragility
+	// coverage: add 3 readings near cases = 18.2, distance = 810 (det(X'X) x 1.36): leverage of row 9 falls 0.5 -> 0.39, Cook's distance 3.4 -> 2; leverage of row 22 falls 0.39 -> 0.33, Cook's distance 0.45 -> 0.35; fragility index rises 1 -> 2; up to 20 readings here do not end the fragility
 }
 
 // TestSuggestBefore: passing the caller's Fragility result gives the same

@@ -61,6 +61,11 @@ type tracked struct {
 
 	seen identity // last stat when processed
 
+	// failed is the I/O failure last reported (what and the error), ""
+	// when the last attempt worked: a file that stays unreadable (such as
+	// permission denied) is reported once, not on every rescan.
+	failed string
+
 	backfill     bool
 	backfillLeft int64
 }
@@ -166,6 +171,10 @@ func (w *Watcher) process(ctx context.Context, k fileKey) {
 			w.fileError(ctx, t, "cannot read the file", err)
 			return
 		}
+	}
+	if t.failed != "" {
+		w.log.Info("file can be read again", "path", t.abs, "was", t.failed)
+		t.failed = ""
 	}
 	if !t.hasState {
 		w.adopt(ctx, t, id, prefix)
@@ -299,7 +308,12 @@ func (w *Watcher) fileError(ctx context.Context, t *tracked, what string, err er
 	if t.backfill {
 		w.backfillDone(t)
 	}
-	w.notice(ctx, t, Notice{Kind: Error, Detail: what + ": " + err.Error() + "; tried again when it changes", Err: err})
+	// Tried again on every event and rescan, but said only when the
+	// failure changes: the same one again is not news.
+	if msg := what + ": " + err.Error(); msg != t.failed {
+		t.failed = msg
+		w.notice(ctx, t, Notice{Kind: Error, Detail: msg + "; tried again when it changes", Err: err})
+	}
 }
 
 // block stops reading t until its identity changes, with a notice.

@@ -809,3 +809,55 @@ func TestRecordLongerThanBatch(t *testing.T) {
 		t.Errorf("long record: err %v, raw %d bytes", recs[1].Err, len(recs[1].Raw))
 	}
 }
+
+// TestPermissionDeniedSaidOnce: a file that cannot be read is tried again
+// on every rescan, but the failure is reported when it starts, not again
+// on each rescan while it lasts; once readable its rows are read, and a
+// later failure is reported anew.
+func TestPermissionDeniedSaidOnce(t *testing.T) {
+	if os.Geteuid() == 0 {
+		t.Skip("root reads files whatever their mode")
+	}
+	dir := t.TempDir()
+	name := filepath.Join(dir, "locked.csv")
+	writeFile(t, name, "x,y\n"+rows(1, 2))
+	if err := os.Chmod(name, 0o200); err != nil {
+		t.Fatal(err)
+	}
+	cfg := testConfig(dir)
+	cfg.Rescan = 30 * time.Millisecond
+	sink := newFakeSink(t)
+	start(t, cfg, sink)
+	errorsOf := func() int {
+		k := 0
+		for _, n := range sink.noticesOf(Error) {
+			if n.Path == "locked.csv" {
+				k++
+			}
+		}
+		return k
+	}
+	waitFor(t, "the first notice", waitLong, func() bool { return errorsOf() >= 1 })
+	time.Sleep(400 * time.Millisecond) // a dozen rescans
+	if k := errorsOf(); k != 1 {
+		t.Fatalf("%d notices for one unreadable file over a dozen rescans, want 1: %+v", k, sink.noticesOf(Error))
+	}
+	if err := os.Chmod(name, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	waitFor(t, "rows once readable", waitLong, func() bool { return len(sink.values("m", "locked.csv", 0)) == 2 })
+	// Unreadable again, with new rows: a new failure, reported once.
+	if err := os.Chmod(name, 0o200); err != nil {
+		t.Fatal(err)
+	}
+	appendFile(t, name, rows(3, 4))
+	waitFor(t, "the second notice", waitLong, func() bool { return errorsOf() >= 2 })
+	time.Sleep(400 * time.Millisecond)
+	if k := errorsOf(); k != 2 {
+		t.Fatalf("%d notices after the second failure, want 2", k)
+	}
+	if err := os.Chmod(name, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	waitFor(t, "the new rows", waitLong, func() bool { return len(sink.values("m", "locked.csv", 0)) == 4 })
+}

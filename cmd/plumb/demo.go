@@ -115,11 +115,8 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 	out.printf("  %d readings at %.3gx the bench's pace, for at most %s\n\n", len(readings), *speed, *duration)
 
 	werr := demo.Run(runCtx, dir, *speed, func(l demo.Line) {
-		if l.Reading == nil {
-			return
-		}
-		if *quiet && l.Reading.Phase == demo.PhaseOrdinary {
-			return
+		if l.Reading == nil || *quiet {
+			return // --quiet: no readings, scripted ones included
 		}
 		if l.Reading.Phase == demo.PhaseOrdinary {
 			out.printf("  %s:%-3d %-8s %s\n", demo.FeedName, l.Number, "reading", l.Text)
@@ -132,7 +129,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 		<-done
 		return werr
 	}
-	if werr == nil {
+	if werr == nil && !*quiet {
 		out.printf("\n  all readings written; letting plumb settle until the demo's time is up\n")
 	}
 	<-runCtx.Done()

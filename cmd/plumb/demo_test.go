@@ -34,6 +34,13 @@ func TestDemoSummary(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d\nstdout:\n%s\nstderr:\n%s", code, out.String(), errb.String())
 	}
+	// --quiet prints the alerts and the summary, no readings (scripted
+	// ones included): a reading line starts with the feed's name.
+	for _, line := range strings.Split(out.String(), "\n") {
+		if strings.HasPrefix(strings.TrimSpace(line), demo.FeedName+":") {
+			t.Errorf("--quiet printed a reading: %q", line)
+		}
+	}
 	b, err := os.ReadFile(sumPath)
 	if err != nil {
 		t.Fatal(err)

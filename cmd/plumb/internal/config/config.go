@@ -15,6 +15,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"net"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -36,6 +37,13 @@ type Config struct {
 	// TokenEnv names an environment variable holding the bearer token that
 	// acknowledging or resolving an alert over HTTP requires.
 	TokenEnv string `toml:"token_env"`
+	// PublicNames are the host names (or addresses) under which other
+	// machines reach the HTTP server, such as a reverse proxy's name. A
+	// request is served only when its Host is one of them, the host of
+	// Listen or a localhost name; others are refused (421), which keeps
+	// pages of other sites from reading the API through DNS rebinding.
+	// Names only: no scheme, port, path or wildcard. Default none.
+	PublicNames []string `toml:"public_names"`
 	// LogFormat is "text" (default) or "json".
 	LogFormat string `toml:"log_format"`
 	// LogLevel is "debug", "info" (default), "warn" or "error".
@@ -483,6 +491,11 @@ func (c *Config) Validate() error {
 	if !oneOf(c.LogLevel, "debug", "info", "warn", "error") {
 		v.add([]string{"log_level"}, -1, ErrBadValue, "want debug, info, warn or error, got %q", c.LogLevel)
 	}
+	for _, n := range c.PublicNames {
+		if msg := checkPublicName(n); msg != "" {
+			v.add([]string{"public_names"}, -1, ErrBadValue, "%q: %s", n, msg)
+		}
+	}
 	for _, d := range []struct {
 		key string
 		val time.Duration
@@ -686,4 +699,43 @@ func oneOf(s string, set ...string) bool {
 		}
 	}
 	return false
+}
+
+// checkPublicName returns why n is not a host name or IP address that a
+// Host header can carry ("" when it is one).
+func checkPublicName(n string) string {
+	switch {
+	case n == "":
+		return "empty"
+	case strings.Contains(n, "://"):
+		return "a host name only, without the scheme"
+	case strings.ContainsAny(n, "/?#"):
+		return "a host name only, without a path"
+	case strings.Contains(n, "*"):
+		return "wildcards are not supported; list each name"
+	}
+	h := strings.TrimSuffix(n, ".")
+	if ip := strings.TrimSuffix(strings.TrimPrefix(h, "["), "]"); strings.Contains(ip, ":") {
+		if net.ParseIP(ip) == nil {
+			return "a host name only, without a port"
+		}
+		return ""
+	}
+	if len(h) > 253 {
+		return "longer than 253 characters"
+	}
+	for _, label := range strings.Split(h, ".") {
+		if label == "" || len(label) > 63 {
+			return "every dot-separated part must have 1 to 63 characters"
+		}
+		for _, r := range label {
+			if !(r >= 'a' && r <= 'z' || r >= 'A' && r <= 'Z' || r >= '0' && r <= '9' || r == '-' || r == '_') {
+				return fmt.Sprintf("character %q is not allowed in a host name", r)
+			}
+		}
+		if label[0] == '-' || label[len(label)-1] == '-' {
+			return "a part of the name starts or ends with '-'"
+		}
+	}
+	return ""
 }

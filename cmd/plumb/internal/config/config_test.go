@@ -104,3 +104,47 @@ func TestLoadResolvesRelativeToFile(t *testing.T) {
 		t.Errorf("Resolve = %q", got)
 	}
 }
+
+// TestPublicNames: public_names takes host names and addresses as a Host
+// header carries them, and says what is wrong with anything else, with
+// the line.
+func TestPublicNames(t *testing.T) {
+	c, err := Parse(strings.NewReader("state = \"a.db\"\npublic_names = [\"plumb.lab.example\", \"PLUMB-2.lab.example.\", \"192.0.2.7\", \"[2001:db8::7]\", \"2001:db8::8\"]\n"), "p.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := c.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	if len(c.PublicNames) != 5 || c.PublicNames[0] != "plumb.lab.example" {
+		t.Errorf("public_names = %v", c.PublicNames)
+	}
+	if d := Default(); len(d.PublicNames) != 0 {
+		t.Errorf("default public_names = %v, want none", d.PublicNames)
+	}
+	for _, bad := range []struct{ name, want string }{
+		{"https://plumb.lab.example", "without the scheme"},
+		{"plumb.lab.example:8765", "without a port"},
+		{"plumb.lab.example/dash", "without a path"},
+		{"*.lab.example", "wildcards"},
+		{"", "empty"},
+		{"plumb..example", "1 to 63 characters"},
+		{"plumb lab", "not allowed"},
+		{"-plumb.example", "starts or ends with '-'"},
+	} {
+		t.Run(bad.name, func(t *testing.T) {
+			c, err := Parse(strings.NewReader("state = \"a.db\"\n\npublic_names = [\"ok.example\", \""+bad.name+"\"]\n"), "p.toml")
+			if err != nil {
+				t.Fatal(err)
+			}
+			err = c.Validate()
+			if !errors.Is(err, ErrBadValue) {
+				t.Fatalf("err = %v, want ErrBadValue", err)
+			}
+			var ce *Error
+			if !errors.As(err, &ce) || ce.Key != "public_names" || ce.Line != 3 || !strings.Contains(err.Error(), bad.want) {
+				t.Errorf("err = %v (key %q, line %d), want key public_names, line 3, %q", err, ce.Key, ce.Line, bad.want)
+			}
+		})
+	}
+}
