@@ -44,7 +44,8 @@ var pages = template.Must(template.New("").Funcs(template.FuncMap{
 		}
 		return strings.Join(parts, " · ")
 	},
-	"pct": func(v view.Float) string { return num(v*100) + " %" },
+	"pct":    func(v view.Float) string { return num(v*100) + " %" },
+	"swatch": swatch,
 	"join": func(s []string, sep string) string {
 		out := ""
 		for i, v := range s {
@@ -262,24 +263,7 @@ func buildModelPage(md view.ModelDetail, fits []view.FitView, x string) *modelPa
 	if len(mp.Notable) > 40 {
 		mp.Notable = mp.Notable[:40]
 	}
-	if len(md.Points) > 0 {
-		if x != "" {
-			mp.FitSVG = fitChart(md, x)
-		}
-		mp.InflSVG = influenceChart(md)
-		mp.CooksSVG = cooksChart(md)
-	}
-	if len(fits) > 0 {
-		for _, term := range md.Terms {
-			var band *view.DriftBand
-			for i := range md.Drift {
-				if md.Drift[i].Term == term {
-					band = &md.Drift[i]
-				}
-			}
-			mp.History = append(mp.History, historyPanel{Term: term, SVG: historyChart(fits, term, band), Drift: band})
-		}
-	}
+	modelCharts(mp, md, fits, x)
 	return mp
 }
 
