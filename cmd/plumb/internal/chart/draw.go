@@ -164,28 +164,11 @@ func f1(v float64) string { return strconv.FormatFloat(v, 'f', 1, 64) }
 func (l *layout) draw(c canvas) {
 	l.background(c)
 	c.group(`class="layers"`)
-	for _, ly := range l.Layers {
-		switch ly := ly.(type) {
-		case Span:
-			l.span(c, ly)
-		case Band:
-			l.band(c, ly)
-		}
-	}
-	for _, ly := range l.Layers {
-		switch ly := ly.(type) {
-		case Line:
-			l.line(c, ly)
-		case Rule:
-			l.rule(c, ly)
-		}
-	}
-	for _, ly := range l.Layers {
-		switch ly := ly.(type) {
-		case AxisMarks:
-			l.axisMarks(c, ly)
-		case Points:
-			l.points(c, ly)
+	for depth := range 3 {
+		for _, ly := range l.Layers {
+			if ly.depth() == depth {
+				ly.paint(l, c)
+			}
 		}
 	}
 	c.endGroup()
@@ -257,7 +240,7 @@ func (l *layout) axes(c canvas) {
 	c.endGroup()
 }
 
-func (l *layout) band(c canvas, b Band) {
+func (b Band) paint(l *layout, c canvas) {
 	var up, down []pt
 	for i := range b.X {
 		if i < len(b.Lo) && i < len(b.Hi) && finite(b.X[i]) && finite(b.Lo[i]) && finite(b.Hi[i]) {
@@ -275,7 +258,7 @@ func (l *layout) band(c canvas, b Band) {
 	c.shape(shape{elem: "polygon", subs: [][]pt{up}, closed: true, fill: fill, attrs: classAttr(b.Class)})
 }
 
-func (l *layout) line(c canvas, ln Line) {
+func (ln Line) paint(l *layout, c canvas) {
 	var p []pt
 	for i := range ln.X {
 		if i < len(ln.Y) && finite(ln.X[i]) && finite(ln.Y[i]) {
@@ -289,7 +272,7 @@ func (l *layout) line(c canvas, ln Line) {
 	c.shape(shape{elem: "polyline", subs: [][]pt{p}, stroke: stroke, width: w, dash: dashPattern(ln.Dash), attrs: classAttr(ln.Class)})
 }
 
-func (l *layout) span(c canvas, s Span) {
+func (s Span) paint(l *layout, c canvas) {
 	if !finite(s.Lo) || !finite(s.Hi) {
 		return
 	}
@@ -301,7 +284,7 @@ func (l *layout) span(c canvas, s Span) {
 	c.shape(shape{elem: "rect", subs: [][]pt{{{l.ml, top}, {l.right(), top}, {l.right(), bot}, {l.ml, bot}}}, closed: true, fill: fill, attrs: classAttr(s.Class)})
 }
 
-func (l *layout) rule(c canvas, r Rule) {
+func (r Rule) paint(l *layout, c canvas) {
 	if !finite(r.At) {
 		return
 	}
@@ -340,7 +323,7 @@ func (l *layout) rule(c canvas, r Rule) {
 	}
 }
 
-func (l *layout) axisMarks(c canvas, a AxisMarks) {
+func (a AxisMarks) paint(l *layout, c canvas) {
 	class := a.Class
 	if class == "" {
 		class = "suggest"
@@ -362,7 +345,7 @@ func (l *layout) axisMarks(c canvas, a AxisMarks) {
 	c.endGroup()
 }
 
-func (l *layout) points(c canvas, p Points) {
+func (p Points) paint(l *layout, c canvas) {
 	class := p.Class
 	if class == "" {
 		class = "points"

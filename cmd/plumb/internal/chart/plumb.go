@@ -3,7 +3,9 @@ package chart
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strconv"
+	"strings"
 
 	"plumb/cmd/plumb/internal/view"
 )
@@ -198,6 +200,21 @@ func pointTitle(p view.Point) string {
 	}
 	return fmt.Sprintf("%s:%d  %s\ny = %s, fitted %s\nleverage %s, t = %s, Cook's D = %s",
 		p.File, p.Line, verdict, Num(p.Y), Num(p.Fitted), Num(p.Leverage), Num(p.StudentizedExternal), Num(p.Cook))
+}
+
+// Settings lists values by name, sorted: "a = 1, b = 2.5" (the values
+// at which a curve holds the other predictors, a suggestion's point).
+func Settings(m map[string]view.Float) string {
+	keys := make([]string, 0, len(m))
+	for k := range m {
+		keys = append(keys, k)
+	}
+	slices.Sort(keys)
+	parts := make([]string, len(keys))
+	for i, k := range keys {
+		parts[i] = k + " = " + Num(m[k])
+	}
+	return strings.Join(parts, ", ")
 }
 
 // Num formats a value for a label: 4 significant digits, "—" when

@@ -104,6 +104,10 @@ const (
 type Layer interface {
 	// extent adds the layer's data to the x and y ranges.
 	extent(xs, ys []float64) ([]float64, []float64)
+	// depth orders the drawing: areas (0) under lines (1) under marks (2),
+	// each depth in the order of Spec.Layers.
+	depth() int
+	paint(l *layout, c canvas)
 }
 
 // Band fills between Lo and Hi over X (a confidence or prediction band,
@@ -201,5 +205,12 @@ func (p Points) extent(xs, ys []float64) ([]float64, []float64) {
 func (a AxisMarks) extent(xs, ys []float64) ([]float64, []float64) {
 	return append(xs, a.At...), ys
 }
+
+func (Band) depth() int      { return 0 }
+func (Span) depth() int      { return 0 }
+func (Line) depth() int      { return 1 }
+func (Rule) depth() int      { return 1 }
+func (Points) depth() int    { return 2 }
+func (AxisMarks) depth() int { return 2 }
 
 func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }

@@ -134,16 +134,7 @@ func Render(w io.Writer, c Contents, opts Options) error {
 		if predictor != "" {
 			caption := "The response against " + predictor + " with the fitted mean and its 95 % confidence band"
 			if c, ok := d.Curve(predictor); ok && len(c.Held) > 0 {
-				keys := make([]string, 0, len(c.Held))
-				for k := range c.Held {
-					keys = append(keys, k)
-				}
-				slices.Sort(keys)
-				var held []string
-				for _, k := range keys {
-					held = append(held, k+" = "+num(c.Held[k]))
-				}
-				caption += ", the other predictors held at " + strings.Join(held, ", ")
+				caption += ", the other predictors held at " + chart.Settings(c.Held)
 			}
 			caption += ". Green triangles on the bottom edge mark where more readings would help the fit most."
 			if _, thinned := view.ThinPoints(d.Points, MaxDrawn); thinned > 0 {
@@ -231,18 +222,7 @@ var page = template.Must(template.New("report").Funcs(template.FuncMap{
 	"when": when,
 	"join": strings.Join,
 	"xval": func(p view.Point, col string) view.Float { return p.X[col] },
-	"at": func(s view.Suggestion) string {
-		keys := make([]string, 0, len(s.At))
-		for k := range s.At {
-			keys = append(keys, k)
-		}
-		slices.Sort(keys)
-		var parts []string
-		for _, k := range keys {
-			parts = append(parts, k+" = "+num(s.At[k]))
-		}
-		return strings.Join(parts, ", ")
-	},
+	"at":   func(s view.Suggestion) string { return chart.Settings(s.At) },
 }).Parse(pageTemplate))
 
 const pageTemplate = `<!doctype html>
