@@ -646,6 +646,44 @@ func tail[T any](s []T, n int) []T {
 	return s[len(s)-n:]
 }
 
+// latestCase is one read of the newest n records of a model.
+type latestCase[T any] struct {
+	name  string
+	model string
+	n     int
+	want  []T
+}
+
+// latestCases are the cases every Latest* read shares, over the 7
+// records of model "cal" (oldest first): one, some, exactly all, more
+// (a count above 7), n = 0 and a negative n (both mean all), and a model
+// that does not exist.
+func latestCases[T any](cal []T, more, negative int) []latestCase[T] {
+	return []latestCase[T]{
+		{"one", "cal", 1, tail(cal, 1)},
+		{"some", "cal", 3, tail(cal, 3)},
+		{"exactly all", "cal", 7, cal},
+		{"more than all", "cal", more, cal},
+		{"zero means all", "cal", 0, cal},
+		{"negative means all", "cal", negative, cal},
+		{"unknown model", "none", 3, nil},
+	}
+}
+
+// runLatest runs each case through read and compares with check.
+func runLatest[T any](t *testing.T, cases []latestCase[T], read func(model string, n int) ([]T, error), check func(t *testing.T, got, want []T)) {
+	t.Helper()
+	for _, tt := range cases {
+		t.Run(tt.name, func(t *testing.T) {
+			got, err := read(tt.model, tt.n)
+			if err != nil {
+				t.Fatal(err)
+			}
+			check(t, got, tt.want)
+		})
+	}
+}
+
 // testLatestQuarantined: the latest n rows, oldest first, are the tail of
 // the full listing, per model and for all models; n <= 0 gives all.
 func testLatestQuarantined(t *testing.T, s store.Store) {
@@ -700,30 +738,12 @@ func testLatestQuarantined(t *testing.T, s store.Store) {
 			cal = append(cal, q)
 		}
 	}
-	for _, tt := range []struct {
-		name  string
-		model string
-		n     int
-		want  []store.QuarantineRow
-	}{
-		{"one", "cal", 1, tail(cal, 1)},
-		{"some", "cal", 3, tail(cal, 3)},
-		{"exactly all", "cal", 7, cal},
-		{"more than all", "cal", 50, cal},
-		{"zero means all", "cal", 0, cal},
-		{"negative means all", "cal", -1, cal},
-		{"all models", "", 4, tail(all, 4)},
-		{"all models, all rows", "", 0, all},
-		{"unknown model", "none", 5, nil},
-	} {
-		t.Run(tt.name, func(t *testing.T) {
-			got, err := s.LatestQuarantined(ctx, tt.model, tt.n)
-			if err != nil {
-				t.Fatal(err)
-			}
-			checkQuarantine(t, got, tt.want)
-		})
-	}
+	cases := append(latestCases(cal, 50, -1),
+		latestCase[store.QuarantineRow]{"all models", "", 4, tail(all, 4)},
+		latestCase[store.QuarantineRow]{"all models, all rows", "", 0, all})
+	runLatest(t, cases, func(model string, n int) ([]store.QuarantineRow, error) {
+		return s.LatestQuarantined(ctx, model, n)
+	}, checkQuarantine)
 	// A new row is at the end at once.
 	b := store.Batch{Source: source("cal", "q.csv", 1, 1000, 99),
 		Quarantine: []store.QuarantineRow{{Line: 99, Column: 3, Raw: "late", Reason: "empty field", At: t0.Add(time.Hour)}}}
@@ -852,34 +872,18 @@ func testLatestFits(t *testing.T, s store.Store) {
 	if len(cal) != 7 {
 		t.Fatalf("setup: %d fits of cal", len(cal))
 	}
-	for _, tt := range []struct {
-		name  string
-		model string
-		n     int
-		want  []store.FitRecord
-	}{
-		{"one", "cal", 1, tail(cal, 1)},
-		{"some", "cal", 3, tail(cal, 3)},
-		{"exactly all", "cal", 7, cal},
-		{"more than all", "cal", 1000, cal},
-		{"zero means all", "cal", 0, cal},
-		{"negative means all", "cal", -5, cal},
-		{"unknown model", "none", 3, nil},
-		{"all models is not a model", "", 3, nil},
-	} {
-		t.Run(tt.name, func(t *testing.T) {
-			got, err := s.LatestFits(ctx, tt.model, tt.n)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if len(got) != len(tt.want) {
-				t.Fatalf("LatestFits(%q, %d) = %d fits, want %d", tt.model, tt.n, len(got), len(tt.want))
-			}
-			for i := range tt.want {
-				checkFit(t, got[i], tt.want[i])
-			}
-		})
-	}
+	cases := append(latestCases(cal, 1000, -5),
+		latestCase[store.FitRecord]{"all models is not a model", "", 3, nil})
+	runLatest(t, cases, func(model string, n int) ([]store.FitRecord, error) {
+		return s.LatestFits(ctx, model, n)
+	}, func(t *testing.T, got, want []store.FitRecord) {
+		if len(got) != len(want) {
+			t.Fatalf("LatestFits = %d fits, want %d", len(got), len(want))
+		}
+		for i := range want {
+			checkFit(t, got[i], want[i])
+		}
+	})
 	for model, want := range map[string]int64{"cal": 7, "other": 3, "none": 0, "": 0} {
 		if n, err := s.CountFits(ctx, model); err != nil || n != want {
 			t.Errorf("CountFits(%q) = %d, %v; want %d", model, n, err, want)
