@@ -784,20 +784,20 @@ func checkFit(t *testing.T, got, want store.FitRecord) {
 	sameTime(t, "fit At", got.At, want.At)
 }
 
-func testFits(t *testing.T, s store.Store) {
-	ctx := ctxT(t)
-	if _, err := s.LastFit(ctx, "cal"); !errors.Is(err, store.ErrNotFound) {
-		t.Errorf("LastFit of a model without fits: %v, want ErrNotFound", err)
-	}
-	ids := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 12))
-	var want []store.FitRecord
-	for i := range 6 {
+// recordFits records n fits, fit i after observation ids[i], of model
+// "other" where other(i) and of "cal" elsewhere; fit undefinedAt has
+// undefined σ and R² and no coefficients. It returns cal's fits as
+// recorded (with their ids), oldest first.
+func recordFits(ctx context.Context, t *testing.T, s store.Store, ids []int64, n int, other func(i int) bool, undefinedAt int) []store.FitRecord {
+	t.Helper()
+	var cal []store.FitRecord
+	for i := range n {
 		model := "cal"
-		if i == 3 {
+		if other(i) {
 			model = "other"
 		}
 		f := fitRecord(model, i, ids[i])
-		if i == 4 {
+		if i == undefinedAt {
 			f.Sigma, f.RSquared = math.NaN(), math.NaN()
 			f.Estimates, f.StdErrors, f.Terms = nil, nil, nil
 		}
@@ -807,9 +807,19 @@ func testFits(t *testing.T, s store.Store) {
 		}
 		f.ID = id
 		if model == "cal" {
-			want = append(want, f)
+			cal = append(cal, f)
 		}
 	}
+	return cal
+}
+
+func testFits(t *testing.T, s store.Store) {
+	ctx := ctxT(t)
+	if _, err := s.LastFit(ctx, "cal"); !errors.Is(err, store.ErrNotFound) {
+		t.Errorf("LastFit of a model without fits: %v, want ErrNotFound", err)
+	}
+	ids := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 12))
+	want := recordFits(ctx, t, s, ids, 6, func(i int) bool { return i == 3 }, 4)
 	got, err := s.Fits(ctx, "cal", 0, 0)
 	if err != nil {
 		t.Fatal(err)
@@ -849,26 +859,8 @@ func testLatestFits(t *testing.T, s store.Store) {
 		t.Errorf("CountFits of a model without fits = %d, %v; want 0", n, err)
 	}
 	ids := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 12))
-	var cal []store.FitRecord
-	for i := range 10 {
-		model := "cal"
-		if i%3 == 1 {
-			model = "other" // interleaved, so that cal's ids are not contiguous
-		}
-		f := fitRecord(model, i, ids[i])
-		if i == 5 {
-			f.Sigma, f.RSquared = math.NaN(), math.NaN()
-			f.Estimates, f.StdErrors, f.Terms = nil, nil, nil
-		}
-		id, err := s.RecordFit(ctx, f, nil)
-		if err != nil {
-			t.Fatal(err)
-		}
-		f.ID = id
-		if model == "cal" {
-			cal = append(cal, f)
-		}
-	}
+	// Interleaved with another model's, so that cal's ids are not contiguous.
+	cal := recordFits(ctx, t, s, ids, 10, func(i int) bool { return i%3 == 1 }, 5)
 	if len(cal) != 7 {
 		t.Fatalf("setup: %d fits of cal", len(cal))
 	}
