@@ -1,17 +1,18 @@
 package chart
 
 import (
+	"bytes"
 	"fmt"
 	"html"
 	"html/template"
 	"image/color"
 	"io"
-	"strings"
+	"strconv"
 )
 
 // svgCanvas writes the chart as SVG markup.
 type svgCanvas struct {
-	b strings.Builder
+	b bytes.Buffer
 }
 
 // HTML renders the chart as an <svg> element for embedding in a page.
@@ -28,6 +29,7 @@ func (s Spec) WriteSVG(w io.Writer) error {
 func (s Spec) svg() string {
 	l := place(s)
 	c := &svgCanvas{}
+	c.b.Grow(svgSize(s))
 	b := &c.b
 	fmt.Fprintf(b, `<svg xmlns="http://www.w3.org/2000/svg" class="chart" data-chart="%s" viewBox="0 0 %g %g" width="%g" height="%g" role="img" aria-label="%s" preserveAspectRatio="xMidYMid meet" font-family="%s">`,
 		html.EscapeString(s.Name), l.Width, l.Height, l.Width, l.Height, html.EscapeString(s.Label), html.EscapeString(fontFamily))
@@ -44,6 +46,17 @@ func (s Spec) svg() string {
 	return b.String()
 }
 
+// svgSize guesses the length of the SVG: about 300 bytes a mark.
+func svgSize(s Spec) int {
+	n := 8 << 10
+	for _, ly := range s.Layers {
+		if p, ok := ly.(Points); ok {
+			n += 300 * len(p.Marks)
+		}
+	}
+	return n
+}
+
 func (c *svgCanvas) group(attrs string) {
 	c.b.WriteString("<g")
 	if attrs != "" {
@@ -55,72 +68,127 @@ func (c *svgCanvas) group(attrs string) {
 func (c *svgCanvas) endGroup() { c.b.WriteString("</g>") }
 
 func (c *svgCanvas) shape(s shape) {
-	b := &c.b
-	b.WriteString("<" + s.elem)
+	b := c.b.AvailableBuffer()
+	b = append(b, '<')
+	b = append(b, s.elem...)
 	if s.attrs != "" {
-		b.WriteString(" " + s.attrs)
+		b = append(b, ' ')
+		b = append(b, s.attrs...)
 	}
 	switch {
 	case s.circle:
 		p := s.subs[0][0]
-		fmt.Fprintf(b, ` d="M%s %sa%s %s 0 1 0 %s 0a%s %s 0 1 0 -%s 0z"`,
-			f1(p.x-s.r), f1(p.y), f1(s.r), f1(s.r), f1(2*s.r), f1(s.r), f1(s.r), f1(2*s.r))
+		b = append(b, ` d="M`...)
+		b = num1(b, p.x-s.r)
+		b = append(b, ' ')
+		b = num1(b, p.y)
+		for _, dx := range [2]float64{2 * s.r, -2 * s.r} {
+			b = append(b, 'a')
+			b = num1(b, s.r)
+			b = append(b, ' ')
+			b = num1(b, s.r)
+			b = append(b, " 0 1 0 "...)
+			b = num1(b, dx)
+			b = append(b, " 0"...)
+		}
+		b = append(b, `z"`...)
 	case s.elem == "rect":
 		p := s.subs[0]
-		fmt.Fprintf(b, ` x="%s" y="%s" width="%s" height="%s"`, f1(p[0].x), f1(p[0].y), f1(p[2].x-p[0].x), f1(p[2].y-p[0].y))
+		b = append(b, ` x="`...)
+		b = num1(b, p[0].x)
+		b = append(b, `" y="`...)
+		b = num1(b, p[0].y)
+		b = append(b, `" width="`...)
+		b = num1(b, p[2].x-p[0].x)
+		b = append(b, `" height="`...)
+		b = num1(b, p[2].y-p[0].y)
+		b = append(b, '"')
 	case s.elem == "polyline" || s.elem == "polygon":
-		b.WriteString(` points="`)
+		b = append(b, ` points="`...)
 		for i, p := range s.subs[0] {
 			if i > 0 {
-				b.WriteByte(' ')
+				b = append(b, ' ')
 			}
-			b.WriteString(f1(p.x) + "," + f1(p.y))
+			b = num1(b, p.x)
+			b = append(b, ',')
+			b = num1(b, p.y)
 		}
-		b.WriteByte('"')
+		b = append(b, '"')
 	default:
-		b.WriteString(` d="`)
+		b = append(b, ` d="`...)
 		for _, sub := range s.subs {
 			for i, p := range sub {
 				if i == 0 {
-					b.WriteString("M")
+					b = append(b, 'M')
 				} else {
-					b.WriteString("L")
+					b = append(b, 'L')
 				}
-				b.WriteString(f1(p.x) + " " + f1(p.y))
+				b = num1(b, p.x)
+				b = append(b, ' ')
+				b = num1(b, p.y)
 			}
 			if s.closed {
-				b.WriteString("z")
+				b = append(b, 'z')
 			}
 		}
-		b.WriteByte('"')
+		b = append(b, '"')
 	}
-	paintAttr(b, "fill", s.fill)
+	b = paintAttr(b, "fill", s.fill)
 	if s.stroke.A > 0 && s.width > 0 {
-		paintAttr(b, "stroke", s.stroke)
-		fmt.Fprintf(b, ` stroke-width="%g"`, s.width)
+		b = paintAttr(b, "stroke", s.stroke)
+		b = append(b, ` stroke-width="`...)
+		b = strconv.AppendFloat(b, s.width, 'g', -1, 64)
+		b = append(b, '"')
 		if len(s.dash) > 0 {
-			fmt.Fprintf(b, ` stroke-dasharray="%g %g"`, s.dash[0], s.dash[1])
+			b = append(b, ` stroke-dasharray="`...)
+			b = strconv.AppendFloat(b, s.dash[0], 'g', -1, 64)
+			b = append(b, ' ')
+			b = strconv.AppendFloat(b, s.dash[1], 'g', -1, 64)
+			b = append(b, '"')
 		}
 	}
 	if s.title == "" {
-		b.WriteString("/>")
-		return
+		b = append(b, "/>"...)
+	} else {
+		b = append(b, "><title>"...)
+		c.b.Write(b)
+		template.HTMLEscape(&c.b, []byte(s.title))
+		b = c.b.AvailableBuffer()
+		b = append(b, "</title></"...)
+		b = append(b, s.elem...)
+		b = append(b, '>')
 	}
-	fmt.Fprintf(b, "><title>%s</title></%s>", html.EscapeString(s.title), s.elem)
+	c.b.Write(b)
 }
 
-func paintAttr(b *strings.Builder, name string, c color.NRGBA) {
+// num1 appends v with one decimal.
+func num1(b []byte, v float64) []byte { return strconv.AppendFloat(b, v, 'f', 1, 64) }
+
+func paintAttr(b []byte, name string, c color.NRGBA) []byte {
+	b = append(b, ' ')
+	b = append(b, name...)
 	if c.A == 0 {
-		b.WriteString(` ` + name + `="none"`)
-		return
+		return append(b, `="none"`...)
 	}
-	fmt.Fprintf(b, ` %s="%s"`, name, hex(c))
+	b = append(b, `="`...)
+	b = appendHex(b, c)
+	b = append(b, '"')
 	if c.A != 0xff {
-		fmt.Fprintf(b, ` %s-opacity="%.3g"`, name, float64(c.A)/255)
+		b = append(b, ' ')
+		b = append(b, name...)
+		b = append(b, `-opacity="`...)
+		b = strconv.AppendFloat(b, float64(c.A)/255, 'g', 3, 64)
+		b = append(b, '"')
 	}
+	return b
 }
 
-func hex(c color.NRGBA) string { return fmt.Sprintf("#%02x%02x%02x", c.R, c.G, c.B) }
+func appendHex(b []byte, c color.NRGBA) []byte {
+	const digits = "0123456789abcdef"
+	return append(b, '#', digits[c.R>>4], digits[c.R&15], digits[c.G>>4], digits[c.G&15], digits[c.B>>4], digits[c.B&15])
+}
+
+func hex(c color.NRGBA) string { return string(appendHex(nil, c)) }
 
 func (c *svgCanvas) text(t text) {
 	if t.s == "" {
