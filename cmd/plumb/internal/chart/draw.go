@@ -297,6 +297,7 @@ func (r Rule) paint(l *layout, c canvas) {
 		attrs += fmt.Sprintf(` data-cutoff="%s"`, html.EscapeString(r.ID))
 	}
 	_, stroke, w := tonePaint(r.Tone)
+	w = math.Min(w, 1.4) // a rule is a reference, not data
 	label := text{s: r.Label, size: sizeLabel, colour: stroke, class: "cutoff-label"}
 	var seg []pt
 	if r.Vertical {

@@ -37,7 +37,7 @@ func tonePaint(t Tone) (fill color.NRGBA, stroke color.NRGBA, width float64) {
 	case ToneSpread:
 		return alpha(ink, 0x18), ink, 1.4
 	case ToneDrift:
-		return rgb(0xf6, 0xec, 0xd6), rgb(0xb9, 0xab, 0x94), 1
+		return alpha(rgb(0xd9, 0xa4, 0x41), 0x2c), rgb(0xb9, 0xab, 0x94), 1
 	case ToneCutoff:
 		return alpha(cutColour, 0x20), cutColour, 1.2
 	case ToneReference:
