@@ -3,7 +3,7 @@
 //
 // A chart is a Spec: a size, two axes and a list of layers drawn in order
 // (bands, lines, spans, rules, points, axis marks). The builders in
-// plumb.go turn a model's view into the four specs plumb shows (Fit,
+// builders.go turn a model's view into the four specs plumb shows (Fit,
 // Influence, Cooks, History); a Spec then renders as an inline SVG
 // fragment for a page (HTML), a standalone SVG file (WriteSVG) or a PNG
 // (WritePNG, drawn with gonum/plot's vg canvas). Both outputs come from
