@@ -1,8 +1,9 @@
 // Package chart draws plumb's charts, for the dashboard and the report
 // alike, in one visual style.
 //
-// A chart is a Spec: a size, two axes and a list of layers drawn in order
-// (bands, lines, spans, rules, points, axis marks). The builders in
+// A chart is a Spec: a size, two axes and a list of layers (bands, spans,
+// lines, rules, points, axis marks), drawn areas first, then lines, then
+// marks, each kind in list order. The builders in
 // builders.go turn a model's view into the four specs plumb shows (Fit,
 // Influence, Cooks, History); a Spec then renders as an inline SVG
 // fragment for a page (HTML), a standalone SVG file (WriteSVG) or a PNG
