@@ -365,7 +365,7 @@ func (p Points) paint(l *layout, c canvas) {
 		lk := lookOf(m.Verdict)
 		if p.Stems && finite(m.Y) {
 			st := stemTone
-			if m.Verdict == "suspect" || m.Verdict == "influential" {
+			if lk.stem {
 				st = lk.colour
 			}
 			y0 := l.py(math.Max(l.y0, math.Min(0, l.y1)))

@@ -6,6 +6,8 @@ import (
 	"gonum.org/v1/plot/font"
 	"gonum.org/v1/plot/font/liberation"
 	"gonum.org/v1/plot/vg"
+
+	"plumb/cmd/plumb/internal/view"
 )
 
 // The style: warm paper, slate ink, one green for the fit, a brown for
@@ -75,15 +77,17 @@ type verdictLook struct {
 	colour color.NRGBA
 	glyph  glyph
 	r      float64 // half size in px
+	// stem: Cook's stems take the verdict's colour (else a neutral grey).
+	stem bool
 }
 
 // verdictLooks are in legend order.
 var verdictLooks = []verdictLook{
-	{"ordinary", rgb(0x8b, 0x95, 0x9d), glyphDot, 3.3},
-	{"notable", rgb(0xb7, 0x86, 0x2c), glyphRing, 4.2},
-	{"outlier", rgb(0x3d, 0x5a, 0x98), glyphTriangle, 5.5},
-	{"influential", rgb(0x8c, 0x4a, 0x8f), glyphDiamond, 5.5},
-	{"suspect", rgb(0xb3, 0x3b, 0x2a), glyphSquare, 4.5},
+	{view.VerdictOrdinary, rgb(0x8b, 0x95, 0x9d), glyphDot, 3.3, false},
+	{view.VerdictNotable, rgb(0xb7, 0x86, 0x2c), glyphRing, 4.2, false},
+	{view.VerdictOutlier, rgb(0x3d, 0x5a, 0x98), glyphTriangle, 5.5, false},
+	{view.VerdictInfluential, rgb(0x8c, 0x4a, 0x8f), glyphDiamond, 5.5, true},
+	{view.VerdictSuspect, rgb(0xb3, 0x3b, 0x2a), glyphSquare, 4.5, true},
 }
 
 func lookOf(verdict string) verdictLook {
