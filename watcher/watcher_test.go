@@ -334,13 +334,21 @@ func TestNewSubfolder(t *testing.T) {
 	waitFor(t, "append in new folder", waitLong, func() bool { return len(sink.values("m", "day1/deeper/b.csv", 0)) == 3 })
 }
 
-func TestTruncationAndRewrite(t *testing.T) {
-	dir := t.TempDir()
-	a := filepath.Join(dir, "a.csv")
-	writeFile(t, a, "x,y\n"+rows(1, 5))
-	sink := newFakeSink(t)
+// watchFirst writes a.csv with rows 1..n in a new folder, starts a watcher
+// on it and waits until those n rows have arrived as generation 0.
+func watchFirst(t *testing.T, n int) (dir, a string, sink *fakeSink) {
+	t.Helper()
+	dir = t.TempDir()
+	a = filepath.Join(dir, "a.csv")
+	writeFile(t, a, "x,y\n"+rows(1, n))
+	sink = newFakeSink(t)
 	start(t, testConfig(dir), sink)
-	waitFor(t, "gen 0", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 5 })
+	waitFor(t, "generation 0", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == n })
+	return dir, a, sink
+}
+
+func TestTruncationAndRewrite(t *testing.T) {
+	_, a, sink := watchFirst(t, 5)
 	// O_TRUNC rewrite, shorter: only a Write event.
 	writeFile(t, a, "x,y\n"+rows(100, 101))
 	waitFor(t, "gen 1", waitLong, func() bool { return len(sink.values("m", "a.csv", 1)) == 2 })
@@ -359,12 +367,7 @@ func TestTruncationAndRewrite(t *testing.T) {
 }
 
 func TestRotation(t *testing.T) {
-	dir := t.TempDir()
-	a := filepath.Join(dir, "a.csv")
-	writeFile(t, a, "x,y\n"+rows(1, 3))
-	sink := newFakeSink(t)
-	start(t, testConfig(dir), sink)
-	waitFor(t, "gen 0", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 3 })
+	_, a, sink := watchFirst(t, 3)
 	appendFile(t, a, rows(4, 4))
 	if err := os.Rename(a, a+".1"); err != nil { // not matched by *.csv
 		t.Fatal(err)
@@ -380,12 +383,7 @@ func TestRotation(t *testing.T) {
 }
 
 func TestRenameWithinFolderIsNotReadTwice(t *testing.T) {
-	dir := t.TempDir()
-	a := filepath.Join(dir, "a.csv")
-	writeFile(t, a, "x,y\n"+rows(1, 4))
-	sink := newFakeSink(t)
-	start(t, testConfig(dir), sink)
-	waitFor(t, "a", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 4 })
+	dir, a, sink := watchFirst(t, 4)
 	b := filepath.Join(dir, "a-2026.csv")
 	if err := os.Rename(a, b); err != nil {
 		t.Fatal(err)
@@ -402,12 +400,7 @@ func TestRenameWithinFolderIsNotReadTwice(t *testing.T) {
 }
 
 func TestHeaderChangeBlocks(t *testing.T) {
-	dir := t.TempDir()
-	a := filepath.Join(dir, "a.csv")
-	writeFile(t, a, "x,y\n"+rows(1, 3))
-	sink := newFakeSink(t)
-	start(t, testConfig(dir), sink)
-	waitFor(t, "gen 0", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 3 })
+	_, a, sink := watchFirst(t, 3)
 	writeFile(t, a, "y,x\n"+rows(1, 9))
 	waitFor(t, "header notice", waitLong, func() bool { return len(sink.noticesOf(HeaderChanged)) == 1 })
 	appendFile(t, a, rows(10, 11)) // still blocked, no repeated notice
@@ -424,12 +417,7 @@ func TestHeaderChangeBlocks(t *testing.T) {
 }
 
 func TestDeleted(t *testing.T) {
-	dir := t.TempDir()
-	a := filepath.Join(dir, "a.csv")
-	writeFile(t, a, "x,y\n"+rows(1, 3))
-	sink := newFakeSink(t)
-	start(t, testConfig(dir), sink)
-	waitFor(t, "rows", waitLong, func() bool { return len(sink.values("m", "a.csv", 0)) == 3 })
+	_, a, sink := watchFirst(t, 3)
 	if err := os.Remove(a); err != nil {
 		t.Fatal(err)
 	}

@@ -646,6 +646,44 @@ func tail[T any](s []T, n int) []T {
 	return s[len(s)-n:]
 }
 
+// latestCase is one read of the newest n records of a model.
+type latestCase[T any] struct {
+	name  string
+	model string
+	n     int
+	want  []T
+}
+
+// latestCases are the cases every Latest* read shares, over the 7
+// records of model "cal" (oldest first): one, some, exactly all, more
+// (a count above 7), n = 0 and a negative n (both mean all), and a model
+// that does not exist.
+func latestCases[T any](cal []T, more, negative int) []latestCase[T] {
+	return []latestCase[T]{
+		{"one", "cal", 1, tail(cal, 1)},
+		{"some", "cal", 3, tail(cal, 3)},
+		{"exactly all", "cal", 7, cal},
+		{"more than all", "cal", more, cal},
+		{"zero means all", "cal", 0, cal},
+		{"negative means all", "cal", negative, cal},
+		{"unknown model", "none", 3, nil},
+	}
+}
+
+// runLatest runs each case through read and compares with check.
+func runLatest[T any](t *testing.T, cases []latestCase[T], read func(model string, n int) ([]T, error), check func(t *testing.T, got, want []T)) {
+	t.Helper()
+	for _, tt := range cases {
+		t.Run(tt.name, func(t *testing.T) {
+			got, err := read(tt.model, tt.n)
+			if err != nil {
+				t.Fatal(err)
+			}
+			check(t, got, tt.want)
+		})
+	}
+}
+
 // testLatestQuarantined: the latest n rows, oldest first, are the tail of
 // the full listing, per model and for all models; n <= 0 gives all.
 func testLatestQuarantined(t *testing.T, s store.Store) {
@@ -700,30 +738,12 @@ func testLatestQuarantined(t *testing.T, s store.Store) {
 			cal = append(cal, q)
 		}
 	}
-	for _, tt := range []struct {
-		name  string
-		model string
-		n     int
-		want  []store.QuarantineRow
-	}{
-		{"one", "cal", 1, tail(cal, 1)},
-		{"some", "cal", 3, tail(cal, 3)},
-		{"exactly all", "cal", 7, cal},
-		{"more than all", "cal", 50, cal},
-		{"zero means all", "cal", 0, cal},
-		{"negative means all", "cal", -1, cal},
-		{"all models", "", 4, tail(all, 4)},
-		{"all models, all rows", "", 0, all},
-		{"unknown model", "none", 5, nil},
-	} {
-		t.Run(tt.name, func(t *testing.T) {
-			got, err := s.LatestQuarantined(ctx, tt.model, tt.n)
-			if err != nil {
-				t.Fatal(err)
-			}
-			checkQuarantine(t, got, tt.want)
-		})
-	}
+	cases := append(latestCases(cal, 50, -1),
+		latestCase[store.QuarantineRow]{"all models", "", 4, tail(all, 4)},
+		latestCase[store.QuarantineRow]{"all models, all rows", "", 0, all})
+	runLatest(t, cases, func(model string, n int) ([]store.QuarantineRow, error) {
+		return s.LatestQuarantined(ctx, model, n)
+	}, checkQuarantine)
 	// A new row is at the end at once.
 	b := store.Batch{Source: source("cal", "q.csv", 1, 1000, 99),
 		Quarantine: []store.QuarantineRow{{Line: 99, Column: 3, Raw: "late", Reason: "empty field", At: t0.Add(time.Hour)}}}
@@ -764,20 +784,20 @@ func checkFit(t *testing.T, got, want store.FitRecord) {
 	sameTime(t, "fit At", got.At, want.At)
 }
 
-func testFits(t *testing.T, s store.Store) {
-	ctx := ctxT(t)
-	if _, err := s.LastFit(ctx, "cal"); !errors.Is(err, store.ErrNotFound) {
-		t.Errorf("LastFit of a model without fits: %v, want ErrNotFound", err)
-	}
-	ids := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 12))
-	var want []store.FitRecord
-	for i := range 6 {
+// recordFits records n fits, fit i after observation ids[i], of model
+// "other" where other(i) and of "cal" elsewhere; fit undefinedAt has
+// undefined σ and R² and no coefficients. It returns cal's fits as
+// recorded (with their ids), oldest first.
+func recordFits(ctx context.Context, t *testing.T, s store.Store, ids []int64, n int, other func(i int) bool, undefinedAt int) []store.FitRecord {
+	t.Helper()
+	var cal []store.FitRecord
+	for i := range n {
 		model := "cal"
-		if i == 3 {
+		if other(i) {
 			model = "other"
 		}
 		f := fitRecord(model, i, ids[i])
-		if i == 4 {
+		if i == undefinedAt {
 			f.Sigma, f.RSquared = math.NaN(), math.NaN()
 			f.Estimates, f.StdErrors, f.Terms = nil, nil, nil
 		}
@@ -787,9 +807,19 @@ func testFits(t *testing.T, s store.Store) {
 		}
 		f.ID = id
 		if model == "cal" {
-			want = append(want, f)
+			cal = append(cal, f)
 		}
 	}
+	return cal
+}
+
+func testFits(t *testing.T, s store.Store) {
+	ctx := ctxT(t)
+	if _, err := s.LastFit(ctx, "cal"); !errors.Is(err, store.ErrNotFound) {
+		t.Errorf("LastFit of a model without fits: %v, want ErrNotFound", err)
+	}
+	ids := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 12))
+	want := recordFits(ctx, t, s, ids, 6, func(i int) bool { return i == 3 }, 4)
 	got, err := s.Fits(ctx, "cal", 0, 0)
 	if err != nil {
 		t.Fatal(err)
@@ -829,57 +859,23 @@ func testLatestFits(t *testing.T, s store.Store) {
 		t.Errorf("CountFits of a model without fits = %d, %v; want 0", n, err)
 	}
 	ids := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 12))
-	var cal []store.FitRecord
-	for i := range 10 {
-		model := "cal"
-		if i%3 == 1 {
-			model = "other" // interleaved, so that cal's ids are not contiguous
-		}
-		f := fitRecord(model, i, ids[i])
-		if i == 5 {
-			f.Sigma, f.RSquared = math.NaN(), math.NaN()
-			f.Estimates, f.StdErrors, f.Terms = nil, nil, nil
-		}
-		id, err := s.RecordFit(ctx, f, nil)
-		if err != nil {
-			t.Fatal(err)
-		}
-		f.ID = id
-		if model == "cal" {
-			cal = append(cal, f)
-		}
-	}
+	// Interleaved with another model's, so that cal's ids are not contiguous.
+	cal := recordFits(ctx, t, s, ids, 10, func(i int) bool { return i%3 == 1 }, 5)
 	if len(cal) != 7 {
 		t.Fatalf("setup: %d fits of cal", len(cal))
 	}
-	for _, tt := range []struct {
-		name  string
-		model string
-		n     int
-		want  []store.FitRecord
-	}{
-		{"one", "cal", 1, tail(cal, 1)},
-		{"some", "cal", 3, tail(cal, 3)},
-		{"exactly all", "cal", 7, cal},
-		{"more than all", "cal", 1000, cal},
-		{"zero means all", "cal", 0, cal},
-		{"negative means all", "cal", -5, cal},
-		{"unknown model", "none", 3, nil},
-		{"all models is not a model", "", 3, nil},
-	} {
-		t.Run(tt.name, func(t *testing.T) {
-			got, err := s.LatestFits(ctx, tt.model, tt.n)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if len(got) != len(tt.want) {
-				t.Fatalf("LatestFits(%q, %d) = %d fits, want %d", tt.model, tt.n, len(got), len(tt.want))
-			}
-			for i := range tt.want {
-				checkFit(t, got[i], tt.want[i])
-			}
-		})
-	}
+	cases := append(latestCases(cal, 1000, -5),
+		latestCase[store.FitRecord]{"all models is not a model", "", 3, nil})
+	runLatest(t, cases, func(model string, n int) ([]store.FitRecord, error) {
+		return s.LatestFits(ctx, model, n)
+	}, func(t *testing.T, got, want []store.FitRecord) {
+		if len(got) != len(want) {
+			t.Fatalf("LatestFits = %d fits, want %d", len(got), len(want))
+		}
+		for i := range want {
+			checkFit(t, got[i], want[i])
+		}
+	})
 	for model, want := range map[string]int64{"cal": 7, "other": 3, "none": 0, "": 0} {
 		if n, err := s.CountFits(ctx, model); err != nil || n != want {
 			t.Errorf("CountFits(%q) = %d, %v; want %d", model, n, err, want)

@@ -7,6 +7,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"reflect"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -27,31 +28,15 @@ func decodeAll(tb testing.TB, d *Decoder, in string) ([]Record, error) {
 }
 
 // feedChunks feeds in split at the given cut points, keeping the
-// unconsumed tail as a caller would, and says atEOF on the last call.
+// unconsumed tail as a caller would, and says atEOF on the last call;
+// bytes left unconsumed at EOF fail the test.
 func feedChunks(tb testing.TB, d *Decoder, in []byte, cuts []int) ([]Record, error) {
 	tb.Helper()
-	var recs []Record
-	emit := func(r Record) error { recs = append(recs, r); return nil }
-	var pending []byte
-	prev := 0
-	cuts = append(append([]int(nil), cuts...), len(in))
-	for k, c := range cuts {
-		if c < prev {
-			c = prev
-		}
-		pending = append(pending, in[prev:c]...)
-		prev = c
-		atEOF := k == len(cuts)-1
-		n, err := d.Feed(pending, atEOF, emit)
-		if err != nil {
-			return recs, err
-		}
-		pending = append(pending[:0], pending[n:]...)
-		if atEOF && len(pending) != 0 {
-			tb.Fatalf("%d bytes left unconsumed at EOF", len(pending))
-		}
+	recs, err := feedChunksNoFatal(d, in, cuts)
+	if errors.Is(err, errLeftover) {
+		tb.Fatal(err)
 	}
-	return recs, nil
+	return recs, err
 }
 
 type wantRec struct {
@@ -182,16 +167,10 @@ func TestFeed(t *testing.T) {
 	}
 }
 
+// sameFloats: the same values bit for bit (signed zeros and NaN
+// payloads included).
 func sameFloats(a, b []float64) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if math.Float64bits(a[i]) != math.Float64bits(b[i]) {
-			return false
-		}
-	}
-	return true
+	return slices.EqualFunc(a, b, func(x, y float64) bool { return math.Float64bits(x) == math.Float64bits(y) })
 }
 
 func TestRowErrorMessage(t *testing.T) {

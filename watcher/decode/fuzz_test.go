@@ -1,6 +1,7 @@
 package decode
 
 import (
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -78,7 +79,8 @@ func FuzzDecode(f *testing.F) {
 	})
 }
 
-// feedChunksNoFatal is feedChunks returning an error for leftovers.
+// feedChunksNoFatal is feedChunks returning an error wrapping errLeftover
+// for bytes left unconsumed at EOF.
 func feedChunksNoFatal(d *Decoder, in []byte, cuts []int) ([]Record, error) {
 	var recs []Record
 	emit := func(r Record) error { recs = append(recs, r); return nil }
@@ -96,7 +98,7 @@ func feedChunksNoFatal(d *Decoder, in []byte, cuts []int) ([]Record, error) {
 		pending = append(pending[:0], pending[n:]...)
 	}
 	if len(pending) != 0 {
-		return recs, errLeftover
+		return recs, fmt.Errorf("%d %w", len(pending), errLeftover)
 	}
 	return recs, nil
 }

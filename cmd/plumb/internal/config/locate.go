@@ -2,6 +2,7 @@ package config
 
 import (
 	"bytes"
+	"slices"
 	"strings"
 )
 
@@ -68,7 +69,7 @@ func newLocator(src []byte) *locator {
 func (l *locator) find(path []string) int {
 	for k := len(path); k > 0; k-- {
 		for _, e := range l.entries {
-			if equalPath(e.path, path[:k]) {
+			if slices.Equal(e.path, path[:k]) {
 				return e.line
 			}
 		}
@@ -85,24 +86,12 @@ func (l *locator) findIndexed(path []string, idx int) int {
 	}
 	for k := len(path); k > 0; k-- {
 		for _, e := range l.entries {
-			if e.block == idx && len(e.path) > 0 && e.path[0] == path[0] && equalPath(e.path, path[:k]) {
+			if e.block == idx && len(e.path) > 0 && e.path[0] == path[0] && slices.Equal(e.path, path[:k]) {
 				return e.line
 			}
 		}
 	}
 	return 0
-}
-
-func equalPath(a, b []string) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
 }
 
 // splitKey splits a dotted TOML key, honouring quoted parts.

@@ -28,9 +28,9 @@
 // [10^(prec-1), 10^prec), so its integer part holds the prec digits wanted
 // and its fraction decides the rounding. 10^s is kept as a 128-bit mantissa
 // T, rounded down, with its binary exponent (pow10_table.go, written from
-// exact integer arithmetic by the tests); the top 128 bits P of the 192-bit
-// product m·T give v as a binary fixed-point number with f fraction bits,
-// 72 ≤ f ≤ 127. Rounding T down and dropping the low 64 bits of the product
+// exact integer arithmetic by ./internal/gen through go generate); the
+// top 128 bits P of the 192-bit product m·T give v as a binary fixed-point
+// number with f fraction bits, 72 ≤ f ≤ 127. Rounding T down and dropping the low 64 bits of the product
 // each lose less than one unit of P, so the exact value V (in units of P)
 // satisfies
 //
@@ -57,6 +57,8 @@
 // and may write anywhere in those 32 bytes: bytes of dst's capacity past the
 // returned length are not kept. It is safe for concurrent use.
 package numfmt
+
+//go:generate go run ./internal/gen -o pow10_table.go
 
 import (
 	"encoding/binary"

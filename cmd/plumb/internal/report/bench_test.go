@@ -9,8 +9,8 @@ import (
 	"plumb/cmd/plumb/internal/view/viewtest"
 )
 
-// BenchmarkWrite renders the full HTML report (five gonum/plot charts and
-// the tables) for a straight-line model of n rows.
+// BenchmarkWrite renders the full HTML report (five charts and the
+// tables) for a straight-line model of n rows.
 func BenchmarkWrite(b *testing.B) {
 	for _, n := range []int{100, 1000, 10000} {
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {

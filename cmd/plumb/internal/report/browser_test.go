@@ -30,7 +30,7 @@ func TestBrowserReport(t *testing.T) {
 		t.Fatal(err)
 	}
 	// Each chart is laid out with a real size and holds at least one drawn
-	// path per point (gonum/plot draws every glyph and line as a path).
+	// path per point (package chart draws every glyph and line as a path).
 	for _, name := range []string{"fit", "influence", "cooks"} {
 		js := fmt.Sprintf(`(() => { const s = document.querySelector('svg[data-chart=%s]');
 			const r = s.getBoundingClientRect();

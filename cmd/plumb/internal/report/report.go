@@ -1,8 +1,8 @@
 // Package report writes what plumb knows about one model as a file a
 // person can keep, mail or attach to a deviation record: one
-// self-contained HTML page (styles inline, charts inline as SVG drawn with
-// gonum/plot, no external resource of any kind), or a single chart as SVG
-// or PNG.
+// self-contained HTML page (styles inline, charts inline as SVG drawn by
+// package chart as the dashboard's are, no external resource of any kind),
+// or a single chart as SVG or PNG.
 //
 //	c, err := report.Collect(ctx, src, "bench-b", report.Options{})
 //	err = report.Render(f, c, report.Options{})
@@ -37,14 +37,12 @@ import (
 	"fmt"
 	"html/template"
 	"io"
-	"math"
 	"slices"
 	"strconv"
 	"strings"
 	"time"
 
-	"gonum.org/v1/plot/vg"
-
+	"plumb/cmd/plumb/internal/chart"
 	"plumb/cmd/plumb/internal/view"
 )
 
@@ -133,68 +131,28 @@ func Render(w io.Writer, c Contents, opts Options) error {
 		predictor = firstPredictor(d)
 	}
 	if len(d.Points) > 0 {
-		const wd, ht = 6.6 * vg.Inch, 3.9 * vg.Inch
 		if predictor != "" {
-			p, err := fitPlot(d, predictor)
-			if err != nil {
-				return fmt.Errorf("report: fit chart: %w", err)
-			}
-			s, err := inlineSVG(p, ChartFit, wd, ht)
-			if err != nil {
-				return err
-			}
 			caption := "The response against " + predictor + " with the fitted mean and its 95 % confidence band"
 			if c, ok := d.Curve(predictor); ok && len(c.Held) > 0 {
-				keys := make([]string, 0, len(c.Held))
-				for k := range c.Held {
-					keys = append(keys, k)
-				}
-				slices.Sort(keys)
-				var held []string
-				for _, k := range keys {
-					held = append(held, k+" = "+num(c.Held[k]))
-				}
-				caption += ", the other predictors held at " + strings.Join(held, ", ")
+				caption += ", the other predictors held at " + chart.Settings(c.Held)
 			}
 			caption += ". Green triangles on the bottom edge mark where more readings would help the fit most."
 			if _, thinned := view.ThinPoints(d.Points, MaxDrawn); thinned > 0 {
 				caption += fmt.Sprintf(" %d ordinary rows are not drawn (evenly thinned); every flagged row is.", thinned)
 			}
-			pd.Figures = append(pd.Figures, figure{ChartFit, caption, template.HTML(s)})
-		}
-		p, err := influencePlot(d)
-		if err != nil {
-			return fmt.Errorf("report: influence chart: %w", err)
-		}
-		s, err := inlineSVG(p, ChartInfluence, wd, ht)
-		if err != nil {
-			return err
+			pd.Figures = append(pd.Figures, figure{ChartFit, caption, chart.Fit(d, predictor).HTML()})
 		}
 		pd.Figures = append(pd.Figures, figure{ChartInfluence, fmt.Sprintf(
 			"Externally studentized residual against leverage. Dashed: 2p/n = %s. Dotted: ±%s, the Bonferroni critical |t| at α = %s.",
-			num(d.Cutoffs.Leverage), num(d.Cutoffs.TCritical), num(d.Cutoffs.Alpha)), template.HTML(s)})
-		p, err = cooksPlot(d)
-		if err != nil {
-			return fmt.Errorf("report: Cook's chart: %w", err)
-		}
-		s, err = inlineSVG(p, ChartCooks, wd, ht)
-		if err != nil {
-			return err
-		}
+			num(d.Cutoffs.Leverage), num(d.Cutoffs.TCritical), num(d.Cutoffs.Alpha)), chart.Influence(d).HTML()})
 		pd.Figures = append(pd.Figures, figure{ChartCooks, fmt.Sprintf(
 			"Cook's distance by row of the fit. Dashed: 4/n = %s. Dotted: the absolute cutoff %s.",
-			num(d.Cutoffs.CookSizeAdjusted), num(d.Cutoffs.CookAbsolute)), template.HTML(s)})
+			num(d.Cutoffs.CookSizeAdjusted), num(d.Cutoffs.CookAbsolute)), chart.Cooks(d).HTML()})
 	}
 	for _, term := range d.Terms {
-		p, err := historyPlot(fits, term, driftOf(d, term))
-		if err != nil {
-			continue // the term is new or the history is empty
-		}
-		s, err := inlineSVG(p, "history", 4.6*vg.Inch, 2.8*vg.Inch)
-		if err != nil {
-			return err
-		}
-		pd.History = append(pd.History, figure{"history", term, template.HTML(s)})
+		if s, ok := chart.History(fits, term, driftOf(d, term)); ok {
+			pd.History = append(pd.History, figure{chart.NameHistory, term, s.HTML()})
+		} // else the term is new or the history is empty
 	}
 	counts := map[string]int{}
 	for _, p := range d.Points {
@@ -244,16 +202,7 @@ func rank(v string) int {
 }
 
 // num formats a number for people: 4 significant digits, "—" when undefined.
-func num(v view.Float) string {
-	if !v.Finite() {
-		return "—"
-	}
-	f := float64(v)
-	if f != 0 && (math.Abs(f) >= 1e6 || math.Abs(f) < 1e-3) {
-		return strconv.FormatFloat(f, 'e', 3, 64)
-	}
-	return strconv.FormatFloat(f, 'g', 4, 64)
-}
+func num(v view.Float) string { return chart.Num(v) }
 
 func when(t time.Time) string {
 	if t.IsZero() {
@@ -273,18 +222,7 @@ var page = template.Must(template.New("report").Funcs(template.FuncMap{
 	"when": when,
 	"join": strings.Join,
 	"xval": func(p view.Point, col string) view.Float { return p.X[col] },
-	"at": func(s view.Suggestion) string {
-		keys := make([]string, 0, len(s.At))
-		for k := range s.At {
-			keys = append(keys, k)
-		}
-		slices.Sort(keys)
-		var parts []string
-		for _, k := range keys {
-			parts = append(parts, k+" = "+num(s.At[k]))
-		}
-		return strings.Join(parts, ", ")
-	},
+	"at":   func(s view.Suggestion) string { return chart.Settings(s.At) },
 }).Parse(pageTemplate))
 
 const pageTemplate = `<!doctype html>
@@ -319,7 +257,7 @@ td.raw { white-space: pre-wrap; word-break: break-all; max-width: 420px; }
 .esc { font-family: "DejaVu Sans Mono", monospace; font-size: 10.5px; color: var(--hot); background: #f4e3dc; border-radius: 2px; padding: 0 2px; }
 .cut { color: var(--muted); font-family: system-ui, "Segoe UI", "Noto Sans", "DejaVu Sans", sans-serif; font-style: italic; white-space: normal; }
 figure { margin: 14px 0; page-break-inside: avoid; }
-figure svg { width: 100%; height: auto; display: block; }
+figure svg { max-width: 100%; height: auto; display: block; margin: 0 auto; }
 figcaption { color: var(--muted); font-size: 12px; margin-top: 2px; }
 .hist { display: grid; grid-template-columns: 1fr 1fr; gap: 10px; }
 .verdict { font-weight: 600; }

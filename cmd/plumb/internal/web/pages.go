@@ -14,6 +14,7 @@ import (
 	"strings"
 	"time"
 
+	"plumb/cmd/plumb/internal/chart"
 	"plumb/cmd/plumb/internal/view"
 )
 
@@ -44,7 +45,8 @@ var pages = template.Must(template.New("").Funcs(template.FuncMap{
 		}
 		return strings.Join(parts, " · ")
 	},
-	"pct": func(v view.Float) string { return num(v*100) + " %" },
+	"pct":    func(v view.Float) string { return num(v*100) + " %" },
+	"swatch": swatch,
 	"join": func(s []string, sep string) string {
 		out := ""
 		for i, v := range s {
@@ -55,27 +57,9 @@ var pages = template.Must(template.New("").Funcs(template.FuncMap{
 		}
 		return out
 	},
-	"xval": func(p view.Point, col string) view.Float { return p.X[col] },
-	"atval": func(s view.Suggestion) string {
-		out := ""
-		for _, k := range sortedKeys(s.At) {
-			if out != "" {
-				out += ", "
-			}
-			out += k + " = " + num(s.At[k])
-		}
-		return out
-	},
+	"xval":  func(p view.Point, col string) view.Float { return p.X[col] },
+	"atval": func(s view.Suggestion) string { return chart.Settings(s.At) },
 }).ParseFS(assets, "assets/*.html"))
-
-func sortedKeys(m map[string]view.Float) []string {
-	keys := make([]string, 0, len(m))
-	for k := range m {
-		keys = append(keys, k)
-	}
-	slices.Sort(keys)
-	return keys
-}
 
 func when(t time.Time) string {
 	if t.IsZero() {
@@ -243,11 +227,7 @@ func buildModelPage(md view.ModelDetail, fits []view.FitView, x string) *modelPa
 	}
 	mp.Predictor = x
 	if c, ok := md.Curve(x); ok && len(c.Held) > 0 {
-		var parts []string
-		for _, k := range sortedKeys(c.Held) {
-			parts = append(parts, k+" = "+num(c.Held[k]))
-		}
-		mp.Held = strings.Join(parts, ", ")
+		mp.Held = chart.Settings(c.Held)
 	}
 	_, mp.Thinned = view.ThinPoints(md.Points, MaxDrawn)
 	for _, p := range md.Points {
@@ -262,24 +242,7 @@ func buildModelPage(md view.ModelDetail, fits []view.FitView, x string) *modelPa
 	if len(mp.Notable) > 40 {
 		mp.Notable = mp.Notable[:40]
 	}
-	if len(md.Points) > 0 {
-		if x != "" {
-			mp.FitSVG = fitChart(md, x)
-		}
-		mp.InflSVG = influenceChart(md)
-		mp.CooksSVG = cooksChart(md)
-	}
-	if len(fits) > 0 {
-		for _, term := range md.Terms {
-			var band *view.DriftBand
-			for i := range md.Drift {
-				if md.Drift[i].Term == term {
-					band = &md.Drift[i]
-				}
-			}
-			mp.History = append(mp.History, historyPanel{Term: term, SVG: historyChart(fits, term, band), Drift: band})
-		}
-	}
+	modelCharts(mp, md, fits, x)
 	return mp
 }
 
