@@ -67,7 +67,7 @@ start() {
 		# another process took the port between the check and the start
 	done
 	echo "$port" >"$dir/port"
-	PGPASSWORD="$pw" as env PGPASSWORD="$pw" "$bin/psql" -X -q -v ON_ERROR_STOP=1 -h "$dir" -p "$port" -U postgres -d postgres \
+	as env PGPASSWORD="$pw" "$bin/psql" -X -q -v ON_ERROR_STOP=1 -h "$dir" -p "$port" -U postgres -d postgres \
 		-c "CREATE ROLE plumb_test LOGIN PASSWORD '$pw' NOSUPERUSER NOCREATEDB NOCREATEROLE" \
 		-c "CREATE DATABASE plumb_test OWNER plumb_test" >/dev/null ||
 		die "creating the test role and database failed"
