@@ -85,6 +85,10 @@ type DB struct {
 	// where is the redacted URL, for errors.
 	where string
 	now   func() time.Time
+	// connConfig makes the lease connections (outside the pool); schema
+	// is the current schema, part of the model lock keys.
+	connConfig *pgx.ConnConfig
+	schema     string
 
 	// models caches committed model name -> id (models are never deleted).
 	mmu    sync.RWMutex
@@ -146,8 +150,12 @@ func Open(ctx context.Context, url string, opts ...Option) (*DB, error) {
 	if err != nil {
 		return nil, fmt.Errorf("store: open %s: %w", where, err)
 	}
-	db := &DB{pool: pool, where: where, now: cfg.now, models: make(map[string]int64)}
+	db := &DB{pool: pool, where: where, now: cfg.now, models: make(map[string]int64), connConfig: pcfg.ConnConfig}
 	if err := db.migrate(ctx, cfg.schema); err != nil {
+		pool.Close()
+		return nil, fmt.Errorf("store: open %s: %w", where, err)
+	}
+	if err := pool.QueryRow(ctx, "SELECT current_schema()").Scan(&db.schema); err != nil {
 		pool.Close()
 		return nil, fmt.Errorf("store: open %s: %w", where, err)
 	}

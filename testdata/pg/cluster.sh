@@ -15,7 +15,8 @@
 # stop: pg_ctl stop (fast) and remove the directory.
 #
 # PG_BIN overrides where the server binaries are (default: the newest
-# /usr/lib/postgresql/*/bin).
+# /usr/lib/postgresql/*/bin). The tests need no durability, so the server
+# runs with fsync=off unless PLUMB_PG_FSYNC=on (for benchmarks).
 set -euo pipefail
 
 die() { echo "cluster.sh: $*" >&2; exit 1; }
@@ -61,7 +62,7 @@ start() {
 		port=$((20000 + RANDOM % 30000))
 		in_use "$port" && continue
 		if as "$bin/pg_ctl" -D "$dir/data" -l "$dir/server.log" -w -t 60 \
-			-o "-c listen_addresses=127.0.0.1 -p $port -k $dir -c fsync=off -c max_connections=200" start >/dev/null; then
+			-o "-c listen_addresses=127.0.0.1 -p $port -k $dir -c fsync=${PLUMB_PG_FSYNC:-off} -c max_connections=200" start >/dev/null; then
 			break
 		fi
 		# another process took the port between the check and the start
