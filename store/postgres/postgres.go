@@ -347,3 +347,13 @@ func isUnique(err error) bool {
 	var pe *pgconn.PgError
 	return errors.As(err, &pe) && pe.Code == "23505"
 }
+
+// Ping checks that the server answers, for a readiness probe: while the
+// server is down or restarting it returns an error (naming the redacted
+// URL), and the pool reconnects by itself once the server is back.
+func (db *DB) Ping(ctx context.Context) error {
+	if err := db.pool.Ping(ctx); err != nil {
+		return fmt.Errorf("store: %s: %w", db.where, err)
+	}
+	return nil
+}
