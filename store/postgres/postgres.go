@@ -140,6 +140,12 @@ func Open(ctx context.Context, url string, opts ...Option) (*DB, error) {
 	if _, ok := pcfg.ConnConfig.RuntimeParams["application_name"]; !ok {
 		pcfg.ConnConfig.RuntimeParams["application_name"] = "plumb"
 	}
+	// plumb's statements are short lookups: compiling one (JIT, on by
+	// default from PostgreSQL 12 when the planner's estimate is high, as
+	// it is on tables not yet analysed) costs more than running it.
+	if _, ok := pcfg.ConnConfig.RuntimeParams["jit"]; !ok {
+		pcfg.ConnConfig.RuntimeParams["jit"] = "off"
+	}
 	if cfg.schema != "" {
 		pcfg.ConnConfig.RuntimeParams["search_path"] = cfg.schema
 	}
