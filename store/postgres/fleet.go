@@ -34,7 +34,8 @@ type FleetModel struct {
 // backwards, alerts_subject), so its cost grows with the number of
 // models, not with their histories (apart from counting fits, which
 // counts index entries). The server's lock table is read once.
-const fleetQuery = `WITH names AS (SELECT name COLLATE "C" AS name FROM models UNION SELECT model FROM model_states),
+const fleetQuery = `WITH names AS (SELECT name COLLATE "C" AS name FROM models UNION SELECT model FROM model_states
+	UNION SELECT model FROM model_owners),
 held AS MATERIALIZED (SELECT pid, (classid::bigint << 32) | objid::bigint AS lock_key FROM pg_locks
 	WHERE locktype = 'advisory' AND granted AND objsubid = 1
 	AND database = (SELECT oid FROM pg_database WHERE datname = current_database()))

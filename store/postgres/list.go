@@ -11,10 +11,11 @@ import (
 )
 
 // Models returns the name of every model the history knows (one that has
-// read a file or recorded a fit, or has a recorded state), sorted
-// bytewise. With a shared database these are the models of every daemon.
+// read a file or recorded a fit, or has a recorded state or owner),
+// sorted bytewise. With a shared database these are the models of every daemon.
 func (db *DB) Models(ctx context.Context) ([]string, error) {
-	rows, err := db.pool.Query(ctx, `SELECT name COLLATE "C" FROM models UNION SELECT model FROM model_states ORDER BY 1`)
+	rows, err := db.pool.Query(ctx, `SELECT name COLLATE "C" FROM models UNION SELECT model FROM model_states
+		UNION SELECT model FROM model_owners ORDER BY 1`)
 	if err != nil {
 		return nil, fmt.Errorf("store: models: %w", err)
 	}

@@ -247,16 +247,31 @@ func (db *DB) migrate(ctx context.Context, schema string) error {
 		if _, err := tx.Exec(ctx, "SELECT pg_advisory_xact_lock($1)", migrateLockKey); err != nil {
 			return fmt.Errorf("migrate: lock: %w", err)
 		}
+		// Create only what is missing: CREATE ... IF NOT EXISTS checks the
+		// CREATE privilege before it looks, and a daemon's role may hold
+		// none once the schema is in place.
 		if schema != "" {
-			if _, err := tx.Exec(ctx, "CREATE SCHEMA IF NOT EXISTS "+pgx.Identifier{schema}.Sanitize()); err != nil {
+			var have bool
+			if err := tx.QueryRow(ctx, "SELECT EXISTS (SELECT 1 FROM pg_namespace WHERE nspname = $1)", schema).Scan(&have); err != nil {
 				return fmt.Errorf("migrate: schema %s: %w", schema, err)
 			}
+			if !have {
+				if _, err := tx.Exec(ctx, "CREATE SCHEMA "+pgx.Identifier{schema}.Sanitize()); err != nil {
+					return fmt.Errorf("migrate: schema %s: %w", schema, err)
+				}
+			}
 		}
-		if _, err := tx.Exec(ctx, `CREATE TABLE IF NOT EXISTS schema_version (
-			version    INTEGER PRIMARY KEY,
-			name       TEXT    NOT NULL,
-			applied_at BIGINT  NOT NULL)`); err != nil {
+		var haveVersions bool
+		if err := tx.QueryRow(ctx, "SELECT to_regclass('schema_version') IS NOT NULL").Scan(&haveVersions); err != nil {
 			return fmt.Errorf("migrate: %w", err)
+		}
+		if !haveVersions {
+			if _, err := tx.Exec(ctx, `CREATE TABLE schema_version (
+				version    INTEGER PRIMARY KEY,
+				name       TEXT    NOT NULL,
+				applied_at BIGINT  NOT NULL)`); err != nil {
+				return fmt.Errorf("migrate: %w", err)
+			}
 		}
 		var cur int
 		if err := tx.QueryRow(ctx, "SELECT COALESCE(MAX(version), 0) FROM schema_version").Scan(&cur); err != nil {
