@@ -42,6 +42,22 @@
 //
 // Times are UTC unix nanoseconds, like the SQLite backend's, so a history
 // copied from one to the other is the same to the nanosecond.
+//
+// # Several daemons
+//
+// Beyond store.Store, a DB offers what a fleet sharing the database needs:
+// Acquire makes the calling daemon the owner of a model (a session-level
+// advisory lock; a standby waits and takes over when the owner's session
+// ends, see own.go), Owners and Fleet show every model of every daemon
+// with its owner and whether that owner is alive, ClaimDeliveries hands
+// each due outbox entry to one daemon (FOR UPDATE SKIP LOCKED), Models
+// lists every model, and Ping tells a readiness probe whether the server
+// answers.
+//
+// # Encoding
+//
+// A verdict word and the crossed cutoffs are encoded in codec.go only
+// (encVerdict, encFlags and their inverses), TEXT columns today.
 package postgres
 
 import (

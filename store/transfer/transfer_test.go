@@ -380,3 +380,11 @@ func TestCopyRefusesAnotherHistory(t *testing.T) {
 		t.Errorf("copy onto another history: %v, want ErrMismatch", err)
 	}
 }
+
+// Both backends list their models and a model's verdict changes.
+var (
+	_ transfer.ModelLister  = (*sqlite.DB)(nil)
+	_ transfer.ModelLister  = (*postgres.DB)(nil)
+	_ transfer.ChangeLister = (*sqlite.DB)(nil)
+	_ transfer.ChangeLister = (*postgres.DB)(nil)
+)
