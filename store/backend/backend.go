@@ -21,6 +21,7 @@ import (
 	"plumb/store"
 	"plumb/store/postgres"
 	"plumb/store/sqlite"
+	"plumb/store/transfer"
 )
 
 // IsPostgres reports whether state names a PostgreSQL database rather
@@ -71,4 +72,35 @@ func StateFromEnv(name string) (string, error) {
 		return "", fmt.Errorf("state_env names %s, but that environment variable is not set", name)
 	}
 	return v, nil
+}
+
+// Copy copies the history named by the state from into the one named by
+// to (see transfer.Copy: idempotent, resumable, counts verified) and
+// returns the report, whose String is what `plumb state copy` prints.
+// A SQLite source must exist (it is not created); the target is created
+// or migrated as Open does. Stop the daemons of both first.
+func Copy(ctx context.Context, from, to string, opt transfer.Options) (transfer.Report, error) {
+	if !IsPostgres(from) {
+		if _, err := os.Stat(from); err != nil {
+			return transfer.Report{}, fmt.Errorf("copy from %s: %w", from, err)
+		}
+	}
+	if from == to {
+		return transfer.Report{}, fmt.Errorf("copy from %s to itself", Describe(from))
+	}
+	src, err := Open(ctx, from)
+	if err != nil {
+		return transfer.Report{}, err
+	}
+	defer src.Close()
+	dst, err := Open(ctx, to)
+	if err != nil {
+		return transfer.Report{}, err
+	}
+	defer dst.Close()
+	rep, err := transfer.Copy(ctx, src, dst, opt)
+	if err != nil {
+		return rep, fmt.Errorf("copy %s to %s: %w", Describe(from), Describe(to), err)
+	}
+	return rep, nil
 }

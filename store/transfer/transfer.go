@@ -30,6 +30,7 @@ import (
 	"fmt"
 	"slices"
 	"sort"
+	"strings"
 
 	"plumb/store"
 )
@@ -542,4 +543,17 @@ func copyAlerts(ctx context.Context, src, dst store.Store, rep *Report) error {
 		}
 	}
 	return nil
+}
+
+// String describes the report, one line per model, then the alerts: the
+// verified counts, and what this run copied.
+func (r Report) String() string {
+	var b strings.Builder
+	for _, m := range r.Models {
+		fmt.Fprintf(&b, "model %s: %d observations, %d quarantined rows, %d fits, %d verdict changes verified (copied now: %d, %d, %d)\n",
+			m.Model, m.Observations, m.Quarantined, m.Fits, m.VerdictChanges, m.CopiedObservations, m.CopiedQuarantined, m.CopiedFits)
+	}
+	fmt.Fprintf(&b, "alerts: %d verified (copied now: %d); outbox entries: %d verified (copied now: %d)\n",
+		r.Alerts, r.CopiedAlerts, r.Deliveries, r.CopiedDeliveries)
+	return b.String()
 }
