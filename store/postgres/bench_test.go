@@ -27,7 +27,7 @@ func benchObs(line int, at time.Time) store.Observation {
 		Arrival: &store.Diagnostics{
 			Leverage: 0.0123, Residual: -0.0456, StudentizedInternal: -0.789, StudentizedExternal: -0.788,
 			CooksDistance: 0.00234, DFFITS: -0.0876, DFBETAS: []float64{0.01, -0.02, 0.03},
-			COVRATIO: 1.0123, OutlierPBonferroni: 1, Verdict: "ordinary", Flags: "[]",
+			COVRATIO: 1.0123, OutlierPBonferroni: 1, Verdict: "ordinary",
 		},
 	}
 }
