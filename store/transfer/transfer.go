@@ -1,0 +1,559 @@
+// Package transfer copies a plumb history from one store to another, for
+// instance from a line's SQLite file into the PostgreSQL database a fleet
+// of daemons shares:
+//
+//	from, _ := sqlite.Open(ctx, "plumb.db")
+//	to, _ := postgres.Open(ctx, "postgres://plumb@db.example/plumb")
+//	rep, err := transfer.Copy(ctx, from, to, transfer.Options{})
+//
+// Copy writes through the store.Store interface only, so every invariant
+// of the target holds (rows and read positions in one transaction, each
+// row once). It is idempotent: a second run copies nothing and verifies
+// the counts again; a run that was interrupted continues where it
+// stopped. The daemons of the copied models must be stopped while it
+// runs (neither store may change underneath it).
+//
+// What is copied, per model: every observation with its provenance (file,
+// generation, line, the line's text), values and arrival diagnostics;
+// every quarantined row; each file's read state (so a daemon pointed at
+// the target resumes where the source's stopped); every fit in order with
+// the verdict changes it caused; the model's state. Then every alert with
+// its outbox entries and their delivery state. Observation and fit ids
+// are the target's own: a fit's LastObsID and a verdict change's
+// observation are mapped to the copied observations' ids. Ids quoted
+// inside a fit's Detail document are copied as they are.
+package transfer
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"slices"
+	"sort"
+	"strings"
+
+	"plumb/store"
+)
+
+// ModelLister is implemented by stores that can list every model they
+// hold (both of plumb's backends do). Copy needs it of the source.
+type ModelLister interface {
+	Models(ctx context.Context) ([]string, error)
+}
+
+// ChangeLister is implemented by stores that can list all verdict changes
+// of a model in one query. Without it Copy asks for each observation's
+// changes in turn.
+type ChangeLister interface {
+	ModelVerdictChanges(ctx context.Context, model string) ([]store.VerdictChange, error)
+}
+
+// Options tunes Copy.
+type Options struct {
+	// BatchRows is the number of observations per Ingest (default 5000).
+	BatchRows int
+	// Progress, when set, is called after each model with its counts.
+	Progress func(ModelCount)
+}
+
+// ModelCount is what Copy found of one model in the source, wrote, and
+// then verified in the target.
+type ModelCount struct {
+	Model          string
+	Observations   int64 // in the source, equal in the target
+	Quarantined    int64
+	Fits           int64
+	VerdictChanges int64
+	// Copied counts what this run wrote (0 on a repeated run).
+	CopiedObservations, CopiedQuarantined, CopiedFits int64
+}
+
+// Report is the outcome of Copy: the counts of every model, verified.
+type Report struct {
+	Models     []ModelCount
+	Alerts     int64 // in the source, all present in the target
+	Deliveries int64
+	// CopiedAlerts and CopiedDeliveries count what this run wrote.
+	CopiedAlerts, CopiedDeliveries int64
+}
+
+// ErrMismatch is returned (wrapped) when the target holds a different
+// history for a model than the source (for instance rows that the source
+// lacks), so that copying would mix two histories, or when the counts do
+// not agree after the copy.
+var ErrMismatch = errors.New("transfer: target and source histories differ")
+
+// Copy copies every model's history, then the alert ledger, from src to
+// dst, and verifies the counts (see the package documentation). src must
+// implement ModelLister.
+func Copy(ctx context.Context, src, dst store.Store, opt Options) (Report, error) {
+	var rep Report
+	if opt.BatchRows <= 0 {
+		opt.BatchRows = 5000
+	}
+	ml, ok := src.(ModelLister)
+	if !ok {
+		return rep, fmt.Errorf("transfer: the source store (%T) cannot list its models", src)
+	}
+	models, err := ml.Models(ctx)
+	if err != nil {
+		return rep, err
+	}
+	states, err := src.ModelStates(ctx)
+	if err != nil {
+		return rep, err
+	}
+	for _, m := range models {
+		mc, err := copyModel(ctx, src, dst, m, opt)
+		if err != nil {
+			return rep, fmt.Errorf("transfer: model %s: %w", m, err)
+		}
+		for _, st := range states {
+			if st.Model == m {
+				if err := dst.SetModelState(ctx, st); err != nil {
+					return rep, fmt.Errorf("transfer: model %s: %w", m, err)
+				}
+			}
+		}
+		rep.Models = append(rep.Models, mc)
+		if opt.Progress != nil {
+			opt.Progress(mc)
+		}
+	}
+	if err := copyAlerts(ctx, src, dst, &rep); err != nil {
+		return rep, fmt.Errorf("transfer: alerts: %w", err)
+	}
+	return rep, nil
+}
+
+// key identifies a row of a file: its generation and line.
+type key struct{ gen, line int }
+
+// copyModel copies one model's files, then its fits, and verifies.
+func copyModel(ctx context.Context, src, dst store.Store, model string, opt Options) (ModelCount, error) {
+	mc := ModelCount{Model: model}
+	sources, err := src.Sources(ctx, model)
+	if err != nil {
+		return mc, err
+	}
+	dsources, err := dst.Sources(ctx, model)
+	if err != nil {
+		return mc, err
+	}
+	dstate := map[string]store.Source{}
+	for _, s := range dsources {
+		dstate[s.Path] = s
+	}
+	quar, err := src.Quarantined(ctx, model, 0, 0)
+	if err != nil {
+		return mc, err
+	}
+	dquar, err := dst.Quarantined(ctx, model, 0, 0)
+	if err != nil {
+		return mc, err
+	}
+	// idmap maps the source's observation ids to the target's.
+	idmap := map[int64]int64{}
+	for _, s := range sources {
+		d, has := dstate[s.Path]
+		if err := copySource(ctx, src, dst, s, d, has, quar, dquar, idmap, opt, &mc); err != nil {
+			return mc, fmt.Errorf("file %s: %w", s.Path, err)
+		}
+	}
+	for p := range dstate {
+		if !slices.ContainsFunc(sources, func(s store.Source) bool { return s.Path == p }) {
+			return mc, fmt.Errorf("%w: the target has file %s, the source does not", ErrMismatch, p)
+		}
+	}
+	if err := copyFits(ctx, src, dst, model, idmap, &mc); err != nil {
+		return mc, err
+	}
+	return mc, verifyModel(ctx, src, dst, &mc)
+}
+
+// copySource copies one file's rows, generation by generation in batches,
+// and ends at the source's read state. Rows the target holds already (a
+// repeated or interrupted run) are mapped, not written again. The
+// batches before the last carry made-up read offsets (1, 2, ... past the
+// target's) below the final one: the source keeps no intermediate
+// positions, and only the final one is ever read back.
+func copySource(ctx context.Context, src, dst store.Store, s, d store.Source, has bool,
+	quar, dquar []store.QuarantineRow, idmap map[int64]int64, opt Options, mc *ModelCount) error {
+	// What the target holds of this file (nothing when it does not know it).
+	present := map[key]int64{}
+	for after := int64(0); has; {
+		page, err := dst.Observations(ctx, s.Model, store.ObsQuery{Path: s.Path, AfterID: after, Limit: 10000})
+		if err != nil {
+			return err
+		}
+		if len(page) == 0 {
+			break
+		}
+		for _, o := range page {
+			present[key{o.Generation, o.Line}] = o.ID
+		}
+		after = page[len(page)-1].ID
+	}
+	qpresent := map[key]int{}
+	for _, q := range dquar {
+		if q.Path == s.Path {
+			qpresent[key{q.Generation, q.Line}]++
+		}
+	}
+	qbyGen := map[int][]store.QuarantineRow{}
+	for _, q := range quar {
+		if q.Path != s.Path {
+			continue
+		}
+		k := key{q.Generation, q.Line}
+		if qpresent[k] > 0 {
+			qpresent[k]--
+			continue
+		}
+		q.ID, q.Model, q.Path = 0, "", ""
+		qbyGen[q.Generation] = append(qbyGen[q.Generation], q)
+	}
+	if has && (d.Generation > s.Generation || (d.Generation == s.Generation && d.Offset > s.Offset)) {
+		return fmt.Errorf("%w: the target has read further (generation %d offset %d) than the source (generation %d offset %d)",
+			ErrMismatch, d.Generation, d.Offset, s.Generation, s.Offset)
+	}
+
+	// cur is the target's read state as the copy advances it.
+	cur := d
+	started := has
+	var pending *store.Batch
+	flush := func(final bool) error {
+		if pending == nil {
+			return nil
+		}
+		b := pending
+		pending = nil
+		st := s
+		g := b.Source.Generation
+		if final && g == s.Generation {
+			// st is the source's final state as it is.
+		} else {
+			st.Generation = g
+			st.Offset = 1
+			if started && cur.Generation == g {
+				st.Offset = cur.Offset + 1
+			}
+			if g == s.Generation && st.Offset >= s.Offset {
+				return fmt.Errorf("generation %d: no room for another batch below the final read offset %d", g, s.Offset)
+			}
+		}
+		if started && (g < cur.Generation || (g == cur.Generation && st.Offset <= cur.Offset)) {
+			if len(b.Observations) > 0 || len(b.Quarantine) > 0 {
+				return fmt.Errorf("%w: rows of generation %d are missing in the target, which has read generation %d to offset %d",
+					ErrMismatch, g, cur.Generation, cur.Offset)
+			}
+			return nil // nothing to write, position already there
+		}
+		b.Source = st
+		ids, err := dst.Ingest(ctx, *b)
+		if err != nil {
+			return err
+		}
+		for i, o := range b.Observations {
+			idmap[o.ID] = ids[i]
+		}
+		mc.CopiedObservations += int64(len(ids))
+		mc.CopiedQuarantined += int64(len(b.Quarantine))
+		cur, started = st, true
+		return nil
+	}
+	// add puts rows into the pending batch of generation g, flushing a full
+	// batch or one of another generation first.
+	add := func(g int, o *store.Observation) error {
+		if pending != nil && (pending.Source.Generation != g || len(pending.Observations) >= opt.BatchRows) {
+			if err := flush(false); err != nil {
+				return err
+			}
+		}
+		if pending == nil {
+			pending = &store.Batch{Source: store.Source{Generation: g}, Quarantine: qbyGen[g]}
+			delete(qbyGen, g)
+		}
+		if o != nil {
+			pending.Observations = append(pending.Observations, *o)
+		}
+		return nil
+	}
+	for after := int64(0); ; {
+		page, err := src.Observations(ctx, s.Model, store.ObsQuery{Path: s.Path, AfterID: after, Limit: opt.BatchRows})
+		if err != nil {
+			return err
+		}
+		if len(page) == 0 {
+			break
+		}
+		for i := range page {
+			o := page[i]
+			after = o.ID
+			if id, ok := present[key{o.Generation, o.Line}]; ok {
+				idmap[o.ID] = id
+				continue
+			}
+			// The quarantined rows of the generations before o's go first.
+			for _, g := range sortedGens(qbyGen) {
+				if g < o.Generation {
+					if err := add(g, nil); err != nil {
+						return err
+					}
+				}
+			}
+			gen := o.Generation
+			o.Model, o.Path, o.Generation = "", "", 0
+			if err := add(gen, &o); err != nil {
+				return err
+			}
+		}
+	}
+	for _, g := range sortedGens(qbyGen) {
+		if err := add(g, nil); err != nil {
+			return err
+		}
+	}
+	if pending != nil && pending.Source.Generation != s.Generation {
+		if err := flush(false); err != nil {
+			return err
+		}
+	}
+	if pending == nil && (!started || cur.Generation != s.Generation || cur.Offset != s.Offset) {
+		pending = &store.Batch{Source: store.Source{Generation: s.Generation}}
+	}
+	return flush(true)
+}
+
+func sortedGens(m map[int][]store.QuarantineRow) []int {
+	gs := make([]int, 0, len(m))
+	for g := range m {
+		gs = append(gs, g)
+	}
+	sort.Ints(gs)
+	return gs
+}
+
+// copyFits copies the model's fits the target lacks, oldest first, each
+// with its verdict changes, mapping observation ids.
+func copyFits(ctx context.Context, src, dst store.Store, model string, idmap map[int64]int64, mc *ModelCount) error {
+	fits, err := src.Fits(ctx, model, 0, 0)
+	if err != nil {
+		return err
+	}
+	have, err := dst.Fits(ctx, model, 0, 0)
+	if err != nil {
+		return err
+	}
+	if len(have) > len(fits) {
+		return fmt.Errorf("%w: the target has %d fits, the source %d", ErrMismatch, len(have), len(fits))
+	}
+	for i, f := range have {
+		if !f.At.Equal(fits[i].At) || f.N != fits[i].N {
+			return fmt.Errorf("%w: fit %d differs (at %v n %d in the target, at %v n %d in the source)",
+				ErrMismatch, i+1, f.At, f.N, fits[i].At, fits[i].N)
+		}
+	}
+	var changes []store.VerdictChange
+	if cl, ok := src.(ChangeLister); ok {
+		if changes, err = cl.ModelVerdictChanges(ctx, model); err != nil {
+			return err
+		}
+	} else {
+		for old := range idmap {
+			c, err := src.VerdictChanges(ctx, old)
+			if err != nil {
+				return err
+			}
+			changes = append(changes, c...)
+		}
+	}
+	mc.VerdictChanges = int64(len(changes))
+	byFit := map[int64][]store.VerdictChange{}
+	for _, c := range changes {
+		byFit[c.FitID] = append(byFit[c.FitID], c)
+	}
+	// olds are the source's observation ids in order, to map a fit's
+	// LastObsID (the newest observation the fit included).
+	olds := make([]int64, 0, len(idmap))
+	for old := range idmap {
+		olds = append(olds, old)
+	}
+	slices.Sort(olds)
+	for _, f := range fits[len(have):] {
+		cs := byFit[f.ID]
+		for i := range cs {
+			n, ok := idmap[cs[i].ObsID]
+			if !ok {
+				return fmt.Errorf("fit %d: verdict change of observation %d, which was not copied", f.ID, cs[i].ObsID)
+			}
+			cs[i].ObsID, cs[i].FitID = n, 0
+		}
+		if f.LastObsID != 0 {
+			i, _ := slices.BinarySearch(olds, f.LastObsID+1)
+			if i == 0 {
+				f.LastObsID = 0
+			} else {
+				f.LastObsID = idmap[olds[i-1]]
+			}
+		}
+		f.ID = 0
+		if _, err := dst.RecordFit(ctx, f, cs); err != nil {
+			return err
+		}
+		mc.CopiedFits++
+	}
+	return nil
+}
+
+// verifyModel compares the model's counts in both stores.
+func verifyModel(ctx context.Context, src, dst store.Store, mc *ModelCount) error {
+	type counter func(ctx context.Context, model string) (int64, error)
+	for _, c := range []struct {
+		what string
+		f    func(store.Store) counter
+		dst  *int64
+	}{
+		{"observations", func(s store.Store) counter { return s.CountObservations }, &mc.Observations},
+		{"quarantined rows", func(s store.Store) counter { return s.CountQuarantined }, &mc.Quarantined},
+		{"fits", func(s store.Store) counter { return s.CountFits }, &mc.Fits},
+	} {
+		a, err := c.f(src)(ctx, mc.Model)
+		if err != nil {
+			return err
+		}
+		b, err := c.f(dst)(ctx, mc.Model)
+		if err != nil {
+			return err
+		}
+		if a != b {
+			return fmt.Errorf("%w: %d %s in the source, %d in the target", ErrMismatch, a, c.what, b)
+		}
+		*c.dst = a
+	}
+	ss, err := src.Sources(ctx, mc.Model)
+	if err != nil {
+		return err
+	}
+	ds, err := dst.Sources(ctx, mc.Model)
+	if err != nil {
+		return err
+	}
+	if len(ss) != len(ds) {
+		return fmt.Errorf("%w: %d files in the source, %d in the target", ErrMismatch, len(ss), len(ds))
+	}
+	for i := range ss {
+		a, b := ss[i], ds[i]
+		if a.Path != b.Path || a.Generation != b.Generation || a.Offset != b.Offset || a.Line != b.Line ||
+			a.Inode != b.Inode || a.Size != b.Size || a.Fingerprint != b.Fingerprint ||
+			a.FingerprintLen != b.FingerprintLen || a.Header != b.Header || a.Rows != b.Rows || a.Quarantined != b.Quarantined {
+			return fmt.Errorf("%w: read state of %s: %+v in the source, %+v in the target", ErrMismatch, a.Path, a, b)
+		}
+	}
+	return nil
+}
+
+// copyAlerts copies every alert whose stored form the target lacks, with
+// the outbox entries the target lacks (matched by route and event id, or
+// by route and creation time for an entry without an event id).
+func copyAlerts(ctx context.Context, src, dst store.Store, rep *Report) error {
+	alerts, err := src.Alerts(ctx, store.AlertQuery{})
+	if err != nil {
+		return err
+	}
+	deliveries, err := src.Deliveries(ctx, "", 0)
+	if err != nil {
+		return err
+	}
+	have, err := dst.Deliveries(ctx, "", 0)
+	if err != nil {
+		return err
+	}
+	type dkey struct {
+		alert, route, event string
+		created             int64
+	}
+	dk := func(d store.Delivery) dkey {
+		k := dkey{alert: d.AlertID, route: d.Route, event: d.EventID}
+		if d.EventID == "" {
+			k.created = d.CreatedAt.UnixNano()
+		}
+		return k
+	}
+	present := map[dkey]bool{}
+	for _, d := range have {
+		present[dk(d)] = true
+	}
+	byAlert := map[string][]store.Delivery{}
+	for i := len(deliveries) - 1; i >= 0; i-- { // oldest first
+		d := deliveries[i]
+		if present[dk(d)] {
+			continue
+		}
+		d.ID = 0
+		byAlert[d.AlertID] = append(byAlert[d.AlertID], d)
+	}
+	rep.Alerts, rep.Deliveries = int64(len(alerts)), int64(len(deliveries))
+	for i := len(alerts) - 1; i >= 0; i-- {
+		a := alerts[i]
+		ds := byAlert[a.ID]
+		delete(byAlert, a.ID)
+		got, err := dst.Alert(ctx, a.ID)
+		same := err == nil && got.State == a.State && got.Doc == a.Doc && got.LastSeen.Equal(a.LastSeen) &&
+			got.Severity == a.Severity && got.FirstSeen.Equal(a.FirstSeen)
+		if err != nil && !errors.Is(err, store.ErrNotFound) {
+			return err
+		}
+		if same && len(ds) == 0 {
+			continue
+		}
+		a.Revision = 0
+		if err := dst.PutAlert(ctx, a, ds); err != nil {
+			return err
+		}
+		if !same {
+			rep.CopiedAlerts++
+		}
+		rep.CopiedDeliveries += int64(len(ds))
+	}
+	if len(byAlert) > 0 {
+		return fmt.Errorf("%d outbox entries belong to no alert of the source", len(byAlert))
+	}
+	// Verify: every alert and every outbox entry of the source is in the target.
+	for _, a := range alerts {
+		got, err := dst.Alert(ctx, a.ID)
+		if err != nil {
+			return err
+		}
+		if got.State != a.State || got.Doc != a.Doc {
+			return fmt.Errorf("%w: alert %s is %s in the source, %s in the target", ErrMismatch, a.ID, a.State, got.State)
+		}
+	}
+	have, err = dst.Deliveries(ctx, "", 0)
+	if err != nil {
+		return err
+	}
+	present = map[dkey]bool{}
+	for _, d := range have {
+		present[dk(d)] = true
+	}
+	for _, d := range deliveries {
+		if !present[dk(d)] {
+			return fmt.Errorf("%w: outbox entry %s/%s of alert %s missing in the target", ErrMismatch, d.Route, d.EventID, d.AlertID)
+		}
+	}
+	return nil
+}
+
+// String describes the report, one line per model, then the alerts: the
+// verified counts, and what this run copied.
+func (r Report) String() string {
+	var b strings.Builder
+	for _, m := range r.Models {
+		fmt.Fprintf(&b, "model %s: %d observations, %d quarantined rows, %d fits, %d verdict changes verified (copied now: %d, %d, %d)\n",
+			m.Model, m.Observations, m.Quarantined, m.Fits, m.VerdictChanges, m.CopiedObservations, m.CopiedQuarantined, m.CopiedFits)
+	}
+	fmt.Fprintf(&b, "alerts: %d verified (copied now: %d); outbox entries: %d verified (copied now: %d)\n",
+		r.Alerts, r.CopiedAlerts, r.Deliveries, r.CopiedDeliveries)
+	return b.String()
+}
