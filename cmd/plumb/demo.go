@@ -202,7 +202,7 @@ func (o *demoOut) alert(a *alerts.Alert) {
 	}
 	o.printf("\n  >> ALERT %s: %s [%s, %s] %s\n", verb, a.Kind, a.Severity, a.Subject, a.Summary)
 	for _, m := range a.Measures {
-		what := m.Name
+		what := m.Measure
 		if m.Term != "" {
 			what += "[" + m.Term + "]"
 		}

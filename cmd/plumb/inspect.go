@@ -1418,7 +1418,7 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 	dst = append(dst, `,"verdict":"`...)
 	dst = append(dst, v.Word()...)
 	dst = append(dst, '"')
-	flag("outlier", v.Outlier)
+	flag("outlier", v.Outlier) // JSON keys
 	flag("influential", v.Influential)
 	flag("notable", v.Notable)
 	dst = append(dst, `,"flags":[`...)
@@ -1752,26 +1752,26 @@ func appendSpaces(b []byte, n int) []byte {
 // verdictWords turns the engine's verdict into the table's words.
 func verdictWords(v engine.Verdict) string {
 	switch v.Word() {
-	case "suspect":
+	case engine.WordSuspect:
 		return "SUSPECT: an outlier that also sways the fit"
-	case "influential":
+	case engine.WordInfluential:
 		return "sways the fit"
-	case "outlier":
+	case engine.WordOutlier:
 		return "does not follow the fit (outlier)"
-	case "notable":
+	case engine.WordNotable:
 		return "worth a second glance"
 	}
-	return v.Word()
+	return string(v.Word())
 }
 
 func shortVerdict(v engine.Verdict) string {
 	switch v.Word() {
-	case "ordinary":
+	case engine.WordOrdinary:
 		return "-"
-	case "influential":
+	case engine.WordInfluential:
 		return "sways fit"
 	}
-	return v.Word()
+	return string(v.Word())
 }
 
 // maxLookRows bounds the "worth a look" list of the table.
@@ -1833,12 +1833,12 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 			}
 		}
 		if rest := look[len(shown):]; len(rest) > 0 {
-			count := map[string]int{}
+			count := map[engine.Word]int{}
 			for _, i := range rest {
 				count[r.verdicts[i].Word()]++
 			}
 			var parts []string
-			for _, w := range []string{"suspect", "influential", "outlier", "notable"} {
+			for _, w := range []engine.Word{engine.WordSuspect, engine.WordInfluential, engine.WordOutlier, engine.WordNotable} {
 				if count[w] > 0 {
 					parts = append(parts, fmt.Sprintf("%d %s", count[w], w))
 				}

@@ -20,6 +20,7 @@ import (
 	"sync"
 	"time"
 
+	"plumb/engine"
 	"plumb/store"
 )
 
@@ -114,6 +115,7 @@ func copyObs(o store.Observation) store.Observation {
 		if len(d.DFBETAS) == 0 {
 			d.DFBETAS = nil
 		}
+		d.Flags = store.CopyFlags(d.Flags)
 		o.Arrival = &d
 	}
 	return o
@@ -320,6 +322,7 @@ func (s *Store) RecordFit(ctx context.Context, f store.FitRecord, changes []stor
 			c.At = f.At
 		}
 		c.At = utc(c.At)
+		c.Flags = store.CopyFlags(c.Flags)
 		s.changes[c.ObsID] = append(s.changes[c.ObsID], c)
 	}
 	return f.ID, nil
@@ -395,17 +398,21 @@ func (s *Store) VerdictChanges(ctx context.Context, obsID int64) ([]store.Verdic
 		return nil, fmt.Errorf("store: verdict changes of observation %d: %w", obsID, err)
 	}
 	defer s.mu.Unlock()
-	return slices.Clone(s.changes[obsID]), nil
+	cs := slices.Clone(s.changes[obsID])
+	for i := range cs {
+		cs[i].Flags = store.CopyFlags(cs[i].Flags)
+	}
+	return cs, nil
 }
 
 // CurrentVerdicts returns the latest verdict of each of the model's
 // observations whose latest verdict differs from its arrival verdict.
-func (s *Store) CurrentVerdicts(ctx context.Context, model string) (map[int64]string, error) {
+func (s *Store) CurrentVerdicts(ctx context.Context, model string) (map[int64]engine.Word, error) {
 	if err := s.begin(ctx); err != nil {
 		return nil, fmt.Errorf("store: current verdicts %s: %w", model, err)
 	}
 	defer s.mu.Unlock()
-	out := make(map[int64]string)
+	out := make(map[int64]engine.Word)
 	for id, cs := range s.changes {
 		o := s.obs[s.obsIdx[id]]
 		if o.Model != model || len(cs) == 0 {

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"strings"
 
+	"plumb/engine"
 	"plumb/store"
 
 	msqlite "modernc.org/sqlite"
@@ -144,8 +145,10 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 			a[15] = encFloats(d.DFBETAS)
 			a[16] = encReal(d.COVRATIO)
 			a[17] = encReal(d.OutlierPBonferroni)
-			a[18] = d.Verdict
-			a[19] = d.Flags
+			a[18] = string(d.Verdict)
+			if a[19], err = encFlags(d.Flags); err != nil {
+				return fail(fmt.Errorf("observation line %d flags: %w", o.Line, err))
+			}
 		}
 	}
 	qargs := make([][]any, len(b.Quarantine))
@@ -350,8 +353,10 @@ func scanObs(sc *sql.Rows, o *store.Observation, sourceID *int64) error {
 			DFFITS:              decReal(dff),
 			COVRATIO:            decReal(cov),
 			OutlierPBonferroni:  decReal(outp),
-			Verdict:             verdict.String,
-			Flags:               flags.String,
+			Verdict:             engine.Word(verdict.String),
+		}
+		if d.Flags, err = decFlags(flags); err != nil {
+			return fmt.Errorf("observation %d: %w", o.ID, err)
 		}
 		if d.DFBETAS, err = decFloats(dfb); err != nil {
 			return fmt.Errorf("observation %d DFBETAS: %w", o.ID, err)

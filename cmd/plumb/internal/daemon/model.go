@@ -2,7 +2,6 @@ package daemon
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"log/slog"
@@ -56,8 +55,8 @@ type modelRT struct {
 	lines   []int32
 	times   []int64 // unix nanoseconds; 0 when the model has no time column
 	vals    [][]float64
-	arrival []string // verdict at arrival ("" when not judged then)
-	current []string // latest verdict ("" when never judged)
+	arrival []engine.Word // verdict at arrival ("" when not judged then)
+	current []engine.Word // latest verdict ("" when never judged)
 
 	pathNames []string
 	pathIdx   map[string]int32
@@ -70,9 +69,9 @@ type modelRT struct {
 	fits         int64
 	lastArrival  time.Time
 
-	// pendingSuspects are rows (indices) judged suspect at arrival whose
-	// alert waits for the next refresh (which supplies the suggestion).
-	pendingSuspects []int
+	// pendingSuspects are rows judged suspect at arrival whose alert waits
+	// for the next refresh (which supplies the suggestion).
+	pendingSuspects []suspect
 
 	// Latest refresh.
 	fit       *engine.Fit
@@ -87,6 +86,13 @@ type modelRT struct {
 	refreshNs int64
 	baseline  *baseline
 	dirty     bool
+}
+
+// suspect is a row judged suspect at arrival, with the cutoffs it crossed
+// then: the alert is built from these, as the pipeline judged the row.
+type suspect struct {
+	row   int // data index
+	flags []engine.Flag
 }
 
 // baseline is the fit that drift is measured against.
@@ -208,7 +214,7 @@ func (m *modelRT) restore(ctx context.Context, s store.Store) error {
 				continue
 			}
 			m.online.Add(m.xrow, o.Values[0])
-			arr := ""
+			var arr engine.Word
 			if o.Arrival != nil {
 				arr = o.Arrival.Verdict
 			}
@@ -248,7 +254,7 @@ func (m *modelRT) restore(ctx context.Context, s store.Store) error {
 	return nil
 }
 
-func (m *modelRT) appendRow(id int64, path string, line int, t int64, v []float64, arrival, current string) {
+func (m *modelRT) appendRow(id int64, path string, line int, t int64, v []float64, arrival, current engine.Word) {
 	m.ids = append(m.ids, id)
 	m.paths = append(m.paths, m.pathIndex(path))
 	m.lines = append(m.lines, int32(line))
@@ -352,13 +358,13 @@ func (m *modelRT) ingest(ctx context.Context, b watcher.Batch) error {
 		return err
 	}
 	for i, p := range rows {
-		arr := ""
+		var arr engine.Word
 		if p.diag != nil {
 			arr = p.diag.Verdict
 		}
 		m.appendRow(ids[i], b.Path, p.rec.Line, p.t, p.vals, arr, arr)
-		if arr == "suspect" {
-			m.pendingSuspects = append(m.pendingSuspects, len(m.ids)-1)
+		if arr == engine.WordSuspect {
+			m.pendingSuspects = append(m.pendingSuspects, suspect{row: len(m.ids) - 1, flags: p.diag.Flags})
 		}
 	}
 	m.quarantined += int64(len(quar))
@@ -388,38 +394,13 @@ func quarantineRow(model string, b watcher.Batch, rec decode.Record, col int, re
 // diagnostics converts the engine's measures of one row, with its DFBETAS,
 // into the stored form.
 func diagnostics(o engine.Obs, dfb []float64, v engine.Verdict) *store.Diagnostics {
-	flags, _ := json.Marshal(flagsJSON(v.Flags))
 	return &store.Diagnostics{
 		Leverage: o.Leverage, Residual: o.Residual,
 		StudentizedInternal: o.StudentInternal, StudentizedExternal: o.StudentExternal,
 		CooksDistance: o.Cook, DFFITS: o.DFFITS, DFBETAS: slices.Clone(dfb),
 		COVRATIO: o.COVRATIO, OutlierPBonferroni: o.BonferroniP,
-		Verdict: v.Word(), Flags: string(flags),
+		Verdict: v.Word(), Flags: slices.Clone(v.Flags),
 	}
-}
-
-// flagJSON is a crossed cutoff as stored and sent.
-type flagJSON struct {
-	Measure string  `json:"measure"`
-	Family  string  `json:"family"`
-	Term    string  `json:"term,omitempty"`
-	Value   float64 `json:"value"`
-	Cutoff  float64 `json:"cutoff"`
-}
-
-func flagsJSON(fs []engine.Flag) []flagJSON {
-	out := make([]flagJSON, 0, len(fs))
-	for _, f := range fs {
-		out = append(out, flagJSON{Measure: f.Measure, Family: f.Family, Term: f.Term, Value: finite(f.Value), Cutoff: finite(f.Cutoff)})
-	}
-	return out
-}
-
-func finite(v float64) float64 {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0
-	}
-	return v
 }
 
 // judgeArrival judges one arriving row against the online fit that

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"plumb/alerts"
+	"plumb/cmd/plumb/internal/view"
 	"plumb/engine"
 	"plumb/store"
 )
@@ -111,9 +112,8 @@ func (m *modelRT) refresh(ctx context.Context) error {
 	for i, r := range win {
 		w := verdicts[i].Word()
 		if m.current[r] != w {
-			fl, _ := json.Marshal(flagsJSON(verdicts[i].Flags))
-			changes = append(changes, store.VerdictChange{ObsID: m.ids[r], At: now, From: m.current[r], To: w, Flags: string(fl)})
-			if m.current[r] == "suspect" {
+			changes = append(changes, store.VerdictChange{ObsID: m.ids[r], At: now, From: m.current[r], To: w, Flags: verdicts[i].Flags})
+			if m.current[r] == engine.WordSuspect {
 				resolvedSuspects = append(resolvedSuspects, r)
 			}
 			m.current[r] = w
@@ -135,7 +135,7 @@ func (m *modelRT) refresh(ctx context.Context) error {
 			maxCook = o.Cook
 		}
 	}
-	detail := map[string]any{"max_cooks_distance": finite(maxCook), "adj_r_squared": finite(fit.AdjRSquared), "df": fit.DF}
+	detail := map[string]any{"max_cooks_distance": view.Float(maxCook), "adj_r_squared": view.Float(fit.AdjRSquared), "df": fit.DF}
 	if frag != nil {
 		rec.FragilityK = m.cfg.Fragility.MaxRemoved
 		rec.Fragility = -1
@@ -147,7 +147,7 @@ func (m *modelRT) refresh(ctx context.Context) error {
 	if len(sugg) > 0 {
 		ss := make([]map[string]any, len(sugg))
 		for i, s := range sugg {
-			ss[i] = map[string]any{"at": s.At, "replicates": s.Replicates, "d_gain": finite(s.DGain), "text": s.Text}
+			ss[i] = map[string]any{"at": s.At, "replicates": s.Replicates, "d_gain": view.Float(s.DGain), "text": s.Text}
 		}
 		detail["suggestions"] = ss
 	}
@@ -186,8 +186,8 @@ func (m *modelRT) refresh(ctx context.Context) error {
 	if len(sugg) > 0 {
 		top = alertSuggestion(sugg[0])
 	}
-	for _, r := range pendingSuspects {
-		m.reportPoint(ctx, r, top)
+	for _, sp := range pendingSuspects {
+		m.reportPoint(ctx, sp, top)
 	}
 	for _, r := range resolvedSuspects {
 		m.mu.Lock()
@@ -227,7 +227,7 @@ func (m *modelRT) refresh(ctx context.Context) error {
 // keeps one bad reading from raising two alerts. Nothing is removed from
 // the data or the history.
 func (m *modelRT) driftFit(cols map[string][]float64, verdicts []engine.Verdict, fit *engine.Fit) *engine.Fit {
-	suspects := engine.Flagged(verdicts, "suspect")
+	suspects := engine.Flagged(verdicts, engine.WordSuspect)
 	if len(suspects) == 0 {
 		return fit
 	}
@@ -303,19 +303,13 @@ func (m *modelRT) valuesOf(r int) alerts.Values {
 	return v
 }
 
-func (m *modelRT) reportPoint(ctx context.Context, r int, sugg *alerts.Suggestion) {
+// reportPoint reports a row judged suspect at arrival, with the cutoffs it
+// crossed then.
+func (m *modelRT) reportPoint(ctx context.Context, sp suspect, sugg *alerts.Suggestion) {
 	m.mu.Lock()
-	path, line := m.pathNames[m.paths[r]], int(m.lines[r])
-	vals := m.valuesOf(r)
-	id := m.ids[r]
+	path, line := m.pathNames[m.paths[sp.row]], int(m.lines[sp.row])
+	vals := m.valuesOf(sp.row)
 	m.mu.Unlock()
-	o, err := m.d.store.ObservationAt(ctx, m.cfg.Name, path, line)
-	if err != nil || o.ID != id || o.Arrival == nil {
-		m.log.Error("suspect point: arrival diagnostics", "file", path, "line", line, "err", err)
-		return
-	}
-	var fl []flagJSON
-	_ = json.Unmarshal([]byte(o.Arrival.Flags), &fl)
 	c := alerts.PointCondition{Model: m.cfg.Name, File: path, Line: line, Values: vals, Outlier: true, Influential: true, Suggestion: sugg}
 	// The alert names the outlier test and the cutoffs of the family that
 	// decides "influential"; the other family's flags stay with the
@@ -324,11 +318,11 @@ func (m *modelRT) reportPoint(ctx context.Context, r int, sugg *alerts.Suggestio
 	if m.cut.Family == engine.SizeAdjusted {
 		deciding = engine.FamilySizeAdjusted
 	}
-	for _, f := range fl {
+	for _, f := range sp.flags {
 		if f.Family != deciding && f.Family != engine.FamilyTest {
 			continue
 		}
-		c.Measures = append(c.Measures, alerts.Measure{Name: f.Measure, Family: f.Family, Term: f.Term, Value: f.Value, Cutoff: f.Cutoff})
+		c.Measures = append(c.Measures, alerts.Measure(f))
 	}
 	if err := m.d.point(ctx, c); err != nil {
 		m.log.Error("alert", "err", err)
@@ -375,8 +369,8 @@ func (m *modelRT) fragilityJSON(win []int, f *engine.FragilityResult) map[string
 		}
 		out["removed"] = rows
 		out["conclusion"] = f.Conclusion
-		out["before"] = finite(f.Before)
-		out["after"] = finite(f.After)
+		out["before"] = view.Float(f.Before)
+		out["after"] = view.Float(f.After)
 	} else {
 		out["index"] = nil
 	}

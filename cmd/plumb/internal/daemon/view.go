@@ -99,7 +99,7 @@ func (m *modelRT) summary(openAlerts int) view.ModelSummary {
 		}
 		s.MaxCook = view.Float(mc)
 		for _, vd := range m.verdicts {
-			if vd.Word() == "suspect" {
+			if vd.Word() == engine.WordSuspect {
 				s.Suspects++
 			}
 		}
@@ -154,12 +154,12 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 			X: map[string]view.Float{}, Y: view.Float(m.vals[0][r]), Fitted: view.Float(f.Fitted[i]),
 			Residual: view.Float(o.Residual), Leverage: view.Float(o.Leverage),
 			StudentizedExternal: view.Float(o.StudentExternal), Cook: view.Float(o.Cook),
-			DFFITS: view.Float(o.DFFITS), BonferroniP: view.Float(o.BonferroniP), Verdict: m.verdicts[i].Word()}
+			DFFITS: view.Float(o.DFFITS), BonferroniP: view.Float(o.BonferroniP), Verdict: string(m.verdicts[i].Word())}
 		for j, c := range m.cols {
 			p.X[c] = view.Float(m.vals[1+j][r])
 		}
 		for _, fl := range m.verdicts[i].Flags {
-			p.Flags = append(p.Flags, view.Flag{Measure: fl.Measure, Family: fl.Family, Term: fl.Term, Value: view.Float(fl.Value), Cutoff: view.Float(fl.Cutoff)})
+			p.Flags = append(p.Flags, view.Flag(fl))
 		}
 		d.Points = append(d.Points, p)
 	}
@@ -332,11 +332,11 @@ func (v viewSource) Observations(ctx context.Context, name string, after int64, 
 			ov.Values = append(ov.Values, view.Float(x))
 		}
 		if a := o.Arrival; a != nil {
-			ov.ArrivalVerdict, ov.Verdict = a.Verdict, a.Verdict
+			ov.ArrivalVerdict, ov.Verdict = string(a.Verdict), string(a.Verdict)
 			ov.Leverage, ov.Cook, ov.StudentizedExternal = view.Float(a.Leverage), view.Float(a.CooksDistance), view.Float(a.StudentizedExternal)
 		}
 		if w, ok := cur[o.ID]; ok {
-			ov.Verdict = w
+			ov.Verdict = string(w)
 		}
 		out[i] = ov
 	}
