@@ -2,8 +2,8 @@ package sqlite_test
 
 import (
 	"context"
-	"flag"
 	"encoding/json"
+	"flag"
 	"fmt"
 	"math"
 	"os"
