@@ -14,6 +14,7 @@ import (
 	"math"
 	"os"
 	"runtime"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -21,6 +22,7 @@ import (
 	"sync/atomic"
 	"unicode/utf8"
 
+	"plumb/cmd/plumb/internal/analysis"
 	"plumb/cmd/plumb/internal/numfmt"
 	"plumb/engine"
 	"plumb/watcher/decode"
@@ -133,12 +135,12 @@ func runInspect(ctx context.Context, e *env, args []string) error {
 		}
 		// The csv format is one line per row; the fragility and the
 		// suggestions go to standard error in words.
-		if res.fragility != nil {
+		if res.Fragility != nil {
 			for _, l := range res.fragilityLines() {
 				fmt.Fprintln(e.stderr, "fragility:", l)
 			}
 		}
-		if res.suggested {
+		if res.Suggested {
 			for _, l := range res.suggestionLines() {
 				fmt.Fprintln(e.stderr, "suggestion:", l)
 			}
@@ -932,34 +934,56 @@ func fieldPosition(text []byte, line int, delim byte, k int) (int, int) {
 	return line, 0
 }
 
-// inspectResult is everything the writers print.
+// inspectResult is everything the writers print: the analysis and the
+// file's rows.
 type inspectResult struct {
-	file     string
-	ds       *inspectData
-	model    engine.Model
-	names    []string
-	fit      *engine.Fit
-	inf      *engine.Influence
-	verdicts []engine.Verdict
-	cutoffs  engine.Cutoffs
-	limits   engine.Limits
+	*analysis.Result
+	file    string
+	ds      *inspectData
+	model   engine.Model
+	names   []string
+	cutoffs engine.Cutoffs
 
 	checkpoints []engine.Checkpoint
-
-	fragility   *engine.FragilityResult
-	suggestions []engine.Suggestion
-	suggested   bool
 }
 
 func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspectData) (*inspectResult, error) {
-	var fit *engine.Fit
+	if opt.suggest {
+		cols := m.Columns()
+		for c := range opt.region {
+			if !slices.Contains(cols, c) {
+				return nil, fmt.Errorf("inspect: %w: --region: %q is not a predictor column of the model (its columns: %s)", errUsage, c, strings.Join(cols, ", "))
+			}
+		}
+	}
+	res := &inspectResult{file: ds.file, ds: ds, model: m, names: m.Names(), cutoffs: opt.cutoffs, checkpoints: opt.checkpoints}
+	conc := engine.DefaultConclusions()
+	conc.Checkpoints = opt.checkpoints
+	a := analysis.Analysis{Model: m, Options: analysis.Options{
+		Cutoffs:          opt.cutoffs,
+		Conclusions:      conc,
+		Fragility:        opt.fragility,
+		FragilityOptions: engine.FragilityOptions{MaxRemoved: opt.maxRemoved},
+		Suggest:          opt.suggest,
+		SuggestOptions:   engine.SuggestOptions{Replicates: opt.replicates},
+		Region:           opt.region,
+		Label:            res.rowLabel,
+	}}
 	for {
 		if len(ds.rowNo) == 0 {
 			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: none of the %d data rows could be used", ds.file, ds.total)}
 		}
-		x, y, err := m.Design(ds.cols)
+		r, err := a.Run(ctx, ds.cols)
+		var se *analysis.StepError
+		if !errors.As(err, &se) {
+			if err != nil {
+				return nil, err // cancelled
+			}
+			res.Result = r
+			break
+		}
 		var de *engine.DataError
-		if errors.As(err, &de) && de.Row >= 0 && de.Row < len(ds.rowNo) {
+		if se.Step == analysis.StepDesign && errors.As(se.Err, &de) && de.Row >= 0 && de.Row < len(ds.rowNo) {
 			// A value the design cannot take (a power that overflows, say):
 			// set the row aside like an unreadable one and build again.
 			col := de.Column
@@ -972,71 +996,16 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 			ds.drop([]int{de.Row})
 			continue
 		}
-		if err != nil {
-			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %w", ds.file, err)}
+		if se.Step == analysis.StepRefit && errors.Is(se.Err, engine.ErrTooFewRows) {
+			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %d usable rows for %d coefficients: %w", ds.file, len(ds.rowNo), m.P(), se.Err)}
 		}
-		if err := ctx.Err(); err != nil {
-			return nil, err
-		}
-		fit, err = engine.Refit(m, x, y)
-		if err != nil {
-			if errors.Is(err, engine.ErrTooFewRows) {
-				return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %d usable rows for %d coefficients: %w", ds.file, len(ds.rowNo), m.P(), err)}
-			}
-			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %w", ds.file, err)}
-		}
-		break
+		return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %w", ds.file, se.Err)}
 	}
-	inf, verdicts := engine.Assess(fit, opt.cutoffs)
-	res := &inspectResult{
-		file:     ds.file,
-		ds:       ds,
-		model:    m,
-		names:    m.Names(),
-		fit:      fit,
-		inf:      inf,
-		verdicts: verdicts,
-		cutoffs:  opt.cutoffs,
-		limits:   engine.CutoffLimits(opt.cutoffs, fit.N, fit.P),
-
-		checkpoints: opt.checkpoints,
-	}
-	if !opt.fragility && !opt.suggest {
-		return res, nil
-	}
-	conc := engine.DefaultConclusions()
-	conc.Checkpoints = opt.checkpoints
-	fopt := engine.FragilityOptions{MaxRemoved: opt.maxRemoved}
-	if opt.fragility {
-		fr, err := engine.Fragility(fit, inf, conc, fopt)
-		if err != nil {
-			return nil, fmt.Errorf("inspect: %w: %v", errUsage, err)
+	for _, p := range res.Problems {
+		if p.Step == analysis.StepRegion {
+			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %w", ds.file, p.Err)}
 		}
-		res.fragility = &fr
-	}
-	if opt.suggest {
-		// The operating region: the observed range of each predictor
-		// column, with the columns given in --region replaced.
-		region, err := engine.RegionOf(m, ds.cols)
-		if err != nil {
-			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %w", ds.file, err)}
-		}
-		for c, b := range opt.region {
-			if _, ok := region[c]; !ok {
-				return nil, fmt.Errorf("inspect: %w: --region: %q is not a predictor column of the model (its columns: %s)", errUsage, c, strings.Join(m.Columns(), ", "))
-			}
-			region[c] = b
-		}
-		sg, err := engine.Suggest(fit, inf, res.verdicts, region, engine.SuggestOptions{
-			Replicates:  opt.replicates,
-			Conclusions: conc,
-			Fragility:   fopt,
-			Label:       res.rowLabel,
-		})
-		if err != nil {
-			return nil, fmt.Errorf("inspect: %w: %v", errUsage, err)
-		}
-		res.suggestions, res.suggested = sg, true
+		return nil, fmt.Errorf("inspect: %w: %v", errUsage, p.Err)
 	}
 	return res, nil
 }
@@ -1166,7 +1135,7 @@ func indexOrNull(k int) *int {
 }
 
 func (r *inspectResult) jsonFragility() *jsonFragility {
-	fr := r.fragility
+	fr := r.Fragility
 	if fr == nil {
 		return nil
 	}
@@ -1189,12 +1158,12 @@ func (r *inspectResult) jsonFragility() *jsonFragility {
 }
 
 func (r *inspectResult) jsonSuggestions() *[]jsonSuggestion {
-	if !r.suggested {
+	if !r.Suggested {
 		return nil
 	}
 	out := []jsonSuggestion{}
 	cols := r.model.Columns()
-	for _, sg := range r.suggestions {
+	for _, sg := range r.Suggestions {
 		at := jmap{}
 		for _, c := range cols {
 			if v, ok := sg.At[c]; ok {
@@ -1270,7 +1239,7 @@ type jsonReport struct {
 const cautionText = "plumb flags rows; it never alters a measurement. Decisions stay with qualified staff under local quality procedures."
 
 func writeInspectJSON(w io.Writer, r *inspectResult) error {
-	f := r.fit
+	f := r.Fit
 	rep := jsonReport{
 		File:        r.file,
 		Response:    r.model.Response,
@@ -1293,14 +1262,14 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 			Alpha:       jnum(r.cutoffs.Alpha),
 			OutlierTest: outlierTestName(r.cutoffs.Test),
 
-			Leverage:                  jnum(r.limits.Leverage),
-			CooksDistanceAbsolute:     jnum(r.limits.CookAbsolute),
-			CooksDistanceSizeAdjusted: jnum(r.limits.CookSize),
-			DFFITSAbsolute:            jnum(r.limits.DFFITSAbsolute),
-			DFFITSSizeAdjusted:        jnum(r.limits.DFFITSSize),
-			DFBETASAbsolute:           jnum(r.limits.DFBETASAbsolute),
-			DFBETASSizeAdjusted:       jnum(r.limits.DFBETASSize),
-			COVRATIO:                  jnum(r.limits.COVRATIO),
+			Leverage:                  jnum(r.Limits.Leverage),
+			CooksDistanceAbsolute:     jnum(r.Limits.CookAbsolute),
+			CooksDistanceSizeAdjusted: jnum(r.Limits.CookSize),
+			DFFITSAbsolute:            jnum(r.Limits.DFFITSAbsolute),
+			DFFITSSizeAdjusted:        jnum(r.Limits.DFFITSSize),
+			DFBETASAbsolute:           jnum(r.Limits.DFBETASAbsolute),
+			DFBETASSizeAdjusted:       jnum(r.Limits.DFBETASSize),
+			COVRATIO:                  jnum(r.Limits.COVRATIO),
 		},
 		Rejected:    r.ds.rejected,
 		Fragility:   r.jsonFragility(),
@@ -1346,7 +1315,7 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		qnames[j], _ = json.Marshal(n)
 	}
 	var buf []byte
-	for i := range r.inf.Rows {
+	for i := range r.Influence.Rows {
 		buf = buf[:0]
 		if i > 0 {
 			buf = append(buf, ',')
@@ -1355,7 +1324,7 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		buf = r.appendJSONRow(buf, i, qnames)
 		bw.Write(buf)
 	}
-	if len(r.inf.Rows) > 0 {
+	if len(r.Influence.Rows) > 0 {
 		bw.WriteString("\n  ")
 	}
 	bw.WriteString("]\n}\n")
@@ -1377,8 +1346,8 @@ func appendJSONString(dst []byte, s string) []byte {
 // appendJSONRow writes row i as one JSON object: row, line, fitted, the
 // measures, dfbetas by term, the verdict and the crossed cutoffs.
 func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte {
-	o := &r.inf.Rows[i]
-	v := &r.verdicts[i]
+	o := &r.Influence.Rows[i]
+	v := &r.Verdicts[i]
 	num := func(key string, x float64) {
 		dst = append(dst, ',', '"')
 		dst = append(dst, key...)
@@ -1395,7 +1364,7 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 	dst = strconv.AppendInt(dst, int64(r.ds.rowNo[i]), 10)
 	dst = append(dst, `,"line":`...)
 	dst = strconv.AppendInt(dst, int64(r.ds.line[i]), 10)
-	num("fitted", r.fit.Fitted[i])
+	num("fitted", r.Fit.Fitted[i])
 	num("leverage", o.Leverage)
 	num("residual", o.Residual)
 	num("studentized_internal", o.StudentInternal)
@@ -1403,7 +1372,7 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 	num("cooks_distance", o.Cook)
 	num("dffits", o.DFFITS)
 	dst = append(dst, `,"dfbetas":{`...)
-	for j, x := range r.inf.DFBETASRow(i) {
+	for j, x := range r.Influence.DFBETASRow(i) {
 		if j > 0 {
 			dst = append(dst, ',')
 		}
@@ -1503,8 +1472,8 @@ func (r *inspectResult) csvHeader() []byte {
 // appendCSVRows formats rows [lo, hi) onto dst.
 func (r *inspectResult) appendCSVRows(dst []byte, lo, hi int) []byte {
 	for i := lo; i < hi; i++ {
-		o := &r.inf.Rows[i]
-		v := &r.verdicts[i]
+		o := &r.Influence.Rows[i]
+		v := &r.Verdicts[i]
 		dst = strconv.AppendInt(dst, int64(r.ds.rowNo[i]), 10)
 		dst = append(dst, ',')
 		dst = strconv.AppendInt(dst, int64(r.ds.line[i]), 10)
@@ -1526,7 +1495,7 @@ func (r *inspectResult) appendCSVRows(dst []byte, lo, hi int) []byte {
 		dst = appendCSVNum(dst, o.Cook)
 		dst = append(dst, ',')
 		dst = appendCSVNum(dst, o.DFFITS)
-		for _, x := range r.inf.DFBETASRow(i) {
+		for _, x := range r.Influence.DFBETASRow(i) {
 			dst = append(dst, ',')
 			dst = appendCSVNum(dst, x)
 		}
@@ -1578,7 +1547,7 @@ func (r *inspectResult) appendFlagList(dst []byte, flags []engine.Flag) []byte {
 func writeInspectCSV(w io.Writer, r *inspectResult) error {
 	bw := bufio.NewWriterSize(w, 1<<16)
 	bw.Write(r.csvHeader())
-	n := len(r.inf.Rows)
+	n := len(r.Influence.Rows)
 	chunks := (n + csvChunk - 1) / csvChunk
 	workers := min(runtime.GOMAXPROCS(0), chunks)
 	if workers <= 1 {
@@ -1779,7 +1748,7 @@ const maxLookRows = 40
 
 func writeInspectTable(w io.Writer, r *inspectResult) error {
 	bw := bufio.NewWriterSize(w, 1<<16)
-	f := r.fit
+	f := r.Fit
 	terms := make([]string, len(r.model.Terms))
 	for i, t := range r.model.Terms {
 		terms[i] = t.Text
@@ -1802,13 +1771,13 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 
 	// Worth a look.
 	var look []int
-	for i, v := range r.verdicts {
+	for i, v := range r.Verdicts {
 		if v.Outlier || v.Influential || v.Notable {
 			look = append(look, i)
 		}
 	}
 	sort.SliceStable(look, func(a, b int) bool {
-		va, vb := r.verdicts[look[a]], r.verdicts[look[b]]
+		va, vb := r.Verdicts[look[a]], r.Verdicts[look[b]]
 		if rank(va) != rank(vb) {
 			return rank(va) > rank(vb)
 		}
@@ -1826,7 +1795,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 			shown = shown[:maxLookRows]
 		}
 		for _, i := range shown {
-			v := r.verdicts[i]
+			v := r.Verdicts[i]
 			fmt.Fprintf(bw, "  row %d (line %d): %s\n", r.ds.rowNo[i], r.ds.line[i], verdictWords(v))
 			for _, fl := range v.Flags {
 				fmt.Fprintf(bw, "      - %s\n", flagWords(fl))
@@ -1835,7 +1804,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 		if rest := look[len(shown):]; len(rest) > 0 {
 			count := map[engine.Word]int{}
 			for _, i := range rest {
-				count[r.verdicts[i].Word()]++
+				count[r.Verdicts[i].Word()]++
 			}
 			var parts []string
 			for _, w := range []engine.Word{engine.WordSuspect, engine.WordInfluential, engine.WordOutlier, engine.WordNotable} {
@@ -1874,14 +1843,14 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	}
 	bw.WriteByte('\n')
 
-	if r.fragility != nil {
+	if r.Fragility != nil {
 		bw.WriteString("== How fragile the conclusions are ==\n")
 		for _, l := range r.fragilityLines() {
 			bw.WriteString("  " + l + "\n")
 		}
 		bw.WriteByte('\n')
 	}
-	if r.suggested {
+	if r.Suggested {
 		bw.WriteString("== Where more readings would help ==\n")
 		for _, l := range r.suggestionLines() {
 			bw.WriteString("  " + l + "\n")
@@ -1893,9 +1862,9 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	fmt.Fprintf(bw, "== Every row, in file order ==\n")
 	g = grid{left: map[int]bool{9: true, 12: true}}
 	g.add("row", "line", "leverage", "residual", "stud. int.", "stud. ext.", "Cook's D", "DFFITS", "largest DFBETAS", "(term)", "COVRATIO", "Bonferroni p", "verdict")
-	for i, o := range r.inf.Rows {
+	for i, o := range r.Influence.Rows {
 		big, bigAt := math.NaN(), -1
-		for j, x := range r.inf.DFBETASRow(i) {
+		for j, x := range r.Influence.DFBETASRow(i) {
 			if bigAt < 0 || math.Abs(x) > math.Abs(big) {
 				big, bigAt = x, j
 			}
@@ -1906,7 +1875,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 		}
 		g.add(strconv.Itoa(r.ds.rowNo[i]), strconv.Itoa(r.ds.line[i]), num4(o.Leverage), num4(o.Residual),
 			num4(o.StudentInternal), num4(o.StudentExternal), num4(o.Cook), num4(o.DFFITS), dfb, dfbTerm,
-			num4(o.COVRATIO), pval(o.BonferroniP), shortVerdict(r.verdicts[i]))
+			num4(o.COVRATIO), pval(o.BonferroniP), shortVerdict(r.Verdicts[i]))
 	}
 	g.write(bw, "  ")
 	bw.WriteByte('\n')
@@ -1916,7 +1885,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 
 // writeLegend says which cutoffs decide, in words.
 func (r *inspectResult) writeLegend(bw *bufio.Writer) {
-	l := r.limits
+	l := r.Limits
 	abs := fmt.Sprintf("Cook's distance above %s, |DFFITS| above %s, |DFBETAS| above %s", num4(l.CookAbsolute), num4(l.DFFITSAbsolute), num4(l.DFBETASAbsolute))
 	size := fmt.Sprintf("leverage above %s, Cook's distance above %s, |DFFITS| above %s, |DFBETAS| above %s, COVRATIO more than %s from 1",
 		num4(l.Leverage), num4(l.CookSize), num4(l.DFFITSSize), num4(l.DFBETASSize), num4(l.COVRATIO))
@@ -1952,7 +1921,7 @@ func (r *inspectResult) rowList(ks []int) string {
 
 // fragilityLines says in words what the fragility search found.
 func (r *inspectResult) fragilityLines() []string {
-	fr := r.fragility
+	fr := r.Fragility
 	var out []string
 	if fr.Index == 0 {
 		out = append(out, fmt.Sprintf("No set of up to %d rows, left out together, breaks a conclusion.", fr.MaxRemoved))
@@ -1984,7 +1953,7 @@ func (r *inspectResult) fragilityLines() []string {
 }
 
 func (r *inspectResult) checkpointWords() string {
-	if r.fragility == nil && !r.suggested {
+	if r.Fragility == nil && !r.Suggested {
 		return ""
 	}
 	var parts []string
@@ -2005,11 +1974,11 @@ func (r *inspectResult) checkpointWords() string {
 
 // suggestionLines lists the proposed readings.
 func (r *inspectResult) suggestionLines() []string {
-	if len(r.suggestions) == 0 {
+	if len(r.Suggestions) == 0 {
 		return []string{"No point of the operating region would improve the fit."}
 	}
 	var out []string
-	for i, sg := range r.suggestions {
+	for i, sg := range r.Suggestions {
 		out = append(out, fmt.Sprintf("%d. %s", i+1, sg.Text))
 	}
 	out = append(out, "Proposals only: where and whether to measure is for qualified staff to decide.")

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"plumb/alerts"
+	"plumb/cmd/plumb/internal/analysis"
 	"plumb/cmd/plumb/internal/view"
 	"plumb/engine"
 	"plumb/store"
@@ -62,12 +63,14 @@ func (m *modelRT) refresh(ctx context.Context) error {
 		m.setState(ctx, stateWaiting, reason, "")
 		return nil
 	}
-	X, yy, err := m.spec.Design(cols)
-	var fit *engine.Fit
-	if err == nil {
-		fit, err = engine.Refit(m.spec, X, yy)
-	}
+	label := func(row int) string { return m.labelOf(win, row) }
+	res, err := m.analysis(label).Run(ctx, cols)
 	if err != nil {
+		var se *analysis.StepError
+		if !errors.As(err, &se) {
+			return err // cancelled
+		}
+		err = se.Err
 		cause := alerts.CauseNotFittable
 		switch {
 		case errors.Is(err, engine.ErrTooFewRows):
@@ -81,28 +84,10 @@ func (m *modelRT) refresh(ctx context.Context) error {
 		}
 		return nil
 	}
-	inf, verdicts := engine.Assess(fit, m.cut)
-
-	var frag *engine.FragilityResult
-	if *m.cfg.Fragility.Enabled {
-		fr, ferr := engine.Fragility(fit, inf, m.conclusions(), engine.FragilityOptions{
-			MaxRemoved: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit,
-		})
-		if ferr != nil {
-			m.log.Warn("fragility", "err", ferr)
-		} else {
-			frag = &fr
-		}
+	for _, p := range res.Problems {
+		m.log.Warn(string(p.Step), "err", p.Err)
 	}
-	label := func(row int) string { return m.labelOf(win, row) }
-	sugg, serr := engine.Suggest(fit, inf, verdicts, m.region(cols), engine.SuggestOptions{
-		Replicates: m.cfg.Suggest.Replicates, Top: m.cfg.Suggest.Count,
-		Conclusions: m.conclusions(), Fragility: engine.FragilityOptions{MaxRemoved: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit},
-		Label: label,
-	})
-	if serr != nil {
-		m.log.Warn("suggestions", "err", serr)
-	}
+	fit, inf, verdicts, frag, sugg := res.Fit, res.Influence, res.Verdicts, res.Fragility, res.Suggestions
 
 	// Verdict changes against the latest known verdict of each row.
 	m.mu.Lock()
@@ -329,6 +314,29 @@ func (m *modelRT) reportPoint(ctx context.Context, sp suspect, sugg *alerts.Sugg
 	}
 }
 
+// analysis is the model's analysis as configured: the judgement's
+// cutoffs, fragility when enabled, and suggestions over the configured
+// operating region (the observed range for the columns it leaves out).
+func (m *modelRT) analysis(label func(int) string) *analysis.Analysis {
+	fopt := engine.FragilityOptions{MaxRemoved: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit}
+	a := &analysis.Analysis{Model: m.spec, Options: analysis.Options{
+		Cutoffs:          m.cut,
+		Conclusions:      m.conclusions(),
+		Fragility:        *m.cfg.Fragility.Enabled,
+		FragilityOptions: fopt,
+		Suggest:          true,
+		SuggestOptions:   engine.SuggestOptions{Replicates: m.cfg.Suggest.Replicates, Top: m.cfg.Suggest.Count},
+		Region:           engine.Region{},
+		Label:            label,
+	}}
+	for c, b := range m.cfg.Region {
+		if len(b) == 2 {
+			a.Region[c] = [2]float64{b[0], b[1]}
+		}
+	}
+	return a
+}
+
 func (m *modelRT) conclusions() engine.Conclusions {
 	c := engine.DefaultConclusions()
 	c.Alpha = m.cfg.Judge.Alpha
@@ -339,24 +347,6 @@ func (m *modelRT) conclusions() engine.Conclusions {
 		c.Checkpoints = append(c.Checkpoints, engine.Checkpoint{Name: cp.Name, At: cp.At, Tolerance: cp.Tolerance})
 	}
 	return c
-}
-
-// region returns the configured operating region, with the observed range
-// for every predictor the config leaves out.
-func (m *modelRT) region(cols map[string][]float64) engine.Region {
-	r := engine.Region{}
-	for _, c := range m.cols {
-		if b, ok := m.cfg.Region[c]; ok && len(b) == 2 {
-			r[c] = [2]float64{b[0], b[1]}
-			continue
-		}
-		lo, hi := math.Inf(1), math.Inf(-1)
-		for _, v := range cols[c] {
-			lo, hi = min(lo, v), max(hi, v)
-		}
-		r[c] = [2]float64{lo, hi}
-	}
-	return r
 }
 
 func (m *modelRT) fragilityJSON(win []int, f *engine.FragilityResult) map[string]any {
