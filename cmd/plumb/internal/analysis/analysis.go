@@ -204,4 +204,3 @@ func (a *Analysis) suggest(r *Result) error {
 	r.Suggestions, r.Suggested = sg, true
 	return nil
 }
-
