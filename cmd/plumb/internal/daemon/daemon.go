@@ -63,7 +63,7 @@ type Daemon struct {
 	dispatch *alerts.Dispatcher
 
 	mu     sync.RWMutex
-	models map[string]*modelRT
+	models map[string]*watchedModel
 	order  []string
 	ready  bool
 
@@ -117,11 +117,11 @@ func (d *Daemon) Registry() *prometheus.Registry { return d.metrics.m.Registry()
 
 // build makes the models, the alert manager and the routes from cfg.
 func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
-	models := map[string]*modelRT{}
+	models := map[string]*watchedModel{}
 	var order []string
 	var errs []error
 	for _, mc := range cfg.Models {
-		m, err := newModelRT(d, mc)
+		m, err := newWatchedModel(d, mc)
 		if err != nil {
 			errs = append(errs, err)
 			continue
@@ -439,7 +439,7 @@ func (d *Daemon) refreshLoop(ctx context.Context, every time.Duration) {
 			if ctx.Err() != nil {
 				return
 			}
-			if err := models[name].refresh(ctx); err != nil && ctx.Err() == nil {
+			if err := models[name].ref.refresh(ctx); err != nil && ctx.Err() == nil {
 				models[name].log.Error("refresh", "err", err)
 			}
 		}
@@ -567,9 +567,9 @@ func (d *Daemon) RefreshAll(ctx context.Context) error {
 	for _, name := range order {
 		m := models[name]
 		m.mu.Lock()
-		m.dirty = true
+		m.ref.dirty = true
 		m.mu.Unlock()
-		if err := m.refresh(ctx); err != nil {
+		if err := m.ref.refresh(ctx); err != nil {
 			return fmt.Errorf("model %q: %w", name, err)
 		}
 	}
@@ -610,7 +610,7 @@ func (d *Daemon) Summary(ctx context.Context) (Summary, error) {
 		m.mu.Lock()
 		s.Rows += m.rowsAccepted
 		s.Quarantined += m.quarantined
-		s.Fits += m.fits
+		s.Fits += m.ref.fits
 		m.mu.Unlock()
 	}
 	as, err := d.store.Alerts(ctx, store.AlertQuery{})

@@ -36,7 +36,7 @@ func (v viewSource) Ready(ctx context.Context) error {
 	return nil
 }
 
-func (v viewSource) model(name string) (*modelRT, error) {
+func (v viewSource) model(name string) (*watchedModel, error) {
 	v.d.mu.RLock()
 	defer v.d.mu.RUnlock()
 	m := v.d.models[name]
@@ -79,26 +79,26 @@ func (v viewSource) openAlerts(ctx context.Context) (map[string]int, error) {
 	return counts, nil
 }
 
-func (m *modelRT) summary(openAlerts int) view.ModelSummary {
+func (m *watchedModel) summary(openAlerts int) view.ModelSummary {
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	s := view.ModelSummary{
 		Name: m.cfg.Name, State: m.state, Reason: m.reason, Response: m.spec.Response,
 		Terms: m.spec.Names(), Predictors: m.cols, Rows: m.rowsAccepted, Quarantined: m.quarantined,
-		Fits: m.fits, LastFitAt: m.fitAt, OpenAlerts: openAlerts, MaxCook: view.NaN(),
+		Fits: m.ref.fits, LastFitAt: m.ref.fitAt, OpenAlerts: openAlerts, MaxCook: view.NaN(),
 	}
-	if m.frag != nil {
+	if m.ref.frag != nil {
 		s.Fragility = m.fragView()
 	}
-	if m.inf != nil {
+	if m.ref.inf != nil {
 		mc := 0.0
-		for _, o := range m.inf.Rows {
+		for _, o := range m.ref.inf.Rows {
 			if o.Cook > mc {
 				mc = o.Cook
 			}
 		}
 		s.MaxCook = view.Float(mc)
-		for _, vd := range m.verdicts {
+		for _, vd := range m.ref.verdicts {
 			if vd.Word() == engine.WordSuspect {
 				s.Suspects++
 			}
@@ -108,17 +108,17 @@ func (m *modelRT) summary(openAlerts int) view.ModelSummary {
 }
 
 // fragView converts the latest fragility result. Caller holds mu.
-func (m *modelRT) fragView() view.Fragility {
+func (m *watchedModel) fragView() view.Fragility {
 	f := view.Fragility{Computed: true, K: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit,
-		Fragile: m.frag.Fragile, Searched: m.frag.Searched}
-	if m.frag.Index > 0 {
+		Fragile: m.ref.frag.Fragile, Searched: m.ref.frag.Searched}
+	if m.ref.frag.Index > 0 {
 		f.Found = true
-		f.Index = m.frag.Index
-		f.Conclusion = m.frag.Conclusion
-		for _, row := range m.frag.RemovedRows {
-			if row >= 1 && row <= len(m.window) {
-				r := m.window[row-1]
-				f.Rows = append(f.Rows, view.RowRef{ID: m.ids[r], File: m.pathNames[m.paths[r]], Line: int(m.lines[r])})
+		f.Index = m.ref.frag.Index
+		f.Conclusion = m.ref.frag.Conclusion
+		for _, row := range m.ref.frag.RemovedRows {
+			if row >= 1 && row <= len(m.ref.window) {
+				r := m.ref.window[row-1]
+				f.Rows = append(f.Rows, view.RowRef{ID: m.rows.ids[r], File: m.rows.path(r), Line: m.rows.line(r)})
 			}
 		}
 	}
@@ -137,28 +137,28 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 	d := view.ModelDetail{ModelSummary: m.summary(open[name])}
 	m.mu.Lock()
 	defer m.mu.Unlock()
-	if m.fit == nil {
+	if m.ref.fit == nil {
 		return d, nil
 	}
-	f := m.fit
-	d.FitID, d.FitAt, d.N, d.P = m.fitID, m.fitAt, f.N, f.P
+	f := m.ref.fit
+	d.FitID, d.FitAt, d.N, d.P = m.ref.fitID, m.ref.fitAt, f.N, f.P
 	d.Sigma, d.RSquared, d.AdjRSquared = view.Float(f.Sigma), view.Float(f.RSquared), view.Float(f.AdjRSquared)
 	for _, c := range f.Coef {
 		d.Coefficients = append(d.Coefficients, view.Coefficient{Term: c.Term, Estimate: view.Float(c.Estimate),
 			StdError: view.Float(c.StdError), T: view.Float(c.T), P: view.Float(c.P),
 			Lower95: view.Float(c.Lower95), Upper95: view.Float(c.Upper95)})
 	}
-	for i, r := range m.window {
-		o := m.inf.Rows[i]
-		p := view.Point{ID: m.ids[r], Row: i, File: m.pathNames[m.paths[r]], Line: int(m.lines[r]),
-			X: map[string]view.Float{}, Y: view.Float(m.vals[0][r]), Fitted: view.Float(f.Fitted[i]),
+	for i, r := range m.ref.window {
+		o := m.ref.inf.Rows[i]
+		p := view.Point{ID: m.rows.ids[r], Row: i, File: m.rows.path(r), Line: m.rows.line(r),
+			X: map[string]view.Float{}, Y: view.Float(m.rows.vals[0][r]), Fitted: view.Float(f.Fitted[i]),
 			Residual: view.Float(o.Residual), Leverage: view.Float(o.Leverage),
 			StudentizedExternal: view.Float(o.StudentExternal), Cook: view.Float(o.Cook),
-			DFFITS: view.Float(o.DFFITS), BonferroniP: view.Float(o.BonferroniP), Verdict: string(m.verdicts[i].Word())}
+			DFFITS: view.Float(o.DFFITS), BonferroniP: view.Float(o.BonferroniP), Verdict: string(m.ref.verdicts[i].Word())}
 		for j, c := range m.cols {
-			p.X[c] = view.Float(m.vals[1+j][r])
+			p.X[c] = view.Float(m.rows.vals[1+j][r])
 		}
-		for _, fl := range m.verdicts[i].Flags {
+		for _, fl := range m.ref.verdicts[i].Flags {
 			p.Flags = append(p.Flags, view.Flag(fl))
 		}
 		d.Points = append(d.Points, p)
@@ -169,14 +169,14 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 	d.Cutoffs = view.Cutoffs{Leverage: view.Float(lim.Leverage), CookAbsolute: view.Float(lim.CookAbsolute),
 		CookSizeAdjusted: view.Float(lim.CookSize), TCritical: view.Float(tcrit), Alpha: view.Float(m.cut.Alpha)}
 	d.Curves = m.curves()
-	for _, s := range m.sugg {
+	for _, s := range m.ref.sugg {
 		at := map[string]view.Float{}
 		for k, x := range s.At {
 			at[k] = view.Float(x)
 		}
 		d.Suggestions = append(d.Suggestions, view.Suggestion{At: at, Text: s.Text, DGain: view.Float(s.DGain), Replicates: s.Replicates})
 	}
-	if b := m.baseline; b != nil {
+	if b := m.ref.baseline; b != nil {
 		k := m.cfg.Alerts.Drift.K
 		for i, t := range b.terms {
 			if math.IsNaN(b.est[i]) {
@@ -195,21 +195,21 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 
 // curves evaluates the fitted mean and its 95% band over each predictor,
 // the other predictors held at their means. Caller holds mu.
-func (m *modelRT) curves() []view.Curve {
+func (m *watchedModel) curves() []view.Curve {
 	const steps = 60
 	means := map[string]float64{}
 	lo, hi := map[string]float64{}, map[string]float64{}
 	for j, c := range m.cols {
 		s, a, b := 0.0, math.Inf(1), math.Inf(-1)
-		for _, r := range m.window {
-			x := m.vals[1+j][r]
+		for _, r := range m.ref.window {
+			x := m.rows.vals[1+j][r]
 			s += x
 			a, b = min(a, x), max(b, x)
 		}
-		means[c] = s / float64(len(m.window))
+		means[c] = s / float64(len(m.ref.window))
 		lo[c], hi[c] = a, b
 	}
-	tq := engine.TQuantile(0.975, float64(m.fit.DF))
+	tq := engine.TQuantile(0.975, float64(m.ref.fit.DF))
 	x := make([]float64, m.spec.P())
 	var out []view.Curve
 	for _, c := range m.cols {
@@ -233,7 +233,7 @@ func (m *modelRT) curves() []view.Curve {
 			if err != nil {
 				continue
 			}
-			y, se := m.fit.Predict(x)
+			y, se := m.ref.fit.Predict(x)
 			cv.X = append(cv.X, view.Float(xv))
 			cv.Y = append(cv.Y, view.Float(y))
 			cv.Lower = append(cv.Lower, view.Float(y-tq*se))
