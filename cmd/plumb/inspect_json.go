@@ -8,21 +8,14 @@ import (
 	"math"
 	"strconv"
 	"strings"
+
+	"plumb/cmd/plumb/internal/view"
 )
 
 // ---------------------------------------------------------------- JSON
 
-// jnum is a float that encodes NaN and ±Inf as null and anything else in
-// the shortest form that reads back as the same float64.
-type jnum float64
-
-func (x jnum) MarshalJSON() ([]byte, error) {
-	f := float64(x)
-	if math.IsNaN(f) || math.IsInf(f, 0) {
-		return []byte("null"), nil
-	}
-	return strconv.AppendFloat(nil, f, 'g', -1, 64), nil
-}
+// Undefined numbers (NaN, ±Inf) are null, through view.Float and
+// view.AppendJSON, as in every JSON plumb writes.
 
 // jmap is a JSON object of numbers keyed by term, in model order.
 type jmap struct {
@@ -40,51 +33,52 @@ func (m jmap) MarshalJSON() ([]byte, error) {
 		kb, _ := json.Marshal(k)
 		b.Write(kb)
 		b.WriteByte(':')
-		vb, _ := jnum(m.vals[i]).MarshalJSON()
+		vb, _ := view.Float(m.vals[i]).MarshalJSON()
 		b.Write(vb)
 	}
 	b.WriteByte('}')
 	return b.Bytes(), nil
 }
 
+// jsonCoef is view.Coefficient with inspect's JSON names.
 type jsonCoef struct {
-	Term     string `json:"term"`
-	Estimate jnum   `json:"estimate"`
-	StdError jnum   `json:"std_error"`
-	T        jnum   `json:"t"`
-	P        jnum   `json:"p"`
-	Lower95  jnum   `json:"lower_95"`
-	Upper95  jnum   `json:"upper_95"`
+	Term     string     `json:"term"`
+	Estimate view.Float `json:"estimate"`
+	StdError view.Float `json:"std_error"`
+	T        view.Float `json:"t"`
+	P        view.Float `json:"p"`
+	Lower95  view.Float `json:"lower_95"`
+	Upper95  view.Float `json:"upper_95"`
 }
 
 type jsonFragility struct {
-	Index        *int   `json:"index"`
-	Searched     string `json:"searched"`
-	RemovedRows  []int  `json:"removed_rows"`
-	RemovedLines []int  `json:"removed_lines"`
-	Conclusion   string `json:"conclusion"`
-	Kind         string `json:"kind"`
-	Term         string `json:"term"`
-	Before       jnum   `json:"before"`
-	After        jnum   `json:"after"`
-	Fragile      bool   `json:"fragile"`
-	MaxRemoved   int    `json:"max_removed"`
-	Limit        int    `json:"limit"`
-	Evaluated    int    `json:"evaluated"`
-	Skipped      int    `json:"skipped"`
+	Index        *int       `json:"index"`
+	Searched     string     `json:"searched"`
+	RemovedRows  []int      `json:"removed_rows"`
+	RemovedLines []int      `json:"removed_lines"`
+	Conclusion   string     `json:"conclusion"`
+	Kind         string     `json:"kind"`
+	Term         string     `json:"term"`
+	Before       view.Float `json:"before"`
+	After        view.Float `json:"after"`
+	Fragile      bool       `json:"fragile"`
+	MaxRemoved   int        `json:"max_removed"`
+	Limit        int        `json:"limit"`
+	Evaluated    int        `json:"evaluated"`
+	Skipped      int        `json:"skipped"`
 }
 
 type jsonRowEffect struct {
-	Row            int  `json:"row"`
-	Line           int  `json:"line"`
-	LeverageBefore jnum `json:"leverage_before"`
-	LeverageAfter  jnum `json:"leverage_after"`
-	CookBefore     jnum `json:"cooks_distance_before"`
-	CookAfter      jnum `json:"cooks_distance_after"`
+	Row            int        `json:"row"`
+	Line           int        `json:"line"`
+	LeverageBefore view.Float `json:"leverage_before"`
+	LeverageAfter  view.Float `json:"leverage_after"`
+	CookBefore     view.Float `json:"cooks_distance_before"`
+	CookAfter      view.Float `json:"cooks_distance_after"`
 }
 
 type jsonEffect struct {
-	DetRatio        jnum            `json:"det_ratio"`
+	DetRatio        view.Float      `json:"det_ratio"`
 	Rows            []jsonRowEffect `json:"rows"`
 	FragilityBefore *int            `json:"fragility_before"`
 	FragilityAfter  *int            `json:"fragility_after"`
@@ -97,8 +91,8 @@ type jsonEffect struct {
 type jsonSuggestion struct {
 	At         jmap       `json:"at"`
 	Replicates int        `json:"replicates"`
-	D          jnum       `json:"d"`
-	DGain      jnum       `json:"d_gain"`
+	D          view.Float `json:"d"`
+	DGain      view.Float `json:"d_gain"`
 	Effect     jsonEffect `json:"effect"`
 	Text       string     `json:"text"`
 }
@@ -118,13 +112,13 @@ func (r *inspectResult) jsonFragility() *jsonFragility {
 	}
 	j := &jsonFragility{
 		Index: indexOrNull(fr.Index), Searched: fr.Searched, Conclusion: fr.Conclusion,
-		Kind: fr.Kind, Term: fr.Term, Before: jnum(fr.Before), After: jnum(fr.After),
+		Kind: fr.Kind, Term: fr.Term, Before: view.Float(fr.Before), After: view.Float(fr.After),
 		Fragile: fr.Fragile, MaxRemoved: fr.MaxRemoved, Limit: fr.Limit,
 		Evaluated: fr.Evaluated, Skipped: fr.Skipped,
 		RemovedRows: []int{}, RemovedLines: []int{},
 	}
 	if fr.Index == 0 {
-		j.Before, j.After = jnum(math.NaN()), jnum(math.NaN())
+		j.Before, j.After = view.Float(math.NaN()), view.Float(math.NaN())
 	}
 	for _, k := range fr.RemovedRows {
 		row, line := r.fileRow(k)
@@ -150,7 +144,7 @@ func (r *inspectResult) jsonSuggestions() *[]jsonSuggestion {
 		}
 		ef := sg.Effect
 		je := jsonEffect{
-			DetRatio:        jnum(ef.DetRatio),
+			DetRatio:        view.Float(ef.DetRatio),
 			Rows:            []jsonRowEffect{},
 			FragilityBefore: indexOrNull(ef.FragilityBefore),
 			FragilityAfter:  indexOrNull(ef.FragilityAfter),
@@ -163,28 +157,28 @@ func (r *inspectResult) jsonSuggestions() *[]jsonSuggestion {
 			row, line := r.fileRow(re.Row)
 			je.Rows = append(je.Rows, jsonRowEffect{
 				Row: row, Line: line,
-				LeverageBefore: jnum(re.LeverageBefore), LeverageAfter: jnum(re.LeverageAfter),
-				CookBefore: jnum(re.CookBefore), CookAfter: jnum(re.CookAfter),
+				LeverageBefore: view.Float(re.LeverageBefore), LeverageAfter: view.Float(re.LeverageAfter),
+				CookBefore: view.Float(re.CookBefore), CookAfter: view.Float(re.CookAfter),
 			})
 		}
-		out = append(out, jsonSuggestion{At: at, Replicates: sg.Replicates, D: jnum(sg.D), DGain: jnum(sg.DGain), Effect: je, Text: sg.Text})
+		out = append(out, jsonSuggestion{At: at, Replicates: sg.Replicates, D: view.Float(sg.D), DGain: view.Float(sg.DGain), Effect: je, Text: sg.Text})
 	}
 	return &out
 }
 
 type jsonCutoffs struct {
-	Family                    string `json:"family"`
-	CookRule                  string `json:"cook_rule"`
-	Alpha                     jnum   `json:"alpha"`
-	OutlierTest               string `json:"outlier_test"`
-	Leverage                  jnum   `json:"leverage"`
-	CooksDistanceAbsolute     jnum   `json:"cooks_distance_absolute"`
-	CooksDistanceSizeAdjusted jnum   `json:"cooks_distance_size_adjusted"`
-	DFFITSAbsolute            jnum   `json:"dffits_absolute"`
-	DFFITSSizeAdjusted        jnum   `json:"dffits_size_adjusted"`
-	DFBETASAbsolute           jnum   `json:"dfbetas_absolute"`
-	DFBETASSizeAdjusted       jnum   `json:"dfbetas_size_adjusted"`
-	COVRATIO                  jnum   `json:"covratio"`
+	Family                    string     `json:"family"`
+	CookRule                  string     `json:"cook_rule"`
+	Alpha                     view.Float `json:"alpha"`
+	OutlierTest               string     `json:"outlier_test"`
+	Leverage                  view.Float `json:"leverage"`
+	CooksDistanceAbsolute     view.Float `json:"cooks_distance_absolute"`
+	CooksDistanceSizeAdjusted view.Float `json:"cooks_distance_size_adjusted"`
+	DFFITSAbsolute            view.Float `json:"dffits_absolute"`
+	DFFITSSizeAdjusted        view.Float `json:"dffits_size_adjusted"`
+	DFBETASAbsolute           view.Float `json:"dfbetas_absolute"`
+	DFBETASSizeAdjusted       view.Float `json:"dfbetas_size_adjusted"`
+	COVRATIO                  view.Float `json:"covratio"`
 }
 
 type jsonReport struct {
@@ -196,14 +190,14 @@ type jsonReport struct {
 	P            int               `json:"p"`
 	DF           int               `json:"df"`
 	RowsInFile   int               `json:"rows_in_file"`
-	Sigma        jnum              `json:"sigma"`
-	RSquared     jnum              `json:"r_squared"`
-	AdjRSquared  jnum              `json:"adj_r_squared"`
-	FStatistic   jnum              `json:"f_statistic"`
+	Sigma        view.Float        `json:"sigma"`
+	RSquared     view.Float        `json:"r_squared"`
+	AdjRSquared  view.Float        `json:"adj_r_squared"`
+	FStatistic   view.Float        `json:"f_statistic"`
 	FDF1         int               `json:"f_df1"`
 	FDF2         int               `json:"f_df2"`
-	FP           jnum              `json:"f_p"`
-	Condition    jnum              `json:"condition"`
+	FP           view.Float        `json:"f_p"`
+	Condition    view.Float        `json:"condition"`
 	Coefficients []jsonCoef        `json:"coefficients"`
 	VIF          *jmap             `json:"vif"`
 	Cutoffs      jsonCutoffs       `json:"cutoffs"`
@@ -225,28 +219,28 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		P:           f.P,
 		DF:          f.DF,
 		RowsInFile:  r.ds.total,
-		Sigma:       jnum(f.Sigma),
-		RSquared:    jnum(f.RSquared),
-		AdjRSquared: jnum(f.AdjRSquared),
-		FStatistic:  jnum(f.FStat),
+		Sigma:       view.Float(f.Sigma),
+		RSquared:    view.Float(f.RSquared),
+		AdjRSquared: view.Float(f.AdjRSquared),
+		FStatistic:  view.Float(f.FStat),
 		FDF1:        f.FDF1,
 		FDF2:        f.FDF2,
-		FP:          jnum(f.FP),
-		Condition:   jnum(f.Condition),
+		FP:          view.Float(f.FP),
+		Condition:   view.Float(f.Condition),
 		Cutoffs: jsonCutoffs{
 			Family:      strings.ReplaceAll(familyName(r.cutoffs.Family), "-", "_"),
 			CookRule:    cookRuleName(r.cutoffs.Cook),
-			Alpha:       jnum(r.cutoffs.Alpha),
+			Alpha:       view.Float(r.cutoffs.Alpha),
 			OutlierTest: outlierTestName(r.cutoffs.Test),
 
-			Leverage:                  jnum(r.Limits.Leverage),
-			CooksDistanceAbsolute:     jnum(r.Limits.CookAbsolute),
-			CooksDistanceSizeAdjusted: jnum(r.Limits.CookSize),
-			DFFITSAbsolute:            jnum(r.Limits.DFFITSAbsolute),
-			DFFITSSizeAdjusted:        jnum(r.Limits.DFFITSSize),
-			DFBETASAbsolute:           jnum(r.Limits.DFBETASAbsolute),
-			DFBETASSizeAdjusted:       jnum(r.Limits.DFBETASSize),
-			COVRATIO:                  jnum(r.Limits.COVRATIO),
+			Leverage:                  view.Float(r.Limits.Leverage),
+			CooksDistanceAbsolute:     view.Float(r.Limits.CookAbsolute),
+			CooksDistanceSizeAdjusted: view.Float(r.Limits.CookSize),
+			DFFITSAbsolute:            view.Float(r.Limits.DFFITSAbsolute),
+			DFFITSSizeAdjusted:        view.Float(r.Limits.DFFITSSize),
+			DFBETASAbsolute:           view.Float(r.Limits.DFBETASAbsolute),
+			DFBETASSizeAdjusted:       view.Float(r.Limits.DFBETASSize),
+			COVRATIO:                  view.Float(r.Limits.COVRATIO),
 		},
 		Rejected:    r.ds.rejected,
 		Fragility:   r.jsonFragility(),
@@ -260,11 +254,8 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 	if rep.Rejected == nil {
 		rep.Rejected = []rejectedRow{}
 	}
-	for _, c := range f.Coef {
-		rep.Coefficients = append(rep.Coefficients, jsonCoef{
-			Term: c.Term, Estimate: jnum(c.Estimate), StdError: jnum(c.StdError),
-			T: jnum(c.T), P: jnum(c.P), Lower95: jnum(c.Lower95), Upper95: jnum(c.Upper95),
-		})
+	for _, c := range r.Coefficients() {
+		rep.Coefficients = append(rep.Coefficients, jsonCoef(c))
 	}
 	rep.VIF = &jmap{}
 	if f.VIF != nil {
@@ -308,13 +299,6 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 	return bw.Flush()
 }
 
-func appendJSONNum(dst []byte, x float64) []byte {
-	if math.IsNaN(x) || math.IsInf(x, 0) {
-		return append(dst, "null"...)
-	}
-	return strconv.AppendFloat(dst, x, 'g', -1, 64)
-}
-
 func appendJSONString(dst []byte, s string) []byte {
 	b, _ := json.Marshal(s)
 	return append(dst, b...)
@@ -329,7 +313,7 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 		dst = append(dst, ',', '"')
 		dst = append(dst, key...)
 		dst = append(dst, '"', ':')
-		dst = appendJSONNum(dst, x)
+		dst = view.AppendJSON(dst, x)
 	}
 	flag := func(key string, b bool) {
 		dst = append(dst, ',', '"')
@@ -355,7 +339,7 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 		}
 		dst = append(dst, qnames[j]...)
 		dst = append(dst, ':')
-		dst = appendJSONNum(dst, x)
+		dst = view.AppendJSON(dst, x)
 	}
 	dst = append(dst, '}')
 	num("covratio", o.COVRATIO)
@@ -377,9 +361,9 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 		dst = append(dst, `,"family":`...)
 		dst = appendJSONString(dst, fl.Family)
 		dst = append(dst, `,"value":`...)
-		dst = appendJSONNum(dst, fl.Value)
+		dst = view.AppendJSON(dst, fl.Value)
 		dst = append(dst, `,"cutoff":`...)
-		dst = appendJSONNum(dst, fl.Cutoff)
+		dst = view.AppendJSON(dst, fl.Cutoff)
 		dst = append(dst, `,"term":`...)
 		if fl.Term == "" {
 			dst = append(dst, "null"...)

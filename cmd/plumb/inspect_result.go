@@ -8,13 +8,15 @@ import (
 	"strings"
 
 	"plumb/cmd/plumb/internal/analysis"
+	"plumb/cmd/plumb/internal/view"
 	"plumb/engine"
 )
 
-// inspectResult is everything the writers print: the analysis and the
+// inspectResult is everything the writers print: the read model of the
+// analysis (view.Result, as the dashboard and the report read it) and the
 // file's rows.
 type inspectResult struct {
-	*analysis.Result
+	*view.Result
 	file    string
 	ds      *inspectData
 	model   engine.Model
@@ -56,7 +58,7 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 			if err != nil {
 				return nil, err // cancelled
 			}
-			res.Result = r
+			res.Result = &view.Result{Result: r, Cutoffs: opt.cutoffs, Row: res.row}
 			break
 		}
 		var de *engine.DataError
@@ -87,20 +89,30 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 	return res, nil
 }
 
+// row is where the i-th fitted row (0-based) is in the file: its data row
+// number (as ID) and line.
+func (r *inspectResult) row(i int) view.RowRef {
+	return view.RowRef{ID: int64(r.ds.rowNo[i]), File: r.file, Line: r.ds.line[i]}
+}
+
 // rowLabel names the k-th fitted row (1-based, as the engine counts) by
 // its data row and line in the file.
 func (r *inspectResult) rowLabel(k int) string {
 	if k < 1 || k > len(r.ds.rowNo) {
 		return "row ?"
 	}
-	return fmt.Sprintf("row %d (line %d)", r.ds.rowNo[k-1], r.ds.line[k-1])
+	ref := r.row(k - 1)
+	return fmt.Sprintf("row %d (line %d)", ref.ID, ref.Line)
 }
 
+// fileRow is the data row number and line of the k-th fitted row
+// (1-based), or zeros.
 func (r *inspectResult) fileRow(k int) (row, line int) {
 	if k < 1 || k > len(r.ds.rowNo) {
 		return 0, 0
 	}
-	return r.ds.rowNo[k-1], r.ds.line[k-1]
+	ref := r.row(k - 1)
+	return int(ref.ID), ref.Line
 }
 
 func plural(n int, one, many string) string {

@@ -229,8 +229,8 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	bw.WriteString("== The fit ==\n")
 	g := grid{left: map[int]bool{0: true}}
 	g.add("coefficient", "estimate", "std error", "t", "p", "95% from", "95% to")
-	for _, c := range f.Coef {
-		g.add(c.Term, num4(c.Estimate), num4(c.StdError), num4(c.T), pval(c.P), num4(c.Lower95), num4(c.Upper95))
+	for _, c := range r.Coefficients() {
+		g.add(c.Term, num4(float64(c.Estimate)), num4(float64(c.StdError)), num4(float64(c.T)), pval(float64(c.P)), num4(float64(c.Lower95)), num4(float64(c.Upper95)))
 	}
 	g.write(bw, "  ")
 	bw.WriteByte('\n')

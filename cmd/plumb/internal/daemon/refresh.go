@@ -32,17 +32,27 @@ type refresher struct {
 	baseline        *baseline
 	fits            int64 // fits recorded, this run and before
 
-	// The latest refresh.
-	fit       *engine.Fit
-	inf       *engine.Influence
-	verdicts  []engine.Verdict
-	window    []int // data indices the fit used, in order
-	frag      *engine.FragilityResult
-	sugg      []engine.Suggestion
+	// The latest refresh: the analysis of the window and the data
+	// indices it used, in fit order.
+	res       *analysis.Result
+	window    []int
 	fitAt     time.Time
 	fitID     int64
 	lastFitN  int
 	refreshNs int64
+}
+
+// view returns the read model of the latest refresh, or nil before the
+// first. Caller holds the model's mutex, for as long as it reads.
+func (r *refresher) view() *view.Result {
+	if r.res == nil {
+		return nil
+	}
+	m := r.m
+	return &view.Result{Result: r.res, Cutoffs: m.cut, Row: func(i int) view.RowRef {
+		row := r.window[i]
+		return view.RowRef{ID: m.rows.ids[row], File: m.rows.path(row), Line: m.rows.line(row)}
+	}}
 }
 
 // refresh refits the model on its window, rejudges every row, measures
@@ -163,7 +173,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 	}
 
 	m.mu.Lock()
-	r.fit, r.inf, r.verdicts, r.window, r.frag, r.sugg = fit, inf, verdicts, win, frag, sugg
+	r.res, r.window = res, win
 	r.fitAt, r.fitID, r.lastFitN = now, fitID, fit.N
 	r.fits++
 	r.refreshNs = time.Since(start).Nanoseconds()
