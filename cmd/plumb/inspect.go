@@ -217,29 +217,15 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 	}
 	c := def
 	c.Alpha = alpha
-	switch family {
-	case "absolute":
-		c.Family = engine.Absolute
-	case "size-adjusted":
-		c.Family = engine.SizeAdjusted
-	default:
-		return nil, bad("--cutoffs %q: want absolute or size-adjusted", family)
+	var ok bool
+	if c.Family, ok = familyNames.value(family); !ok {
+		return nil, bad("--cutoffs %q: want %s", family, familyNames.choices())
 	}
-	switch cookRule {
-	case "fmedian":
-		c.Cook = engine.CookFMedian
-	case "one":
-		c.Cook = engine.CookOne
-	default:
-		return nil, bad("--cook-rule %q: want fmedian or one", cookRule)
+	if c.Cook, ok = cookRuleNames.value(cookRule); !ok {
+		return nil, bad("--cook-rule %q: want %s", cookRule, cookRuleNames.choices())
 	}
-	switch outlierTs {
-	case "bonferroni":
-		c.Test = engine.BonferroniTest
-	case "grubbs":
-		c.Test = engine.GrubbsTest
-	default:
-		return nil, bad("--outlier-test %q: want bonferroni or grubbs", outlierTs)
+	if c.Test, ok = outlierTestNames.value(outlierTs); !ok {
+		return nil, bad("--outlier-test %q: want %s", outlierTs, outlierTestNames.choices())
 	}
 	opt.cutoffs = c
 	if opt.maxRemoved < 1 {
@@ -358,26 +344,45 @@ func parseRegion(v string, r engine.Region) error {
 	return nil
 }
 
-func familyName(f engine.Family) string {
-	if f == engine.Absolute {
-		return "absolute"
-	}
-	return "size-adjusted"
+// names pairs the words of one flag with the values they choose.
+type names[T comparable] []struct {
+	word  string
+	value T
 }
 
-func cookRuleName(r engine.CookRule) string {
-	if r == engine.CookOne {
-		return "one"
+var (
+	familyNames      = names[engine.Family]{{"absolute", engine.Absolute}, {"size-adjusted", engine.SizeAdjusted}}
+	cookRuleNames    = names[engine.CookRule]{{"fmedian", engine.CookFMedian}, {"one", engine.CookOne}}
+	outlierTestNames = names[engine.OutlierTest]{{"bonferroni", engine.BonferroniTest}, {"grubbs", engine.GrubbsTest}}
+)
+
+func (n names[T]) value(word string) (T, bool) {
+	for _, e := range n {
+		if e.word == word {
+			return e.value, true
+		}
 	}
-	return "fmedian"
+	var zero T
+	return zero, false
 }
 
-func outlierTestName(t engine.OutlierTest) string {
-	if t == engine.GrubbsTest {
-		return "grubbs"
+func (n names[T]) word(v T) string {
+	for _, e := range n {
+		if e.value == v {
+			return e.word
+		}
 	}
-	return "bonferroni"
+	return n[0].word
 }
+
+// choices is "a or b".
+func (n names[T]) choices() string {
+	return n[0].word + " or " + n[1].word
+}
+
+func familyName(f engine.Family) string           { return familyNames.word(f) }
+func cookRuleName(r engine.CookRule) string       { return cookRuleNames.word(r) }
+func outlierTestName(t engine.OutlierTest) string { return outlierTestNames.word(t) }
 
 // unquoteName accepts a response given in the term notation's quoted form
 // ("flow rate (l/min)" with its quotes) as well as the bare column name.

@@ -667,31 +667,28 @@ func (h *metricsHook) alertsOpen(ctx context.Context, s store.Store) {
 // sees every change.
 
 func (d *Daemon) point(ctx context.Context, c alerts.PointCondition) error {
-	if d.opts.ReadOnly {
-		return nil
-	}
-	return d.alerted(d.alerts.Point(ctx, c))
+	return report(d, ctx, c, d.alerts.Point)
 }
 
 func (d *Daemon) fragility(ctx context.Context, c alerts.FragilityCondition) error {
-	if d.opts.ReadOnly {
-		return nil
-	}
-	return d.alerted(d.alerts.Fragility(ctx, c))
+	return report(d, ctx, c, d.alerts.Fragility)
 }
 
 func (d *Daemon) drift(ctx context.Context, c alerts.DriftCondition) error {
-	if d.opts.ReadOnly {
-		return nil
-	}
-	return d.alerted(d.alerts.Drift(ctx, c))
+	return report(d, ctx, c, d.alerts.Drift)
 }
 
 func (d *Daemon) blocked(ctx context.Context, c alerts.BlockedCondition) error {
+	return report(d, ctx, c, d.alerts.Blocked)
+}
+
+// report passes one condition to the alert manager's method for it;
+// a read-only daemon reports nothing.
+func report[C any](d *Daemon, ctx context.Context, c C, to func(context.Context, C) (*alerts.Alert, error)) error {
 	if d.opts.ReadOnly {
 		return nil
 	}
-	return d.alerted(d.alerts.Blocked(ctx, c))
+	return d.alerted(to(ctx, c))
 }
 
 func (d *Daemon) alerted(a *alerts.Alert, err error) error {

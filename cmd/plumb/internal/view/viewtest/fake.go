@@ -187,19 +187,17 @@ func page[T any](items []T, id func(T) int64, after int64, limit int) []T {
 
 // Fits implements view.Source.
 func (f *Fake) Fits(ctx context.Context, name string, after int64, limit int) ([]view.FitView, error) {
-	f.mu.Lock()
-	defer f.mu.Unlock()
-	if f.err != nil {
-		return nil, f.err
-	}
-	if _, ok := f.models[name]; !ok {
-		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
-	}
-	return page(f.fits[name], func(v view.FitView) int64 { return v.ID }, after, limit), nil
+	return modelPage(f, name, f.fits, func(v view.FitView) int64 { return v.ID }, after, limit)
 }
 
 // Observations implements view.Source.
 func (f *Fake) Observations(ctx context.Context, name string, after int64, limit int) ([]view.ObservationView, error) {
+	return modelPage(f, name, f.obs, func(v view.ObservationView) int64 { return v.ID }, after, limit)
+}
+
+// modelPage pages through one model's items of by (fits, observations),
+// under the lock, with the Fake's failure and an unknown model's error.
+func modelPage[T any](f *Fake, name string, by map[string][]T, id func(T) int64, after int64, limit int) ([]T, error) {
 	f.mu.Lock()
 	defer f.mu.Unlock()
 	if f.err != nil {
@@ -208,7 +206,7 @@ func (f *Fake) Observations(ctx context.Context, name string, after int64, limit
 	if _, ok := f.models[name]; !ok {
 		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
 	}
-	return page(f.obs[name], func(v view.ObservationView) int64 { return v.ID }, after, limit), nil
+	return page(by[name], id, after, limit), nil
 }
 
 // Quarantine implements view.Source.
