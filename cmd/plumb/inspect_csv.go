@@ -55,6 +55,15 @@ func appendCSVNum(dst []byte, x float64) []byte {
 	return numfmt.AppendG(dst, x, csvDigits)
 }
 
+// appendCSVNums appends each number as a field, each after a comma.
+func appendCSVNums(dst []byte, xs ...float64) []byte {
+	for _, x := range xs {
+		dst = append(dst, ',')
+		dst = appendCSVNum(dst, x)
+	}
+	return dst
+}
+
 func (r *inspectResult) csvHeader() []byte {
 	var b []byte
 	b = append(b, "row,line,verdict,outlier,influential,leverage,residual,studentized_internal,studentized_external,cooks_distance,dffits"...)
@@ -80,28 +89,9 @@ func (r *inspectResult) appendCSVRows(dst []byte, lo, hi int) []byte {
 		dst = strconv.AppendBool(dst, v.Outlier)
 		dst = append(dst, ',')
 		dst = strconv.AppendBool(dst, v.Influential)
-		dst = append(dst, ',')
-		dst = appendCSVNum(dst, o.Leverage)
-		dst = append(dst, ',')
-		dst = appendCSVNum(dst, o.Residual)
-		dst = append(dst, ',')
-		dst = appendCSVNum(dst, o.StudentInternal)
-		dst = append(dst, ',')
-		dst = appendCSVNum(dst, o.StudentExternal)
-		dst = append(dst, ',')
-		dst = appendCSVNum(dst, o.Cook)
-		dst = append(dst, ',')
-		dst = appendCSVNum(dst, o.DFFITS)
-		for _, x := range r.Influence.DFBETASRow(i) {
-			dst = append(dst, ',')
-			dst = appendCSVNum(dst, x)
-		}
-		dst = append(dst, ',')
-		dst = appendCSVNum(dst, o.COVRATIO)
-		dst = append(dst, ',')
-		dst = appendCSVNum(dst, o.OutlierP)
-		dst = append(dst, ',')
-		dst = appendCSVNum(dst, o.BonferroniP)
+		dst = appendCSVNums(dst, o.Leverage, o.Residual, o.StudentInternal, o.StudentExternal, o.Cook, o.DFFITS)
+		dst = appendCSVNums(dst, r.Influence.DFBETASRow(i)...)
+		dst = appendCSVNums(dst, o.COVRATIO, o.OutlierP, o.BonferroniP)
 		dst = append(dst, ',')
 		if len(v.Flags) > 0 {
 			dst = r.appendFlagList(dst, v.Flags)

@@ -163,9 +163,9 @@ func (f *Fake) Model(ctx context.Context, name string) (view.ModelDetail, error)
 	if f.err != nil {
 		return view.ModelDetail{}, f.err
 	}
-	d, ok := f.models[name]
-	if !ok {
-		return view.ModelDetail{}, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	d, err := get(f.models, "model", name)
+	if err != nil {
+		return d, err
 	}
 	d.OpenAlerts = f.openAlerts(name)
 	return d, nil
@@ -193,6 +193,15 @@ func (f *Fake) Fits(ctx context.Context, name string, after int64, limit int) ([
 // Observations implements view.Source.
 func (f *Fake) Observations(ctx context.Context, name string, after int64, limit int) ([]view.ObservationView, error) {
 	return modelPage(f, name, f.obs, func(v view.ObservationView) int64 { return v.ID }, after, limit)
+}
+
+// get looks key up in m; a missing key is what's view.ErrNotFound.
+func get[V any](m map[string]V, what, key string) (V, error) {
+	v, ok := m[key]
+	if !ok {
+		return v, fmt.Errorf("%s %q: %w", what, key, view.ErrNotFound)
+	}
+	return v, nil
 }
 
 // modelPage pages through one model's items of by (fits, observations),
@@ -258,11 +267,7 @@ func (f *Fake) Alert(ctx context.Context, id string) (view.AlertView, error) {
 	if f.err != nil {
 		return view.AlertView{}, f.err
 	}
-	a, ok := f.alerts[id]
-	if !ok {
-		return view.AlertView{}, fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
-	}
-	return a, nil
+	return get(f.alerts, "alert", id)
 }
 
 // Ack implements view.Source.
@@ -273,9 +278,9 @@ func (f *Fake) Ack(ctx context.Context, id, note, who string) error {
 		return f.err
 	}
 	f.calls = append(f.calls, Call{Op: "ack", ID: id, Note: note, Who: who})
-	a, ok := f.alerts[id]
-	if !ok {
-		return fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+	a, err := get(f.alerts, "alert", id)
+	if err != nil {
+		return err
 	}
 	if a.State != view.AlertOpen {
 		return fmt.Errorf("acknowledge alert %q (%s): %w", id, a.State, view.ErrState)
@@ -293,9 +298,9 @@ func (f *Fake) Resolve(ctx context.Context, id, note string) error {
 		return f.err
 	}
 	f.calls = append(f.calls, Call{Op: "resolve", ID: id, Note: note})
-	a, ok := f.alerts[id]
-	if !ok {
-		return fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+	a, err := get(f.alerts, "alert", id)
+	if err != nil {
+		return err
 	}
 	if a.State == view.AlertResolved {
 		return fmt.Errorf("resolve alert %q: %w", id, view.ErrState)
