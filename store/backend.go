@@ -9,8 +9,8 @@ import (
 // backend (sqlite, memstore, a PostgreSQL one) calls them instead of
 // writing them again.
 
-// Valid reports whether s is a known delivery state.
-func (s DeliveryState) Valid() bool {
+// ValidDeliveryState reports whether s is a known delivery state.
+func ValidDeliveryState(s DeliveryState) bool {
 	return s == DeliveryPending || s == DeliveryDelivered || s == DeliveryDead
 }
 
@@ -44,7 +44,7 @@ func DeliveryDefaults(d Delivery, id string, now time.Time) (Delivery, error) {
 	if d.State == "" {
 		d.State = DeliveryPending
 	}
-	if !d.State.Valid() {
+	if !ValidDeliveryState(d.State) {
 		return d, fmt.Errorf("delivery state %q unknown", d.State)
 	}
 	if d.CreatedAt.IsZero() {

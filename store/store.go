@@ -321,8 +321,10 @@ type AlertQuery struct {
 	Offset  int
 }
 
-// DeliveryState is the state of one outbox entry.
-type DeliveryState string
+// DeliveryState is the state of one outbox entry. It is a string, as
+// the alert record's kind and state are, so that the alert ledger's own
+// types (package alerts) convert to these directly.
+type DeliveryState = string
 
 const (
 	DeliveryPending   DeliveryState = "pending"

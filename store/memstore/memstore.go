@@ -601,7 +601,7 @@ func (s *Store) DueDeliveries(ctx context.Context, now time.Time, limit int) ([]
 // UpdateDelivery stores a delivery's new status after an attempt.
 func (s *Store) UpdateDelivery(ctx context.Context, d store.Delivery) error {
 	fail := func(err error) error { return fmt.Errorf("store: update delivery %d: %w", d.ID, err) }
-	if !d.State.Valid() {
+	if !store.ValidDeliveryState(d.State) {
 		return fail(fmt.Errorf("delivery state %q unknown", d.State))
 	}
 	if err := s.begin(ctx); err != nil {

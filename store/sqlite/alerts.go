@@ -246,7 +246,7 @@ func (db *DB) DueDeliveries(ctx context.Context, now time.Time, limit int) ([]st
 // unknown ID gives an error wrapping store.ErrNotFound.
 func (db *DB) UpdateDelivery(ctx context.Context, d store.Delivery) error {
 	fail := func(err error) error { return fmt.Errorf("store: update delivery %d: %w", d.ID, err) }
-	if !d.State.Valid() {
+	if !store.ValidDeliveryState(d.State) {
 		return fail(fmt.Errorf("delivery state %q unknown", d.State))
 	}
 	next, err := encTime(d.NextAttempt)
