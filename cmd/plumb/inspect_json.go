@@ -120,10 +120,9 @@ func (r *inspectResult) jsonFragility() *jsonFragility {
 	if fr.Index == 0 {
 		j.Before, j.After = view.Float(math.NaN()), view.Float(math.NaN())
 	}
-	for _, k := range fr.RemovedRows {
-		row, line := r.fileRow(k)
-		j.RemovedRows = append(j.RemovedRows, row)
-		j.RemovedLines = append(j.RemovedLines, line)
+	for _, ref := range r.FragilityOf(fr.MaxRemoved, fr.Limit).Rows {
+		j.RemovedRows = append(j.RemovedRows, int(ref.ID))
+		j.RemovedLines = append(j.RemovedLines, ref.Line)
 	}
 	return j
 }
