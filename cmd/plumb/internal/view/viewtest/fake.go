@@ -212,8 +212,8 @@ func modelPage[T any](f *Fake, name string, by map[string][]T, id func(T) int64,
 	if f.err != nil {
 		return nil, f.err
 	}
-	if _, ok := f.models[name]; !ok {
-		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	if _, err := get(f.models, "model", name); err != nil {
+		return nil, err
 	}
 	return page(by[name], id, after, limit), nil
 }
@@ -318,14 +318,18 @@ func (f *Fake) RecentFits(ctx context.Context, name string, n int) ([]view.FitVi
 	if f.err != nil {
 		return nil, f.err
 	}
-	if _, ok := f.models[name]; !ok {
-		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	if _, err := get(f.models, "model", name); err != nil {
+		return nil, err
 	}
-	all := f.fits[name]
+	return latest(slices.Clone(f.fits[name]), n), nil
+}
+
+// latest is the last n of all (all when n <= 0).
+func latest[T any](all []T, n int) []T {
 	if n > 0 && len(all) > n {
-		all = all[len(all)-n:]
+		return all[len(all)-n:]
 	}
-	return slices.Clone(all), nil
+	return all
 }
 
 // quarantineOf returns the quarantined rows of model ("" for all) in id
@@ -347,11 +351,7 @@ func (f *Fake) RecentQuarantine(ctx context.Context, model string, n int) ([]vie
 	if f.err != nil {
 		return nil, f.err
 	}
-	sel := f.quarantineOf(model)
-	if n > 0 && len(sel) > n {
-		sel = sel[len(sel)-n:]
-	}
-	return sel, nil
+	return latest(f.quarantineOf(model), n), nil
 }
 
 var (
