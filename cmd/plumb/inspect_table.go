@@ -186,8 +186,8 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	}
 	sort.SliceStable(look, func(a, b int) bool {
 		va, vb := r.Verdicts[look[a]], r.Verdicts[look[b]]
-		if rank(va) != rank(vb) {
-			return rank(va) > rank(vb)
+		if sa, sb := seriousness(va.Word()), seriousness(vb.Word()); sa != sb {
+			return sa > sb
 		}
 		return len(va.Flags) > len(vb.Flags)
 	})
@@ -393,13 +393,17 @@ func (r *inspectResult) suggestionLines() []string {
 	return out
 }
 
-func rank(v engine.Verdict) int {
-	switch {
-	case v.Outlier && v.Influential:
+// seriousness orders the table's "worth a look" list, most serious first:
+// a row that sways the fit comes before one that only misses it (the
+// dashboard's list, engine.Word.Rank, puts outliers first), and a notable
+// row ranks with the ordinary ones, after which more flags come first.
+func seriousness(w engine.Word) int {
+	switch w {
+	case engine.WordSuspect:
 		return 3
-	case v.Influential:
+	case engine.WordInfluential:
 		return 2
-	case v.Outlier:
+	case engine.WordOutlier:
 		return 1
 	}
 	return 0
