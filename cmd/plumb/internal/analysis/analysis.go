@@ -14,8 +14,8 @@
 //
 // To add a measure (intervals, model-form checks, weights): give Options
 // its knob, Result its field, write a step method and list it in steps.
-// The writers read it from the Result (see package view's Inspect and the
-// daemon's Model detail).
+// The faces read it through one read model, view.Result (the dashboard,
+// the report and inspect's writers), which gets the new field's reader.
 //
 // design and refit failures end the run with an error that wraps the
 // engine's (engine.DataError, engine.ErrTooFewRows, ...): nothing can be
