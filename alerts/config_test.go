@@ -206,7 +206,7 @@ func TestIDStable(t *testing.T) {
 }
 
 func TestNonFiniteAsNull(t *testing.T) {
-	m := Measure{Name: "dffits", Value: nan(), Cutoff: 0.69}
+	m := Measure{Measure: "dffits", Value: nan(), Cutoff: 0.69}
 	b, err := json.Marshal(m)
 	if err != nil {
 		t.Fatal(err)

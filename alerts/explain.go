@@ -23,15 +23,15 @@ var measureWords = map[string]string{
 
 // describe renders one crossed measure, e.g. "Cook's distance 3.42, above 1".
 func describe(m Measure) string {
-	name := measureWords[m.Name]
+	name := measureWords[m.Measure]
 	if name == "" {
-		name = m.Name
+		name = m.Measure
 	}
 	if m.Term != "" {
 		name += " for " + m.Term
 	}
 	v := m.Value
-	switch m.Name {
+	switch m.Measure {
 	case "outlier_p_bonferroni":
 		return fmt.Sprintf("%s %s, at most %s", name, fmtNum(v), fmtNum(m.Cutoff))
 	case "covratio":
@@ -57,11 +57,11 @@ func fillPoint(a *Alert, c PointCondition, rule PointRule) {
 	a.Measures = append([]Measure{}, c.Measures...)
 	a.Suggestion = c.Suggestion
 	a.Summary = fmt.Sprintf("Line %d of %s (model %s) is an outlier that also moves the fit.", c.Line, c.File, c.Model)
-	test := describeAll(c.Measures, func(m Measure) bool { return m.Name == testMeasure(rule.Test) })
+	test := describeAll(c.Measures, func(m Measure) bool { return m.Measure == testMeasure(rule.Test) })
 	if test == "" {
 		test = "the outlier test flags it"
 	}
-	infl := describeAll(c.Measures, func(m Measure) bool { return contains(rule.Influence, m.Name) })
+	infl := describeAll(c.Measures, func(m Measure) bool { return contains(rule.Influence, m.Measure) })
 	if infl == "" {
 		infl = "the influence measures flag it"
 	}
@@ -80,7 +80,7 @@ func fillPoint(a *Alert, c PointCondition, rule PointRule) {
 func fillFragility(a *Alert, c FragilityCondition, rule FragilityRule) {
 	a.Fragility = &FragilityDetail{Index: c.Index, Limit: rule.Limit, Removed: append([]string{}, c.Removed...),
 		Conclusion: c.Conclusion, Before: c.Before, After: c.After}
-	a.Measures = []Measure{{Name: "fragility_index", Value: float64(c.Index), Cutoff: float64(rule.Limit)}}
+	a.Measures = []Measure{{Measure: "fragility_index", Value: float64(c.Index), Cutoff: float64(rule.Limit)}}
 	a.Suggestion = c.Suggestion
 	rows := "row"
 	if c.Index != 1 {
@@ -111,7 +111,7 @@ func fillDrift(a *Alert, c DriftCondition, rule DriftRule) {
 		if d.InBand {
 			continue
 		}
-		a.Measures = append(a.Measures, Measure{Name: "drift_" + d.Kind, Term: d.Name,
+		a.Measures = append(a.Measures, Measure{Measure: "drift_" + d.Kind, Term: d.Name,
 			Value: math.Abs(d.Difference), Cutoff: d.Band})
 		what := "coefficient " + d.Name
 		if d.Kind == DriftPrediction {
@@ -155,7 +155,7 @@ func fillBlocked(a *Alert, c BlockedCondition) {
 func fillSilence(a *Alert, c BlockedCondition, last time.Time, limit time.Duration) {
 	lt := last.UTC()
 	a.Blocked = &BlockedDetail{Cause: CauseSilent, Reason: c.Reason, LastData: &lt, Silence: limit.String()}
-	a.Measures = []Measure{{Name: "silence_seconds", Value: a.LastSeen.Sub(last).Seconds(), Cutoff: limit.Seconds()}}
+	a.Measures = []Measure{{Measure: "silence_seconds", Value: a.LastSeen.Sub(last).Seconds(), Cutoff: limit.Seconds()}}
 	a.Suggestion = nil
 	a.Summary = fmt.Sprintf("The feed of model %s has been silent longer than %s.", c.Model, limit)
 	a.Explanation = fmt.Sprintf("No row has arrived for model %s since %s, longer than the configured %s. ",

@@ -67,7 +67,9 @@ type AlertQuery struct {
 }
 
 // DeliveryState is the state of one outbox entry (store.DeliveryState).
-type DeliveryState string
+// It is a string, as the alert record's kind and state are, so that the
+// ledger's types convert to the store's directly.
+type DeliveryState = string
 
 // The delivery states.
 const (

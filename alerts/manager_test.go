@@ -47,9 +47,9 @@ func suspectRow(line int) PointCondition {
 		Values:  Values{"signal": 48.2, "dose": 30},
 		Outlier: true, Influential: true,
 		Measures: []Measure{
-			{Name: "outlier_p_bonferroni", Family: "test", Value: 0.0077, Cutoff: 0.05},
-			{Name: "cooks_distance", Family: "absolute", Value: 3.42, Cutoff: 1},
-			{Name: "dffits", Family: "size_adjusted", Value: 4.30, Cutoff: 0.69},
+			{Measure: "outlier_p_bonferroni", Family: "test", Value: 0.0077, Cutoff: 0.05},
+			{Measure: "cooks_distance", Family: "absolute", Value: 3.42, Cutoff: 1},
+			{Measure: "dffits", Family: "size_adjusted", Value: 4.30, Cutoff: 0.69},
 		},
 		Suggestion: &Suggestion{Text: "measure near dose 24", At: Values{"dose": 24}},
 	}
@@ -117,12 +117,12 @@ func TestPointDedupe(t *testing.T) {
 }
 
 func TestPointRule(t *testing.T) {
-	bonf := Measure{Name: "outlier_p_bonferroni", Family: "test", Value: 0.001, Cutoff: 0.05}
-	grubbs := Measure{Name: "grubbs", Family: "test", Value: 3.1, Cutoff: 2.7}
-	cook := Measure{Name: "cooks_distance", Family: "absolute", Value: 1.4, Cutoff: 1}
-	dffits := Measure{Name: "dffits", Family: "size_adjusted", Value: 1.2, Cutoff: 0.69}
-	lev := Measure{Name: "leverage", Family: "size_adjusted", Value: 0.5, Cutoff: 0.24}
-	cov := Measure{Name: "covratio", Family: "size_adjusted", Value: 1.6, Cutoff: 1.36}
+	bonf := Measure{Measure: "outlier_p_bonferroni", Family: "test", Value: 0.001, Cutoff: 0.05}
+	grubbs := Measure{Measure: "grubbs", Family: "test", Value: 3.1, Cutoff: 2.7}
+	cook := Measure{Measure: "cooks_distance", Family: "absolute", Value: 1.4, Cutoff: 1}
+	dffits := Measure{Measure: "dffits", Family: "size_adjusted", Value: 1.2, Cutoff: 0.69}
+	lev := Measure{Measure: "leverage", Family: "size_adjusted", Value: 0.5, Cutoff: 0.24}
+	cov := Measure{Measure: "covratio", Family: "size_adjusted", Value: 1.6, Cutoff: 1.36}
 	tests := []struct {
 		name      string
 		test      string

@@ -219,15 +219,15 @@ func (r PointRule) suspect(c PointCondition) (outlier, influential bool) {
 	want := testMeasure(r.Test)
 	for _, m := range c.Measures {
 		switch {
-		case m.Family == "test" || m.Name == "outlier_p_bonferroni" || m.Name == "grubbs":
+		case m.Family == "test" || m.Measure == "outlier_p_bonferroni" || m.Measure == "grubbs":
 			sawTest = true
-			if m.Name == want {
+			if m.Measure == want {
 				outlier = true
 			}
-		case influenceNames[m.Name]:
+		case influenceNames[m.Measure]:
 			sawInfl = true
 			for _, n := range r.Influence {
-				if n == m.Name {
+				if n == m.Measure {
 					influential = true
 				}
 			}

@@ -9,6 +9,8 @@ import (
 	"math"
 	"strconv"
 	"time"
+
+	"plumb/engine"
 )
 
 // Kind is the kind of an alert.
@@ -178,18 +180,14 @@ func (n *jsonNumber) UnmarshalJSON(b []byte) error {
 	return nil
 }
 
-// Measure is one diagnostic that crossed its cutoff, as the engine flags it.
-// Name is one of the engine's measure names ("leverage", "cooks_distance",
-// "dffits", "dfbetas", "covratio", "outlier_p_bonferroni", "grubbs"),
-// Family its cutoff family ("absolute", "size_adjusted", "test"), Term the
-// coefficient for DFBETAS ("" otherwise).
-type Measure struct {
-	Name   string
-	Family string
-	Term   string
-	Value  float64
-	Cutoff float64
-}
+// Measure is one quantity of an alert that crossed its cutoff. For a
+// suspect point it is an engine.Flag as the engine made it (converted
+// directly: Measure(f)), with Measure one of the engine's measure names,
+// Family its cutoff family and Term the coefficient for DFBETAS. The other
+// kinds name their own measures ("fragility_index", "drift_coefficient",
+// "drift_prediction", "silence_seconds"). In JSON the measure's name is
+// the key "name".
+type Measure engine.Flag
 
 type measureJSON struct {
 	Name   string     `json:"name"`
@@ -201,7 +199,7 @@ type measureJSON struct {
 
 // MarshalJSON writes the measure with non-finite numbers as null.
 func (m Measure) MarshalJSON() ([]byte, error) {
-	return json.Marshal(measureJSON{m.Name, m.Family, m.Term, jsonNumber(m.Value), jsonNumber(m.Cutoff)})
+	return json.Marshal(measureJSON{m.Measure, m.Family, m.Term, jsonNumber(m.Value), jsonNumber(m.Cutoff)})
 }
 
 // UnmarshalJSON reads null numbers as NaN.

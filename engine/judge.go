@@ -95,20 +95,54 @@ type Verdict struct {
 	Flags       []Flag
 }
 
-// Word summarises the verdict: "suspect" (outlier and influential),
-// "influential", "outlier", "notable" or "ordinary".
-func (v Verdict) Word() string {
+// Word is the one-word summary of a verdict. Its text is what plumb
+// writes and stores; compare with the constants, never with literals.
+type Word string
+
+// The verdict words.
+const (
+	WordOrdinary    Word = "ordinary"
+	WordNotable     Word = "notable"
+	WordOutlier     Word = "outlier"
+	WordInfluential Word = "influential"
+	// WordSuspect: outlier and influential.
+	WordSuspect Word = "suspect"
+)
+
+// Words lists the verdict words in Rank order, the most urgent first.
+var Words = []Word{WordSuspect, WordOutlier, WordInfluential, WordNotable, WordOrdinary}
+
+// Rank orders the words for listing, most urgent first: suspect 4,
+// outlier 3, influential 2, notable 1, ordinary and anything else (the
+// empty word of a row never judged) 0.
+func (w Word) Rank() int {
+	switch w {
+	case WordSuspect:
+		return 4
+	case WordOutlier:
+		return 3
+	case WordInfluential:
+		return 2
+	case WordNotable:
+		return 1
+	}
+	return 0
+}
+
+// Word summarises the verdict: WordSuspect (outlier and influential),
+// WordInfluential, WordOutlier, WordNotable or WordOrdinary.
+func (v Verdict) Word() Word {
 	switch {
 	case v.Outlier && v.Influential:
-		return "suspect"
+		return WordSuspect
 	case v.Influential:
-		return "influential"
+		return WordInfluential
 	case v.Outlier:
-		return "outlier"
+		return WordOutlier
 	case v.Notable:
-		return "notable"
+		return WordNotable
 	}
-	return "ordinary"
+	return WordOrdinary
 }
 
 // Limits are the numeric cutoffs Judge applies to a fit of n rows and p
@@ -352,10 +386,10 @@ func (j *judge) row(dst []Flag, i int, o *Obs, dfb []float64, v *Verdict) []Flag
 	return dst
 }
 
-// Flagged returns the indices of the verdicts whose Word is one of words
-// ("suspect", "influential", "outlier", "notable", "ordinary"), sorted.
-func Flagged(vs []Verdict, words ...string) []int {
-	want := make(map[string]bool, len(words))
+// Flagged returns the indices of the verdicts whose Word is one of words,
+// sorted.
+func Flagged(vs []Verdict, words ...Word) []int {
+	want := make(map[Word]bool, len(words))
 	for _, w := range words {
 		want[w] = true
 	}

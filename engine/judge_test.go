@@ -113,7 +113,7 @@ func TestCutoffLimits(t *testing.T) {
 func TestVerdictWord(t *testing.T) {
 	cases := []struct {
 		v    Verdict
-		want string
+		want Word
 	}{
 		{Verdict{}, "ordinary"},
 		{Verdict{Notable: true}, "notable"},
@@ -130,6 +130,14 @@ func TestVerdictWord(t *testing.T) {
 	vs := []Verdict{{}, {Outlier: true, Influential: true}, {Notable: true}, {Outlier: true, Influential: true}}
 	if got := Flagged(vs, "suspect", "notable"); len(got) != 3 || got[0] != 1 || got[1] != 2 || got[2] != 3 {
 		t.Errorf("Flagged = %v", got)
+	}
+	for i, w := range Words {
+		if want := len(Words) - 1 - i; w.Rank() != want {
+			t.Errorf("%s.Rank() = %d, want %d", w, w.Rank(), want)
+		}
+	}
+	if Word("").Rank() != 0 {
+		t.Errorf("the empty word ranks %d, want 0", Word("").Rank())
 	}
 }
 

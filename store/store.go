@@ -24,7 +24,11 @@ package store
 import (
 	"context"
 	"errors"
+	"strings"
 	"time"
+	"unicode/utf8"
+
+	"plumb/engine"
 )
 
 // ErrNotFound is returned (wrapped) when a requested record does not exist.
@@ -86,7 +90,7 @@ type Store interface {
 	VerdictChanges(ctx context.Context, obsID int64) ([]VerdictChange, error)
 	// CurrentVerdicts returns the latest verdict of every observation of the
 	// model that has one different from its arrival verdict, by obs id.
-	CurrentVerdicts(ctx context.Context, model string) (map[int64]string, error)
+	CurrentVerdicts(ctx context.Context, model string) (map[int64]engine.Word, error)
 
 	// Quarantined returns quarantined rows of the model (model "" for all),
 	// newest last, paginated by id.
@@ -219,11 +223,11 @@ type Diagnostics struct {
 	DFBETAS             []float64
 	COVRATIO            float64
 	OutlierPBonferroni  float64
-	// Verdict is one of "ordinary", "notable", "outlier", "influential",
-	// "suspect" (outlier and influential).
-	Verdict string
-	// Flags is the JSON array of cutoffs crossed, as the engine reports them.
-	Flags string
+	// Verdict is the engine's word for the row's verdict.
+	Verdict engine.Word
+	// Flags are the cutoffs crossed, as the engine reports them (nil for
+	// none). Their text (measure, family, term) is kept as UTF-8.
+	Flags []engine.Flag
 }
 
 // ObsQuery selects observations.
@@ -262,10 +266,11 @@ type VerdictChange struct {
 	ObsID int64
 	FitID int64
 	At    time.Time
-	From  string
-	To    string
-	// Flags is the JSON array of cutoffs crossed under the new fit.
-	Flags string
+	// From is "" for an observation that arrived without a verdict.
+	From engine.Word
+	To   engine.Word
+	// Flags are the cutoffs crossed under the new fit (nil for none).
+	Flags []engine.Flag
 }
 
 // QuarantineRow is a row that could not be read, kept with its reason.
@@ -316,8 +321,10 @@ type AlertQuery struct {
 	Offset  int
 }
 
-// DeliveryState is the state of one outbox entry.
-type DeliveryState string
+// DeliveryState is the state of one outbox entry. It is a string, as
+// the alert record's kind and state are, so that the alert ledger's own
+// types (package alerts) convert to these directly.
+type DeliveryState = string
 
 const (
 	DeliveryPending   DeliveryState = "pending"
@@ -338,4 +345,33 @@ type Delivery struct {
 	LastError   string
 	CreatedAt   time.Time
 	UpdatedAt   time.Time
+}
+
+// CopyFlags returns the copy of fs that a backend keeps: nil for none, and
+// each text field as valid UTF-8 (an invalid byte becomes U+FFFD), so that
+// every backend reads back the same flags (what encoding/json does to a
+// string).
+func CopyFlags(fs []engine.Flag) []engine.Flag {
+	if len(fs) == 0 {
+		return nil
+	}
+	out := make([]engine.Flag, len(fs))
+	for i, f := range fs {
+		f.Measure, f.Family, f.Term = validUTF8(f.Measure), validUTF8(f.Family), validUTF8(f.Term)
+		out[i] = f
+	}
+	return out
+}
+
+// validUTF8 replaces each byte of s that is not part of valid UTF-8 by
+// U+FFFD.
+func validUTF8(s string) string {
+	if utf8.ValidString(s) {
+		return s
+	}
+	var b strings.Builder
+	for _, r := range s { // an invalid byte comes as RuneError, width 1
+		b.WriteRune(r)
+	}
+	return b.String()
 }

@@ -95,6 +95,11 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	defer d.Close()
+	srv, err := serve(d, cfg, log)
+	if err != nil {
+		return err
+	}
+	defer srv.Close()
 
 	runCtx, stop := context.WithTimeout(ctx, *duration)
 	defer stop()
@@ -104,13 +109,8 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 	out.printf("plumb demo: %s, %s — thermocouple sensors calibrated against a reference thermometer.\n", demo.Company, demo.Bench)
 	out.printf("  model %q: %s ~ %v, fitted on the last %d readings\n", demo.ModelName, demo.Response, demo.Terms, demo.WindowRows)
 	out.printf("  folder    %s\n", dir)
-	if *listen != "" {
-		for i := 0; i < 50 && d.Addr() == ""; i++ {
-			time.Sleep(20 * time.Millisecond)
-		}
-		if a := d.Addr(); a != "" {
-			out.printf("  dashboard http://%s/\n", a)
-		}
+	if a := srv.Addr(); a != "" {
+		out.printf("  dashboard http://%s/\n", a)
 	}
 	out.printf("  %d readings at %.3gx the bench's pace, for at most %s\n\n", len(readings), *speed, *duration)
 
@@ -199,7 +199,7 @@ func (o *demoOut) alert(a *alerts.Alert) {
 	}
 	o.printf("\n  >> ALERT %s: %s [%s, %s] %s\n", verb, a.Kind, a.Severity, a.Subject, a.Summary)
 	for _, m := range a.Measures {
-		what := m.Name
+		what := m.Measure
 		if m.Term != "" {
 			what += "[" + m.Term + "]"
 		}

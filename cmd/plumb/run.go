@@ -41,6 +41,11 @@ func runRun(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	defer d.Close()
+	srv, err := serve(d, cfg, log)
+	if err != nil {
+		return err
+	}
+	defer srv.Close()
 
 	reload := make(chan *config.Config, 1)
 	hup := make(chan os.Signal, 1)

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"plumb/cmd/plumb/internal/config"
+	"plumb/cmd/plumb/internal/view"
 	"plumb/store"
 	"plumb/store/sqlite"
 )
@@ -58,14 +59,14 @@ type statusModel struct {
 }
 
 type fitOut struct {
-	ID        int64              `json:"id"`
-	At        time.Time          `json:"at"`
-	N         int                `json:"n"`
-	Sigma     float64            `json:"sigma"`
-	RSquared  float64            `json:"r_squared"`
-	Estimates map[string]float64 `json:"estimates"`
-	StdErrors map[string]float64 `json:"std_errors"`
-	Fragility *int               `json:"fragility"`
+	ID        int64                 `json:"id"`
+	At        time.Time             `json:"at"`
+	N         int                   `json:"n"`
+	Sigma     view.Float            `json:"sigma"`
+	RSquared  view.Float            `json:"r_squared"`
+	Estimates map[string]view.Float `json:"estimates"`
+	StdErrors map[string]view.Float `json:"std_errors"`
+	Fragility *int                  `json:"fragility"`
 }
 
 type statusFile struct {
@@ -94,14 +95,14 @@ type statusOut struct {
 }
 
 func fitOutOf(f store.FitRecord) *fitOut {
-	o := &fitOut{ID: f.ID, At: f.At, N: f.N, Sigma: f.Sigma, RSquared: f.RSquared,
-		Estimates: map[string]float64{}, StdErrors: map[string]float64{}, Fragility: fragPtr(f.Fragility)}
+	o := &fitOut{ID: f.ID, At: f.At, N: f.N, Sigma: view.Float(f.Sigma), RSquared: view.Float(f.RSquared),
+		Estimates: map[string]view.Float{}, StdErrors: map[string]view.Float{}, Fragility: fragPtr(f.Fragility)}
 	for i, t := range f.Terms {
 		if i < len(f.Estimates) {
-			o.Estimates[t] = f.Estimates[i]
+			o.Estimates[t] = view.Float(f.Estimates[i])
 		}
 		if i < len(f.StdErrors) {
-			o.StdErrors[t] = f.StdErrors[i]
+			o.StdErrors[t] = view.Float(f.StdErrors[i])
 		}
 	}
 	return o

@@ -20,6 +20,7 @@ import (
 	"sync"
 	"time"
 
+	"plumb/engine"
 	"plumb/store"
 )
 
@@ -114,6 +115,7 @@ func copyObs(o store.Observation) store.Observation {
 		if len(d.DFBETAS) == 0 {
 			d.DFBETAS = nil
 		}
+		d.Flags = store.CopyFlags(d.Flags)
 		o.Arrival = &d
 	}
 	return o
@@ -140,19 +142,6 @@ func copyDelivery(d store.Delivery) store.Delivery {
 	}
 	d.NextAttempt, d.CreatedAt, d.UpdatedAt = utc(d.NextAttempt), utc(d.CreatedAt), utc(d.UpdatedAt)
 	return d
-}
-
-func checkProvenance(src store.Source, model, path string, gen int) error {
-	if model != "" && model != src.Model {
-		return fmt.Errorf("model %q differs from the batch's %q", model, src.Model)
-	}
-	if path != "" && path != src.Path {
-		return fmt.Errorf("path %q differs from the batch's %q", path, src.Path)
-	}
-	if gen != 0 && gen != src.Generation {
-		return fmt.Errorf("generation %d differs from the batch's %d", gen, src.Generation)
-	}
-	return nil
 }
 
 // Sources returns the read state of every file the model has read, by path.
@@ -193,7 +182,7 @@ func (s *Store) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 	// Validate everything before changing anything.
 	seen := make(map[int]bool, len(b.Observations))
 	for _, o := range b.Observations {
-		if err := checkProvenance(src, o.Model, o.Path, o.Generation); err != nil {
+		if err := store.CheckProvenance(src, o.Model, o.Path, o.Generation); err != nil {
 			return fail(fmt.Errorf("observation line %d: %w", o.Line, err))
 		}
 		if _, dup := s.prov[provKey{src.Model, src.Path, src.Generation, o.Line}]; dup || seen[o.Line] {
@@ -202,7 +191,7 @@ func (s *Store) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		seen[o.Line] = true
 	}
 	for _, q := range b.Quarantine {
-		if err := checkProvenance(src, q.Model, q.Path, q.Generation); err != nil {
+		if err := store.CheckProvenance(src, q.Model, q.Path, q.Generation); err != nil {
 			return fail(fmt.Errorf("quarantined line %d: %w", q.Line, err))
 		}
 	}
@@ -320,6 +309,7 @@ func (s *Store) RecordFit(ctx context.Context, f store.FitRecord, changes []stor
 			c.At = f.At
 		}
 		c.At = utc(c.At)
+		c.Flags = store.CopyFlags(c.Flags)
 		s.changes[c.ObsID] = append(s.changes[c.ObsID], c)
 	}
 	return f.ID, nil
@@ -395,17 +385,21 @@ func (s *Store) VerdictChanges(ctx context.Context, obsID int64) ([]store.Verdic
 		return nil, fmt.Errorf("store: verdict changes of observation %d: %w", obsID, err)
 	}
 	defer s.mu.Unlock()
-	return slices.Clone(s.changes[obsID]), nil
+	cs := slices.Clone(s.changes[obsID])
+	for i := range cs {
+		cs[i].Flags = store.CopyFlags(cs[i].Flags)
+	}
+	return cs, nil
 }
 
 // CurrentVerdicts returns the latest verdict of each of the model's
 // observations whose latest verdict differs from its arrival verdict.
-func (s *Store) CurrentVerdicts(ctx context.Context, model string) (map[int64]string, error) {
+func (s *Store) CurrentVerdicts(ctx context.Context, model string) (map[int64]engine.Word, error) {
 	if err := s.begin(ctx); err != nil {
 		return nil, fmt.Errorf("store: current verdicts %s: %w", model, err)
 	}
 	defer s.mu.Unlock()
-	out := make(map[int64]string)
+	out := make(map[int64]engine.Word)
 	for id, cs := range s.changes {
 		o := s.obs[s.obsIdx[id]]
 		if o.Model != model || len(cs) == 0 {
@@ -497,10 +491,6 @@ func (s *Store) ModelStates(ctx context.Context) ([]store.ModelState, error) {
 	return out, nil
 }
 
-func validState(st store.DeliveryState) bool {
-	return st == store.DeliveryPending || st == store.DeliveryDelivered || st == store.DeliveryDead
-}
-
 // PutAlert upserts the alert (keeping FirstSeen) and enqueues deliveries.
 func (s *Store) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery) error {
 	fail := func(err error) error { return fmt.Errorf("store: put alert %s: %w", a.ID, err) }
@@ -514,26 +504,9 @@ func (s *Store) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []
 	now := s.now()
 	ds := make([]store.Delivery, len(deliveries))
 	for i, d := range deliveries {
-		if d.AlertID == "" {
-			d.AlertID = a.ID
-		}
-		if d.AlertID != a.ID {
-			return fail(fmt.Errorf("delivery for alert %q in PutAlert of %q", d.AlertID, a.ID))
-		}
-		if d.State == "" {
-			d.State = store.DeliveryPending
-		}
-		if !validState(d.State) {
-			return fail(fmt.Errorf("delivery state %q unknown", d.State))
-		}
-		if d.CreatedAt.IsZero() {
-			d.CreatedAt = now
-		}
-		if d.NextAttempt.IsZero() {
-			d.NextAttempt = d.CreatedAt
-		}
-		if d.UpdatedAt.IsZero() {
-			d.UpdatedAt = d.CreatedAt
+		d, err := store.DeliveryDefaults(d, a.ID, now)
+		if err != nil {
+			return fail(err)
 		}
 		ds[i] = copyDelivery(d)
 	}
@@ -628,7 +601,7 @@ func (s *Store) DueDeliveries(ctx context.Context, now time.Time, limit int) ([]
 // UpdateDelivery stores a delivery's new status after an attempt.
 func (s *Store) UpdateDelivery(ctx context.Context, d store.Delivery) error {
 	fail := func(err error) error { return fmt.Errorf("store: update delivery %d: %w", d.ID, err) }
-	if !validState(d.State) {
+	if !store.ValidDeliveryState(d.State) {
 		return fail(fmt.Errorf("delivery state %q unknown", d.State))
 	}
 	if err := s.begin(ctx); err != nil {

@@ -11,14 +11,6 @@ import (
 	"plumb/store"
 )
 
-func validState(s store.DeliveryState) bool {
-	switch s {
-	case store.DeliveryPending, store.DeliveryDelivered, store.DeliveryDead:
-		return true
-	}
-	return false
-}
-
 // PutAlert inserts the alert or updates the stored one with the same ID
 // (keeping its FirstSeen) and, in the same transaction, enqueues the
 // deliveries.
@@ -43,26 +35,9 @@ func (db *DB) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []st
 	now := db.now()
 	dargs := make([][]any, len(deliveries))
 	for i, d := range deliveries {
-		if d.AlertID == "" {
-			d.AlertID = a.ID
-		}
-		if d.AlertID != a.ID {
-			return fail(fmt.Errorf("delivery for alert %q in PutAlert of %q", d.AlertID, a.ID))
-		}
-		if d.State == "" {
-			d.State = store.DeliveryPending
-		}
-		if !validState(d.State) {
-			return fail(fmt.Errorf("delivery state %q unknown", d.State))
-		}
-		if d.CreatedAt.IsZero() {
-			d.CreatedAt = now
-		}
-		if d.NextAttempt.IsZero() {
-			d.NextAttempt = d.CreatedAt
-		}
-		if d.UpdatedAt.IsZero() {
-			d.UpdatedAt = d.CreatedAt
+		d, err := store.DeliveryDefaults(d, a.ID, now)
+		if err != nil {
+			return fail(err)
 		}
 		var ts [3]any
 		for j, t := range []time.Time{d.NextAttempt, d.CreatedAt, d.UpdatedAt} {
@@ -271,7 +246,7 @@ func (db *DB) DueDeliveries(ctx context.Context, now time.Time, limit int) ([]st
 // unknown ID gives an error wrapping store.ErrNotFound.
 func (db *DB) UpdateDelivery(ctx context.Context, d store.Delivery) error {
 	fail := func(err error) error { return fmt.Errorf("store: update delivery %d: %w", d.ID, err) }
-	if !validState(d.State) {
+	if !store.ValidDeliveryState(d.State) {
 		return fail(fmt.Errorf("delivery state %q unknown", d.State))
 	}
 	next, err := encTime(d.NextAttempt)

@@ -8,6 +8,7 @@ import (
 	"testing"
 	"time"
 
+	"plumb/engine"
 	"plumb/store"
 )
 
@@ -25,7 +26,7 @@ func benchObs(line int, at time.Time) store.Observation {
 		Arrival: &store.Diagnostics{
 			Leverage: 0.0123, Residual: -0.0456, StudentizedInternal: -0.789, StudentizedExternal: -0.788,
 			CooksDistance: 0.00234, DFFITS: -0.0876, DFBETAS: []float64{0.01, -0.02, 0.03},
-			COVRATIO: 1.0123, OutlierPBonferroni: 1, Verdict: "ordinary", Flags: "[]",
+			COVRATIO: 1.0123, OutlierPBonferroni: 1, Verdict: engine.WordOrdinary, Flags: nil,
 		},
 	}
 }
@@ -134,8 +135,8 @@ func TestBytesPerObservation(t *testing.T) {
 	const fits = 100
 	for i := range fits {
 		changes := []store.VerdictChange{
-			{ObsID: last[i%len(last)], From: "ordinary", To: "notable", Flags: `[{"measure":"leverage"}]`},
-			{ObsID: last[(i+1)%len(last)], From: "notable", To: "ordinary", Flags: "[]"},
+			{ObsID: last[i%len(last)], From: engine.WordOrdinary, To: engine.WordNotable, Flags: []engine.Flag{{Measure: engine.MeasureLeverage}}},
+			{ObsID: last[(i+1)%len(last)], From: engine.WordNotable, To: engine.WordOrdinary, Flags: nil},
 		}
 		f := store.FitRecord{Model: "bench", At: time.Now(), N: n, P: 3, Terms: []string{"intercept", "x1", "x2"},
 			Estimates: []float64{1.5, 2, -0.5}, StdErrors: []float64{0.01, 0.02, 0.03}, Sigma: 0.1, RSquared: 0.99,
@@ -209,7 +210,7 @@ func BenchmarkRecordFit(b *testing.B) {
 	for b.Loop() {
 		changes := make([]store.VerdictChange, 10)
 		for j := range changes {
-			changes[j] = store.VerdictChange{ObsID: ids[(i*10+j)%len(ids)], From: "ordinary", To: "notable", Flags: "[]"}
+			changes[j] = store.VerdictChange{ObsID: ids[(i*10+j)%len(ids)], From: engine.WordOrdinary, To: engine.WordNotable, Flags: nil}
 		}
 		f := store.FitRecord{Model: "bench", At: time.Now(), N: 1000, P: 3, Terms: []string{"intercept", "x1", "x2"},
 			Estimates: []float64{1.5, 2, -0.5}, StdErrors: []float64{0.01, 0.02, 0.03}, Sigma: 0.1, RSquared: 0.99,

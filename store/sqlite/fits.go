@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"slices"
 
+	"plumb/engine"
 	"plumb/store"
 )
 
@@ -31,8 +32,9 @@ func (db *DB) RecordFit(ctx context.Context, f store.FitRecord, changes []store.
 		return fail(fmt.Errorf("terms: %w", err))
 	}
 	type change struct {
-		at any // encoded time
-		c  *store.VerdictChange
+		at    any // encoded time
+		flags string
+		c     *store.VerdictChange
 	}
 	cs := make([]change, len(changes))
 	for i := range changes {
@@ -45,7 +47,11 @@ func (db *DB) RecordFit(ctx context.Context, f store.FitRecord, changes []store.
 		if err != nil {
 			return fail(fmt.Errorf("verdict change of observation %d: %w", c.ObsID, err))
 		}
-		cs[i] = change{at: a, c: c}
+		fl, err := encFlags(c.Flags)
+		if err != nil {
+			return fail(fmt.Errorf("verdict change of observation %d: %w", c.ObsID, err))
+		}
+		cs[i] = change{at: a, flags: fl, c: c}
 	}
 	var fitID int64
 	var modelID int64
@@ -76,7 +82,7 @@ func (db *DB) RecordFit(ctx context.Context, f store.FitRecord, changes []store.
 		}
 		defer st.Close()
 		for _, c := range cs {
-			res, err := st.ExecContext(ctx, fitID, c.at, c.c.From, c.c.To, c.c.Flags, c.c.ObsID, modelID)
+			res, err := st.ExecContext(ctx, fitID, c.at, string(c.c.From), string(c.c.To), c.flags, c.c.ObsID, modelID)
 			if err != nil {
 				return fmt.Errorf("verdict change of observation %d: %w", c.c.ObsID, err)
 			}
@@ -247,10 +253,16 @@ func (db *DB) VerdictChanges(ctx context.Context, obsID int64) ([]store.VerdictC
 	for rows.Next() {
 		c := store.VerdictChange{ObsID: obsID}
 		var at sql.NullInt64
-		if err := rows.Scan(&c.FitID, &at, &c.From, &c.To, &c.Flags); err != nil {
+		var from, to string
+		var flags sql.NullString
+		if err := rows.Scan(&c.FitID, &at, &from, &to, &flags); err != nil {
 			return fail(err)
 		}
 		c.At = decTime(at)
+		c.From, c.To = engine.Word(from), engine.Word(to)
+		if c.Flags, err = decFlags(flags); err != nil {
+			return fail(fmt.Errorf("observation %d: %w", obsID, err))
+		}
 		out = append(out, c)
 	}
 	if err := rows.Err(); err != nil {
@@ -263,11 +275,11 @@ func (db *DB) VerdictChanges(ctx context.Context, obsID int64) ([]store.VerdictC
 // observation of the model whose latest verdict differs from its arrival
 // verdict (an observation that arrived without diagnostics counts as
 // differing once it has any change).
-func (db *DB) CurrentVerdicts(ctx context.Context, model string) (map[int64]string, error) {
-	fail := func(err error) (map[int64]string, error) {
+func (db *DB) CurrentVerdicts(ctx context.Context, model string) (map[int64]engine.Word, error) {
+	fail := func(err error) (map[int64]engine.Word, error) {
 		return nil, fmt.Errorf("store: current verdicts %s: %w", model, err)
 	}
-	out := make(map[int64]string)
+	out := make(map[int64]engine.Word)
 	mid, ok, err := db.lookupModel(ctx, db.db, model)
 	if err != nil {
 		return fail(err)
@@ -291,7 +303,7 @@ func (db *DB) CurrentVerdicts(ctx context.Context, model string) (map[int64]stri
 			return fail(err)
 		}
 		if !arrival.Valid || arrival.String != to {
-			out[id] = to
+			out[id] = engine.Word(to)
 		}
 	}
 	if err := rows.Err(); err != nil {

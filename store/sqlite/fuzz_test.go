@@ -6,6 +6,7 @@ import (
 	"testing"
 	"time"
 
+	"plumb/engine"
 	"plumb/store"
 )
 
@@ -28,7 +29,8 @@ func FuzzObservationRoundTrip(f *testing.F) {
 			Arrival: &store.Diagnostics{
 				Leverage: diag, Residual: -diag, StudentizedInternal: diag, StudentizedExternal: diag,
 				CooksDistance: diag, DFFITS: diag, COVRATIO: diag, OutlierPBonferroni: diag,
-				DFBETAS: []float64{math.Float64frombits(v1), diag}, Verdict: verdict, Flags: raw,
+				DFBETAS: []float64{math.Float64frombits(v1), diag}, Verdict: engine.Word(verdict),
+				Flags: []engine.Flag{{Measure: raw, Family: verdict, Term: raw, Value: diag, Cutoff: math.Float64frombits(v0)}},
 			},
 		}
 		if ns != 0 {
@@ -45,8 +47,15 @@ func FuzzObservationRoundTrip(f *testing.F) {
 			t.Fatalf("Observations = %v, %v", got, err)
 		}
 		g := got[0]
-		if g.Raw != raw || g.Arrival == nil || g.Arrival.Flags != raw || g.Arrival.Verdict != verdict {
-			t.Fatalf("text round trip: raw %q flags %q verdict %q, want %q %q %q", g.Raw, g.Arrival.Flags, g.Arrival.Verdict, raw, raw, verdict)
+		if g.Raw != raw || g.Arrival == nil || string(g.Arrival.Verdict) != verdict {
+			t.Fatalf("text round trip: raw %q verdict %q, want %q %q", g.Raw, g.Arrival.Verdict, raw, verdict)
+		}
+		// Flag text is kept as UTF-8 (store.CopyFlags); numbers bit for bit
+		// up to NaN payloads.
+		wantFlag := store.CopyFlags(o.Arrival.Flags)[0]
+		if fl := g.Arrival.Flags; len(fl) != 1 || fl[0].Measure != wantFlag.Measure || fl[0].Family != wantFlag.Family ||
+			fl[0].Term != wantFlag.Term || !sameBits(fl[0].Value, diag) || !sameBits(fl[0].Cutoff, math.Float64frombits(v0)) {
+			t.Fatalf("flags = %+v, want %+v", g.Arrival.Flags, wantFlag)
 		}
 		if len(g.Values) != 2 || math.Float64bits(g.Values[0]) != v0 || math.Float64bits(g.Values[1]) != v1 {
 			t.Fatalf("values = %v, want bits %x %x", g.Values, v0, v1)
@@ -63,6 +72,11 @@ func FuzzObservationRoundTrip(f *testing.F) {
 			t.Fatalf("time = %v, want %v", g.Time, o.Time)
 		}
 	})
+}
+
+// sameBits: equal bit patterns, or both NaN.
+func sameBits(a, b float64) bool {
+	return math.Float64bits(a) == math.Float64bits(b) || (math.IsNaN(a) && math.IsNaN(b))
 }
 
 func timeFromNanos(ns int64) time.Time { return time.Unix(0, ns) }

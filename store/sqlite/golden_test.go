@@ -2,6 +2,7 @@ package sqlite_test
 
 import (
 	"context"
+	"encoding/json"
 	"flag"
 	"fmt"
 	"math"
@@ -11,6 +12,7 @@ import (
 	"testing"
 	"time"
 
+	"plumb/engine"
 	"plumb/store"
 	"plumb/store/sqlite"
 )
@@ -37,7 +39,7 @@ func TestGoldenHistory(t *testing.T) {
 		mk(3, "08:03,1.45,0.47", 1.45, 0.47, &store.Diagnostics{Leverage: 1, Residual: 0, StudentizedInternal: math.NaN(),
 			StudentizedExternal: math.NaN(), CooksDistance: math.NaN(), DFFITS: math.NaN(), DFBETAS: []float64{math.NaN(), math.NaN()},
 			COVRATIO: math.NaN(), OutlierPBonferroni: math.NaN(), Verdict: "influential",
-			Flags: `[{"measure":"leverage","family":"absolute","value":1,"cutoff":0.667}]`}),
+			Flags: []engine.Flag{{Measure: engine.MeasureLeverage, Family: engine.FamilyAbsolute, Value: 1, Cutoff: 0.667}}}),
 	}})
 	if err != nil {
 		t.Fatal(err)
@@ -47,7 +49,7 @@ func TestGoldenHistory(t *testing.T) {
 	if _, err := db.Ingest(ctx, store.Batch{Source: rot,
 		Observations: []store.Observation{mk(2, "09:02,1.31,0.36", 1.31, 0.36, &store.Diagnostics{Leverage: 0.2, Residual: -0.01,
 			StudentizedInternal: -0.5, StudentizedExternal: -0.48, CooksDistance: 0.03, DFFITS: -0.25, DFBETAS: []float64{0.1, -0.2},
-			COVRATIO: 1.4, OutlierPBonferroni: 1, Verdict: "ordinary", Flags: "[]"})},
+			COVRATIO: 1.4, OutlierPBonferroni: 1, Verdict: "ordinary", Flags: nil})},
 		Quarantine: []store.QuarantineRow{{Line: 3, Column: 2, Raw: "09:03,n/a,0.40", Reason: `bench/run1.csv:3:2: "n/a" is not a number`, At: at.Add(2 * time.Hour)}},
 	}); err != nil {
 		t.Fatal(err)
@@ -55,7 +57,7 @@ func TestGoldenHistory(t *testing.T) {
 	fit, err := db.RecordFit(ctx, store.FitRecord{Model: "flow", At: at.Add(3 * time.Hour), N: 3, P: 2, Terms: []string{"intercept", "dp"},
 		Estimates: []float64{0.71, 1.58}, StdErrors: []float64{0.02, 0.05}, Sigma: 0.012, RSquared: 0.998, Fragility: -2, FragilityK: 0,
 		Detail: `{"max_cooks":0.41}`, LastObsID: ids[1]},
-		[]store.VerdictChange{{ObsID: ids[1], From: "influential", To: "ordinary", Flags: "[]"}})
+		[]store.VerdictChange{{ObsID: ids[1], From: "influential", To: "ordinary", Flags: nil}})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -93,7 +95,7 @@ func TestGoldenHistory(t *testing.T) {
 		if d := o.Arrival; d != nil {
 			fmt.Fprintf(&w, "    arrival h=%v e=%v r=%v t=%v D=%v dffits=%v dfbetas=%v covratio=%v p=%v verdict=%s flags=%s\n",
 				d.Leverage, d.Residual, d.StudentizedInternal, d.StudentizedExternal, d.CooksDistance, d.DFFITS, d.DFBETAS,
-				d.COVRATIO, d.OutlierPBonferroni, d.Verdict, d.Flags)
+				d.COVRATIO, d.OutlierPBonferroni, d.Verdict, flagsText(d.Flags))
 		}
 	}
 	qs, err := db.Quarantined(ctx, "", 0, 0)
@@ -116,7 +118,7 @@ func TestGoldenHistory(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, c := range changes {
-		fmt.Fprintf(&w, "change obs=%d fit=%d at=%s %s -> %s flags=%s\n", c.ObsID, c.FitID, ts(c.At), c.From, c.To, c.Flags)
+		fmt.Fprintf(&w, "change obs=%d fit=%d at=%s %s -> %s flags=%s\n", c.ObsID, c.FitID, ts(c.At), c.From, c.To, flagsText(c.Flags))
 	}
 	cur, err := db.CurrentVerdicts(ctx, "flow")
 	if err != nil {
@@ -167,4 +169,25 @@ func TestGoldenHistory(t *testing.T) {
 // sqliteClock fixes the store's clock at t, for outputs that hold defaults.
 func sqliteClock(t time.Time) sqlite.Option {
 	return sqlite.WithClock(func() time.Time { return t })
+}
+
+// flagsText prints flags in the JSON form the golden file has always shown
+// (the form of the flags column).
+func flagsText(fs []engine.Flag) string {
+	type flag struct {
+		Measure string  `json:"measure"`
+		Family  string  `json:"family"`
+		Term    string  `json:"term,omitempty"`
+		Value   float64 `json:"value"`
+		Cutoff  float64 `json:"cutoff"`
+	}
+	out := make([]flag, len(fs))
+	for i, f := range fs {
+		out[i] = flag{f.Measure, f.Family, f.Term, f.Value, f.Cutoff}
+	}
+	b, err := json.Marshal(out)
+	if err != nil {
+		return err.Error()
+	}
+	return string(b)
 }

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"strings"
 
+	"plumb/engine"
 	"plumb/store"
 
 	msqlite "modernc.org/sqlite"
@@ -120,7 +121,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 	args := make([]any, len(b.Observations)*nObsCols)
 	for i := range b.Observations {
 		o := &b.Observations[i]
-		if err := checkProvenance(src, o.Model, o.Path, o.Generation); err != nil {
+		if err := store.CheckProvenance(src, o.Model, o.Path, o.Generation); err != nil {
 			return fail(fmt.Errorf("observation line %d: %w", o.Line, err))
 		}
 		a := args[i*nObsCols : (i+1)*nObsCols]
@@ -144,14 +145,16 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 			a[15] = encFloats(d.DFBETAS)
 			a[16] = encReal(d.COVRATIO)
 			a[17] = encReal(d.OutlierPBonferroni)
-			a[18] = d.Verdict
-			a[19] = d.Flags
+			a[18] = string(d.Verdict)
+			if a[19], err = encFlags(d.Flags); err != nil {
+				return fail(fmt.Errorf("observation line %d flags: %w", o.Line, err))
+			}
 		}
 	}
 	qargs := make([][]any, len(b.Quarantine))
 	for i := range b.Quarantine {
 		q := &b.Quarantine[i]
-		if err := checkProvenance(src, q.Model, q.Path, q.Generation); err != nil {
+		if err := store.CheckProvenance(src, q.Model, q.Path, q.Generation); err != nil {
 			return fail(fmt.Errorf("quarantined line %d: %w", q.Line, err))
 		}
 		at, err := encTime(q.At)
@@ -271,19 +274,6 @@ func isUnique(err error) bool {
 
 // checkProvenance accepts the zero value (meaning: the batch's source) or
 // the source's own model, path and generation.
-func checkProvenance(src store.Source, model, path string, gen int) error {
-	if model != "" && model != src.Model {
-		return fmt.Errorf("model %q differs from the batch's %q", model, src.Model)
-	}
-	if path != "" && path != src.Path {
-		return fmt.Errorf("path %q differs from the batch's %q", path, src.Path)
-	}
-	if gen != 0 && gen != src.Generation {
-		return fmt.Errorf("generation %d differs from the batch's %d", gen, src.Generation)
-	}
-	return nil
-}
-
 // Sources returns the read state of every file the model has read, by path.
 func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error) {
 	rows, err := db.db.QueryContext(ctx, `SELECT s.path, s.generation, s.inode, s.size, s.read_offset, s.line,
@@ -350,8 +340,10 @@ func scanObs(sc *sql.Rows, o *store.Observation, sourceID *int64) error {
 			DFFITS:              decReal(dff),
 			COVRATIO:            decReal(cov),
 			OutlierPBonferroni:  decReal(outp),
-			Verdict:             verdict.String,
-			Flags:               flags.String,
+			Verdict:             engine.Word(verdict.String),
+		}
+		if d.Flags, err = decFlags(flags); err != nil {
+			return fmt.Errorf("observation %d: %w", o.ID, err)
 		}
 		if d.DFBETAS, err = decFloats(dfb); err != nil {
 			return fmt.Errorf("observation %d DFBETAS: %w", o.ID, err)

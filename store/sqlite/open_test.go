@@ -7,10 +7,12 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"time"
 
+	"plumb/engine"
 	"plumb/store"
 	"plumb/store/sqlite"
 )
@@ -89,7 +91,7 @@ func TestReopenKeepsData(t *testing.T) {
 		t.Fatal(err)
 	}
 	if _, err := db.RecordFit(ctx, store.FitRecord{Model: "bench", N: 50, P: 3, Terms: []string{"intercept", "x1", "x2"},
-		LastObsID: ids[49], Detail: "{}"}, []store.VerdictChange{{ObsID: ids[3], From: "ordinary", To: "notable", Flags: "[]"}}); err != nil {
+		LastObsID: ids[49], Detail: "{}"}, []store.VerdictChange{{ObsID: ids[3], From: "ordinary", To: "notable", Flags: nil}}); err != nil {
 		t.Fatal(err)
 	}
 	if err := db.PutAlert(ctx, store.AlertRecord{ID: "a1", Model: "bench", Kind: "suspect", Subject: "in/run.csv:5",
@@ -313,5 +315,53 @@ func TestMigrateAlertRevision(t *testing.T) {
 	}
 	if err := db.PutAlert(ctx, a, nil); !errors.Is(err, store.ErrChanged) {
 		t.Errorf("the same write again: %v, want ErrChanged", err)
+	}
+}
+
+// TestFlagsColumn checks the flags column: a JSON array of objects
+// (measure, family, term, value, cutoff) with null for NaN and "+Inf" or
+// "-Inf" for the infinities, and that text written by earlier versions
+// (undefined values written as 0) still reads.
+func TestFlagsColumn(t *testing.T) {
+	ctx := context.Background()
+	db, _ := openTemp(t)
+	b := newBatcher(2).next()
+	b.Observations[0].Arrival.Flags = []engine.Flag{
+		{Measure: engine.MeasureDFBETAS, Family: engine.FamilySizeAdjusted, Term: "dp", Value: 0.75, Cutoff: 0.5},
+		{Measure: engine.MeasureCOVRATIO, Family: engine.FamilyAbsolute, Value: math.Inf(1), Cutoff: math.NaN()},
+	}
+	ids, err := db.Ingest(ctx, b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var text string
+	if err := db.DB().QueryRowContext(ctx, "SELECT flags FROM observations WHERE id = ?", ids[0]).Scan(&text); err != nil {
+		t.Fatal(err)
+	}
+	want := `[{"measure":"dfbetas","family":"size_adjusted","term":"dp","value":0.75,"cutoff":0.5},{"measure":"covratio","family":"absolute","value":"+Inf","cutoff":null}]`
+	if text != want {
+		t.Errorf("flags column = %s\nwant %s", text, want)
+	}
+	// As an earlier version wrote it: no term key, 0 for an undefined value.
+	old := `[{"measure":"leverage","family":"absolute","value":0,"cutoff":0.667},{"measure":"outlier_p_bonferroni","family":"test","value":0.001,"cutoff":0.05}]`
+	if _, err := db.DB().ExecContext(ctx, "UPDATE observations SET flags = ? WHERE id = ?", old, ids[0]); err != nil {
+		t.Fatal(err)
+	}
+	got, err := db.Observations(ctx, b.Source.Model, store.ObsQuery{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	wantFlags := []engine.Flag{
+		{Measure: engine.MeasureLeverage, Family: engine.FamilyAbsolute, Value: 0, Cutoff: 0.667},
+		{Measure: engine.MeasureBonferroni, Family: engine.FamilyTest, Value: 0.001, Cutoff: 0.05},
+	}
+	if len(got) < 1 || got[0].Arrival == nil || !slices.Equal(got[0].Arrival.Flags, wantFlags) {
+		t.Errorf("flags read back = %+v, want %+v", got[0].Arrival, wantFlags)
+	}
+	if _, err := db.DB().ExecContext(ctx, "UPDATE observations SET flags = ? WHERE id = ?", `[{"measure":`, ids[0]); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := db.Observations(ctx, b.Source.Model, store.ObsQuery{}); err == nil {
+		t.Error("a malformed flags column read without an error")
 	}
 }

@@ -32,6 +32,7 @@ import (
 	"testing"
 	"time"
 
+	"plumb/engine"
 	"plumb/store"
 )
 
@@ -110,7 +111,7 @@ func obs(line int, withArrival bool) store.Observation {
 			Leverage: 0.1 + float64(line)/1000, Residual: -0.25, StudentizedInternal: 1.5,
 			StudentizedExternal: 1.6, CooksDistance: 0.01, DFFITS: 0.3,
 			DFBETAS: []float64{0.1, -0.2, 0.3}, COVRATIO: 1.02, OutlierPBonferroni: 1,
-			Verdict: "ordinary", Flags: "[]",
+			Verdict: engine.WordOrdinary, Flags: nil,
 		}
 	}
 	return o
@@ -154,6 +155,15 @@ func sameFloat(a, b float64) bool {
 
 func sameFloats(a, b []float64) bool {
 	return slices.EqualFunc(a, b, sameFloat)
+}
+
+// sameFlags compares flags field by field, NaN equal to NaN; no flags
+// and an empty list are the same.
+func sameFlags(a, b []engine.Flag) bool {
+	return slices.EqualFunc(a, b, func(x, y engine.Flag) bool {
+		return x.Measure == y.Measure && x.Family == y.Family && x.Term == y.Term &&
+			sameFloat(x.Value, y.Value) && sameFloat(x.Cutoff, y.Cutoff)
+	})
 }
 
 func sameTime(t *testing.T, what string, got, want time.Time) {
@@ -209,8 +219,8 @@ func checkObs(t *testing.T, got, want store.Observation) {
 		if !sameFloats(g.DFBETAS, w.DFBETAS) {
 			t.Errorf("line %d: DFBETAS = %v, want %v", want.Line, g.DFBETAS, w.DFBETAS)
 		}
-		if g.Verdict != w.Verdict || g.Flags != w.Flags {
-			t.Errorf("line %d: verdict %q flags %q, want %q %q", want.Line, g.Verdict, g.Flags, w.Verdict, w.Flags)
+		if g.Verdict != w.Verdict || !sameFlags(g.Flags, w.Flags) {
+			t.Errorf("line %d: verdict %q flags %v, want %q %v", want.Line, g.Verdict, g.Flags, w.Verdict, w.Flags)
 		}
 	}
 }
@@ -442,8 +452,12 @@ func testObservationRoundTrip(t *testing.T, s store.Store) {
 	odd.Arrival.COVRATIO = nan
 	odd.Arrival.OutlierPBonferroni = nan
 	odd.Arrival.DFBETAS = []float64{nan, -inf, 0}
-	odd.Arrival.Verdict = "suspect"
-	odd.Arrival.Flags = `[{"measure":"leverage","family":"absolute","value":1,"cutoff":0.5}]`
+	odd.Arrival.Verdict = engine.WordSuspect
+	odd.Arrival.Flags = []engine.Flag{
+		{Measure: engine.MeasureLeverage, Family: engine.FamilyAbsolute, Value: 1, Cutoff: 0.5},
+		{Measure: engine.MeasureDFBETAS, Family: engine.FamilySizeAdjusted, Term: "log(\"flow rate\")^2", Value: -inf, Cutoff: 0.25},
+		{Measure: engine.MeasureBonferroni, Family: engine.FamilyTest, Value: nan, Cutoff: inf},
+	}
 
 	noTime := obs(3, false)
 	noTime.Time = time.Time{}
@@ -453,7 +467,7 @@ func testObservationRoundTrip(t *testing.T, s store.Store) {
 	late.Time = time.Date(2261, 12, 31, 23, 59, 59, 999999999, time.UTC)
 	late.ArrivedAt = time.Date(1700, 1, 1, 0, 0, 0, 1, time.UTC)
 	late.Arrival.DFBETAS = nil
-	late.Arrival.Flags = ""
+	late.Arrival.Flags = []engine.Flag{} // none, read back as nil
 	late.Arrival.Verdict = ""
 
 	b := store.Batch{Source: source("cal", "dir/a b.csv", 0, 40, 4), Observations: []store.Observation{odd, noTime, late}}
@@ -921,16 +935,16 @@ func testVerdictChanges(t *testing.T, s store.Store) {
 	other := mustIngest(t, s, batch("other", "a.csv", 1, 2, 3))
 
 	f1, err := s.RecordFit(ctx, fitRecord("cal", 1, ids[5]), []store.VerdictChange{
-		{ObsID: ids[0], From: "ordinary", To: "outlier", Flags: `["a"]`, FitID: 999},
-		{ObsID: ids[1], From: "", To: "notable", Flags: `["b"]`},
-		{ObsID: ids[2], From: "ordinary", To: "suspect", Flags: `["c"]`, At: t0.Add(time.Hour)},
+		{ObsID: ids[0], From: "ordinary", To: "outlier", Flags: []engine.Flag{{Measure: "a"}}, FitID: 999},
+		{ObsID: ids[1], From: "", To: "notable", Flags: []engine.Flag{{Measure: "b"}}},
+		{ObsID: ids[2], From: "ordinary", To: "suspect", Flags: []engine.Flag{{Measure: "c"}}, At: t0.Add(time.Hour)},
 	})
 	if err != nil {
 		t.Fatal(err)
 	}
 	f2, err := s.RecordFit(ctx, fitRecord("cal", 2, ids[5]), []store.VerdictChange{
-		{ObsID: ids[0], From: "outlier", To: "ordinary", Flags: "[]"}, // back to its arrival verdict
-		{ObsID: ids[2], From: "suspect", To: "influential", Flags: `["d"]`},
+		{ObsID: ids[0], From: "outlier", To: "ordinary", Flags: nil}, // back to its arrival verdict
+		{ObsID: ids[2], From: "suspect", To: "influential", Flags: []engine.Flag{{Measure: "d"}}},
 	})
 	if err != nil {
 		t.Fatal(err)
@@ -943,15 +957,15 @@ func testVerdictChanges(t *testing.T, s store.Store) {
 		t.Fatal(err)
 	}
 	want := []store.VerdictChange{
-		{ObsID: ids[2], FitID: f1, At: t0.Add(time.Hour), From: "ordinary", To: "suspect", Flags: `["c"]`},
-		{ObsID: ids[2], FitID: f2, At: fitRecord("cal", 2, 0).At, From: "suspect", To: "influential", Flags: `["d"]`},
+		{ObsID: ids[2], FitID: f1, At: t0.Add(time.Hour), From: "ordinary", To: "suspect", Flags: []engine.Flag{{Measure: "c"}}},
+		{ObsID: ids[2], FitID: f2, At: fitRecord("cal", 2, 0).At, From: "suspect", To: "influential", Flags: []engine.Flag{{Measure: "d"}}},
 	}
 	if len(got) != len(want) {
 		t.Fatalf("VerdictChanges = %+v, want %+v", got, want)
 	}
 	for i := range want {
 		g, w := got[i], want[i]
-		if g.ObsID != w.ObsID || g.FitID != w.FitID || g.From != w.From || g.To != w.To || g.Flags != w.Flags {
+		if g.ObsID != w.ObsID || g.FitID != w.FitID || g.From != w.From || g.To != w.To || !sameFlags(g.Flags, w.Flags) {
 			t.Errorf("change %d = %+v, want %+v", i, g, w)
 		}
 		sameTime(t, "change At", g.At, w.At)
@@ -966,7 +980,7 @@ func testVerdictChanges(t *testing.T, s store.Store) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	wantCur := map[int64]string{ids[1]: "notable", ids[2]: "influential"}
+	wantCur := map[int64]engine.Word{ids[1]: "notable", ids[2]: "influential"}
 	if len(cur) != len(wantCur) {
 		t.Errorf("CurrentVerdicts = %v, want %v", cur, wantCur)
 	}

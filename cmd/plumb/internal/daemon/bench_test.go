@@ -130,7 +130,7 @@ func TestMemoryPerObservation(t *testing.T) {
 	runtime.GC()
 	runtime.ReadMemStats(&after)
 	perRow := float64(after.HeapAlloc-before.HeapAlloc) / n
-	raw := float64(len(m.vals) * 8)
+	raw := float64(len(m.rows.vals) * 8)
 	beyond := perRow - raw
 	t.Logf("heap per observation %.1f bytes, of which raw values %.0f, beyond them %.1f", perRow, raw, beyond)
 	if beyond >= 200 {

@@ -8,7 +8,8 @@
 //	  -> alerts manager (rules, lifecycle, outbox)
 //	  -> dispatcher (routes)
 //
-// and serves the view the web server and report read. Models are isolated:
+// and gives the view (View) that the web server and the report read; the
+// command that runs the daemon serves it over HTTP. Models are isolated:
 // one model's failure never stops another.
 package daemon
 
@@ -17,17 +18,16 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
-	"net"
-	"net/http"
 	"os"
 	"sort"
 	"sync"
 	"time"
 
+	"github.com/prometheus/client_golang/prometheus"
+
 	"plumb/alerts"
 	"plumb/cmd/plumb/internal/config"
 	"plumb/cmd/plumb/internal/metrics"
-	"plumb/cmd/plumb/internal/web"
 	"plumb/engine"
 	"plumb/store"
 	"plumb/store/sqlite"
@@ -63,12 +63,11 @@ type Daemon struct {
 	dispatch *alerts.Dispatcher
 
 	mu     sync.RWMutex
-	models map[string]*modelRT
+	models map[string]*watchedModel
 	order  []string
 	ready  bool
 
 	kick chan struct{}
-	addr string
 }
 
 // New opens the state database and prepares every model.
@@ -113,20 +112,16 @@ func (d *Daemon) Store() store.Store { return d.store }
 // Alerts returns the alert manager.
 func (d *Daemon) Alerts() *alerts.Manager { return d.alerts }
 
-// Addr returns the HTTP listener's address once Run has started it.
-func (d *Daemon) Addr() string {
-	d.mu.RLock()
-	defer d.mu.RUnlock()
-	return d.addr
-}
+// Registry returns the daemon's metrics registry, for /metrics.
+func (d *Daemon) Registry() *prometheus.Registry { return d.metrics.m.Registry() }
 
 // build makes the models, the alert manager and the routes from cfg.
 func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
-	models := map[string]*modelRT{}
+	models := map[string]*watchedModel{}
 	var order []string
 	var errs []error
 	for _, mc := range cfg.Models {
-		m, err := newModelRT(d, mc)
+		m, err := newWatchedModel(d, mc)
 		if err != nil {
 			errs = append(errs, err)
 			continue
@@ -251,15 +246,6 @@ func (d *Daemon) Reload(ctx context.Context, cfg *config.Config) error {
 // again, applies it and goes on. It returns after the batch in hand is
 // committed.
 func (d *Daemon) Run(ctx context.Context, reload <-chan *config.Config) error {
-	srvCtx, stopSrv := context.WithCancel(context.Background())
-	defer stopSrv()
-	var srvWG sync.WaitGroup
-	if err := d.startHTTP(srvCtx, &srvWG); err != nil {
-		return err
-	}
-	defer srvWG.Wait()
-	defer stopSrv()
-
 	dctx, stopDispatch := context.WithCancel(context.Background())
 	var dispWG sync.WaitGroup
 	dispWG.Add(1)
@@ -453,7 +439,7 @@ func (d *Daemon) refreshLoop(ctx context.Context, every time.Duration) {
 			if ctx.Err() != nil {
 				return
 			}
-			if err := models[name].refresh(ctx); err != nil && ctx.Err() == nil {
+			if err := models[name].ref.refresh(ctx); err != nil && ctx.Err() == nil {
 				models[name].log.Error("refresh", "err", err)
 			}
 		}
@@ -571,42 +557,6 @@ func splitHeader(s string) []string {
 	return append(out, s[start:])
 }
 
-// startHTTP serves the API, metrics and dashboard on cfg.Listen.
-func (d *Daemon) startHTTP(ctx context.Context, wg *sync.WaitGroup) error {
-	if d.cfg.Listen == "" {
-		return nil
-	}
-	ln, err := net.Listen("tcp", d.cfg.Listen)
-	if err != nil {
-		return fmt.Errorf("listen %s: %w", d.cfg.Listen, err)
-	}
-	token := ""
-	if d.cfg.TokenEnv != "" {
-		token = os.Getenv(d.cfg.TokenEnv)
-	}
-	h := web.New(viewSource{d}, web.Options{Token: token, Registry: d.metrics.m.Registry(), Logger: d.log})
-	srv := &http.Server{Handler: h, ReadHeaderTimeout: 10 * time.Second}
-	d.mu.Lock()
-	d.addr = ln.Addr().String()
-	d.mu.Unlock()
-	d.log.Info("serving", "addr", "http://"+ln.Addr().String()+"/")
-	wg.Add(2)
-	go func() {
-		defer wg.Done()
-		if err := srv.Serve(ln); err != nil && !errors.Is(err, http.ErrServerClosed) {
-			d.log.Error("http", "err", err)
-		}
-	}()
-	go func() {
-		defer wg.Done()
-		<-ctx.Done()
-		sctx, cancel := context.WithTimeout(context.Background(), 3*time.Second)
-		defer cancel()
-		_ = srv.Shutdown(sctx)
-	}()
-	return nil
-}
-
 // RefreshAll refits every model once, now, for the view (the report
 // command uses it with Options.ReadOnly, beside or without a running
 // daemon).
@@ -617,9 +567,9 @@ func (d *Daemon) RefreshAll(ctx context.Context) error {
 	for _, name := range order {
 		m := models[name]
 		m.mu.Lock()
-		m.dirty = true
+		m.ref.dirty = true
 		m.mu.Unlock()
-		if err := m.refresh(ctx); err != nil {
+		if err := m.ref.refresh(ctx); err != nil {
 			return fmt.Errorf("model %q: %w", name, err)
 		}
 	}
@@ -660,7 +610,7 @@ func (d *Daemon) Summary(ctx context.Context) (Summary, error) {
 		m.mu.Lock()
 		s.Rows += m.rowsAccepted
 		s.Quarantined += m.quarantined
-		s.Fits += m.fits
+		s.Fits += m.ref.fits
 		m.mu.Unlock()
 	}
 	as, err := d.store.Alerts(ctx, store.AlertQuery{})
@@ -717,31 +667,28 @@ func (h *metricsHook) alertsOpen(ctx context.Context, s store.Store) {
 // sees every change.
 
 func (d *Daemon) point(ctx context.Context, c alerts.PointCondition) error {
-	if d.opts.ReadOnly {
-		return nil
-	}
-	return d.alerted(d.alerts.Point(ctx, c))
+	return report(d, ctx, c, d.alerts.Point)
 }
 
 func (d *Daemon) fragility(ctx context.Context, c alerts.FragilityCondition) error {
-	if d.opts.ReadOnly {
-		return nil
-	}
-	return d.alerted(d.alerts.Fragility(ctx, c))
+	return report(d, ctx, c, d.alerts.Fragility)
 }
 
 func (d *Daemon) drift(ctx context.Context, c alerts.DriftCondition) error {
-	if d.opts.ReadOnly {
-		return nil
-	}
-	return d.alerted(d.alerts.Drift(ctx, c))
+	return report(d, ctx, c, d.alerts.Drift)
 }
 
 func (d *Daemon) blocked(ctx context.Context, c alerts.BlockedCondition) error {
+	return report(d, ctx, c, d.alerts.Blocked)
+}
+
+// report passes one condition to the alert manager's method for it;
+// a read-only daemon reports nothing.
+func report[C any](d *Daemon, ctx context.Context, c C, to func(context.Context, C) (*alerts.Alert, error)) error {
 	if d.opts.ReadOnly {
 		return nil
 	}
-	return d.alerted(d.alerts.Blocked(ctx, c))
+	return d.alerted(to(ctx, c))
 }
 
 func (d *Daemon) alerted(a *alerts.Alert, err error) error {

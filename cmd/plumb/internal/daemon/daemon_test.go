@@ -169,7 +169,7 @@ func TestIngestJudgeRestart(t *testing.T) {
 	}
 	m := r.d.models["m"]
 	m.mu.Lock()
-	n := len(m.ids)
+	n := len(m.rows.ids)
 	m.mu.Unlock()
 	if n != 65 {
 		t.Errorf("in-memory rows %d, want 65", n)
@@ -181,7 +181,7 @@ func TestIngestJudgeRestart(t *testing.T) {
 		last, lerr := r.d.store.LastFit(context.Background(), "m")
 		m.mu.Lock()
 		defer m.mu.Unlock()
-		return err == nil && lerr == nil && stored >= 2 && m.fits == stored && m.fitID == last.ID
+		return err == nil && lerr == nil && stored >= 2 && m.ref.fits == stored && m.ref.fitID == last.ID
 	})
 }
 

@@ -12,8 +12,9 @@ import (
 )
 
 // ledger adapts a store.Store to alerts.Ledger. The two packages never
-// import each other; their alert types mirror each other field for field,
-// so the adapter is plain conversions.
+// import each other; their alert types (AlertRecord, AlertQuery,
+// Delivery) mirror each other field for field, so the adapter is plain
+// type conversions and a field missing on one side does not compile.
 type ledger struct{ s store.Store }
 
 var _ alerts.Ledger = ledger{}
@@ -21,7 +22,7 @@ var _ alerts.Ledger = ledger{}
 func (l ledger) PutAlert(ctx context.Context, a alerts.AlertRecord, ds []alerts.Delivery) error {
 	out := make([]store.Delivery, len(ds))
 	for i, d := range ds {
-		out[i] = toStoreDelivery(d)
+		out[i] = store.Delivery(d)
 	}
 	err := l.s.PutAlert(ctx, store.AlertRecord(a), out)
 	if errors.Is(err, store.ErrChanged) {
@@ -50,30 +51,18 @@ func (l ledger) DueDeliveries(ctx context.Context, now time.Time, limit int) ([]
 }
 
 func (l ledger) UpdateDelivery(ctx context.Context, d alerts.Delivery) error {
-	return l.s.UpdateDelivery(ctx, toStoreDelivery(d))
+	return l.s.UpdateDelivery(ctx, store.Delivery(d))
 }
 
 func (l ledger) Deliveries(ctx context.Context, state alerts.DeliveryState, limit int) ([]alerts.Delivery, error) {
-	ds, err := l.s.Deliveries(ctx, store.DeliveryState(state), limit)
+	ds, err := l.s.Deliveries(ctx, state, limit)
 	return fromStoreDeliveries(ds), err
-}
-
-func toStoreDelivery(d alerts.Delivery) store.Delivery {
-	return store.Delivery{
-		ID: d.ID, AlertID: d.AlertID, Route: d.Route, EventID: d.EventID, Payload: d.Payload,
-		State: store.DeliveryState(d.State), Attempts: d.Attempts, NextAttempt: d.NextAttempt,
-		LastError: d.LastError, CreatedAt: d.CreatedAt, UpdatedAt: d.UpdatedAt,
-	}
 }
 
 func fromStoreDeliveries(ds []store.Delivery) []alerts.Delivery {
 	out := make([]alerts.Delivery, len(ds))
 	for i, d := range ds {
-		out[i] = alerts.Delivery{
-			ID: d.ID, AlertID: d.AlertID, Route: d.Route, EventID: d.EventID, Payload: d.Payload,
-			State: alerts.DeliveryState(d.State), Attempts: d.Attempts, NextAttempt: d.NextAttempt,
-			LastError: d.LastError, CreatedAt: d.CreatedAt, UpdatedAt: d.UpdatedAt,
-		}
+		out[i] = alerts.Delivery(d)
 	}
 	return out
 }

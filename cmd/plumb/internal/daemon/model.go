@@ -2,7 +2,6 @@ package daemon
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"log/slog"
@@ -26,13 +25,13 @@ const (
 	stateBlocked = "blocked"
 )
 
-// modelRT is one model at run time: its spec, the rows it holds in memory
-// (values only; the raw text stays in the store), the online fit that
-// judges each arriving row, and the result of the latest full refresh.
+// watchedModel is one model the daemon watches: its spec and state, its
+// rows in memory (columns), the online fit that judges each arriving row
+// (ingest, this file), and its refresh loop (refresher, refresh.go).
 //
-// mu guards everything below it. Ingest (watcher goroutine) and refresh
+// mu guards everything below it, the columns and the refresher included. Ingest (watcher goroutine) and refresh
 // (refresh goroutine) take it; view readers take it briefly to copy.
-type modelRT struct {
+type watchedModel struct {
 	d    *Daemon
 	cfg  config.Model
 	spec engine.Model
@@ -50,43 +49,26 @@ type modelRT struct {
 	// header holds the blocked reason for a file whose header changed.
 	headerBlocked map[string]string
 
-	// Rows, in arrival order.
-	ids     []int64
-	paths   []int32 // index into pathNames
-	lines   []int32
-	times   []int64 // unix nanoseconds; 0 when the model has no time column
-	vals    [][]float64
-	arrival []string // verdict at arrival ("" when not judged then)
-	current []string // latest verdict ("" when never judged)
-
-	pathNames []string
-	pathIdx   map[string]int32
+	// rows are the model's rows in memory, in arrival order.
+	rows *columns
 
 	online *engine.Online
 	xrow   []float64
 
 	rowsAccepted int64
 	quarantined  int64
-	fits         int64
 	lastArrival  time.Time
 
-	// pendingSuspects are rows (indices) judged suspect at arrival whose
-	// alert waits for the next refresh (which supplies the suggestion).
-	pendingSuspects []int
+	// ref is the refresh loop's side: what the next refresh must do and
+	// what the latest one found.
+	ref refresher
+}
 
-	// Latest refresh.
-	fit       *engine.Fit
-	inf       *engine.Influence
-	verdicts  []engine.Verdict
-	window    []int // data indices the fit used, in order
-	frag      *engine.FragilityResult
-	sugg      []engine.Suggestion
-	fitAt     time.Time
-	fitID     int64
-	lastFitN  int
-	refreshNs int64
-	baseline  *baseline
-	dirty     bool
+// suspect is a row judged suspect at arrival, with the cutoffs it crossed
+// then: the alert is built from these, as the pipeline judged the row.
+type suspect struct {
+	row   int // data index
+	flags []engine.Flag
 }
 
 // baseline is the fit that drift is measured against.
@@ -98,12 +80,12 @@ type baseline struct {
 	fit   *engine.Fit // nil for a pinned baseline
 }
 
-func newModelRT(d *Daemon, mc config.Model) (*modelRT, error) {
+func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
 	spec, err := engine.NewModel(mc.Response, mc.Terms, *mc.Intercept)
 	if err != nil {
 		return nil, fmt.Errorf("model %q: %w", mc.Name, err)
 	}
-	m := &modelRT{
+	m := &watchedModel{
 		d:             d,
 		cfg:           mc,
 		spec:          spec,
@@ -113,11 +95,11 @@ func newModelRT(d *Daemon, mc config.Model) (*modelRT, error) {
 		log:           d.log.With("model", mc.Name),
 		state:         stateWaiting,
 		headerBlocked: map[string]string{},
-		pathIdx:       map[string]int32{},
+		rows:          newColumns(1 + len(spec.Columns())),
 		online:        engine.NewOnline(spec.P()),
 		xrow:          make([]float64, spec.P()),
 	}
-	m.vals = make([][]float64, 1+len(m.cols))
+	m.ref.m = m
 	if m.minRows <= spec.P()+1 {
 		m.minRows = spec.P() + 2
 	}
@@ -141,13 +123,13 @@ func cutoffsFor(j config.Judge) engine.Cutoffs {
 
 // numeric returns the columns the decoder parses as numbers: the response,
 // then the predictors.
-func (m *modelRT) numeric() []string {
+func (m *watchedModel) numeric() []string {
 	return append([]string{m.spec.Response}, m.cols...)
 }
 
 // text returns the columns the decoder keeps as text: the filter column and
 // the time column, in that order, when configured.
-func (m *modelRT) text() []string {
+func (m *watchedModel) text() []string {
 	var t []string
 	if m.cfg.Filter != nil {
 		t = append(t, m.cfg.Filter.Column)
@@ -158,18 +140,8 @@ func (m *modelRT) text() []string {
 	return t
 }
 
-func (m *modelRT) pathIndex(p string) int32 {
-	if i, ok := m.pathIdx[p]; ok {
-		return i
-	}
-	i := int32(len(m.pathNames))
-	m.pathNames = append(m.pathNames, p)
-	m.pathIdx[p] = i
-	return i
-}
-
 // value returns column c of the design values v (response first).
-func (m *modelRT) designRow(v []float64) error {
+func (m *watchedModel) designRow(v []float64) error {
 	return m.spec.DesignRow(m.xrow, func(col string) float64 {
 		for j, c := range m.cols {
 			if c == col {
@@ -182,7 +154,7 @@ func (m *modelRT) designRow(v []float64) error {
 
 // restore loads the model's rows from the store and rebuilds the online
 // fit, so a restart resumes where the last run stopped.
-func (m *modelRT) restore(ctx context.Context, s store.Store) error {
+func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 	cur, err := s.CurrentVerdicts(ctx, m.cfg.Name)
 	if err != nil {
 		return err
@@ -197,7 +169,7 @@ func (m *modelRT) restore(ctx context.Context, s store.Store) error {
 			return err
 		}
 		for _, o := range obs {
-			if len(o.Values) != len(m.vals) {
+			if len(o.Values) != len(m.rows.vals) {
 				// The model's columns changed since these rows were stored:
 				// they belong to the old definition and stay in the history.
 				after = o.ID
@@ -208,7 +180,7 @@ func (m *modelRT) restore(ctx context.Context, s store.Store) error {
 				continue
 			}
 			m.online.Add(m.xrow, o.Values[0])
-			arr := ""
+			var arr engine.Word
 			if o.Arrival != nil {
 				arr = o.Arrival.Verdict
 			}
@@ -236,28 +208,20 @@ func (m *modelRT) restore(ctx context.Context, s store.Store) error {
 	}
 	m.quarantined = q
 	// Count the fits and find the last one without reading the history.
-	if m.fits, err = s.CountFits(ctx, m.cfg.Name); err != nil {
+	if m.ref.fits, err = s.CountFits(ctx, m.cfg.Name); err != nil {
 		return err
 	}
 	if last, err := s.LastFit(ctx, m.cfg.Name); err == nil {
-		m.fitID = last.ID
+		m.ref.fitID = last.ID
 	} else if !errors.Is(err, store.ErrNotFound) {
 		return err
 	}
-	m.dirty = len(m.ids) > 0
+	m.ref.dirty = len(m.rows.ids) > 0
 	return nil
 }
 
-func (m *modelRT) appendRow(id int64, path string, line int, t int64, v []float64, arrival, current string) {
-	m.ids = append(m.ids, id)
-	m.paths = append(m.paths, m.pathIndex(path))
-	m.lines = append(m.lines, int32(line))
-	m.times = append(m.times, t)
-	for j := range m.vals {
-		m.vals[j] = append(m.vals[j], v[j])
-	}
-	m.arrival = append(m.arrival, arrival)
-	m.current = append(m.current, current)
+func (m *watchedModel) appendRow(id int64, path string, line int, t int64, v []float64, arrival, current engine.Word) {
+	m.rows.add(id, path, line, t, v, arrival, current)
 	m.rowsAccepted++
 }
 
@@ -272,7 +236,7 @@ type pending struct {
 // ingest turns one watcher batch into observations and quarantined rows,
 // judges each new row against the online fit that includes it, and commits
 // rows and read position in one transaction.
-func (m *modelRT) ingest(ctx context.Context, b watcher.Batch) error {
+func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	now := m.d.now()
@@ -352,24 +316,24 @@ func (m *modelRT) ingest(ctx context.Context, b watcher.Batch) error {
 		return err
 	}
 	for i, p := range rows {
-		arr := ""
+		var arr engine.Word
 		if p.diag != nil {
 			arr = p.diag.Verdict
 		}
 		m.appendRow(ids[i], b.Path, p.rec.Line, p.t, p.vals, arr, arr)
-		if arr == "suspect" {
-			m.pendingSuspects = append(m.pendingSuspects, len(m.ids)-1)
+		if arr == engine.WordSuspect {
+			m.ref.pendingSuspects = append(m.ref.pendingSuspects, suspect{row: len(m.rows.ids) - 1, flags: p.diag.Flags})
 		}
 	}
 	m.quarantined += int64(len(quar))
 	if _, ok := m.headerBlocked[b.Path]; ok && len(b.Records) > 0 {
 		// The file is read again: its header matches the columns once more.
 		delete(m.headerBlocked, b.Path)
-		m.dirty = true
+		m.ref.dirty = true
 	}
 	if len(rows) > 0 {
 		m.lastArrival = now
-		m.dirty = true
+		m.ref.dirty = true
 	}
 	m.d.metrics.rows(m.cfg.Name, len(rows), len(quar))
 	if len(quar) > 0 {
@@ -388,45 +352,20 @@ func quarantineRow(model string, b watcher.Batch, rec decode.Record, col int, re
 // diagnostics converts the engine's measures of one row, with its DFBETAS,
 // into the stored form.
 func diagnostics(o engine.Obs, dfb []float64, v engine.Verdict) *store.Diagnostics {
-	flags, _ := json.Marshal(flagsJSON(v.Flags))
 	return &store.Diagnostics{
 		Leverage: o.Leverage, Residual: o.Residual,
 		StudentizedInternal: o.StudentInternal, StudentizedExternal: o.StudentExternal,
 		CooksDistance: o.Cook, DFFITS: o.DFFITS, DFBETAS: slices.Clone(dfb),
 		COVRATIO: o.COVRATIO, OutlierPBonferroni: o.BonferroniP,
-		Verdict: v.Word(), Flags: string(flags),
+		Verdict: v.Word(), Flags: slices.Clone(v.Flags),
 	}
-}
-
-// flagJSON is a crossed cutoff as stored and sent.
-type flagJSON struct {
-	Measure string  `json:"measure"`
-	Family  string  `json:"family"`
-	Term    string  `json:"term,omitempty"`
-	Value   float64 `json:"value"`
-	Cutoff  float64 `json:"cutoff"`
-}
-
-func flagsJSON(fs []engine.Flag) []flagJSON {
-	out := make([]flagJSON, 0, len(fs))
-	for _, f := range fs {
-		out = append(out, flagJSON{Measure: f.Measure, Family: f.Family, Term: f.Term, Value: finite(f.Value), Cutoff: finite(f.Cutoff)})
-	}
-	return out
-}
-
-func finite(v float64) float64 {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0
-	}
-	return v
 }
 
 // judgeArrival judges one arriving row against the online fit that
 // includes it, with the model's cutoffs for n = the rows so far. The
 // outlier test at arrival is the Bonferroni test; a model configured for
 // the Grubbs test gets it at each refresh, which sees all residuals.
-func (m *modelRT) judgeArrival(o engine.Obs, dfb []float64, n int) engine.Verdict {
+func (m *watchedModel) judgeArrival(o engine.Obs, dfb []float64, n int) engine.Verdict {
 	c := m.cut
 	c.Test = engine.BonferroniTest
 	one := &engine.Influence{Fit: &engine.Fit{Model: m.spec, N: n, P: m.spec.P()}, Rows: []engine.Obs{o}, DFBETAS: dfb}
@@ -435,7 +374,7 @@ func (m *modelRT) judgeArrival(o engine.Obs, dfb []float64, n int) engine.Verdic
 
 // windowed reports whether the model fits a window of its rows rather
 // than all of them.
-func (m *modelRT) windowed() bool {
+func (m *watchedModel) windowed() bool {
 	return m.cfg.Window.Rows > 0 || m.cfg.Window.Span.Duration > 0
 }
 
@@ -444,7 +383,7 @@ func (m *modelRT) windowed() bool {
 // and this one, cut to the window. The online fit covers all rows, so a
 // windowed model refits its window per arriving row (O(w p²) for a window
 // of w rows). Caller holds mu.
-func (m *modelRT) windowArrival(batch []pending, p pending) (engine.Obs, []float64, int, bool) {
+func (m *watchedModel) windowArrival(batch []pending, p pending) (engine.Obs, []float64, int, bool) {
 	type row struct {
 		vals []float64
 		t    int64
@@ -462,12 +401,12 @@ func (m *modelRT) windowArrival(batch []pending, p pending) (engine.Obs, []float
 			all = all[-need:]
 			need = 0
 		}
-		for i := max(0, len(m.ids)-need); i < len(m.ids); i++ {
+		for i := max(0, len(m.rows.ids)-need); i < len(m.rows.ids); i++ {
 			stored = append(stored, i)
 		}
 	default:
 		cut := p.t - m.cfg.Window.Span.Nanoseconds()
-		for i, t := range m.times {
+		for i, t := range m.rows.times {
 			if t >= cut {
 				stored = append(stored, i)
 			}
@@ -485,12 +424,12 @@ func (m *modelRT) windowArrival(batch []pending, p pending) (engine.Obs, []float
 	if n <= m.spec.P()+1 {
 		return engine.Obs{}, nil, n, false
 	}
-	cols := make(map[string][]float64, len(m.vals))
+	cols := make(map[string][]float64, len(m.rows.vals))
 	names := m.numeric()
 	for j, c := range names {
 		v := make([]float64, 0, n)
 		for _, i := range stored {
-			v = append(v, m.vals[j][i])
+			v = append(v, m.rows.vals[j][i])
 		}
 		for _, r := range all {
 			v = append(v, r.vals[j])

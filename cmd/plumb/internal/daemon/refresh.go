@@ -11,9 +11,49 @@ import (
 	"time"
 
 	"plumb/alerts"
+	"plumb/cmd/plumb/internal/analysis"
+	"plumb/cmd/plumb/internal/view"
 	"plumb/engine"
 	"plumb/store"
 )
+
+// refresher is a model's refresh loop: the full refit of the window that
+// the daemon's refresh goroutine runs at most once per watch.refresh, and
+// its latest result, which the view reads. The model's mutex guards it;
+// ingest marks it dirty and queues the suspect rows whose alerts wait for
+// the next refresh.
+type refresher struct {
+	m *watchedModel
+
+	dirty bool
+	// pendingSuspects are rows judged suspect at arrival whose alert waits
+	// for the next refresh (which supplies the suggestion).
+	pendingSuspects []suspect
+	baseline        *baseline
+	fits            int64 // fits recorded, this run and before
+
+	// The latest refresh: the analysis of the window and the data
+	// indices it used, in fit order.
+	res       *analysis.Result
+	window    []int
+	fitAt     time.Time
+	fitID     int64
+	lastFitN  int
+	refreshNs int64
+}
+
+// view returns the read model of the latest refresh, or nil before the
+// first. Caller holds the model's mutex, for as long as it reads.
+func (r *refresher) view() *view.Result {
+	if r.res == nil {
+		return nil
+	}
+	m := r.m
+	return &view.Result{Result: r.res, Cutoffs: m.cut, Row: func(i int) view.RowRef {
+		row := r.window[i]
+		return view.RowRef{ID: m.rows.ids[row], File: m.rows.path(row), Line: m.rows.line(row)}
+	}}
+}
 
 // refresh refits the model on its window, rejudges every row, measures
 // fragility and where to collect more data, stores the fit summary with the
@@ -21,34 +61,23 @@ import (
 //
 // The heavy computation runs on a copy of the window's values, outside the
 // model's lock, so ingest is never held up by a refit.
-func (m *modelRT) refresh(ctx context.Context) error {
+func (r *refresher) refresh(ctx context.Context) error {
+	m := r.m
 	start := time.Now()
 	m.mu.Lock()
-	if !m.dirty {
+	if !r.dirty {
 		m.mu.Unlock()
 		return nil
 	}
-	m.dirty = false
-	win := m.windowRows()
-	cols := make(map[string][]float64, len(m.cols)+1)
-	y := make([]float64, len(win))
-	for i, r := range win {
-		y[i] = m.vals[0][r]
-	}
-	cols[m.spec.Response] = y
-	for j, c := range m.cols {
-		v := make([]float64, len(win))
-		for i, r := range win {
-			v[i] = m.vals[1+j][r]
-		}
-		cols[c] = v
-	}
+	r.dirty = false
+	win := m.rows.window(m.cfg.Window)
+	cols := m.rows.copyRows(win, m.numeric())
 	lastID := int64(0)
-	if len(m.ids) > 0 {
-		lastID = m.ids[len(m.ids)-1]
+	if len(m.rows.ids) > 0 {
+		lastID = m.rows.ids[len(m.rows.ids)-1]
 	}
-	pendingSuspects := m.pendingSuspects
-	m.pendingSuspects = nil
+	pendingSuspects := r.pendingSuspects
+	r.pendingSuspects = nil
 	headerBlocked := len(m.headerBlocked) > 0
 	m.mu.Unlock()
 
@@ -61,12 +90,14 @@ func (m *modelRT) refresh(ctx context.Context) error {
 		m.setState(ctx, stateWaiting, reason, "")
 		return nil
 	}
-	X, yy, err := m.spec.Design(cols)
-	var fit *engine.Fit
-	if err == nil {
-		fit, err = engine.Refit(m.spec, X, yy)
-	}
+	label := func(row int) string { return m.labelOf(win, row) }
+	res, err := m.analysis(label).Run(ctx, cols)
 	if err != nil {
+		var se *analysis.StepError
+		if !errors.As(err, &se) {
+			return err // cancelled
+		}
+		err = se.Err
 		cause := alerts.CauseNotFittable
 		switch {
 		case errors.Is(err, engine.ErrTooFewRows):
@@ -80,43 +111,24 @@ func (m *modelRT) refresh(ctx context.Context) error {
 		}
 		return nil
 	}
-	inf, verdicts := engine.Assess(fit, m.cut)
-
-	var frag *engine.FragilityResult
-	if *m.cfg.Fragility.Enabled {
-		fr, ferr := engine.Fragility(fit, inf, m.conclusions(), engine.FragilityOptions{
-			MaxRemoved: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit,
-		})
-		if ferr != nil {
-			m.log.Warn("fragility", "err", ferr)
-		} else {
-			frag = &fr
-		}
+	for _, p := range res.Problems {
+		m.log.Warn(string(p.Step), "err", p.Err)
 	}
-	label := func(row int) string { return m.labelOf(win, row) }
-	sugg, serr := engine.Suggest(fit, inf, verdicts, m.region(cols), engine.SuggestOptions{
-		Replicates: m.cfg.Suggest.Replicates, Top: m.cfg.Suggest.Count,
-		Conclusions: m.conclusions(), Fragility: engine.FragilityOptions{MaxRemoved: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit},
-		Label: label,
-	})
-	if serr != nil {
-		m.log.Warn("suggestions", "err", serr)
-	}
+	fit, inf, verdicts, frag, sugg := res.Fit, res.Influence, res.Verdicts, res.Fragility, res.Suggestions
 
 	// Verdict changes against the latest known verdict of each row.
 	m.mu.Lock()
 	var changes []store.VerdictChange
 	now := m.d.now()
 	var resolvedSuspects []int
-	for i, r := range win {
+	for i, row := range win {
 		w := verdicts[i].Word()
-		if m.current[r] != w {
-			fl, _ := json.Marshal(flagsJSON(verdicts[i].Flags))
-			changes = append(changes, store.VerdictChange{ObsID: m.ids[r], At: now, From: m.current[r], To: w, Flags: string(fl)})
-			if m.current[r] == "suspect" {
-				resolvedSuspects = append(resolvedSuspects, r)
+		if m.rows.current[row] != w {
+			changes = append(changes, store.VerdictChange{ObsID: m.rows.ids[row], At: now, From: m.rows.current[row], To: w, Flags: verdicts[i].Flags})
+			if m.rows.current[row] == engine.WordSuspect {
+				resolvedSuspects = append(resolvedSuspects, row)
 			}
-			m.current[r] = w
+			m.rows.current[row] = w
 		}
 	}
 	m.mu.Unlock()
@@ -135,19 +147,19 @@ func (m *modelRT) refresh(ctx context.Context) error {
 			maxCook = o.Cook
 		}
 	}
-	detail := map[string]any{"max_cooks_distance": finite(maxCook), "adj_r_squared": finite(fit.AdjRSquared), "df": fit.DF}
+	detail := map[string]any{"max_cooks_distance": view.Float(maxCook), "adj_r_squared": view.Float(fit.AdjRSquared), "df": fit.DF}
 	if frag != nil {
 		rec.FragilityK = m.cfg.Fragility.MaxRemoved
 		rec.Fragility = -1
 		if frag.Index > 0 {
 			rec.Fragility = frag.Index
 		}
-		detail["fragility"] = m.fragilityJSON(win, frag)
+		detail["fragility"] = r.fragilityJSON(win, frag)
 	}
 	if len(sugg) > 0 {
 		ss := make([]map[string]any, len(sugg))
 		for i, s := range sugg {
-			ss[i] = map[string]any{"at": s.At, "replicates": s.Replicates, "d_gain": finite(s.DGain), "text": s.Text}
+			ss[i] = map[string]any{"at": s.At, "replicates": s.Replicates, "d_gain": view.Float(s.DGain), "text": s.Text}
 		}
 		detail["suggestions"] = ss
 	}
@@ -161,14 +173,14 @@ func (m *modelRT) refresh(ctx context.Context) error {
 	}
 
 	m.mu.Lock()
-	m.fit, m.inf, m.verdicts, m.window, m.frag, m.sugg = fit, inf, verdicts, win, frag, sugg
-	m.fitAt, m.fitID, m.lastFitN = now, fitID, fit.N
-	m.fits++
-	m.refreshNs = time.Since(start).Nanoseconds()
-	if m.baseline == nil {
-		m.baseline = m.makeBaseline()
+	r.res, r.window = res, win
+	r.fitAt, r.fitID, r.lastFitN = now, fitID, fit.N
+	r.fits++
+	r.refreshNs = time.Since(start).Nanoseconds()
+	if r.baseline == nil {
+		r.baseline = r.makeBaseline()
 	}
-	base := m.baseline
+	base := r.baseline
 	m.mu.Unlock()
 	m.setState(ctx, stateJudging, "", "")
 	m.d.metrics.fit(name, time.Since(start), fit.N, frag, maxCook)
@@ -186,13 +198,13 @@ func (m *modelRT) refresh(ctx context.Context) error {
 	if len(sugg) > 0 {
 		top = alertSuggestion(sugg[0])
 	}
-	for _, r := range pendingSuspects {
-		m.reportPoint(ctx, r, top)
+	for _, sp := range pendingSuspects {
+		r.reportPoint(ctx, sp, top)
 	}
-	for _, r := range resolvedSuspects {
+	for _, row := range resolvedSuspects {
 		m.mu.Lock()
-		path, line := m.pathNames[m.paths[r]], int(m.lines[r])
-		vals := m.valuesOf(r)
+		path, line := m.rows.path(row), m.rows.line(row)
+		vals := m.valuesOf(row)
 		m.mu.Unlock()
 		if err := m.d.point(ctx, alerts.PointCondition{Model: name, File: path, Line: line, Values: vals}); err != nil {
 			m.log.Error("alert", "err", err)
@@ -212,8 +224,8 @@ func (m *modelRT) refresh(ctx context.Context) error {
 		}
 	}
 	if base != nil && base.fit != fit {
-		if df := m.driftFit(cols, verdicts, fit); df != nil {
-			if err := m.d.drift(ctx, m.driftCondition(base, df, top)); err != nil {
+		if df := r.driftFit(cols, verdicts, fit); df != nil {
+			if err := m.d.drift(ctx, r.driftCondition(base, df, top)); err != nil {
 				m.log.Error("alert", "err", err)
 			}
 		}
@@ -226,8 +238,9 @@ func (m *modelRT) refresh(ctx context.Context) error {
 // suspect point has an alert of its own; leaving it out of the drift check
 // keeps one bad reading from raising two alerts. Nothing is removed from
 // the data or the history.
-func (m *modelRT) driftFit(cols map[string][]float64, verdicts []engine.Verdict, fit *engine.Fit) *engine.Fit {
-	suspects := engine.Flagged(verdicts, "suspect")
+func (r *refresher) driftFit(cols map[string][]float64, verdicts []engine.Verdict, fit *engine.Fit) *engine.Fit {
+	m := r.m
+	suspects := engine.Flagged(verdicts, engine.WordSuspect)
 	if len(suspects) == 0 {
 		return fit
 	}
@@ -255,67 +268,29 @@ func (m *modelRT) driftFit(cols map[string][]float64, verdicts []engine.Verdict,
 	return f
 }
 
-// windowRows returns the data indices the next fit uses. Caller holds mu.
-func (m *modelRT) windowRows() []int {
-	n := len(m.ids)
-	first := 0
-	switch {
-	case m.cfg.Window.Rows > 0 && n > m.cfg.Window.Rows:
-		first = n - m.cfg.Window.Rows
-	case m.cfg.Window.Span.Duration > 0 && n > 0:
-		newest := int64(math.MinInt64)
-		for _, t := range m.times {
-			newest = max(newest, t)
-		}
-		cut := newest - m.cfg.Window.Span.Nanoseconds()
-		win := make([]int, 0, n)
-		for i, t := range m.times {
-			if t >= cut {
-				win = append(win, i)
-			}
-		}
-		return win
-	}
-	win := make([]int, n-first)
-	for i := range win {
-		win[i] = first + i
-	}
-	return win
-}
-
 // labelOf names the 1-based window row as "file:line".
-func (m *modelRT) labelOf(win []int, row int) string {
+func (m *watchedModel) labelOf(win []int, row int) string {
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	if row < 1 || row > len(win) {
 		return fmt.Sprintf("row %d", row)
 	}
-	r := win[row-1]
-	return fmt.Sprintf("%s:%d", m.pathNames[m.paths[r]], m.lines[r])
+	return m.rows.label(win[row-1])
 }
 
 // valuesOf returns row r's values by column name. Caller holds mu.
-func (m *modelRT) valuesOf(r int) alerts.Values {
-	v := alerts.Values{m.spec.Response: m.vals[0][r]}
-	for j, c := range m.cols {
-		v[c] = m.vals[1+j][r]
-	}
-	return v
+func (m *watchedModel) valuesOf(r int) alerts.Values {
+	return alerts.Values(m.rows.values(r, m.numeric()))
 }
 
-func (m *modelRT) reportPoint(ctx context.Context, r int, sugg *alerts.Suggestion) {
+// reportPoint reports a row judged suspect at arrival, with the cutoffs it
+// crossed then.
+func (r *refresher) reportPoint(ctx context.Context, sp suspect, sugg *alerts.Suggestion) {
+	m := r.m
 	m.mu.Lock()
-	path, line := m.pathNames[m.paths[r]], int(m.lines[r])
-	vals := m.valuesOf(r)
-	id := m.ids[r]
+	path, line := m.rows.path(sp.row), m.rows.line(sp.row)
+	vals := m.valuesOf(sp.row)
 	m.mu.Unlock()
-	o, err := m.d.store.ObservationAt(ctx, m.cfg.Name, path, line)
-	if err != nil || o.ID != id || o.Arrival == nil {
-		m.log.Error("suspect point: arrival diagnostics", "file", path, "line", line, "err", err)
-		return
-	}
-	var fl []flagJSON
-	_ = json.Unmarshal([]byte(o.Arrival.Flags), &fl)
 	c := alerts.PointCondition{Model: m.cfg.Name, File: path, Line: line, Values: vals, Outlier: true, Influential: true, Suggestion: sugg}
 	// The alert names the outlier test and the cutoffs of the family that
 	// decides "influential"; the other family's flags stay with the
@@ -324,18 +299,41 @@ func (m *modelRT) reportPoint(ctx context.Context, r int, sugg *alerts.Suggestio
 	if m.cut.Family == engine.SizeAdjusted {
 		deciding = engine.FamilySizeAdjusted
 	}
-	for _, f := range fl {
+	for _, f := range sp.flags {
 		if f.Family != deciding && f.Family != engine.FamilyTest {
 			continue
 		}
-		c.Measures = append(c.Measures, alerts.Measure{Name: f.Measure, Family: f.Family, Term: f.Term, Value: f.Value, Cutoff: f.Cutoff})
+		c.Measures = append(c.Measures, alerts.Measure(f))
 	}
 	if err := m.d.point(ctx, c); err != nil {
 		m.log.Error("alert", "err", err)
 	}
 }
 
-func (m *modelRT) conclusions() engine.Conclusions {
+// analysis is the model's analysis as configured: the judgement's
+// cutoffs, fragility when enabled, and suggestions over the configured
+// operating region (the observed range for the columns it leaves out).
+func (m *watchedModel) analysis(label func(int) string) *analysis.Analysis {
+	fopt := engine.FragilityOptions{MaxRemoved: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit}
+	a := &analysis.Analysis{Model: m.spec, Options: analysis.Options{
+		Cutoffs:          m.cut,
+		Conclusions:      m.conclusions(),
+		Fragility:        *m.cfg.Fragility.Enabled,
+		FragilityOptions: fopt,
+		Suggest:          true,
+		SuggestOptions:   engine.SuggestOptions{Replicates: m.cfg.Suggest.Replicates, Top: m.cfg.Suggest.Count},
+		Region:           engine.Region{},
+		Label:            label,
+	}}
+	for c, b := range m.cfg.Region {
+		if len(b) == 2 {
+			a.Region[c] = [2]float64{b[0], b[1]}
+		}
+	}
+	return a
+}
+
+func (m *watchedModel) conclusions() engine.Conclusions {
 	c := engine.DefaultConclusions()
 	c.Alpha = m.cfg.Judge.Alpha
 	for _, b := range m.cfg.Fragility.Bands {
@@ -347,36 +345,19 @@ func (m *modelRT) conclusions() engine.Conclusions {
 	return c
 }
 
-// region returns the configured operating region, with the observed range
-// for every predictor the config leaves out.
-func (m *modelRT) region(cols map[string][]float64) engine.Region {
-	r := engine.Region{}
-	for _, c := range m.cols {
-		if b, ok := m.cfg.Region[c]; ok && len(b) == 2 {
-			r[c] = [2]float64{b[0], b[1]}
-			continue
-		}
-		lo, hi := math.Inf(1), math.Inf(-1)
-		for _, v := range cols[c] {
-			lo, hi = min(lo, v), max(hi, v)
-		}
-		r[c] = [2]float64{lo, hi}
-	}
-	return r
-}
-
-func (m *modelRT) fragilityJSON(win []int, f *engine.FragilityResult) map[string]any {
+func (r *refresher) fragilityJSON(win []int, f *engine.FragilityResult) map[string]any {
+	m := r.m
 	out := map[string]any{"searched": f.Searched, "fragile": f.Fragile}
 	if f.Index > 0 {
 		out["index"] = f.Index
 		var rows []string
-		for _, r := range f.RemovedRows {
-			rows = append(rows, m.labelOf(win, r))
+		for _, row := range f.RemovedRows {
+			rows = append(rows, m.labelOf(win, row))
 		}
 		out["removed"] = rows
 		out["conclusion"] = f.Conclusion
-		out["before"] = finite(f.Before)
-		out["after"] = finite(f.After)
+		out["before"] = view.Float(f.Before)
+		out["after"] = view.Float(f.After)
 	} else {
 		out["index"] = nil
 	}
@@ -385,7 +366,8 @@ func (m *modelRT) fragilityJSON(win []int, f *engine.FragilityResult) map[string
 
 // makeBaseline fixes the drift baseline: a pinned one from the config, or
 // the fit of the first baseline_rows rows. Caller holds mu.
-func (m *modelRT) makeBaseline() *baseline {
+func (r *refresher) makeBaseline() *baseline {
+	m := r.m
 	d := m.cfg.Alerts.Drift
 	names := m.spec.Names()
 	if len(d.Pinned) > 0 {
@@ -400,12 +382,12 @@ func (m *modelRT) makeBaseline() *baseline {
 		}
 		return b
 	}
-	if len(m.ids) < d.BaselineRows {
+	if len(m.rows.ids) < d.BaselineRows {
 		return nil
 	}
-	cols := map[string][]float64{m.spec.Response: m.vals[0][:d.BaselineRows]}
-	for j, c := range m.cols {
-		cols[c] = m.vals[1+j][:d.BaselineRows]
+	cols := make(map[string][]float64, len(m.rows.vals))
+	for j, c := range m.numeric() {
+		cols[c] = m.rows.vals[j][:d.BaselineRows]
 	}
 	X, y, err := m.spec.Design(cols)
 	if err != nil {
@@ -423,7 +405,8 @@ func (m *modelRT) makeBaseline() *baseline {
 	return b
 }
 
-func (m *modelRT) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Suggestion) alerts.DriftCondition {
+func (r *refresher) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Suggestion) alerts.DriftCondition {
+	m := r.m
 	c := alerts.DriftCondition{Model: m.cfg.Name, Baseline: b.label, Suggestion: sugg}
 	for i, c0 := range f.Coef {
 		if i >= len(b.est) || math.IsNaN(b.est[i]) {
@@ -480,7 +463,7 @@ func fmtNum(v float64) string {
 }
 
 // setState records the model's state when it changes.
-func (m *modelRT) setState(ctx context.Context, state, reason, cause string) {
+func (m *watchedModel) setState(ctx context.Context, state, reason, cause string) {
 	m.mu.Lock()
 	if state != stateBlocked && len(m.headerBlocked) > 0 {
 		// A file of the model is blocked (its header changed while a

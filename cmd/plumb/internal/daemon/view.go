@@ -36,7 +36,7 @@ func (v viewSource) Ready(ctx context.Context) error {
 	return nil
 }
 
-func (v viewSource) model(name string) (*modelRT, error) {
+func (v viewSource) model(name string) (*watchedModel, error) {
 	v.d.mu.RLock()
 	defer v.d.mu.RUnlock()
 	m := v.d.models[name]
@@ -79,50 +79,26 @@ func (v viewSource) openAlerts(ctx context.Context) (map[string]int, error) {
 	return counts, nil
 }
 
-func (m *modelRT) summary(openAlerts int) view.ModelSummary {
+func (m *watchedModel) summary(openAlerts int) view.ModelSummary {
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	s := view.ModelSummary{
 		Name: m.cfg.Name, State: m.state, Reason: m.reason, Response: m.spec.Response,
 		Terms: m.spec.Names(), Predictors: m.cols, Rows: m.rowsAccepted, Quarantined: m.quarantined,
-		Fits: m.fits, LastFitAt: m.fitAt, OpenAlerts: openAlerts, MaxCook: view.NaN(),
+		Fits: m.ref.fits, LastFitAt: m.ref.fitAt, OpenAlerts: openAlerts, MaxCook: view.NaN(),
 	}
-	if m.frag != nil {
-		s.Fragility = m.fragView()
-	}
-	if m.inf != nil {
-		mc := 0.0
-		for _, o := range m.inf.Rows {
-			if o.Cook > mc {
-				mc = o.Cook
-			}
-		}
-		s.MaxCook = view.Float(mc)
-		for _, vd := range m.verdicts {
-			if vd.Word() == "suspect" {
-				s.Suspects++
-			}
-		}
+	if vr := m.ref.view(); vr != nil {
+		s.Fragility = m.fragView(vr)
+		s.MaxCook = vr.MaxCook()
+		s.Suspects = vr.Count(engine.WordSuspect)
 	}
 	return s
 }
 
-// fragView converts the latest fragility result. Caller holds mu.
-func (m *modelRT) fragView() view.Fragility {
-	f := view.Fragility{Computed: true, K: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit,
-		Fragile: m.frag.Fragile, Searched: m.frag.Searched}
-	if m.frag.Index > 0 {
-		f.Found = true
-		f.Index = m.frag.Index
-		f.Conclusion = m.frag.Conclusion
-		for _, row := range m.frag.RemovedRows {
-			if row >= 1 && row <= len(m.window) {
-				r := m.window[row-1]
-				f.Rows = append(f.Rows, view.RowRef{ID: m.ids[r], File: m.pathNames[m.paths[r]], Line: int(m.lines[r])})
-			}
-		}
-	}
-	return f
+// fragView describes the latest fragility result with the configured
+// search depth and limit. Caller holds mu.
+func (m *watchedModel) fragView(vr *view.Result) view.Fragility {
+	return vr.FragilityOf(m.cfg.Fragility.MaxRemoved, m.cfg.Fragility.Limit)
 }
 
 func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, error) {
@@ -137,46 +113,19 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 	d := view.ModelDetail{ModelSummary: m.summary(open[name])}
 	m.mu.Lock()
 	defer m.mu.Unlock()
-	if m.fit == nil {
+	vr := m.ref.view()
+	if vr == nil {
 		return d, nil
 	}
-	f := m.fit
-	d.FitID, d.FitAt, d.N, d.P = m.fitID, m.fitAt, f.N, f.P
+	f := vr.Fit
+	d.FitID, d.FitAt, d.N, d.P = m.ref.fitID, m.ref.fitAt, f.N, f.P
 	d.Sigma, d.RSquared, d.AdjRSquared = view.Float(f.Sigma), view.Float(f.RSquared), view.Float(f.AdjRSquared)
-	for _, c := range f.Coef {
-		d.Coefficients = append(d.Coefficients, view.Coefficient{Term: c.Term, Estimate: view.Float(c.Estimate),
-			StdError: view.Float(c.StdError), T: view.Float(c.T), P: view.Float(c.P),
-			Lower95: view.Float(c.Lower95), Upper95: view.Float(c.Upper95)})
-	}
-	for i, r := range m.window {
-		o := m.inf.Rows[i]
-		p := view.Point{ID: m.ids[r], Row: i, File: m.pathNames[m.paths[r]], Line: int(m.lines[r]),
-			X: map[string]view.Float{}, Y: view.Float(m.vals[0][r]), Fitted: view.Float(f.Fitted[i]),
-			Residual: view.Float(o.Residual), Leverage: view.Float(o.Leverage),
-			StudentizedExternal: view.Float(o.StudentExternal), Cook: view.Float(o.Cook),
-			DFFITS: view.Float(o.DFFITS), BonferroniP: view.Float(o.BonferroniP), Verdict: m.verdicts[i].Word()}
-		for j, c := range m.cols {
-			p.X[c] = view.Float(m.vals[1+j][r])
-		}
-		for _, fl := range m.verdicts[i].Flags {
-			p.Flags = append(p.Flags, view.Flag{Measure: fl.Measure, Family: fl.Family, Term: fl.Term, Value: view.Float(fl.Value), Cutoff: view.Float(fl.Cutoff)})
-		}
-		d.Points = append(d.Points, p)
-	}
-	lim := engine.CutoffLimits(m.cut, f.N, f.P)
-	// The Bonferroni critical |t|: the t(n-p-1) quantile at 1 - alpha/(2n).
-	tcrit := engine.TQuantile(1-m.cut.Alpha/(2*float64(f.N)), float64(f.N-f.P-1))
-	d.Cutoffs = view.Cutoffs{Leverage: view.Float(lim.Leverage), CookAbsolute: view.Float(lim.CookAbsolute),
-		CookSizeAdjusted: view.Float(lim.CookSize), TCritical: view.Float(tcrit), Alpha: view.Float(m.cut.Alpha)}
-	d.Curves = m.curves()
-	for _, s := range m.sugg {
-		at := map[string]view.Float{}
-		for k, x := range s.At {
-			at[k] = view.Float(x)
-		}
-		d.Suggestions = append(d.Suggestions, view.Suggestion{At: at, Text: s.Text, DGain: view.Float(s.DGain), Replicates: s.Replicates})
-	}
-	if b := m.baseline; b != nil {
+	d.Coefficients = vr.Coefficients()
+	d.Points = vr.Points()
+	d.Cutoffs = vr.Lines()
+	d.Curves = vr.Curves(curveSteps)
+	d.Suggestions = vr.SuggestionViews()
+	if b := m.ref.baseline; b != nil {
 		k := m.cfg.Alerts.Drift.K
 		for i, t := range b.terms {
 			if math.IsNaN(b.est[i]) {
@@ -193,56 +142,8 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 	return d, nil
 }
 
-// curves evaluates the fitted mean and its 95% band over each predictor,
-// the other predictors held at their means. Caller holds mu.
-func (m *modelRT) curves() []view.Curve {
-	const steps = 60
-	means := map[string]float64{}
-	lo, hi := map[string]float64{}, map[string]float64{}
-	for j, c := range m.cols {
-		s, a, b := 0.0, math.Inf(1), math.Inf(-1)
-		for _, r := range m.window {
-			x := m.vals[1+j][r]
-			s += x
-			a, b = min(a, x), max(b, x)
-		}
-		means[c] = s / float64(len(m.window))
-		lo[c], hi[c] = a, b
-	}
-	tq := engine.TQuantile(0.975, float64(m.fit.DF))
-	x := make([]float64, m.spec.P())
-	var out []view.Curve
-	for _, c := range m.cols {
-		cv := view.Curve{Predictor: c}
-		if len(m.cols) > 1 {
-			cv.Held = map[string]view.Float{}
-			for _, o := range m.cols {
-				if o != c {
-					cv.Held[o] = view.Float(means[o])
-				}
-			}
-		}
-		for k := 0; k <= steps; k++ {
-			xv := lo[c] + (hi[c]-lo[c])*float64(k)/steps
-			err := m.spec.DesignRow(x, func(col string) float64 {
-				if col == c {
-					return xv
-				}
-				return means[col]
-			})
-			if err != nil {
-				continue
-			}
-			y, se := m.fit.Predict(x)
-			cv.X = append(cv.X, view.Float(xv))
-			cv.Y = append(cv.Y, view.Float(y))
-			cv.Lower = append(cv.Lower, view.Float(y-tq*se))
-			cv.Upper = append(cv.Upper, view.Float(y+tq*se))
-		}
-		out = append(out, cv)
-	}
-	return out
-}
+// curveSteps is the number of intervals each fitted curve is drawn with.
+const curveSteps = 60
 
 func (v viewSource) Fits(ctx context.Context, name string, after int64, limit int) ([]view.FitView, error) {
 	if _, err := v.model(name); err != nil {
@@ -332,11 +233,11 @@ func (v viewSource) Observations(ctx context.Context, name string, after int64, 
 			ov.Values = append(ov.Values, view.Float(x))
 		}
 		if a := o.Arrival; a != nil {
-			ov.ArrivalVerdict, ov.Verdict = a.Verdict, a.Verdict
+			ov.ArrivalVerdict, ov.Verdict = string(a.Verdict), string(a.Verdict)
 			ov.Leverage, ov.Cook, ov.StudentizedExternal = view.Float(a.Leverage), view.Float(a.CooksDistance), view.Float(a.StudentizedExternal)
 		}
 		if w, ok := cur[o.ID]; ok {
-			ov.Verdict = w
+			ov.Verdict = string(w)
 		}
 		out[i] = ov
 	}

@@ -162,7 +162,7 @@ func Render(w io.Writer, c Contents, opts Options) error {
 		}
 	}
 	slices.SortStableFunc(pd.Notable, func(a, b view.Point) int {
-		if c := cmp.Compare(rank(b.Verdict), rank(a.Verdict)); c != 0 {
+		if c := cmp.Compare(view.Rank(b.Verdict), view.Rank(a.Verdict)); c != 0 {
 			return c
 		}
 		return cmp.Compare(float64(b.Cook), float64(a.Cook))
@@ -185,20 +185,6 @@ func Render(w io.Writer, c Contents, opts Options) error {
 		return fmt.Errorf("report: write HTML: %w", err)
 	}
 	return nil
-}
-
-func rank(v string) int {
-	switch v {
-	case view.VerdictSuspect:
-		return 4
-	case view.VerdictOutlier:
-		return 3
-	case view.VerdictInfluential:
-		return 2
-	case view.VerdictNotable:
-		return 1
-	}
-	return 0
 }
 
 // num formats a number for people: 4 significant digits, "—" when undefined.

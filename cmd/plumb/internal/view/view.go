@@ -35,6 +35,8 @@ import (
 	"math"
 	"strconv"
 	"time"
+
+	"plumb/engine"
 )
 
 // Caution is the line every page, chart and report carries.
@@ -119,14 +121,20 @@ const (
 	StateBlocked = "blocked" // the fit fails (collinear, constant column, ...)
 )
 
-// Verdict words, as the engine gives them.
+// Verdict words, as the engine gives them (engine.Word), in the string
+// form the views carry.
 const (
-	VerdictOrdinary    = "ordinary"
-	VerdictNotable     = "notable"
-	VerdictOutlier     = "outlier"
-	VerdictInfluential = "influential"
-	VerdictSuspect     = "suspect" // outlier and influential
+	VerdictOrdinary    = string(engine.WordOrdinary)
+	VerdictNotable     = string(engine.WordNotable)
+	VerdictOutlier     = string(engine.WordOutlier)
+	VerdictInfluential = string(engine.WordInfluential)
+	VerdictSuspect     = string(engine.WordSuspect) // outlier and influential
 )
+
+// Rank orders verdict words for listing, the most urgent first
+// (engine.Word.Rank): suspect 4, outlier 3, influential 2, notable 1,
+// anything else 0.
+func Rank(verdict string) int { return engine.Word(verdict).Rank() }
 
 // Alert states.
 const (
@@ -275,13 +283,33 @@ type Point struct {
 	Flags               []Flag           `json:"flags,omitempty"`
 }
 
-// Flag is one cutoff a point crosses, as the engine reports it.
-type Flag struct {
-	Measure string `json:"measure"` // leverage, cooks_distance, dffits, ...
-	Family  string `json:"family"`  // absolute, size_adjusted, test
+// Flag is one cutoff a point crosses, the engine's flag converted
+// directly (Flag(f)). In JSON: measure (leverage, cooks_distance, dffits,
+// ...), family (absolute, size_adjusted, test), term (DFBETAS only), value
+// and cutoff (null when undefined).
+type Flag engine.Flag
+
+type flagJSON struct {
+	Measure string `json:"measure"`
+	Family  string `json:"family"`
 	Term    string `json:"term,omitempty"`
 	Value   Float  `json:"value"`
 	Cutoff  Float  `json:"cutoff"`
+}
+
+// MarshalJSON implements json.Marshaler.
+func (f Flag) MarshalJSON() ([]byte, error) {
+	return json.Marshal(flagJSON{f.Measure, f.Family, f.Term, Float(f.Value), Float(f.Cutoff)})
+}
+
+// UnmarshalJSON implements json.Unmarshaler (null reads as NaN).
+func (f *Flag) UnmarshalJSON(b []byte) error {
+	var j flagJSON
+	if err := json.Unmarshal(b, &j); err != nil {
+		return err
+	}
+	*f = Flag{j.Measure, j.Family, j.Term, float64(j.Value), float64(j.Cutoff)}
+	return nil
 }
 
 // Cutoffs are the lines drawn on the diagnostic charts.
@@ -433,10 +461,18 @@ func (f Float) Finite() bool {
 
 // MarshalJSON implements json.Marshaler.
 func (f Float) MarshalJSON() ([]byte, error) {
-	if !f.Finite() {
-		return []byte("null"), nil
+	return AppendJSON(nil, float64(f)), nil
+}
+
+// AppendJSON appends x as JSON: null when x is NaN or infinite (undefined),
+// otherwise the shortest form that reads back as the same float64. It is
+// the one rule for undefined numbers in plumb's JSON: the API, the report,
+// the stored fit detail and inspect's JSON writer all use it.
+func AppendJSON(dst []byte, x float64) []byte {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return append(dst, "null"...)
 	}
-	return strconv.AppendFloat(nil, float64(f), 'g', -1, 64), nil
+	return strconv.AppendFloat(dst, x, 'g', -1, 64)
 }
 
 // UnmarshalJSON implements json.Unmarshaler.

@@ -23,6 +23,8 @@ var assets embed.FS
 
 var pages = template.Must(template.New("").Funcs(template.FuncMap{
 	"num": num,
+	// fnum formats a flag's value or cutoff (float64, as the engine gives it).
+	"fnum": func(x float64) string { return num(view.Float(x)) },
 	"num6": func(v view.Float) string {
 		if !v.Finite() {
 			return "—"
@@ -237,27 +239,13 @@ func buildModelPage(md view.ModelDetail, fits []view.FitView, x string) *modelPa
 		}
 	}
 	slices.SortStableFunc(mp.Notable, func(a, b view.Point) int {
-		return cmp.Compare(rank(b.Verdict), rank(a.Verdict))
+		return cmp.Compare(view.Rank(b.Verdict), view.Rank(a.Verdict))
 	})
 	if len(mp.Notable) > 40 {
 		mp.Notable = mp.Notable[:40]
 	}
 	modelCharts(mp, md, fits, x)
 	return mp
-}
-
-func rank(v string) int {
-	switch v {
-	case view.VerdictSuspect:
-		return 4
-	case view.VerdictOutlier:
-		return 3
-	case view.VerdictInfluential:
-		return 2
-	case view.VerdictNotable:
-		return 1
-	}
-	return 0
 }
 
 const alertsPerPage = 50

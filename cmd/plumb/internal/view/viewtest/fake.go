@@ -163,9 +163,9 @@ func (f *Fake) Model(ctx context.Context, name string) (view.ModelDetail, error)
 	if f.err != nil {
 		return view.ModelDetail{}, f.err
 	}
-	d, ok := f.models[name]
-	if !ok {
-		return view.ModelDetail{}, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	d, err := get(f.models, "model", name)
+	if err != nil {
+		return d, err
 	}
 	d.OpenAlerts = f.openAlerts(name)
 	return d, nil
@@ -187,28 +187,35 @@ func page[T any](items []T, id func(T) int64, after int64, limit int) []T {
 
 // Fits implements view.Source.
 func (f *Fake) Fits(ctx context.Context, name string, after int64, limit int) ([]view.FitView, error) {
-	f.mu.Lock()
-	defer f.mu.Unlock()
-	if f.err != nil {
-		return nil, f.err
-	}
-	if _, ok := f.models[name]; !ok {
-		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
-	}
-	return page(f.fits[name], func(v view.FitView) int64 { return v.ID }, after, limit), nil
+	return modelPage(f, name, f.fits, func(v view.FitView) int64 { return v.ID }, after, limit)
 }
 
 // Observations implements view.Source.
 func (f *Fake) Observations(ctx context.Context, name string, after int64, limit int) ([]view.ObservationView, error) {
+	return modelPage(f, name, f.obs, func(v view.ObservationView) int64 { return v.ID }, after, limit)
+}
+
+// get looks key up in m; a missing key is what's view.ErrNotFound.
+func get[V any](m map[string]V, what, key string) (V, error) {
+	v, ok := m[key]
+	if !ok {
+		return v, fmt.Errorf("%s %q: %w", what, key, view.ErrNotFound)
+	}
+	return v, nil
+}
+
+// modelPage pages through one model's items of by (fits, observations),
+// under the lock, with the Fake's failure and an unknown model's error.
+func modelPage[T any](f *Fake, name string, by map[string][]T, id func(T) int64, after int64, limit int) ([]T, error) {
 	f.mu.Lock()
 	defer f.mu.Unlock()
 	if f.err != nil {
 		return nil, f.err
 	}
-	if _, ok := f.models[name]; !ok {
-		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	if _, err := get(f.models, "model", name); err != nil {
+		return nil, err
 	}
-	return page(f.obs[name], func(v view.ObservationView) int64 { return v.ID }, after, limit), nil
+	return page(by[name], id, after, limit), nil
 }
 
 // Quarantine implements view.Source.
@@ -260,11 +267,7 @@ func (f *Fake) Alert(ctx context.Context, id string) (view.AlertView, error) {
 	if f.err != nil {
 		return view.AlertView{}, f.err
 	}
-	a, ok := f.alerts[id]
-	if !ok {
-		return view.AlertView{}, fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
-	}
-	return a, nil
+	return get(f.alerts, "alert", id)
 }
 
 // Ack implements view.Source.
@@ -275,9 +278,9 @@ func (f *Fake) Ack(ctx context.Context, id, note, who string) error {
 		return f.err
 	}
 	f.calls = append(f.calls, Call{Op: "ack", ID: id, Note: note, Who: who})
-	a, ok := f.alerts[id]
-	if !ok {
-		return fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+	a, err := get(f.alerts, "alert", id)
+	if err != nil {
+		return err
 	}
 	if a.State != view.AlertOpen {
 		return fmt.Errorf("acknowledge alert %q (%s): %w", id, a.State, view.ErrState)
@@ -295,9 +298,9 @@ func (f *Fake) Resolve(ctx context.Context, id, note string) error {
 		return f.err
 	}
 	f.calls = append(f.calls, Call{Op: "resolve", ID: id, Note: note})
-	a, ok := f.alerts[id]
-	if !ok {
-		return fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+	a, err := get(f.alerts, "alert", id)
+	if err != nil {
+		return err
 	}
 	if a.State == view.AlertResolved {
 		return fmt.Errorf("resolve alert %q: %w", id, view.ErrState)
@@ -315,14 +318,18 @@ func (f *Fake) RecentFits(ctx context.Context, name string, n int) ([]view.FitVi
 	if f.err != nil {
 		return nil, f.err
 	}
-	if _, ok := f.models[name]; !ok {
-		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+	if _, err := get(f.models, "model", name); err != nil {
+		return nil, err
 	}
-	all := f.fits[name]
+	return latest(slices.Clone(f.fits[name]), n), nil
+}
+
+// latest is the last n of all (all when n <= 0).
+func latest[T any](all []T, n int) []T {
 	if n > 0 && len(all) > n {
-		all = all[len(all)-n:]
+		return all[len(all)-n:]
 	}
-	return slices.Clone(all), nil
+	return all
 }
 
 // quarantineOf returns the quarantined rows of model ("" for all) in id
@@ -344,11 +351,7 @@ func (f *Fake) RecentQuarantine(ctx context.Context, model string, n int) ([]vie
 	if f.err != nil {
 		return nil, f.err
 	}
-	sel := f.quarantineOf(model)
-	if n > 0 && len(sel) > n {
-		sel = sel[len(sel)-n:]
-	}
-	return sel, nil
+	return latest(f.quarantineOf(model), n), nil
 }
 
 var (

@@ -121,7 +121,7 @@ func StraightLine(l Line) (view.ModelDetail, error) {
 			Cook: view.Float(cook), DFFITS: view.Float(dff), BonferroniP: view.Float(bp),
 		}
 		flag := func(measure, family string, v, c float64) {
-			pt.Flags = append(pt.Flags, view.Flag{Measure: measure, Family: family, Value: view.Float(v), Cutoff: view.Float(c)})
+			pt.Flags = append(pt.Flags, view.Flag{Measure: measure, Family: family, Value: v, Cutoff: c})
 		}
 		outlier := bp < alpha
 		if outlier {

@@ -1,0 +1,175 @@
+package view
+
+import (
+	"math"
+
+	"plumb/cmd/plumb/internal/analysis"
+	"plumb/engine"
+)
+
+// Result is the read model of one analysis: what every face of plumb
+// shows of it. The daemon builds the dashboard's and the report's
+// ModelDetail from it (Coefficients, Points, Lines, Curves, Suggestions,
+// FragilityOf); `plumb inspect` writes its table, CSV and JSON from it.
+// A new measure of the analysis gets its reader here once.
+type Result struct {
+	*analysis.Result
+	// Cutoffs are the judgement's cutoffs the result was judged with.
+	Cutoffs engine.Cutoffs
+	// Row gives where the i-th fitted row (0-based, fit order) came from:
+	// for the daemon the observation's id, file and line; for a file
+	// inspected once, the data row number as ID, the file and the line.
+	Row func(i int) RowRef
+}
+
+// Coefficients lists the fit's coefficients with their 95 % intervals.
+func (r *Result) Coefficients() []Coefficient {
+	out := make([]Coefficient, len(r.Fit.Coef))
+	for i, c := range r.Fit.Coef {
+		out[i] = Coefficient{Term: c.Term, Estimate: Float(c.Estimate), StdError: Float(c.StdError),
+			T: Float(c.T), P: Float(c.P), Lower95: Float(c.Lower95), Upper95: Float(c.Upper95)}
+	}
+	return out
+}
+
+// Point is the i-th fitted row with its measures, verdict and flags.
+func (r *Result) Point(i int) Point {
+	o := r.Influence.Rows[i]
+	v := r.Verdicts[i]
+	ref := r.Row(i)
+	p := Point{ID: ref.ID, Row: i, File: ref.File, Line: ref.Line,
+		X: make(map[string]Float, len(r.Model.Columns())), Y: Float(r.Cols[r.Model.Response][i]), Fitted: Float(r.Fit.Fitted[i]),
+		Residual: Float(o.Residual), Leverage: Float(o.Leverage),
+		StudentizedExternal: Float(o.StudentExternal), Cook: Float(o.Cook),
+		DFFITS: Float(o.DFFITS), BonferroniP: Float(o.BonferroniP), Verdict: string(v.Word())}
+	for _, c := range r.Model.Columns() {
+		p.X[c] = Float(r.Cols[c][i])
+	}
+	for _, fl := range v.Flags {
+		p.Flags = append(p.Flags, Flag(fl))
+	}
+	return p
+}
+
+// Points lists every fitted row in fit order.
+func (r *Result) Points() []Point {
+	out := make([]Point, r.Fit.N)
+	for i := range out {
+		out[i] = r.Point(i)
+	}
+	return out
+}
+
+// Lines are the cutoff lines the diagnostic charts draw.
+func (r *Result) Lines() Cutoffs {
+	n, p := float64(r.Fit.N), float64(r.Fit.P)
+	// The Bonferroni critical |t|: the t(n-p-1) quantile at 1 - alpha/(2n).
+	tcrit := engine.TQuantile(1-r.Cutoffs.Alpha/(2*n), n-p-1)
+	return Cutoffs{Leverage: Float(r.Limits.Leverage), CookAbsolute: Float(r.Limits.CookAbsolute),
+		CookSizeAdjusted: Float(r.Limits.CookSize), TCritical: Float(tcrit), Alpha: Float(r.Cutoffs.Alpha)}
+}
+
+// MaxCook is the largest Cook's distance (0 when none is defined).
+func (r *Result) MaxCook() Float {
+	mc := 0.0
+	for _, o := range r.Influence.Rows {
+		if o.Cook > mc {
+			mc = o.Cook
+		}
+	}
+	return Float(mc)
+}
+
+// Count is how many rows have the verdict word w.
+func (r *Result) Count(w engine.Word) int {
+	n := 0
+	for _, v := range r.Verdicts {
+		if v.Word() == w {
+			n++
+		}
+	}
+	return n
+}
+
+// FragilityOf describes the fragility result; limit is the configured
+// fragile-fit limit (0 when none).
+func (r *Result) FragilityOf(k, limit int) Fragility {
+	fr := r.Fragility
+	if fr == nil {
+		return Fragility{}
+	}
+	f := Fragility{Computed: true, K: k, Limit: limit, Fragile: fr.Fragile, Searched: fr.Searched}
+	if fr.Index > 0 {
+		f.Found, f.Index, f.Conclusion = true, fr.Index, fr.Conclusion
+		for _, row := range fr.RemovedRows {
+			if row >= 1 && row <= r.Fit.N {
+				f.Rows = append(f.Rows, r.Row(row-1))
+			}
+		}
+	}
+	return f
+}
+
+// SuggestionViews lists the suggestions.
+func (r *Result) SuggestionViews() []Suggestion {
+	var out []Suggestion
+	for _, s := range r.Suggestions {
+		at := make(map[string]Float, len(s.At))
+		for k, x := range s.At {
+			at[k] = Float(x)
+		}
+		out = append(out, Suggestion{At: at, Text: s.Text, DGain: Float(s.DGain), Replicates: s.Replicates})
+	}
+	return out
+}
+
+// Curves evaluates the fitted mean and its 95 % band over each predictor
+// column at steps+1 points across its observed range, the other
+// predictors held at their means.
+func (r *Result) Curves(steps int) []Curve {
+	cols := r.Model.Columns()
+	means := map[string]float64{}
+	lo, hi := map[string]float64{}, map[string]float64{}
+	for _, c := range cols {
+		s, a, b := 0.0, math.Inf(1), math.Inf(-1)
+		for _, x := range r.Cols[c] {
+			s += x
+			a, b = min(a, x), max(b, x)
+		}
+		means[c] = s / float64(len(r.Cols[c]))
+		lo[c], hi[c] = a, b
+	}
+	tq := engine.TQuantile(0.975, float64(r.Fit.DF))
+	x := make([]float64, r.Model.P())
+	var out []Curve
+	for _, c := range cols {
+		cv := Curve{Predictor: c}
+		if len(cols) > 1 {
+			cv.Held = map[string]Float{}
+			for _, o := range cols {
+				if o != c {
+					cv.Held[o] = Float(means[o])
+				}
+			}
+		}
+		for k := 0; k <= steps; k++ {
+			xv := lo[c] + (hi[c]-lo[c])*float64(k)/float64(steps)
+			err := r.Model.DesignRow(x, func(col string) float64 {
+				if col == c {
+					return xv
+				}
+				return means[col]
+			})
+			if err != nil {
+				continue
+			}
+			y, se := r.Fit.Predict(x)
+			cv.X = append(cv.X, Float(xv))
+			cv.Y = append(cv.Y, Float(y))
+			cv.Lower = append(cv.Lower, Float(y-tq*se))
+			cv.Upper = append(cv.Upper, Float(y+tq*se))
+		}
+		out = append(out, cv)
+	}
+	return out
+}
