@@ -8,6 +8,7 @@ import (
 
 	"github.com/jackc/pgx/v5/pgtype"
 
+	"plumb/engine"
 	"plumb/store"
 )
 
@@ -74,16 +75,22 @@ func decFloats(b []byte) ([]float64, error) {
 // functions change.
 
 // encVerdict returns the column value of a verdict word.
-func encVerdict(v string) string { return v }
+func encVerdict(v engine.Word) string { return string(v) }
 
-// encFlags returns the column value of a set of crossed cutoffs.
-func encFlags(f string) string { return f }
+// encFlags returns the column value of a set of crossed cutoffs: the JSON
+// array both backends store (store.EncodeFlags).
+func encFlags(fs []engine.Flag) (string, error) { return store.EncodeFlags(fs) }
 
-// decFlags is the inverse of encFlags.
-func decFlags(s pgtype.Text) string { return s.String }
+// decFlags is the inverse of encFlags; NULL gives nil.
+func decFlags(s pgtype.Text) ([]engine.Flag, error) {
+	if !s.Valid {
+		return nil, nil
+	}
+	return store.DecodeFlags(s.String)
+}
 
 // decVerdict is the inverse of encVerdict.
-func decVerdict(s pgtype.Text) string { return s.String }
+func decVerdict(s pgtype.Text) engine.Word { return engine.Word(s.String) }
 
 // nArrival is the number of arrival-diagnostic columns (leverage ..
 // flags in obsCols).
@@ -91,11 +98,11 @@ const nArrival = 11
 
 // encArrival writes the arrival diagnostics d into the nArrival column
 // values dst, in obsCols order; a nil d makes them all NULL.
-func encArrival(dst []any, d *store.Diagnostics) {
+func encArrival(dst []any, d *store.Diagnostics) error {
 	dst = dst[:nArrival]
 	if d == nil {
 		clear(dst)
-		return
+		return nil
 	}
 	dst[0] = d.Leverage
 	dst[1] = d.Residual
@@ -107,7 +114,9 @@ func encArrival(dst []any, d *store.Diagnostics) {
 	dst[7] = d.COVRATIO
 	dst[8] = d.OutlierPBonferroni
 	dst[9] = encVerdict(d.Verdict)
-	dst[10] = encFlags(d.Flags)
+	fl, err := encFlags(d.Flags)
+	dst[10] = fl
+	return err
 }
 
 // encInode stores a uint64 inode in a signed BIGINT.

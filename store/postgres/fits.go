@@ -9,6 +9,7 @@ import (
 	"github.com/jackc/pgx/v5"
 	"github.com/jackc/pgx/v5/pgtype"
 
+	"plumb/engine"
 	"plumb/store"
 )
 
@@ -46,7 +47,10 @@ func (db *DB) RecordFit(ctx context.Context, f store.FitRecord, changes []store.
 			ats[i] = pgtype.Int8{Int64: a.(int64), Valid: true}
 		}
 		obs[i] = c.ObsID
-		from[i], to[i], flgs[i] = encVerdict(c.From), encVerdict(c.To), encFlags(c.Flags)
+		from[i], to[i] = encVerdict(c.From), encVerdict(c.To)
+		if flgs[i], err = encFlags(c.Flags); err != nil {
+			return fail(fmt.Errorf("verdict change of observation %d: %w", c.ObsID, err))
+		}
 	}
 	var fitID, modelID int64
 	var newModel bool
@@ -218,7 +222,11 @@ func (db *DB) VerdictChanges(ctx context.Context, obsID int64) ([]store.VerdictC
 			return fail(err)
 		}
 		c.At = decTime(at)
-		c.From, c.To, c.Flags = decVerdict(from), decVerdict(to), decFlags(flags)
+		c.From, c.To = decVerdict(from), decVerdict(to)
+		var err error
+		if c.Flags, err = decFlags(flags); err != nil {
+			return fail(err)
+		}
 		out = append(out, c)
 	}
 	if err := rows.Err(); err != nil {
@@ -231,11 +239,11 @@ func (db *DB) VerdictChanges(ctx context.Context, obsID int64) ([]store.VerdictC
 // observation of the model whose latest verdict differs from its arrival
 // verdict (an observation that arrived without diagnostics counts as
 // differing once it has any change).
-func (db *DB) CurrentVerdicts(ctx context.Context, model string) (map[int64]string, error) {
-	fail := func(err error) (map[int64]string, error) {
+func (db *DB) CurrentVerdicts(ctx context.Context, model string) (map[int64]engine.Word, error) {
+	fail := func(err error) (map[int64]engine.Word, error) {
 		return nil, fmt.Errorf("store: current verdicts %s: %w", model, err)
 	}
-	out := make(map[int64]string)
+	out := make(map[int64]engine.Word)
 	mid, ok, err := db.lookupModel(ctx, db.pool, model)
 	if err != nil {
 		return fail(err)

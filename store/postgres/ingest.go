@@ -69,7 +69,9 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		if a[8], err = encTime(o.ArrivedAt); err != nil {
 			return fail(fmt.Errorf("observation line %d arrived at: %w", o.Line, err))
 		}
-		encArrival(a[9:], o.Arrival)
+		if err := encArrival(a[9:], o.Arrival); err != nil {
+			return fail(fmt.Errorf("observation line %d flags: %w", o.Line, err))
+		}
 		rows[i] = a
 	}
 	qrows := make([][]any, len(b.Quarantine))
@@ -283,7 +285,9 @@ func scanObs(sc pgx.Row, o *store.Observation) error {
 			COVRATIO:            cov.Float64,
 			OutlierPBonferroni:  outp.Float64,
 			Verdict:             decVerdict(verdict),
-			Flags:               decFlags(flags),
+		}
+		if d.Flags, err = decFlags(flags); err != nil {
+			return fmt.Errorf("observation %d flags: %w", o.ID, err)
 		}
 		if d.DFBETAS, err = decFloats(dfb); err != nil {
 			return fmt.Errorf("observation %d DFBETAS: %w", o.ID, err)

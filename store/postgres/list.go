@@ -39,8 +39,12 @@ func (db *DB) ModelVerdictChanges(ctx context.Context, model string) ([]store.Ve
 		var at pgtype.Int8
 		var from, to, flags pgtype.Text
 		err := r.Scan(&c.ObsID, &c.FitID, &at, &from, &to, &flags)
+		if err != nil {
+			return c, err
+		}
 		c.At = decTime(at)
-		c.From, c.To, c.Flags = decVerdict(from), decVerdict(to), decFlags(flags)
+		c.From, c.To = decVerdict(from), decVerdict(to)
+		c.Flags, err = decFlags(flags)
 		return c, err
 	})
 	if err != nil {

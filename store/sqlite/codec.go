@@ -6,10 +6,10 @@ import (
 	"encoding/json"
 	"fmt"
 	"math"
-	"strconv"
 	"time"
 
 	"plumb/engine"
+	"plumb/store"
 )
 
 // Times are stored as UTC unix nanoseconds; int64 nanoseconds since 1970
@@ -105,79 +105,13 @@ func decStrings(s string) ([]string, error) {
 func encInode(x uint64) int64 { return int64(x) }
 func decInode(x int64) uint64 { return uint64(x) }
 
-// flagJSON is one crossed cutoff as the flags columns hold it: a JSON
-// array of these objects, the form written since schema version 1. A
-// value or cutoff is a number, null for NaN, or "+Inf"/"-Inf"; databases
-// written before this encoding hold 0 where a value was undefined, which
-// reads back as 0.
-type flagJSON struct {
-	Measure string    `json:"measure"`
-	Family  string    `json:"family"`
-	Term    string    `json:"term,omitempty"`
-	Value   flagValue `json:"value"`
-	Cutoff  flagValue `json:"cutoff"`
-}
-
-type flagValue float64
-
-func (v flagValue) MarshalJSON() ([]byte, error) {
-	x := float64(v)
-	switch {
-	case math.IsNaN(x):
-		return []byte("null"), nil
-	case math.IsInf(x, 1):
-		return []byte(`"+Inf"`), nil
-	case math.IsInf(x, -1):
-		return []byte(`"-Inf"`), nil
-	}
-	return strconv.AppendFloat(nil, x, 'g', -1, 64), nil
-}
-
-func (v *flagValue) UnmarshalJSON(b []byte) error {
-	switch string(b) {
-	case "null":
-		*v = flagValue(math.NaN())
-		return nil
-	case `"+Inf"`:
-		*v = flagValue(math.Inf(1))
-		return nil
-	case `"-Inf"`:
-		*v = flagValue(math.Inf(-1))
-		return nil
-	}
-	x, err := strconv.ParseFloat(string(b), 64)
-	if err != nil {
-		return fmt.Errorf("flag value %s: %w", b, err)
-	}
-	*v = flagValue(x)
-	return nil
-}
-
-// encFlags returns the column text of fs: "[]" for none.
-func encFlags(fs []engine.Flag) (string, error) {
-	out := make([]flagJSON, len(fs))
-	for i, f := range fs {
-		out[i] = flagJSON{f.Measure, f.Family, f.Term, flagValue(f.Value), flagValue(f.Cutoff)}
-	}
-	b, err := json.Marshal(out)
-	return string(b), err
-}
+// encFlags returns the column text of fs: "[]" for none (store.EncodeFlags).
+func encFlags(fs []engine.Flag) (string, error) { return store.EncodeFlags(fs) }
 
 // decFlags is the inverse of encFlags; "[]", "" and NULL give nil.
 func decFlags(s sql.NullString) ([]engine.Flag, error) {
-	if !s.Valid || s.String == "" {
+	if !s.Valid {
 		return nil, nil
 	}
-	var in []flagJSON
-	if err := json.Unmarshal([]byte(s.String), &in); err != nil {
-		return nil, fmt.Errorf("flags: %w", err)
-	}
-	if len(in) == 0 {
-		return nil, nil
-	}
-	out := make([]engine.Flag, len(in))
-	for i, f := range in {
-		out[i] = engine.Flag{Measure: f.Measure, Family: f.Family, Term: f.Term, Value: float64(f.Value), Cutoff: float64(f.Cutoff)}
-	}
-	return out, nil
+	return store.DecodeFlags(s.String)
 }

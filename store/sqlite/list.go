@@ -46,10 +46,15 @@ func (db *DB) ModelVerdictChanges(ctx context.Context, model string) ([]store.Ve
 	for rows.Next() {
 		var c store.VerdictChange
 		var at sql.NullInt64
-		if err := rows.Scan(&c.ObsID, &c.FitID, &at, &c.From, &c.To, &c.Flags); err != nil {
+		var flags sql.NullString
+		if err := rows.Scan(&c.ObsID, &c.FitID, &at, &c.From, &c.To, &flags); err != nil {
 			return fail(err)
 		}
 		c.At = decTime(at)
+		var err error
+		if c.Flags, err = decFlags(flags); err != nil {
+			return fail(err)
+		}
 		out = append(out, c)
 	}
 	if err := rows.Err(); err != nil {

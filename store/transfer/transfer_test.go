@@ -15,6 +15,7 @@ import (
 
 	"github.com/jackc/pgx/v5"
 
+	"plumb/engine"
 	"plumb/store"
 	"plumb/store/postgres"
 	"plumb/store/sqlite"
@@ -67,11 +68,11 @@ func openPostgres(t *testing.T) *postgres.DB {
 
 // flags returns n crossed cutoffs in the store's form of flags (the
 // only place these tests depend on it).
-func flags(n int) string {
+func flags(n int) []engine.Flag {
 	if n == 0 {
-		return "[]"
+		return nil
 	}
-	return fmt.Sprintf(`[{"measure":"leverage","family":"absolute","value":%d,"cutoff":0.5}]`, n)
+	return []engine.Flag{{Measure: engine.MeasureLeverage, Family: engine.FamilyAbsolute, Value: float64(n), Cutoff: 0.5}}
 }
 
 // fill writes a history with two models, a rotated file (two
