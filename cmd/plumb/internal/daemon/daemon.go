@@ -69,6 +69,7 @@ type Daemon struct {
 
 	kick chan struct{}
 	addr string
+	lock *sqlite.Lock // nil for a read-only daemon
 }
 
 // New opens the state database and prepares every model.
@@ -83,14 +84,25 @@ func New(ctx context.Context, cfg *config.Config, opts Options) (*Daemon, error)
 	if err := os.MkdirAll(dirOf(path), 0o755); err != nil {
 		return nil, fmt.Errorf("state folder: %w", err)
 	}
+	// One writing daemon per state: a second one would store rows twice
+	// and fight over alerts. Read-only users (report) do not lock.
+	var lock *sqlite.Lock
+	if !opts.ReadOnly {
+		var err error
+		if lock, err = sqlite.AcquireLock(path); err != nil {
+			return nil, err
+		}
+	}
 	db, err := sqlite.Open(ctx, path)
 	if err != nil {
+		lock.Release()
 		return nil, err
 	}
 	d := &Daemon{cfg: cfg, opts: opts, log: opts.Logger, store: db, kick: make(chan struct{}, 1),
-		metrics: &metricsHook{m: metrics.New()}}
+		metrics: &metricsHook{m: metrics.New()}, lock: lock}
 	if err := d.build(ctx, cfg); err != nil {
 		db.Close()
+		lock.Release()
 		return nil, err
 	}
 	return d, nil
@@ -629,8 +641,14 @@ func (d *Daemon) RefreshAll(ctx context.Context) error {
 	return nil
 }
 
-// Close releases the store.
-func (d *Daemon) Close() error { return d.store.Close() }
+// Close releases the store and the state's lock.
+func (d *Daemon) Close() error {
+	err := d.store.Close()
+	if lerr := d.lock.Release(); err == nil {
+		err = lerr
+	}
+	return err
+}
 
 // Summary is what a run did, for the demo's closing lines.
 type Summary struct {
