@@ -348,6 +348,10 @@ func (d *Decoder) Feed(buf []byte, atEOF bool, emit func(Record) error) (consume
 		if bytes.HasPrefix(rest, bom) {
 			pos += 3
 			d.off += 3
+		} else if len(rest) < 4 && !atEOF && len(rest) > 0 && (rest[0] == 0xFF || rest[0] == 0xFE || rest[0] == 0) {
+			return pos, nil // perhaps another encoding's mark: wait for 4 bytes
+		} else if name := foreignBOM(rest); name != "" {
+			return pos, withDetail(ErrEncoding, "%s: the file starts with its byte-order mark; save it as UTF-8", name)
 		}
 		d.bomDone = true
 	}
@@ -855,4 +859,20 @@ func (d *Decoder) takeTexts(k int) []string {
 	v := d.texts[:k:k]
 	d.texts = d.texts[k:]
 	return v
+}
+
+// foreignBOM names the encoding whose byte-order mark b starts with, for
+// the encodings a CSV file is saved in besides UTF-8 ("" if none).
+func foreignBOM(b []byte) string {
+	switch {
+	case bytes.HasPrefix(b, []byte{0xFF, 0xFE, 0, 0}):
+		return "UTF-32 little-endian (FF FE 00 00)"
+	case bytes.HasPrefix(b, []byte{0, 0, 0xFE, 0xFF}):
+		return "UTF-32 big-endian (00 00 FE FF)"
+	case bytes.HasPrefix(b, []byte{0xFF, 0xFE}):
+		return "UTF-16 little-endian (FF FE)"
+	case bytes.HasPrefix(b, []byte{0xFE, 0xFF}):
+		return "UTF-16 big-endian (FE FF)"
+	}
+	return ""
 }

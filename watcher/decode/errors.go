@@ -41,6 +41,9 @@ var (
 	// ErrDuplicateColumn: a selected column name occurs more than once in
 	// the header, so it is ambiguous.
 	ErrDuplicateColumn = errors.New("column name occurs more than once in header")
+	// ErrEncoding: the file starts with the byte-order mark of an encoding
+	// other than UTF-8 (UTF-16 or UTF-32); the detail names it.
+	ErrEncoding = errors.New("unreadable text encoding")
 	// ErrDialect: the dialect is unusable (see Dialect.Validate).
 	ErrDialect = errors.New("invalid CSV dialect")
 )

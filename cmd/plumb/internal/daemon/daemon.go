@@ -544,6 +544,7 @@ func toFileStates(ss []store.Source) []watcher.FileState {
 		out[i] = watcher.FileState{
 			Path: s.Path, Generation: s.Generation, Inode: s.Inode, Size: s.Size, Offset: s.Offset,
 			Line: s.Line, Fingerprint: s.Fingerprint, FingerprintLen: s.FingerprintLen, Header: splitHeader(s.Header),
+			Digest: s.Digest,
 		}
 	}
 	return out
@@ -553,7 +554,7 @@ func sourceOf(model string, b watcher.Batch) store.Source {
 	return store.Source{
 		Model: model, Path: b.Path, Generation: b.Generation, Inode: b.Inode, Size: b.Size,
 		Offset: b.EndOffset, Line: b.EndLine, Fingerprint: b.Fingerprint, FingerprintLen: b.FingerprintLen,
-		Header: joinHeader(b.Header),
+		Header: joinHeader(b.Header), Digest: b.Digest,
 	}
 }
 
