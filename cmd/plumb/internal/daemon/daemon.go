@@ -520,6 +520,10 @@ func (s sink) Notice(ctx context.Context, n watcher.Notice) {
 		return
 	}
 	switch {
+	case n.Blocked && n.Refused:
+		m.refuseFile(ctx, n) // a stray file: refused alone, the model goes on
+	case n.Kind == watcher.Unblocked:
+		m.clearFileBlock(ctx, n.Path, n.Detail)
 	case n.Blocked && (n.Kind == watcher.HeaderChanged || n.Kind == watcher.Error):
 		what := "header of %s changed: %s"
 		if n.Kind == watcher.Error {

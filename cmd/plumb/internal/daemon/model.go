@@ -49,6 +49,8 @@ type modelRT struct {
 	cause  string
 	// header holds the blocked reason for a file whose header changed.
 	headerBlocked map[string]string
+	// refused holds the reason for each file refused alone (fileblock.go).
+	refused map[string]string
 
 	// Rows, in arrival order.
 	ids     []int64

@@ -47,8 +47,6 @@ func (m *modelRT) refresh(ctx context.Context) error {
 	if len(m.ids) > 0 {
 		lastID = m.ids[len(m.ids)-1]
 	}
-	pendingSuspects := m.pendingSuspects
-	m.pendingSuspects = nil
 	headerBlocked := len(m.headerBlocked) > 0
 	m.mu.Unlock()
 
@@ -105,6 +103,11 @@ func (m *modelRT) refresh(ctx context.Context) error {
 
 	// Verdict changes against the latest known verdict of each row.
 	m.mu.Lock()
+	// Suspects judged at arrival are reported only now that a fit stands:
+	// those that arrived while the model was blocked or not fittable
+	// waited for it, and are alerted as if judging had never stopped.
+	pendingSuspects := m.pendingSuspects
+	m.pendingSuspects = nil
 	var changes []store.VerdictChange
 	now := m.d.now()
 	var resolvedSuspects []int
