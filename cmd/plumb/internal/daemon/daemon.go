@@ -364,7 +364,7 @@ func (d *Daemon) runPipeline(ctx context.Context) error {
 			Folder:    folder,
 			Pattern:   m.cfg.Pattern,
 			Recursive: m.cfg.Recursive,
-			Dialect:   decode.Dialect{Delimiter: delim, Comment: m.cfg.Comment, DecimalComma: m.cfg.DecimalComma},
+			Dialect:   decode.Dialect{Delimiter: delim, Comment: m.cfg.Comment, DecimalComma: m.cfg.DecimalComma, Missing: m.cfg.Missing},
 			Numeric:   m.numeric(),
 			Text:      m.text(),
 			States:    toFileStates(states),

@@ -69,6 +69,7 @@ type modelRT struct {
 
 	rowsAccepted int64
 	quarantined  int64
+	missing      int64 // rows left out for a missing value (this run)
 	fits         int64
 	lastArrival  time.Time
 
@@ -289,9 +290,17 @@ func (m *modelRT) ingest(ctx context.Context, b watcher.Batch) error {
 		}
 	}
 	mark := m.online.Snapshot()
+	missing := 0
 	for _, rec := range b.Records {
 		if rec.Err != nil {
 			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, rec.Err.Column, rec.Err.Error()))
+			continue
+		}
+		if rec.Missing != nil {
+			// A missing value (config "missing") in a column the model
+			// uses: the row is left out of the fit and counted, not
+			// quarantined.
+			missing++
 			continue
 		}
 		ti := 0
@@ -364,6 +373,10 @@ func (m *modelRT) ingest(ctx context.Context, b watcher.Batch) error {
 		}
 	}
 	m.quarantined += int64(len(quar))
+	if missing > 0 {
+		m.missing += int64(missing)
+		m.log.Info("rows with a missing value left out", "file", b.Path, "count", missing)
+	}
 	if _, ok := m.headerBlocked[b.Path]; ok && len(b.Records) > 0 {
 		// The file is read again: its header matches the columns once more.
 		delete(m.headerBlocked, b.Path)
