@@ -160,3 +160,40 @@ func TestStrayFileRefusedModelGoesOn(t *testing.T) {
 	}
 	waitFor(t, "file alert resolved", func() bool { return !openAlert(t, r.d.store, alerts.KindBlocked, subject) })
 }
+
+// TestRefusedFileAcrossRestart: a file refused in an earlier run that was
+// removed, or fixed, while plumb was stopped has its alert resolved at
+// the next start.
+func TestRefusedFileAcrossRestart(t *testing.T) {
+	dir := t.TempDir()
+	c := testConfig(t, dir, fmt.Sprintf(lineModel, "m", "in", false))
+	rng := rand.New(rand.NewPCG(9, 9))
+	feed(t, filepath.Join(dir, "in", "a.csv"), rng, 0, 20, true)
+	gone := filepath.Join(dir, "in", "gone.csv")
+	fixed := filepath.Join(dir, "in", "fixed.csv")
+	for _, p := range []string{gone, fixed} {
+		if err := os.WriteFile(p, []byte("date,remark\n2026-12-01,x\n"), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	r := start(t, c)
+	waitFor(t, "two file alerts", func() bool {
+		return openAlert(t, r.d.store, alerts.KindBlocked, alerts.FileSubject("m", "gone.csv")) &&
+			openAlert(t, r.d.store, alerts.KindBlocked, alerts.FileSubject("m", "fixed.csv"))
+	})
+	r.stop(t)
+
+	if err := os.Remove(gone); err != nil {
+		t.Fatal(err)
+	}
+	feed(t, fixed+".new", rng, 500, 3, true)
+	if err := os.Rename(fixed+".new", fixed); err != nil {
+		t.Fatal(err)
+	}
+	r = start(t, c)
+	waitFor(t, "both alerts resolved", func() bool {
+		return !openAlert(t, r.d.store, alerts.KindBlocked, alerts.FileSubject("m", "gone.csv")) &&
+			!openAlert(t, r.d.store, alerts.KindBlocked, alerts.FileSubject("m", "fixed.csv"))
+	})
+	waitFor(t, "the fixed file's rows", func() bool { return count(t, r.d.store, "m") == 23 })
+}

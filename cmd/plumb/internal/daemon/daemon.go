@@ -358,6 +358,7 @@ func (d *Daemon) runPipeline(ctx context.Context) error {
 		if err != nil {
 			return err
 		}
+		m.sweepRefused(ctx, folder)
 		delim := m.cfg.Delimiter[0]
 		srcs = append(srcs, watcher.Source{
 			Model:     name,
@@ -504,6 +505,7 @@ func (s sink) Deliver(ctx context.Context, b watcher.Batch) error {
 		m.log.Error("ingest", "file", b.Path, "err", err)
 		return err
 	}
+	m.fileReadable(ctx, b.Path)
 	if s.d.alerts != nil && len(b.Records) > 0 {
 		if err := s.d.alerts.Activity(ctx, b.Model, s.d.opts.Now()); err != nil {
 			m.log.Warn("alert activity", "err", err)

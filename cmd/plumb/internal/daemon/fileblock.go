@@ -2,8 +2,14 @@ package daemon
 
 import (
 	"context"
+	"errors"
+	"io/fs"
+	"os"
+	"path/filepath"
+	"strings"
 
 	"plumb/alerts"
+	"plumb/store"
 	"plumb/watcher"
 )
 
@@ -54,6 +60,57 @@ func (m *modelRT) clearFileBlock(ctx context.Context, path, detail string) {
 		select {
 		case m.d.kick <- struct{}{}:
 		default:
+		}
+	}
+}
+
+// fileReadable is called after a batch of path was stored: a file refused
+// in an earlier run (its alert still open) that is now read fits again.
+func (m *modelRT) fileReadable(ctx context.Context, path string) {
+	m.mu.Lock()
+	_, refused := m.refused[path]
+	m.mu.Unlock()
+	if refused {
+		m.clearFileBlock(ctx, path, "the file is read")
+	}
+}
+
+// sweepRefused looks at the model's open file alerts at start: the alert
+// of a file that is gone resolves now (no notice will come for it); the
+// others are remembered, so that the file's first stored batch resolves
+// its alert if it was fixed while plumb was stopped (a file still refused
+// is reported again by the watcher).
+func (m *modelRT) sweepRefused(ctx context.Context, folder string) {
+	if m.d.opts.ReadOnly {
+		return
+	}
+	prefix := alerts.FileSubject(m.cfg.Name, "")
+	for _, state := range []string{"open", "acknowledged"} {
+		as, err := m.d.store.Alerts(ctx, store.AlertQuery{State: state, Model: m.cfg.Name, Kind: string(alerts.KindBlocked)})
+		if err != nil {
+			m.log.Error("alerts", "err", err)
+			return
+		}
+		for _, a := range as {
+			path, ok := strings.CutPrefix(a.Subject, prefix)
+			if !ok || path == "" {
+				continue
+			}
+			if _, err := os.Lstat(filepath.Join(folder, filepath.FromSlash(path))); errors.Is(err, fs.ErrNotExist) {
+				m.log.Info("refused file removed while plumb was stopped", "file", path)
+				if err := m.d.blocked(ctx, alerts.BlockedCondition{Model: m.cfg.Name, Blocked: false, File: path}); err != nil {
+					m.log.Error("alert", "err", err)
+				}
+				continue
+			}
+			m.mu.Lock()
+			if m.refused == nil {
+				m.refused = map[string]string{}
+			}
+			if _, known := m.refused[path]; !known {
+				m.refused[path] = "refused in an earlier run"
+			}
+			m.mu.Unlock()
 		}
 	}
 }
