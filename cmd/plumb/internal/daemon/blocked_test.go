@@ -197,3 +197,24 @@ func TestRefusedFileAcrossRestart(t *testing.T) {
 	})
 	waitFor(t, "the fixed file's rows", func() bool { return count(t, r.d.store, "m") == 23 })
 }
+
+// TestHardLinkStoredOnce: a hard link beside the file it names adds no
+// row: seven rows are stored once, not twice.
+func TestHardLinkStoredOnce(t *testing.T) {
+	dir := t.TempDir()
+	c := testConfig(t, dir, fmt.Sprintf(lineModel, "m", "in", false))
+	a := filepath.Join(dir, "in", "a.csv")
+	feed(t, a, rand.New(rand.NewPCG(10, 10)), 0, 7, true)
+	if err := os.Link(a, filepath.Join(dir, "in", "b.csv")); err != nil {
+		t.Skip("no hard links here:", err)
+	}
+	r := start(t, c)
+	waitFor(t, "7 rows", func() bool { return count(t, r.d.store, "m") == 7 })
+	time.Sleep(200 * time.Millisecond)
+	feed(t, a, rand.New(rand.NewPCG(11, 11)), 7, 2, false)
+	waitFor(t, "9 rows", func() bool { return count(t, r.d.store, "m") == 9 })
+	time.Sleep(200 * time.Millisecond)
+	if n := count(t, r.d.store, "m"); n != 9 {
+		t.Errorf("%d rows stored, want 9 (each once)", n)
+	}
+}
