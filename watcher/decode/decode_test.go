@@ -486,6 +486,9 @@ func sameRecords(a, b []Record) bool {
 		if x.Err != nil && x.Err.Error() != y.Err.Error() {
 			return false
 		}
+		if (x.Missing == nil) != (y.Missing == nil) || (x.Missing != nil && x.Missing.Error() != y.Missing.Error()) {
+			return false
+		}
 	}
 	return true
 }
