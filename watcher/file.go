@@ -366,7 +366,7 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 	if t.dec == nil {
 		d, err := w.decoderFor(t)
 		if err != nil {
-			w.block(ctx, t, id, Notice{Kind: Error, Detail: decodeDetail(err), Err: err})
+			w.block(ctx, t, id, Notice{Kind: Error, Detail: decodeDetail(err, w.srcs[t.key.src].columns()), Err: err})
 			return
 		}
 		t.dec = d
@@ -416,7 +416,7 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 		}
 		consumed, err := dec.Feed(buf, eof && flush, emit)
 		if err != nil {
-			w.block(ctx, t, id, Notice{Kind: Error, Detail: decodeDetail(err), Err: err})
+			w.block(ctx, t, id, Notice{Kind: Error, Detail: decodeDetail(err, w.srcs[t.key.src].columns()), Err: err})
 			return
 		}
 		// Hash what is now consumed while it is in the buffer (buf holds
@@ -557,15 +557,25 @@ func notRegular(fi os.FileInfo) string {
 }
 
 // decodeDetail says why the decoder refuses a file.
-func decodeDetail(err error) string {
+// want lists the columns the source selects.
+func decodeDetail(err error, want []string) string {
 	var ce *decode.ColumnError
 	if errors.As(err, &ce) && errors.Is(err, decode.ErrUnknownColumn) {
 		at := ""
 		if ce.Line > 0 {
 			at = fmt.Sprintf(" (line %d)", ce.Line)
 		}
-		return fmt.Sprintf("its header%s has other columns, %s, and lacks the model's column %q; its rows are not read",
-			at, quoteList(ce.Available), ce.Name)
+		var lacks []string
+		for _, c := range want {
+			if !slices.Contains(ce.Available, c) && !slices.Contains(lacks, c) {
+				lacks = append(lacks, c)
+			}
+		}
+		if len(lacks) == 0 {
+			lacks = []string{ce.Name}
+		}
+		return fmt.Sprintf("its header%s has other columns, %s, and lacks the model's %s; its rows are not read",
+			at, quoteList(ce.Available), quoteList(lacks))
 	}
 	return err.Error() + "; its rows are not read until the file changes"
 }

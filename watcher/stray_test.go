@@ -80,7 +80,7 @@ func TestStrayFilesAreRefusedAlone(t *testing.T) {
 	}
 	n := byPath["notes.csv"]
 	var ce *decode.ColumnError
-	if !n.Blocked || !n.Refused || !errors.As(n.Err, &ce) || !strings.Contains(n.Detail, `"date", "remark"`) {
+	if !n.Blocked || !n.Refused || !errors.As(n.Err, &ce) || !strings.Contains(n.Detail, `"date", "remark"`) || !strings.Contains(n.Detail, `lacks the model's ["x", "y"]`) {
 		t.Errorf("notes.csv notice %+v: want blocked, refused, listing the header's columns", n)
 	}
 	n = byPath["wide.csv"]

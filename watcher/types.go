@@ -81,6 +81,11 @@ type Source struct {
 	States []FileState
 }
 
+// columns lists the columns the source selects: Numeric, then Text.
+func (s Source) columns() []string {
+	return append(append([]string(nil), s.Numeric...), s.Text...)
+}
+
 func (s Source) pattern() string {
 	if s.Pattern == "" {
 		return "*.csv"
