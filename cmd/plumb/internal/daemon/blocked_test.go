@@ -218,3 +218,47 @@ func TestHardLinkStoredOnce(t *testing.T) {
 		t.Errorf("%d rows stored, want 9 (each once)", n)
 	}
 }
+
+// TestSuspectHeldAcrossRestart: a suspect reading that arrived while the
+// model was blocked, in a run that stopped before judging resumed, is
+// alerted in the next run once a fit stands, and only once.
+func TestSuspectHeldAcrossRestart(t *testing.T) {
+	dir := t.TempDir()
+	c := testConfig(t, dir, fmt.Sprintf(lineModel, "m", "in", false))
+	rng := rand.New(rand.NewPCG(12, 12))
+	a := filepath.Join(dir, "in", "a.csv")
+	b := filepath.Join(dir, "in", "b.csv")
+	feed(t, a, rng, 0, 30, true)
+	feed(t, b, rng, 100, 10, true)
+	r := start(t, c)
+	waitFor(t, "a fit", func() bool { st, _ := modelState(r, "m"); return st == stateJudging })
+	saveByRename(t, a, "id,x,z\n1,2,3\n")
+	waitFor(t, "model blocked", func() bool { st, _ := modelState(r, "m"); return st == stateBlocked })
+	f, err := os.OpenFile(b, os.O_WRONLY|os.O_APPEND, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	fmt.Fprintf(f, "999,30,60\n")
+	f.Close()
+	waitFor(t, "41 rows", func() bool { return count(t, r.d.store, "m") == 41 })
+	r.stop(t)
+
+	if err := os.Remove(a); err != nil {
+		t.Fatal(err)
+	}
+	r = start(t, c)
+	subject := alerts.PointSubject("m", "b.csv", 12)
+	waitFor(t, "suspect alert after the restart", func() bool { return openAlert(t, r.d.store, alerts.KindSuspectPoint, subject) })
+	r.stop(t)
+	r = start(t, c)
+	waitFor(t, "a refresh", func() bool { st, _ := modelState(r, "m"); return st == stateJudging })
+	for _, al := range alertsOf(t, r.d.store, alerts.KindSuspectPoint) {
+		var doc alerts.Alert
+		if err := json.Unmarshal([]byte(al.Doc), &doc); err != nil {
+			t.Fatal(err)
+		}
+		if al.Subject == subject && doc.Count != 1 {
+			t.Errorf("alert %s reported %d times, want once", subject, doc.Count)
+		}
+	}
+}

@@ -196,6 +196,9 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 		if err := m.restore(ctx, d.store); err != nil {
 			return fmt.Errorf("model %q: restore: %w", name, err)
 		}
+		if err := m.restoreHeldSuspects(ctx); err != nil {
+			return fmt.Errorf("model %q: restore: %w", name, err)
+		}
 		// Silence is measured from the last stored arrival, across restarts.
 		if !m.lastArrival.IsZero() {
 			if err := am.Activity(ctx, name, m.lastArrival); err != nil {
