@@ -81,7 +81,8 @@ func AcquireLock(path string) (*Lock, error) {
 	}
 	host, _ := os.Hostname()
 	line := fmt.Sprintf("pid=%d\nhost=%s\nstarted=%s\n", os.Getpid(), host, time.Now().UTC().Format(time.RFC3339Nano))
-	if err := f.Truncate(0); err == nil {
+	err = f.Truncate(0)
+	if err == nil {
 		_, err = f.WriteAt([]byte(line), 0)
 	}
 	if err != nil {
