@@ -84,6 +84,10 @@ const (
 	CauseHeaderChanged = "header_changed"
 	CauseNotFittable   = "not_fittable"
 	CauseSilent        = "silent"
+	// CauseFileRefused: one file in the model's folder cannot be read for
+	// the model (another header, an unreadable encoding, not a regular
+	// file); the model goes on with its other files.
+	CauseFileRefused = "file_refused"
 )
 
 // BlockedCondition reports whether a model can be fitted. Blocked false
@@ -95,4 +99,7 @@ type BlockedCondition struct {
 	// Reason is the plain-language reason, e.g. the engine's error text.
 	Cause  string
 	Reason string
+	// File, when set, makes the condition about that one file of the
+	// model (subject FileSubject): the file is refused, the model goes on.
+	File string
 }

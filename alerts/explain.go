@@ -135,6 +135,13 @@ func fillBlocked(a *Alert, c BlockedCondition) {
 	a.Blocked = &BlockedDetail{Cause: c.Cause, Reason: c.Reason}
 	a.Measures = []Measure{}
 	a.Suggestion = nil
+	if c.File != "" {
+		a.Summary = fmt.Sprintf("File %s is not read for model %s.", c.File, c.Model)
+		a.Explanation = fmt.Sprintf("plumb does not read file %s for model %s: %s. ", c.File, c.Model, c.Reason) +
+			"The model goes on with its other files; this file's rows are not read until it is removed, replaced or fixed, " +
+			"and this alert then resolves by itself."
+		return
+	}
 	what := map[string]string{
 		CauseTooFewRows:    "it has too few rows for its terms",
 		CauseCollinear:     "some of its terms are collinear",

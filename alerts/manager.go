@@ -393,9 +393,13 @@ func (m *Manager) Blocked(ctx context.Context, c BlockedCondition) (*Alert, erro
 	if c.Cause == "" {
 		c.Cause = CauseNotFittable
 	}
+	subject, note := c.Model, "the model can be fitted again"
+	if c.File != "" {
+		subject, note = FileSubject(c.Model, c.File), "the file was removed, replaced or fixed"
+	}
 	return m.apply(ctx, m.cfg.Now(), change{
-		model: c.Model, kind: KindBlocked, subject: c.Model, active: c.Blocked,
-		note: "the model can be fitted again",
+		model: c.Model, kind: KindBlocked, subject: subject, active: c.Blocked,
+		note: note,
 		fill: func(a *Alert) { fillBlocked(a, c) },
 	})
 }

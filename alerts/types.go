@@ -123,6 +123,10 @@ func PointSubject(model, file string, line int) string {
 // model + "/feed". A model that cannot be fitted has subject model.
 func SilenceSubject(model string) string { return model + "/feed" }
 
+// FileSubject is the subject of the blocked alert for one refused file of
+// a model (see BlockedCondition.File): model + "/file:" + file.
+func FileSubject(model, file string) string { return model + "/file:" + file }
+
 // Values maps column names to numbers. In JSON a non-finite number (an
 // undefined diagnostic, for instance at leverage 1) is null.
 type Values map[string]float64

@@ -177,6 +177,11 @@ type Source struct {
 	FingerprintLen int
 	// Header is the header row as read (column names), joined with '\x1f'.
 	Header string
+	// Digest is the serialised state of a SHA-256 over the bytes [0, Offset)
+	// (encoding.BinaryMarshaler form), empty when not known. It lets the
+	// watcher tell a file saved anew under the same name (a new inode)
+	// that begins with the bytes already read from one that differs.
+	Digest []byte
 	// Rows and Quarantined count what this source has contributed.
 	Rows        int64
 	Quarantined int64

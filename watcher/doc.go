@@ -53,13 +53,31 @@
 //   - ctx is Run's context; when it is cancelled, Deliver should give up.
 //
 // Notice(ctx, n) reports events that are not rows, per (Model, Path):
-//   - Rotated: another file (new inode) stands at the path; it is read from
-//     offset 0 as Generation+1. Truncated: the file shrank or its first
+//   - Resaved: another file (new inode) stands at the path, and its bytes
+//     up to the read position are the bytes already read (their SHA-256,
+//     kept with the position as FileState.Digest, is the same): a save by
+//     writing a new file and renaming it over the old one. Reading goes on
+//     from the old position, same generation. The check costs one read of
+//     the part already read (BenchmarkSameOldPart).
+//   - Rotated: another file (new inode) stands at the path and the part
+//     already read differs (or is shorter, or no digest was kept; n.Detail
+//     says which); it is read from offset 0 as Generation+1. Truncated: the file shrank or its first
 //     bytes (up to 1 KiB, the fingerprint) changed, as an O_TRUNC rewrite
 //     does; likewise read again from 0 as Generation+1. Earlier rows stay.
 //   - HeaderChanged: after a rotation or truncation the header is not the
 //     one read before. The file is blocked (not read) until it changes
 //     again; mark the model's file as blocked with n.Detail as reason.
+//   - Blocked notices (HeaderChanged, and Error with n.Blocked) carry
+//     n.Refused when the file has given the model no rows: a stray file
+//     (another header, whose columns n.Detail lists; an unreadable
+//     encoding such as UTF-16; a named pipe, socket or device, which is
+//     never opened). Only that file is refused; the model goes on. Without
+//     Refused the file gave rows before its header changed.
+//   - Unblocked: the cause of a block went away (the file was removed, or
+//     changed and now fits); clear what the block recorded.
+//   - HardLink: the path is a second name (same device and inode) of a
+//     file the source reads under its first name; skipped. When the first
+//     name goes, the second continues from its position (as Moved).
 //   - Deleted: the file is gone; its history stays. A file that appears
 //     again at the path is a rotation. A saved file missing at start is
 //     reported too (so again after each restart).

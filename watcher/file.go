@@ -1,11 +1,14 @@
 package watcher
 
 import (
+	"bytes"
 	"context"
 	"crypto/sha256"
+	"encoding"
 	"encoding/hex"
 	"errors"
 	"fmt"
+	"hash"
 	"io"
 	"io/fs"
 	"os"
@@ -41,17 +44,21 @@ type tracked struct {
 	dec      *decode.Decoder
 
 	// prevHeader is the header of the generation before a rotation or
-	// truncation, until the new content's header has been compared to it.
+	// truncation, until the new content's header has been compared to it;
+	// prevRows tells whether that generation gave rows.
 	prevHeader []string
+	prevRows   bool
 
 	blocked   bool     // not read until its identity changes
 	blockedID identity // identity when blocked
-	// noticed holds the kinds already reported while blocked, so a
-	// blocked file that keeps changing does not repeat itself.
-	noticed map[NoticeKind]bool
+	// noticed holds the detail of each kind already reported while
+	// blocked, so a blocked file that keeps changing does not repeat
+	// itself (a different finding is reported).
+	noticed map[NoticeKind]string
 
 	gone          bool
 	symlinkTarget string
+	linkOf        string // the path this one is a hard link of, when skipped
 
 	retryAt time.Time
 	backoff time.Duration
@@ -138,6 +145,13 @@ func (w *Watcher) process(ctx context.Context, k fileKey) {
 		}
 		t.symlinkTarget = ""
 	}
+	// Look before opening: a named pipe, a socket or a device is refused
+	// without being opened (opening a pipe could block, reading a device
+	// never ends).
+	if sfi, err := os.Stat(t.abs); err == nil && !sfi.Mode().IsRegular() {
+		w.block(ctx, t, statID(sfi), Notice{Kind: Error, Detail: notRegular(sfi)})
+		return
+	}
 	f, err := openRead(t.abs)
 	if err != nil {
 		if errors.Is(err, fs.ErrNotExist) {
@@ -154,12 +168,26 @@ func (w *Watcher) process(ctx context.Context, k fileKey) {
 		return
 	}
 	if !fi.Mode().IsRegular() {
-		w.block(ctx, t, statID(fi), Notice{Kind: Error, Detail: fmt.Sprintf("not a regular file (%v); skipped", fi.Mode().Type())})
+		w.block(ctx, t, statID(fi), Notice{Kind: Error, Detail: notRegular(fi)})
 		return
 	}
 	id := statID(fi)
 	t.seen = id
 	t.gone = false
+	if !t.hasState && id.ino != 0 {
+		if other := w.hardLinkOf(t, fi, id); other != "" {
+			if t.linkOf != other {
+				t.linkOf = other
+				w.notice(ctx, t, Notice{Kind: HardLink, Detail: fmt.Sprintf(
+					"another name (hard link) of %s, which is read under that name; skipped so no row is read twice", other)})
+			}
+			if t.backfill {
+				w.backfillDone(t)
+			}
+			return
+		}
+		t.linkOf = ""
+	}
 	if t.blocked && id == t.blockedID {
 		return // blocked files stay blocked until they change
 	}
@@ -182,7 +210,18 @@ func (w *Watcher) process(ctx context.Context, k fileKey) {
 	if !t.hasState {
 		t.state = FileState{Path: k.rel, Inode: id.ino}
 		t.hasState = true
-	} else if kind, detail := changed(t.state, id, prefix); kind != 0 {
+	} else if kind, detail := changed(t.state, id, prefix); kind == Rotated {
+		same, why, err := sameOldPart(t.state, f, id.size)
+		switch {
+		case err != nil:
+			w.fileError(ctx, t, "cannot read the file", err)
+			return
+		case same:
+			w.resaved(ctx, t, id, prefix)
+		default:
+			w.newGeneration(ctx, t, kind, detail+": "+why, id)
+		}
+	} else if kind != 0 {
 		w.newGeneration(ctx, t, kind, detail, id)
 	}
 	if t.state.Inode == 0 {
@@ -197,7 +236,7 @@ func (w *Watcher) process(ctx context.Context, k fileKey) {
 func changed(st FileState, id identity, prefix []byte) (NoticeKind, string) {
 	switch {
 	case st.Inode != 0 && id.ino != 0 && st.Inode != id.ino:
-		return Rotated, fmt.Sprintf("another file now stands at the path (inode %d, was %d); reading it from the start", id.ino, st.Inode)
+		return Rotated, fmt.Sprintf("another file now stands at the path (inode %d, was %d); it is read from the start as a new generation", id.ino, st.Inode)
 	case id.size < st.Offset:
 		return Truncated, fmt.Sprintf("the file shrank from at least %d to %d bytes; reading it from the start", st.Offset, id.size)
 	case st.FingerprintLen > len(prefix):
@@ -214,6 +253,7 @@ func (w *Watcher) newGeneration(ctx context.Context, t *tracked, kind NoticeKind
 	w.depart(t.key.src, old)
 	if len(old.Header) > 0 {
 		t.prevHeader = old.Header
+		t.prevRows = gaveRows(old)
 	}
 	t.state = FileState{Path: old.Path, Generation: old.Generation + 1, Inode: id.ino}
 	t.dec = nil
@@ -289,6 +329,10 @@ func (w *Watcher) gone(ctx context.Context, t *tracked) {
 	if t.backfill {
 		w.backfillDone(t)
 	}
+	if t.blocked {
+		t.blocked, t.noticed = false, nil
+		w.notice(ctx, t, Notice{Kind: Unblocked, Detail: "the file was removed, and with it the cause of its block"})
+	}
 	if t.gone {
 		return
 	}
@@ -316,11 +360,13 @@ func (w *Watcher) fileError(ctx context.Context, t *tracked, what string, err er
 	}
 }
 
-// block stops reading t until its identity changes, with a notice.
+// block stops reading t until its identity changes, with a notice. A
+// file that has given no rows is refused alone (Notice.Refused).
 func (w *Watcher) block(ctx context.Context, t *tracked, id identity, n Notice) {
 	t.blocked = true
 	t.blockedID = id
 	n.Blocked = true
+	n.Refused = !(t.hasState && gaveRows(t.state)) && !(t.prevHeader != nil && t.prevRows)
 	w.notice(ctx, t, n)
 	t.dec = nil
 	if t.backfill {
@@ -334,7 +380,7 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 	if t.dec == nil {
 		d, err := w.decoderFor(t)
 		if err != nil {
-			w.block(ctx, t, id, Notice{Kind: Error, Detail: err.Error() + "; file not read until it changes", Err: err})
+			w.block(ctx, t, id, Notice{Kind: Error, Detail: decodeDetail(err, w.srcs[t.key.src].columns()), Err: err})
 			return
 		}
 		t.dec = d
@@ -348,6 +394,13 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 		recs = append(recs, r)
 		return nil
 	}
+	digest, err := resumeDigest(t.state, f)
+	if err != nil {
+		w.fileError(ctx, t, "cannot read the file", err)
+		t.dec = nil
+		return
+	}
+	hashed := t.state.Offset // digest covers [0, hashed)
 	pos := dec.Offset()
 	startPos := pos
 	buf := w.buf[:0]
@@ -377,8 +430,15 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 		}
 		consumed, err := dec.Feed(buf, eof && flush, emit)
 		if err != nil {
-			w.block(ctx, t, id, Notice{Kind: Error, Detail: err.Error() + "; file not read until it changes", Err: err})
+			w.block(ctx, t, id, Notice{Kind: Error, Detail: decodeDetail(err, w.srcs[t.key.src].columns()), Err: err})
 			return
+		}
+		// Hash what is now consumed while it is in the buffer (buf holds
+		// the bytes from pos on); a gap (a skipped over-long record) is
+		// hashed from the file below.
+		if p, _ := dec.Pos(); p > hashed && hashed >= pos && p <= pos+int64(len(buf)) {
+			digest.Write(buf[hashed-pos : p-pos])
+			hashed = p
 		}
 		pos += int64(consumed)
 		buf = buf[:copy(buf, buf[consumed:])]
@@ -413,7 +473,7 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 				quoteList(t.prevHeader), quoteList(hdr))})
 			return
 		}
-		t.prevHeader = nil
+		t.prevHeader, t.prevRows = nil, false
 	}
 
 	st := t.state
@@ -429,6 +489,16 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 		Records: recs,
 	}
 	if b.EndOffset > b.StartOffset || len(recs) > 0 || (len(st.Header) == 0 && len(hdr) > 0) {
+		if hashed < b.EndOffset {
+			if _, err := io.Copy(digest, io.NewSectionReader(f, hashed, b.EndOffset-hashed)); err != nil {
+				w.fileError(ctx, t, "cannot read the file", err)
+				t.dec = nil
+				return
+			}
+		}
+		if b.Digest, err = digest.(encoding.BinaryMarshaler).MarshalBinary(); err != nil {
+			panic("watcher: sha256 state: " + err.Error()) // the standard library's hash always marshals
+		}
 		if err := w.sink.Deliver(ctx, b); err != nil {
 			t.dec = nil // start again from the committed state
 			if ctx.Err() != nil {
@@ -443,10 +513,13 @@ func (w *Watcher) read(ctx context.Context, t *tracked, f *os.File, id identity,
 		}
 		t.state = b.State()
 		t.backoff, t.retryAt = 0, time.Time{}
-		t.blocked, t.noticed = false, nil
 		if t.backfill {
 			w.backfillAdvance(t, b.EndOffset-b.StartOffset)
 		}
+	}
+	if t.blocked {
+		t.blocked, t.noticed = false, nil
+		w.notice(ctx, t, Notice{Kind: Unblocked, Detail: "the file changed and now fits the model; it is read again"})
 	}
 	if more {
 		w.pend.schedule(t.key, w.now())
@@ -473,4 +546,129 @@ func (w *Watcher) backfillDone(t *tracked) {
 	t.backfill = false
 	w.prog.advance(t.backfillLeft, true)
 	t.backfillLeft = 0
+}
+
+// gaveRows reports whether a file's read state is past its header: the
+// file has given the model rows (or at least lines after the header).
+func gaveRows(st FileState) bool {
+	return st.HeaderLine > 0 && st.Line > st.HeaderLine
+}
+
+// notRegular says what a path that is not a regular file is.
+func notRegular(fi os.FileInfo) string {
+	what := "not a regular file"
+	switch m := fi.Mode(); {
+	case m&fs.ModeNamedPipe != 0:
+		what = "a named pipe (FIFO), not a regular file"
+	case m&fs.ModeSocket != 0:
+		what = "a socket, not a regular file"
+	case m&fs.ModeDevice != 0:
+		what = "a device, not a regular file"
+	case m.IsDir():
+		what = "a folder, not a file"
+	}
+	return what + "; it is not opened and its rows are not read"
+}
+
+// decodeDetail says why the decoder refuses a file.
+// want lists the columns the source selects.
+func decodeDetail(err error, want []string) string {
+	var ce *decode.ColumnError
+	if errors.As(err, &ce) && errors.Is(err, decode.ErrUnknownColumn) {
+		at := ""
+		if ce.Line > 0 {
+			at = fmt.Sprintf(" (line %d)", ce.Line)
+		}
+		var lacks []string
+		for _, c := range want {
+			if !slices.Contains(ce.Available, c) && !slices.Contains(lacks, c) {
+				lacks = append(lacks, c)
+			}
+		}
+		if len(lacks) == 0 {
+			lacks = []string{ce.Name}
+		}
+		return fmt.Sprintf("its header%s has other columns, %s, and lacks the model's %s; its rows are not read",
+			at, quoteList(ce.Available), quoteList(lacks))
+	}
+	return err.Error() + "; its rows are not read until the file changes"
+}
+
+// hardLinkOf returns the path of another file of t's source, read under
+// its own name, that is the same file as fi (same device and inode), or
+// "" if there is none.
+func (w *Watcher) hardLinkOf(t *tracked, fi os.FileInfo, id identity) string {
+	for k, o := range w.files {
+		if k.src != t.key.src || o == t || !o.hasState || o.gone || o.linkOf != "" || o.state.Inode != id.ino {
+			continue
+		}
+		if ofi, err := os.Stat(o.abs); err == nil && os.SameFile(ofi, fi) {
+			return k.rel
+		}
+	}
+	return ""
+}
+
+// resumeDigest returns a SHA-256 over the file's bytes [0, st.Offset):
+// from the saved state, or, for a state saved without one, by reading that
+// part of the file once (it was checked to be unchanged by the caller).
+func resumeDigest(st FileState, f io.ReaderAt) (hash.Hash, error) {
+	h := sha256.New()
+	if len(st.Digest) > 0 {
+		if err := h.(encoding.BinaryUnmarshaler).UnmarshalBinary(st.Digest); err == nil {
+			return h, nil
+		}
+		h.Reset()
+	}
+	if st.Offset > 0 {
+		if _, err := io.Copy(h, io.NewSectionReader(f, 0, st.Offset)); err != nil {
+			return nil, err
+		}
+	}
+	return h, nil
+}
+
+// sameOldPart reports whether the file f (size bytes) begins with the
+// bytes already read, [0, st.Offset), by their saved digest: one read of
+// that part. When it does not, why says what differs.
+func sameOldPart(st FileState, f io.ReaderAt, size int64) (same bool, why string, err error) {
+	switch {
+	case st.Offset == 0:
+		return true, "", nil // nothing was read: nothing can differ
+	case len(st.Digest) == 0:
+		return false, "no digest of the part already read was kept, so the two cannot be compared", nil
+	case size < st.Offset:
+		return false, fmt.Sprintf("it has %d bytes, fewer than the %d already read", size, st.Offset), nil
+	}
+	want := sha256.New()
+	if err := want.(encoding.BinaryUnmarshaler).UnmarshalBinary(st.Digest); err != nil {
+		return false, "the saved digest of the part already read is unusable (" + err.Error() + ")", nil
+	}
+	got := sha256.New()
+	if _, err := io.Copy(got, io.NewSectionReader(f, 0, st.Offset)); err != nil {
+		return false, "", err
+	}
+	if !bytes.Equal(got.Sum(nil), want.Sum(nil)) {
+		return false, fmt.Sprintf("its first %d bytes, the part already read, differ from the bytes read before", st.Offset), nil
+	}
+	return true, "", nil
+}
+
+// resaved continues t in a file saved anew at its path (a new inode whose
+// first bytes are those already read): same generation, same position.
+func (w *Watcher) resaved(ctx context.Context, t *tracked, id identity, prefix []byte) {
+	old := t.state.Inode
+	t.state.Inode = id.ino
+	// The fingerprint now covers only verified bytes, so that bytes past
+	// the position (an unfinished last line the save rewrote) are not
+	// taken for an in-place rewrite on the next look.
+	n := min(int64(len(prefix)), t.state.Offset)
+	t.state.Fingerprint, t.state.FingerprintLen = fingerprint(prefix[:n]), int(n)
+	t.partialSize = -1
+	if t.state.Offset == 0 {
+		return // nothing was read from the old file: nothing to say
+	}
+	w.notice(ctx, t, Notice{Kind: Resaved, Detail: fmt.Sprintf(
+		"the file was saved anew (inode %d, was %d); its first %d bytes are the bytes already read, so reading continues at line %d",
+		id.ino, old, t.state.Offset, t.state.Line+1)})
 }

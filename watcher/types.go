@@ -81,6 +81,11 @@ type Source struct {
 	States []FileState
 }
 
+// columns lists the columns the source selects: Numeric, then Text.
+func (s Source) columns() []string {
+	return append(append([]string(nil), s.Numeric...), s.Text...)
+}
+
 func (s Source) pattern() string {
 	if s.Pattern == "" {
 		return "*.csv"
@@ -146,6 +151,13 @@ type FileState struct {
 	// Header is the file's header row; HeaderLine its line (0: unknown).
 	Header     []string
 	HeaderLine int
+	// Digest is the serialised state (encoding.BinaryMarshaler) of a
+	// SHA-256 over the bytes [0, Offset), empty when unknown. When another
+	// file (a new inode) appears at the path, as a save by writing a new
+	// file and renaming it over the old one makes, the watcher hashes the
+	// new file's first Offset bytes: if the hash is the same, it is the
+	// same file grown and reading goes on from Offset.
+	Digest []byte
 }
 
 // Sink receives what the watcher reads. Its methods are called from the
@@ -179,6 +191,8 @@ type Batch struct {
 	FingerprintLen int
 	Header         []string
 	HeaderLine     int
+	// Digest is the hash state after EndOffset (see FileState.Digest).
+	Digest []byte
 	// StartOffset/StartLine is the position the batch starts from (the
 	// file's saved Offset/Line); EndOffset/EndLine the position after it.
 	// EndOffset > StartOffset, or the batch only records a new generation
@@ -193,7 +207,7 @@ type Batch struct {
 func (b Batch) State() FileState {
 	return FileState{Path: b.Path, Generation: b.Generation, Inode: b.Inode, Size: b.Size,
 		Offset: b.EndOffset, Line: b.EndLine, Fingerprint: b.Fingerprint, FingerprintLen: b.FingerprintLen,
-		Header: b.Header, HeaderLine: b.HeaderLine}
+		Header: b.Header, HeaderLine: b.HeaderLine, Digest: b.Digest}
 }
 
 // NoticeKind says what a Notice is about.
@@ -225,6 +239,19 @@ const (
 	Error
 	// Overflow: the kernel dropped events; every folder is rescanned.
 	Overflow
+	// Resaved: another file (new inode) stands at the path, and its first
+	// bytes, up to the position already read, are the bytes already read
+	// (a save by writing a new file and renaming it over the old one):
+	// it is the same file grown, and reading continues where it was.
+	Resaved
+	// HardLink: the path is another name (a hard link: same device and
+	// inode) of a file the source already reads under its first name; it
+	// is skipped, so no row is read twice.
+	HardLink
+	// Unblocked: the cause of an earlier block went away (the file was
+	// removed, replaced, or now fits); the file is read again, if it is
+	// there. A sink clears the block it recorded for the file.
+	Unblocked
 )
 
 func (k NoticeKind) String() string {
@@ -245,6 +272,12 @@ func (k NoticeKind) String() string {
 		return "error"
 	case Overflow:
 		return "overflow"
+	case Resaved:
+		return "resaved"
+	case HardLink:
+		return "hard-link"
+	case Unblocked:
+		return "unblocked"
 	}
 	return fmt.Sprintf("NoticeKind(%d)", int(k))
 }
@@ -263,6 +296,13 @@ type Notice struct {
 	// file that is not a regular file). Error notices with Blocked false
 	// are passing I/O problems; the file is tried again on its next change.
 	Blocked bool
+	// Refused qualifies a blocked notice: the file has given this model no
+	// rows (a stray file in the folder: another header, an unreadable
+	// encoding, not a regular file), so only the file is refused and the
+	// model goes on with its other files. A blocked notice without Refused
+	// is about a file that has given rows and then changed its header: the
+	// model's data is in doubt until the block clears.
+	Refused bool
 	// Err is the underlying error for Error notices (e.g. a
 	// *decode.ColumnError), else nil.
 	Err error

@@ -408,17 +408,17 @@ func (w *Watcher) notice(ctx context.Context, t *tracked, n Notice) {
 			n.Generation = t.state.Generation
 		}
 		if t.blocked {
-			if t.noticed[n.Kind] {
+			if d, ok := t.noticed[n.Kind]; ok && d == n.Detail {
 				return // already said while the file is blocked
 			}
 			if t.noticed == nil {
-				t.noticed = make(map[NoticeKind]bool)
+				t.noticed = make(map[NoticeKind]string)
 			}
-			t.noticed[n.Kind] = true
+			t.noticed[n.Kind] = n.Detail
 		}
 	}
 	level := slog.LevelInfo
-	if n.Kind == Error || n.Kind == HeaderChanged || n.Kind == Symlink || n.Kind == Overflow {
+	if n.Kind == Error || n.Kind == HeaderChanged || n.Kind == Symlink || n.Kind == HardLink || n.Kind == Overflow {
 		level = slog.LevelWarn
 	}
 	w.log.Log(ctx, level, n.Detail, "model", n.Model, "path", n.Path, "kind", n.Kind.String(), "generation", n.Generation)

@@ -19,7 +19,7 @@ import (
 )
 
 // TestCrashExactlyOnce ingests 100,000 rows that this test process writes
-// while the daemon, a separate process, is killed with SIGKILL at random
+// (appended to two files, saved by rename into a third) while the daemon, a separate process, is killed with SIGKILL at random
 // moments and restarted. Afterwards the store must hold every source row
 // exactly once and account for every bad row in the quarantine.
 func TestCrashExactlyOnce(t *testing.T) {
@@ -49,8 +49,9 @@ enabled = false
 	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Minute)
 	defer cancel()
 
-	// The writer: appends rows in bursts to two files, one bad row every
-	// 997 rows, until done.
+	// The writer: appends rows in bursts to two files and saves a third
+	// by writing it whole to a temporary file renamed over it (as editors
+	// and spreadsheets save), one bad row every 997 rows, until done.
 	rng := rand.New(rand.NewPCG(1, 2))
 	done := make(chan error, 1)
 	wantBad := 0
@@ -67,8 +68,17 @@ enabled = false
 			fmt.Fprintln(f, "id,x,y")
 			ws[i] = f
 		}
+		saved := filepath.Join(feed, "c.csv")
+		content := []byte("id,x,y\n")
+		save := func() error {
+			tmp := filepath.Join(feed, ".c.csv.tmp")
+			if err := os.WriteFile(tmp, content, 0o644); err != nil {
+				return err
+			}
+			return os.Rename(tmp, saved)
+		}
 		for i := 1; i <= rows; {
-			f := ws[rng.IntN(2)]
+			which := rng.IntN(3)
 			burst := 1 + rng.IntN(200)
 			var b strings.Builder
 			for k := 0; k < burst && i <= rows; k++ {
@@ -81,7 +91,14 @@ enabled = false
 				}
 				i++
 			}
-			if _, err := f.WriteString(b.String()); err != nil {
+			var err error
+			if which == 2 {
+				content = append(content, b.String()...)
+				err = save()
+			} else {
+				_, err = ws[which].WriteString(b.String())
+			}
+			if err != nil {
 				done <- err
 				return
 			}

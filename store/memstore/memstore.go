@@ -153,7 +153,9 @@ func (s *Store) Sources(ctx context.Context, model string) ([]store.Source, erro
 	var out []store.Source
 	for k, src := range s.sources {
 		if k.model == model {
-			out = append(out, *src)
+			c := *src
+			c.Digest = slices.Clone(c.Digest)
+			out = append(out, c)
 		}
 	}
 	slices.SortFunc(out, func(a, b store.Source) int { return cmp.Compare(a.Path, b.Path) })
@@ -196,6 +198,7 @@ func (s *Store) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		}
 	}
 	ns := src
+	ns.Digest = slices.Clone(ns.Digest) // the caller may reuse its slice
 	ns.UpdatedAt = utc(ns.UpdatedAt)
 	if ns.UpdatedAt.IsZero() {
 		ns.UpdatedAt = s.now().UTC()

@@ -119,11 +119,11 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		}
 		sid, gen, off, nrows, nquar := stored[0].Int64, stored[1].Int64, stored[2].Int64, stored[3].Int64, stored[4].Int64
 		state := []any{int32(src.Generation), encInode(src.Inode), src.Size, src.Offset, int64(src.Line),
-			src.Fingerprint, int32(src.FingerprintLen), []byte(src.Header)}
+			src.Fingerprint, int32(src.FingerprintLen), []byte(src.Header), nonNilBytes(src.Digest)}
 		if sid == 0 {
 			err = tx.QueryRow(ctx, `INSERT INTO sources (generation, inode, size, read_offset, line, fingerprint, fingerprint_len,
-				header, rows_total, quarantined, updated_at, model_id, path)
-				VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13) RETURNING id`,
+				header, digest, rows_total, quarantined, updated_at, model_id, path)
+				VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14) RETURNING id`,
 				append(state, nObs, nQuar, updated, modelID, src.Path)...).Scan(&sid)
 			if err != nil {
 				return err
@@ -135,8 +135,8 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 					src.Generation, src.Offset, gen, off, store.ErrStale)
 			}
 			if _, err := tx.Exec(ctx, `UPDATE sources SET generation = $1, inode = $2, size = $3, read_offset = $4, line = $5,
-				fingerprint = $6, fingerprint_len = $7, header = $8, rows_total = $9, quarantined = $10, updated_at = $11
-				WHERE id = $12`, append(state, nrows+nObs, nquar+nQuar, updated, sid)...); err != nil {
+				fingerprint = $6, fingerprint_len = $7, header = $8, digest = $9, rows_total = $10, quarantined = $11,
+				updated_at = $12 WHERE id = $13`, append(state, nrows+nObs, nquar+nQuar, updated, sid)...); err != nil {
 				return err
 			}
 		}
@@ -221,7 +221,7 @@ func checkProvenance(src store.Source, model, path string, gen int) error {
 func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error) {
 	fail := func(err error) ([]store.Source, error) { return nil, fmt.Errorf("store: sources %s: %w", model, err) }
 	rows, err := db.pool.Query(ctx, `SELECT s.path, s.generation, s.inode, s.size, s.read_offset, s.line,
-		s.fingerprint, s.fingerprint_len, s.header, s.rows_total, s.quarantined, s.updated_at
+		s.fingerprint, s.fingerprint_len, s.header, s.digest, s.rows_total, s.quarantined, s.updated_at
 		FROM sources s JOIN models m ON m.id = s.model_id WHERE m.name = $1 ORDER BY s.path`, model)
 	if err != nil {
 		return fail(err)
@@ -234,11 +234,14 @@ func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error)
 		var header []byte
 		var updated pgtype.Int8
 		if err := rows.Scan(&s.Path, &s.Generation, &inode, &s.Size, &s.Offset, &s.Line,
-			&s.Fingerprint, &s.FingerprintLen, &header, &s.Rows, &s.Quarantined, &updated); err != nil {
+			&s.Fingerprint, &s.FingerprintLen, &header, &s.Digest, &s.Rows, &s.Quarantined, &updated); err != nil {
 			return fail(err)
 		}
 		s.Inode = decInode(inode)
 		s.Header = string(header)
+		if len(s.Digest) == 0 {
+			s.Digest = nil
+		}
 		s.UpdatedAt = decTime(updated)
 		out = append(out, s)
 	}
@@ -362,4 +365,13 @@ func (db *DB) CountObservations(ctx context.Context, model string) (int64, error
 		return 0, fmt.Errorf("store: count observations %s: %w", model, err)
 	}
 	return n, nil
+}
+
+// nonNilBytes is b, or an empty slice for nil: the digest column is NOT
+// NULL and pgx writes a nil slice as NULL.
+func nonNilBytes(b []byte) []byte {
+	if b == nil {
+		return []byte{}
+	}
+	return b
 }

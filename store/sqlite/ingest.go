@@ -43,9 +43,9 @@ func (s *ingestStmts) close() {
 const (
 	selSourceSQL = "SELECT id, generation, read_offset, rows_total, quarantined FROM sources WHERE model_id = ? AND path = ?"
 	insSourceSQL = `INSERT INTO sources (generation, inode, size, read_offset, line, fingerprint, fingerprint_len, header,
-		rows_total, quarantined, updated_at, model_id, path) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
+		digest, rows_total, quarantined, updated_at, model_id, path) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
 	updSourceSQL = `UPDATE sources SET generation = ?, inode = ?, size = ?, read_offset = ?, line = ?,
-		fingerprint = ?, fingerprint_len = ?, header = ?, rows_total = ?, quarantined = ?, updated_at = ?
+		fingerprint = ?, fingerprint_len = ?, header = ?, digest = ?, rows_total = ?, quarantined = ?, updated_at = ?
 		WHERE id = ?`
 	maxObsSQL = "SELECT COALESCE(MAX(id), 0) FROM observations"
 	insQrnSQL = `INSERT INTO quarantine (model_id, source_id, generation, line, col, raw, reason, at)
@@ -183,7 +183,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 			gen, off    int64
 			rows, quar  int64
 			nObs, nQuar = int64(len(b.Observations)), int64(len(b.Quarantine))
-			stateArgs   = []any{int64(src.Generation), encInode(src.Inode), src.Size, src.Offset, int64(src.Line), src.Fingerprint, int64(src.FingerprintLen), src.Header}
+			stateArgs   = []any{int64(src.Generation), encInode(src.Inode), src.Size, src.Offset, int64(src.Line), src.Fingerprint, int64(src.FingerprintLen), src.Header, digestArg(src.Digest)}
 		)
 		err = tx.StmtContext(ctx, stmts.selSource).QueryRowContext(ctx, modelID, src.Path).Scan(&sid, &gen, &off, &rows, &quar)
 		switch {
@@ -243,6 +243,14 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 	return ids, nil
 }
 
+// digestArg binds a digest; nil is stored as the empty blob (NOT NULL).
+func digestArg(d []byte) []byte {
+	if d == nil {
+		return []byte{}
+	}
+	return d
+}
+
 // insertChunks writes the observation rows in args with the prepared
 // multi-row statements, largest first.
 func insertChunks(ctx context.Context, tx *sql.Tx, stmts *ingestStmts, args []any) error {
@@ -277,7 +285,7 @@ func isUnique(err error) bool {
 // Sources returns the read state of every file the model has read, by path.
 func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error) {
 	rows, err := db.db.QueryContext(ctx, `SELECT s.path, s.generation, s.inode, s.size, s.read_offset, s.line,
-		s.fingerprint, s.fingerprint_len, s.header, s.rows_total, s.quarantined, s.updated_at
+		s.fingerprint, s.fingerprint_len, s.header, s.digest, s.rows_total, s.quarantined, s.updated_at
 		FROM sources s JOIN models m ON m.id = s.model_id WHERE m.name = ? ORDER BY s.path`, model)
 	if err != nil {
 		return nil, fmt.Errorf("store: sources %s: %w", model, err)
@@ -289,10 +297,13 @@ func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error)
 		var inode int64
 		var updated sql.NullInt64
 		if err := rows.Scan(&s.Path, &s.Generation, &inode, &s.Size, &s.Offset, &s.Line,
-			&s.Fingerprint, &s.FingerprintLen, &s.Header, &s.Rows, &s.Quarantined, &updated); err != nil {
+			&s.Fingerprint, &s.FingerprintLen, &s.Header, &s.Digest, &s.Rows, &s.Quarantined, &updated); err != nil {
 			return nil, fmt.Errorf("store: sources %s: %w", model, err)
 		}
 		s.Inode = decInode(inode)
+		if len(s.Digest) == 0 {
+			s.Digest = nil
+		}
 		s.UpdatedAt = decTime(updated)
 		out = append(out, s)
 	}

@@ -365,3 +365,54 @@ func TestFlagsColumn(t *testing.T) {
 		t.Error("a malformed flags column read without an error")
 	}
 }
+
+// TestMigrateSourceDigest: a source saved before schema version 3 (no
+// digest) reads back with an empty digest and its position intact, and
+// the next batch stores one.
+func TestMigrateSourceDigest(t *testing.T) {
+	ctx := context.Background()
+	path := filepath.Join(t.TempDir(), "v2.db")
+	raw, err := sql.Open("sqlite", path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	qs := []string{`CREATE TABLE schema_version (version INTEGER PRIMARY KEY, name TEXT NOT NULL, applied_at INTEGER NOT NULL)`}
+	for _, name := range []string{"0001_init.sql", "0002_alert_revision.sql"} {
+		b, err := os.ReadFile(filepath.Join("migrations", name))
+		if err != nil {
+			t.Fatal(err)
+		}
+		qs = append(qs, string(b))
+	}
+	qs = append(qs,
+		`INSERT INTO schema_version VALUES (1, '0001_init.sql', 0), (2, '0002_alert_revision.sql', 0)`,
+		`INSERT INTO models (id, name) VALUES (1, 'cal')`,
+		`INSERT INTO sources (model_id, path, generation, inode, size, read_offset, line, fingerprint, fingerprint_len,
+			header, rows_total, quarantined, updated_at) VALUES (1, 'a.csv', 0, 7, 40, 40, 4, 'ff', 40, 'x', 3, 0, 1)`)
+	for _, q := range qs {
+		if _, err := raw.ExecContext(ctx, q); err != nil {
+			t.Fatalf("build a version 2 database: %v", err)
+		}
+	}
+	raw.Close()
+	db, err := sqlite.Open(ctx, path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	src, err := db.Sources(ctx, "cal")
+	if err != nil || len(src) != 1 {
+		t.Fatalf("Sources = %+v, %v", src, err)
+	}
+	if s := src[0]; s.Offset != 40 || s.Line != 4 || len(s.Digest) != 0 {
+		t.Errorf("migrated source %+v; want offset 40, line 4, no digest", s)
+	}
+	s := src[0]
+	s.Offset, s.Line, s.Digest = 50, 5, []byte("state")
+	if _, err := db.Ingest(ctx, store.Batch{Source: s}); err != nil {
+		t.Fatal(err)
+	}
+	if src, _ := db.Sources(ctx, "cal"); string(src[0].Digest) != "state" {
+		t.Errorf("digest after a batch %q", src[0].Digest)
+	}
+}

@@ -23,6 +23,7 @@
 package storetest
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -47,6 +48,7 @@ func Run(t *testing.T, open Opener) {
 		fn   func(t *testing.T, s store.Store)
 	}{
 		{"IngestSources", testIngestSources},
+		{"SourceDigest", testSourceDigest},
 		{"IngestStale", testIngestStale},
 		{"IngestGenerations", testIngestGenerations},
 		{"IngestAtomic", testIngestAtomic},
@@ -92,6 +94,7 @@ func source(model, path string, gen int, off int64, line int) store.Source {
 		Model: model, Path: path, Generation: gen,
 		Inode: 1<<63 + 12345, Size: off + 100, Offset: off, Line: line,
 		Fingerprint: "f00d", FingerprintLen: 64, Header: "y\x1fx1\x1fx2",
+		Digest:    []byte(fmt.Sprintf("digest\x00%d", off)),
 		UpdatedAt: t0.Add(time.Duration(off) * time.Millisecond),
 	}
 }
@@ -125,6 +128,40 @@ func batch(model, path string, gen, first, last int) store.Batch {
 		b.Observations = append(b.Observations, obs(l, l%2 == 0))
 	}
 	return b
+}
+
+// testSourceDigest: the digest is stored with the read position, byte for
+// byte (any bytes, NUL included); no digest reads back empty; a later
+// batch replaces it, and the caller's slice is not kept.
+func testSourceDigest(t *testing.T, s store.Store) {
+	ctx := ctxT(t)
+	b := batch("cal", "d.csv", 0, 2, 3)
+	b.Source.Digest = nil
+	mustIngest(t, s, b)
+	src, err := s.Sources(ctx, "cal")
+	if err != nil || len(src) != 1 {
+		t.Fatalf("Sources = %v, %v", src, err)
+	}
+	if len(src[0].Digest) != 0 {
+		t.Errorf("no digest stored, read back %q", src[0].Digest)
+	}
+	b = batch("cal", "d.csv", 0, 4, 5)
+	want := []byte{0, 1, 2, 0xff, 's', 'h', 'a', 0}
+	b.Source.Digest = want
+	mustIngest(t, s, b)
+	want = slices.Clone(want)
+	b.Source.Digest[0] = 'x' // a backend must not keep the caller's slice
+	src, err = s.Sources(ctx, "cal")
+	if err != nil || len(src) != 1 {
+		t.Fatalf("Sources = %v, %v", src, err)
+	}
+	if !bytes.Equal(src[0].Digest, want) || src[0].Offset != 50 {
+		t.Errorf("digest, offset = %q, %d; want %q, 50", src[0].Digest, src[0].Offset, want)
+	}
+	src[0].Digest[1] = 'y' // nor hand out its own
+	if again, _ := s.Sources(ctx, "cal"); !bytes.Equal(again[0].Digest, want) {
+		t.Errorf("digest changed through a returned slice: %q", again[0].Digest)
+	}
 }
 
 func mustIngest(t *testing.T, s store.Store, b store.Batch) []int64 {
@@ -266,7 +303,8 @@ func testIngestSources(t *testing.T, s store.Store) {
 	got := byPath["b.csv"]
 	if got.Model != want.Model || got.Generation != want.Generation || got.Inode != want.Inode ||
 		got.Size != want.Size || got.Offset != want.Offset || got.Line != want.Line ||
-		got.Fingerprint != want.Fingerprint || got.FingerprintLen != want.FingerprintLen || got.Header != want.Header {
+		got.Fingerprint != want.Fingerprint || got.FingerprintLen != want.FingerprintLen || got.Header != want.Header ||
+		!bytes.Equal(got.Digest, want.Digest) {
 		t.Errorf("source b.csv = %+v, want %+v", got, want)
 	}
 	sameTime(t, "UpdatedAt", got.UpdatedAt, want.UpdatedAt)

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/binary"
 	"fmt"
+	"math"
 	"math/bits"
 	"strings"
 	"unicode/utf8"
@@ -30,6 +31,13 @@ type Dialect struct {
 	// never silently read as 1.234 when it may mean 1234. The delimiter
 	// must not be ',' (';' or '\t' usually).
 	DecimalComma bool
+	// Missing lists the cell texts that stand for a missing value (a
+	// site's "NA", "-999", or "" for an empty cell). A selected number
+	// cell whose text, spaces around it ignored, is one of them is not
+	// parsed: the record gets Missing instead of an error (its value is
+	// NaN). Cells of columns not selected are never looked at. A token
+	// must not hold the delimiter, a quote or a line break.
+	Missing []string
 }
 
 // Validate reports whether the dialect is usable; the error wraps
@@ -47,6 +55,14 @@ func (d Dialect) Validate() error {
 		return fmt.Errorf("%w: comment prefix %q holds a line break", ErrDialect, d.Comment)
 	case d.Comment != "" && d.Comment[0] == delim:
 		return fmt.Errorf("%w: comment prefix %q starts with the delimiter", ErrDialect, d.Comment)
+	}
+	for _, m := range d.Missing {
+		if strings.ContainsAny(m, "\r\n\"") || strings.IndexByte(m, delim) >= 0 {
+			return fmt.Errorf("%w: missing-value token %q holds the delimiter, a quote or a line break", ErrDialect, m)
+		}
+		if strings.TrimSpace(m) != m {
+			return fmt.Errorf("%w: missing-value token %q has spaces around it (they are ignored in cells anyway)", ErrDialect, m)
+		}
 	}
 	return nil
 }
@@ -80,6 +96,12 @@ type Record struct {
 	Text []string
 	// Err is why the row was refused, or nil.
 	Err *RowError
+	// Missing, when not nil, is the first selected number cell holding a
+	// missing-value token (Dialect.Missing), positioned like an error and
+	// wrapping ErrMissing; Values holds NaN for every such cell. The row
+	// is not refused: a fit leaves it out and counts it as missing. Nil
+	// when Err is set (a refused row is refused, whatever else it holds).
+	Missing *RowError
 }
 
 // Decoder decodes one CSV file incrementally. Set MaxRecordBytes before
@@ -106,6 +128,7 @@ type Decoder struct {
 	headerLine int
 	haveHeader bool
 
+	missing             []string // Dialect.Missing
 	numNames, textNames []string
 	numIdx, textIdx     []int
 	selected            bool
@@ -160,6 +183,7 @@ const (
 // come.
 func NewDecoder(file string, d Dialect) *Decoder {
 	dec := &Decoder{file: file, dialect: d, delim: d.delim(), comment: []byte(d.Comment)}
+	dec.missing = d.Missing
 	dec.dialErr = d.Validate()
 	dec.delimMask = loBits * uint64(dec.delim)
 	dec.class[dec.delim] = clsDelim
@@ -348,6 +372,10 @@ func (d *Decoder) Feed(buf []byte, atEOF bool, emit func(Record) error) (consume
 		if bytes.HasPrefix(rest, bom) {
 			pos += 3
 			d.off += 3
+		} else if len(rest) < 4 && !atEOF && len(rest) > 0 && (rest[0] == 0xFF || rest[0] == 0xFE || rest[0] == 0) {
+			return pos, nil // perhaps another encoding's mark: wait for 4 bytes
+		} else if name := foreignBOM(rest); name != "" {
+			return pos, withDetail(ErrEncoding, "%s: the file starts with its byte-order mark; save it as UTF-8", name)
 		}
 		d.bomDone = true
 	}
@@ -725,10 +753,17 @@ func (d *Decoder) fill(rec *Record, b []byte) {
 	var vals []float64
 	if len(d.numIdx) > 0 {
 		vals = d.takeVals(len(d.numIdx))
-		bad := -1
+		bad, miss := -1, -1
 		var badKind numKind
 		for k, x := range d.numIdx {
 			f := d.fields[x]
+			if len(d.missing) > 0 && d.isMissing(b[f.start:f.end]) {
+				vals[k] = math.NaN()
+				if miss < 0 || x < d.numIdx[miss] {
+					miss = k
+				}
+				continue
+			}
 			v, kind := parseNumber(b[f.start:f.end], d.dialect.DecimalComma)
 			if kind != numOK {
 				if bad < 0 || x < d.numIdx[bad] {
@@ -757,6 +792,16 @@ func (d *Decoder) fill(rec *Record, b []byte) {
 			}
 			rec.Err = d.posErr(b[:len(rec.Raw)], rec.Line, at, x+1, d.header[x], err)
 			return
+		}
+		if miss >= 0 {
+			x := d.numIdx[miss]
+			f := d.fields[x]
+			at := f.start
+			if f.quoted {
+				at--
+			}
+			rec.Missing = d.posErr(b[:len(rec.Raw)], rec.Line, at, x+1, d.header[x],
+				withDetail(ErrMissing, "%s", quoteText(b[f.start:f.end])))
 		}
 	}
 	if len(d.textIdx) > 0 {
@@ -855,4 +900,38 @@ func (d *Decoder) takeTexts(k int) []string {
 	v := d.texts[:k:k]
 	d.texts = d.texts[k:]
 	return v
+}
+
+// foreignBOM names the encoding whose byte-order mark b starts with, for
+// the encodings a CSV file is saved in besides UTF-8 ("" if none).
+func foreignBOM(b []byte) string {
+	switch {
+	case bytes.HasPrefix(b, []byte{0xFF, 0xFE, 0, 0}):
+		return "UTF-32 little-endian (FF FE 00 00)"
+	case bytes.HasPrefix(b, []byte{0, 0, 0xFE, 0xFF}):
+		return "UTF-32 big-endian (00 00 FE FF)"
+	case bytes.HasPrefix(b, []byte{0xFF, 0xFE}):
+		return "UTF-16 little-endian (FF FE)"
+	case bytes.HasPrefix(b, []byte{0xFE, 0xFF}):
+		return "UTF-16 big-endian (FE FF)"
+	}
+	return ""
+}
+
+// isMissing reports whether a cell's text, spaces and tabs around it
+// ignored, is one of the dialect's missing-value tokens.
+func (d *Decoder) isMissing(cell []byte) bool {
+	i, j := 0, len(cell)
+	for i < j && (cell[i] == ' ' || cell[i] == '\t') {
+		i++
+	}
+	for j > i && (cell[j-1] == ' ' || cell[j-1] == '\t') {
+		j--
+	}
+	for _, m := range d.missing {
+		if len(m) == j-i && string(cell[i:j]) == m {
+			return true
+		}
+	}
+	return false
 }

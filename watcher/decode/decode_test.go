@@ -186,7 +186,7 @@ func TestRowErrorMessage(t *testing.T) {
 		t.Fatal(err)
 	}
 	last := recs[len(recs)-1]
-	want := `feed.csv:213:13: field "emf_mv": not a number: "12..4"`
+	want := `feed.csv:213:13: column "emf_mv" (field 7): not a number: "12..4"`
 	if last.Err == nil || last.Err.Error() != want {
 		t.Fatalf("error = %v, want %s", last.Err, want)
 	}
@@ -463,6 +463,9 @@ func sameRecords(a, b []Record) bool {
 			return false
 		}
 		if x.Err != nil && x.Err.Error() != y.Err.Error() {
+			return false
+		}
+		if (x.Missing == nil) != (y.Missing == nil) || (x.Missing != nil && x.Missing.Error() != y.Missing.Error()) {
 			return false
 		}
 	}

@@ -29,7 +29,7 @@
 //	if err := dec.Select([]string{"emf_mv", "temp_c"}, []string{"sample"}); err != nil { ... }
 //	n, err := dec.Feed(buf, atEOF, func(r decode.Record) error {
 //		if r.Err != nil {
-//			log.Print(r.Err) // in/run7.csv:212:14: field "emf_mv": not a number: "12..4"
+//			log.Print(r.Err) // in/run7.csv:212:14: column "emf_mv" (field 3): not a number: "12..4"
 //			return nil
 //		}
 //		use(r.Line, r.Values, r.Text)

@@ -27,6 +27,10 @@ var (
 	// ErrLineTooLong: the record is longer than MaxRecordBytes. The decoder
 	// skips to the first newline past the limit and goes on.
 	ErrLineTooLong = errors.New("record too long")
+	// ErrMissing: a number cell holds a missing-value token
+	// (Dialect.Missing). Only Record.Missing wraps it: such a row is not
+	// refused.
+	ErrMissing = errors.New("missing value")
 	// ErrBinary: the record holds a NUL byte or is not valid UTF-8.
 	ErrBinary = errors.New("binary data (NUL byte or invalid UTF-8)")
 )
@@ -41,6 +45,9 @@ var (
 	// ErrDuplicateColumn: a selected column name occurs more than once in
 	// the header, so it is ambiguous.
 	ErrDuplicateColumn = errors.New("column name occurs more than once in header")
+	// ErrEncoding: the file starts with the byte-order mark of an encoding
+	// other than UTF-8 (UTF-16 or UTF-32); the detail names it.
+	ErrEncoding = errors.New("unreadable text encoding")
 	// ErrDialect: the dialect is unusable (see Dialect.Validate).
 	ErrDialect = errors.New("invalid CSV dialect")
 )
@@ -54,7 +61,10 @@ var (
 //
 // Its Error reads
 //
-//	feed.csv:212:14: field "emf_mv": not a number: "12..4"
+//	feed.csv:212:14: column "emf_mv" (field 3): not a number: "12..4"
+//
+// (file:line:byte column, then the column's header name and its 1-based
+// position among the fields).
 type RowError struct {
 	File   string
 	Line   int
@@ -77,8 +87,14 @@ func (e *RowError) Error() string {
 	}
 	b.WriteString(": ")
 	switch {
+	case e.Name != "" && e.Field > 0:
+		b.WriteString("column ")
+		b.WriteString(strconv.Quote(e.Name))
+		b.WriteString(" (field ")
+		b.WriteString(strconv.Itoa(e.Field))
+		b.WriteString("): ")
 	case e.Name != "":
-		b.WriteString("field ")
+		b.WriteString("column ")
 		b.WriteString(strconv.Quote(e.Name))
 		b.WriteString(": ")
 	case e.Field > 0:

@@ -29,7 +29,7 @@ func ExampleDecoder_Feed() {
 	dec.Feed(buf, false, emit)
 	// Output:
 	// 3 [0.798 20] [K1]
-	// refused: rig3/run7.csv:4:9: field "emf_mv": not a number: "12..4"
+	// refused: rig3/run7.csv:4:9: column "emf_mv" (field 3): not a number: "12..4"
 	// left for later: K1;30,0;1,2
 	// 5 [1.203 30] [K1]
 }

@@ -15,11 +15,11 @@ import (
 func fuzzDialect(mode uint8) Dialect {
 	switch mode % 4 {
 	case 1:
-		return Dialect{Delimiter: ';', DecimalComma: true, Comment: "#"}
+		return Dialect{Delimiter: ';', DecimalComma: true, Comment: "#", Missing: []string{"-999"}}
 	case 2:
 		return Dialect{Delimiter: '\t', Comment: "//"}
 	case 3:
-		return Dialect{Comment: "#"}
+		return Dialect{Comment: "#", Missing: []string{"NA", ""}}
 	}
 	return Dialect{}
 }
@@ -53,6 +53,9 @@ func FuzzDecode(f *testing.F) {
 			}
 			if r.Err != nil && (r.Err.Line < r.Line || r.Err.Line > r.EndLine || r.Err.Column < 1) {
 				t.Fatalf("error %v outside record lines %d-%d", r.Err, r.Line, r.EndLine)
+			}
+			if m := r.Missing; m != nil && (r.Err != nil || m.Line < r.Line || m.Line > r.EndLine || m.Column < 1 || m.Name == "") {
+				t.Fatalf("missing cell %v (error %v) outside record lines %d-%d or unnamed", m, r.Err, r.Line, r.EndLine)
 			}
 		}
 		rng := rand.New(rand.NewPCG(seed, uint64(mode)))

@@ -95,6 +95,10 @@ type Model struct {
 	Delimiter    string `toml:"delimiter"`     // one character; default ","
 	Comment      string `toml:"comment"`       // lines starting with it are skipped; default none
 	DecimalComma bool   `toml:"decimal_comma"` // "3,14" means 3.14; default false
+	// Missing lists the cell texts that mean "no value" ("NA", "" for an
+	// empty cell); a row with one in a column the model uses is left out
+	// and counted as missing. Default none.
+	Missing []string `toml:"missing"`
 
 	// Filter keeps only rows whose column holds one of the values.
 	Filter *Filter `toml:"filter"`
@@ -582,6 +586,11 @@ func (c *Config) Validate() error {
 			v.add(at("delimiter"), i, ErrBadValue, "want a single character other than a quote or newline, got %q", m.Delimiter)
 		} else if m.DecimalComma && m.Delimiter == "," {
 			v.add(at("delimiter"), i, ErrBadValue, "with decimal_comma the delimiter cannot be ','; use \";\"")
+		}
+		for _, tok := range m.Missing {
+			if strings.ContainsAny(tok, "\"\r\n") || (len(m.Delimiter) == 1 && strings.Contains(tok, m.Delimiter)) || strings.TrimSpace(tok) != tok {
+				v.add(at("missing"), i, ErrBadValue, "token %q: no delimiter, quote, line break or spaces around it", tok)
+			}
 		}
 		if m.Filter != nil && (m.Filter.Column == "" || len(m.Filter.Values) == 0) {
 			v.add(at("filter"), i, ErrMissing, "a filter needs a column and at least one value")

@@ -60,6 +60,7 @@ func TestErrorsNameKeyAndLine(t *testing.T) {
 		{"syntax", "state = \n", ErrSyntax, 1, ""},
 		{"bad alpha", "[[model]]\nname = \"a\"\nfolder = \"f\"\nresponse = \"y\"\nterms = [\"x\"]\n[model.judge]\nalpha = 1.5\n", ErrBadValue, 7, "model[1].judge.alpha"},
 		{"missing response, second model", "[[model]]\nname = \"a\"\nfolder = \"f\"\nresponse = \"y\"\nterms = [\"x\"]\n\n[[model]]\nname = \"b\"\nfolder = \"g\"\nterms = [\"x\"]\n", ErrMissing, 7, "model[2].response"},
+		{"missing token with the delimiter", "[[model]]\nname = \"a\"\nfolder = \"f\"\nresponse = \"y\"\nterms = [\"x\"]\nmissing = [\"NA\", \"n,a\"]\n", ErrBadValue, 6, "model[1].missing"},
 		{"bad route kind", "[[route]]\nname = \"r\"\nkind = \"pager\"\n", ErrBadValue, 3, "route[1].kind"},
 		{"unknown route", "[[model]]\nname = \"a\"\nfolder = \"f\"\nresponse = \"y\"\nterms = [\"x\"]\nroutes = [\"nope\"]\n", ErrBadValue, 6, "model[1].routes"},
 		{"bad duration", "[watch]\ndebounce = \"soon\"\n", ErrSyntax, 2, ""},

@@ -9,6 +9,8 @@ import (
 	"strings"
 	"testing"
 	"time"
+
+	"plumb/alerts"
 )
 
 type corpusCase struct {
@@ -58,8 +60,8 @@ func readManifest(t *testing.T) []corpusCase {
 // TestBadInputCorpus feeds every file of the bad-input corpus, plus a file
 // with a 10 MB line, to one running daemon, one model per file: each file
 // gets its stated outcome (rows accepted, rows quarantined with their
-// reason, or the model blocked with a reason for a file that cannot be
-// read), and the daemon keeps running throughout.
+// reason, or, for a file that cannot be read, the file refused with a
+// blocked alert naming it), and the daemon keeps running throughout.
 func TestBadInputCorpus(t *testing.T) {
 	dir := t.TempDir()
 	cases := readManifest(t)
@@ -111,15 +113,24 @@ func TestBadInputCorpus(t *testing.T) {
 		}
 		t.Run(c.file, func(t *testing.T) {
 			if c.fatal {
-				waitFor(t, c.file+" blocked", func() bool {
-					st, _ := r.d.store.ModelStates(ctx)
-					for _, s := range st {
-						if s.Model == c.file && s.State == stateBlocked && s.Reason != "" {
+				// A file that cannot be read and never gave rows is
+				// refused alone: an open blocked alert names it, with
+				// the reason; its model is not blocked by it.
+				subject := alerts.FileSubject(c.file, c.file)
+				waitFor(t, c.file+" refused", func() bool {
+					for _, a := range alertsOf(t, r.d.store, alerts.KindBlocked) {
+						if a.Subject == subject && a.State == "open" && strings.Contains(a.Doc, `"reason":"`) {
 							return true
 						}
 					}
 					return false
 				})
+				if st, _ := modelState(r, c.file); st == stateBlocked {
+					t.Errorf("model %s blocked by a file that gave no rows", c.file)
+				}
+				if n, _ := r.d.store.CountObservations(ctx, c.file); n != 0 {
+					t.Errorf("%d rows read from a refused file", n)
+				}
 				return
 			}
 			waitFor(t, fmt.Sprintf("%s: %d accepted, %d quarantined", c.file, c.accepted, c.reject), func() bool {

@@ -68,6 +68,7 @@ type Daemon struct {
 	ready  bool
 
 	kick chan struct{}
+	lock *sqlite.Lock // nil for a read-only daemon
 }
 
 // New opens the state database and prepares every model.
@@ -82,14 +83,25 @@ func New(ctx context.Context, cfg *config.Config, opts Options) (*Daemon, error)
 	if err := os.MkdirAll(dirOf(path), 0o755); err != nil {
 		return nil, fmt.Errorf("state folder: %w", err)
 	}
+	// One writing daemon per state: a second one would store rows twice
+	// and fight over alerts. Read-only users (report) do not lock.
+	var lock *sqlite.Lock
+	if !opts.ReadOnly {
+		var err error
+		if lock, err = sqlite.AcquireLock(path); err != nil {
+			return nil, err
+		}
+	}
 	db, err := sqlite.Open(ctx, path)
 	if err != nil {
+		lock.Release()
 		return nil, err
 	}
 	d := &Daemon{cfg: cfg, opts: opts, log: opts.Logger, store: db, kick: make(chan struct{}, 1),
-		metrics: &metricsHook{m: metrics.New()}}
+		metrics: &metricsHook{m: metrics.New()}, lock: lock}
 	if err := d.build(ctx, cfg); err != nil {
 		db.Close()
+		lock.Release()
 		return nil, err
 	}
 	return d, nil
@@ -177,6 +189,9 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	for _, name := range order {
 		m := models[name]
 		if err := m.restore(ctx, d.store); err != nil {
+			return fmt.Errorf("model %q: restore: %w", name, err)
+		}
+		if err := m.restoreHeldSuspects(ctx); err != nil {
 			return fmt.Errorf("model %q: restore: %w", name, err)
 		}
 		// Silence is measured from the last stored arrival, across restarts.
@@ -332,13 +347,14 @@ func (d *Daemon) runPipeline(ctx context.Context) error {
 		if err != nil {
 			return err
 		}
+		m.sweepRefused(ctx, folder)
 		delim := m.cfg.Delimiter[0]
 		srcs = append(srcs, watcher.Source{
 			Model:     name,
 			Folder:    folder,
 			Pattern:   m.cfg.Pattern,
 			Recursive: m.cfg.Recursive,
-			Dialect:   decode.Dialect{Delimiter: delim, Comment: m.cfg.Comment, DecimalComma: m.cfg.DecimalComma},
+			Dialect:   decode.Dialect{Delimiter: delim, Comment: m.cfg.Comment, DecimalComma: m.cfg.DecimalComma, Missing: m.cfg.Missing},
 			Numeric:   m.numeric(),
 			Text:      m.text(),
 			States:    toFileStates(states),
@@ -478,6 +494,7 @@ func (s sink) Deliver(ctx context.Context, b watcher.Batch) error {
 		m.log.Error("ingest", "file", b.Path, "err", err)
 		return err
 	}
+	m.fileReadable(ctx, b.Path)
 	if s.d.alerts != nil && len(b.Records) > 0 {
 		if err := s.d.alerts.Activity(ctx, b.Model, s.d.opts.Now()); err != nil {
 			m.log.Warn("alert activity", "err", err)
@@ -494,6 +511,10 @@ func (s sink) Notice(ctx context.Context, n watcher.Notice) {
 		return
 	}
 	switch {
+	case n.Blocked && n.Refused:
+		m.refuseFile(ctx, n) // a stray file: refused alone, the model goes on
+	case n.Kind == watcher.Unblocked:
+		m.clearFileBlock(ctx, n.Path, n.Detail)
 	case n.Blocked && (n.Kind == watcher.HeaderChanged || n.Kind == watcher.Error):
 		what := "header of %s changed: %s"
 		if n.Kind == watcher.Error {
@@ -518,6 +539,7 @@ func toFileStates(ss []store.Source) []watcher.FileState {
 		out[i] = watcher.FileState{
 			Path: s.Path, Generation: s.Generation, Inode: s.Inode, Size: s.Size, Offset: s.Offset,
 			Line: s.Line, Fingerprint: s.Fingerprint, FingerprintLen: s.FingerprintLen, Header: splitHeader(s.Header),
+			Digest: s.Digest,
 		}
 	}
 	return out
@@ -527,7 +549,7 @@ func sourceOf(model string, b watcher.Batch) store.Source {
 	return store.Source{
 		Model: model, Path: b.Path, Generation: b.Generation, Inode: b.Inode, Size: b.Size,
 		Offset: b.EndOffset, Line: b.EndLine, Fingerprint: b.Fingerprint, FingerprintLen: b.FingerprintLen,
-		Header: joinHeader(b.Header),
+		Header: joinHeader(b.Header), Digest: b.Digest,
 	}
 }
 
@@ -579,8 +601,14 @@ func (d *Daemon) RefreshAll(ctx context.Context) error {
 	return nil
 }
 
-// Close releases the store.
-func (d *Daemon) Close() error { return d.store.Close() }
+// Close releases the store and the state's lock.
+func (d *Daemon) Close() error {
+	err := d.store.Close()
+	if lerr := d.lock.Release(); err == nil {
+		err = lerr
+	}
+	return err
+}
 
 // Summary is what a run did, for the demo's closing lines.
 type Summary struct {

@@ -48,6 +48,8 @@ type watchedModel struct {
 	cause  string
 	// header holds the blocked reason for a file whose header changed.
 	headerBlocked map[string]string
+	// refused holds the reason for each file refused alone (fileblock.go).
+	refused map[string]string
 
 	// rows are the model's rows in memory, in arrival order.
 	rows *columns
@@ -57,6 +59,7 @@ type watchedModel struct {
 
 	rowsAccepted int64
 	quarantined  int64
+	missing      int64 // rows left out for a missing value (this run)
 	lastArrival  time.Time
 
 	// ref is the refresh loop's side: what the next refresh must do and
@@ -251,9 +254,17 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 		}
 	}
 	mark := m.online.Snapshot()
+	missing := 0
 	for _, rec := range b.Records {
 		if rec.Err != nil {
 			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, rec.Err.Column, rec.Err.Error()))
+			continue
+		}
+		if rec.Missing != nil {
+			// A missing value (config "missing") in a column the model
+			// uses: the row is left out of the fit and counted, not
+			// quarantined.
+			missing++
 			continue
 		}
 		ti := 0
@@ -326,6 +337,10 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 		}
 	}
 	m.quarantined += int64(len(quar))
+	if missing > 0 {
+		m.missing += int64(missing)
+		m.log.Info("rows with a missing value left out", "file", b.Path, "count", missing)
+	}
 	if _, ok := m.headerBlocked[b.Path]; ok && len(b.Records) > 0 {
 		// The file is read again: its header matches the columns once more.
 		delete(m.headerBlocked, b.Path)

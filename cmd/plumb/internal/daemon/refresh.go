@@ -76,8 +76,6 @@ func (r *refresher) refresh(ctx context.Context) error {
 	if len(m.rows.ids) > 0 {
 		lastID = m.rows.ids[len(m.rows.ids)-1]
 	}
-	pendingSuspects := r.pendingSuspects
-	r.pendingSuspects = nil
 	headerBlocked := len(m.headerBlocked) > 0
 	m.mu.Unlock()
 
@@ -118,6 +116,11 @@ func (r *refresher) refresh(ctx context.Context) error {
 
 	// Verdict changes against the latest known verdict of each row.
 	m.mu.Lock()
+	// Suspects judged at arrival are reported only now that a fit stands:
+	// those that arrived while the model was blocked or not fittable
+	// waited for it, and are alerted as if judging had never stopped.
+	pendingSuspects := r.pendingSuspects
+	r.pendingSuspects = nil
 	var changes []store.VerdictChange
 	now := m.d.now()
 	var resolvedSuspects []int
