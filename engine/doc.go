@@ -19,7 +19,8 @@
 // Term grammar (our own notation):
 //
 //	term   = factor { "*" factor }
-//	factor = atom [ "^" digit ]           digit 1..9
+//	factor = atom [ "^" power ] | "group" "(" name ")"
+//	power  = 1..20 (MaxPower), decimal digits
 //	atom   = name | "log" "(" name ")"    natural log
 //	name   = ident | quoted
 //	ident  = (letter | "_" | ".") { letter | digit | "_" | "." }

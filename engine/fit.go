@@ -54,6 +54,11 @@ type Fit struct {
 	VIF         map[string]float64
 	Residuals   []float64
 	Fitted      []float64
+	// Weights holds the row weights of a weighted fit (RefitWeighted),
+	// nil for an unweighted one.
+	Weights []float64
+
+	sw []float64 // √Weights, nil when unweighted
 
 	x   *mat.Dense
 	y   []float64
@@ -156,6 +161,10 @@ func (s *scaling) fromW(b, c []float64) {
 // between m, X and y, or an intercept column that is not all ones, is a
 // caller bug and panics.
 func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
+	return refit(m, X, y, nil)
+}
+
+func refit(m Model, X *mat.Dense, y, wt []float64) (*Fit, error) {
 	n, p := X.Dims()
 	if p != m.P() {
 		panic(fmt.Sprintf("engine: Refit: X has %d columns, model has %d coefficients", p, m.P()))
@@ -168,7 +177,15 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	}
 	names := m.Names()
 	raw := X.RawMatrix()
-	ws := &work{m: m, n: n, p: p, k: p + 1, xd: raw.Data, stride: raw.Stride, y: y, ch: newChunking(n, p)}
+	ws := &work{m: m, n: n, p: p, k: p + 1, xd: raw.Data, stride: raw.Stride, y: y, ch: newChunking(n, p), nw: float64(n)}
+	var sw []float64
+	if wt != nil {
+		// Weighted (weights.go): every row of [X y] is multiplied by √w_i
+		// in the QR pass and the refinement works on X'W(y - Xb).
+		ws.wt, sw = wt, sqrtWeights(wt)
+		ws.sw = sw
+		ws.nw = sumDD(wt)
+	}
 	if err := ws.factor(); err != nil {
 		return nil, err
 	}
@@ -184,7 +201,17 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	fitted := make([]float64, n)
 	var b, db0 []float64
 	single := true
-	if cond <= seminormalCond {
+	if wt != nil {
+		// Weighted fits are refined on the corrected seminormal
+		// equations only, which contract while κ² eps is small; past
+		// weightedRefineCond the QR solution is kept as it is.
+		single = false
+		if cond <= weightedRefineCond {
+			b, _ = ws.refineSemi(cond, fitted)
+		} else {
+			b, _ = ws.start()
+		}
+	} else if cond <= seminormalCond {
 		b, db0 = ws.refineSemi(cond, fitted)
 	} else {
 		// The augmented refinement needs every chunk's reflectors:
@@ -210,6 +237,27 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 		for i := lo; i < hi; i++ {
 			row := xd[i*stride : i*stride+p]
 			var e float64
+			if wt != nil {
+				// Weighted: e = y - x'b, RSS = Σ w e², TSS = Σ w (y - ȳ_w)².
+				e = residual2(y[i], 0, row, b)
+				res[i] = e
+				fitted[i] = y[i] - e
+				wi := wt[i]
+				q := e * e
+				qe := math.FMA(e, e, -q)
+				wq := wi * q
+				wqe := math.FMA(wi, q, -wq) + wi*qe
+				var se float64
+				rs, se = twoSum(rs, wq)
+				rc += se + wqe
+				d := y[i]
+				if m.Intercept {
+					d -= ybar
+				}
+				t1 += wi * d
+				t2 += wi * d * d
+				continue
+			}
 			if single {
 				// r0 + f0 = y - X b0 to double-double accuracy and
 				// b = b0 + db0, so e = r0 + (f0 - x·db0): the small
@@ -248,7 +296,7 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	}
 	tss := t2
 	if m.Intercept {
-		tss = t2 - t1*t1/float64(n)
+		tss = t2 - t1*t1/ws.nw
 	}
 
 	f := &Fit{
@@ -257,6 +305,7 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 		Condition: cond,
 		Residuals: res, Fitted: fitted,
 		x: X, y: y, sc: *sc, r: R, rss: rss,
+		Weights: wt, sw: sw,
 	}
 	f.finish(b, names, ws.ssCentred)
 	if !f.finite() {
@@ -324,6 +373,9 @@ type work struct {
 	R      []float64 // scaled R, p x p row-major
 	pre    []float64 // power-of-two prescale per column (y last)
 	r      []float64 // residual iterate
+
+	wt, sw []float64 // row weights and their square roots (nil unweighted)
+	nw     float64   // Σ w (n unweighted)
 }
 
 type chunkStat struct {
@@ -415,7 +467,7 @@ func (w *work) factor() error {
 			return fmt.Errorf("%w: the design overflows double precision (values too large)", ErrNonFinite)
 		}
 	}
-	w.ybar = cen[p] + sum[p]/float64(n)
+	w.ybar = cen[p] + sum[p]/w.nw
 
 	w.tauS = make([]float64, p)
 	sm := w.ch.nc * p
@@ -434,7 +486,7 @@ func (w *work) factor() error {
 		}
 		// Σ(x - x̄)² = Σ(x - c)² - (Σ(x - c))²/n.
 		s2 := w.sc.scale[j] * w.sc.scale[j]
-		w.ssCentred[j] = s2 - sum[j]*sum[j]/float64(n)
+		w.ssCentred[j] = s2 - sum[j]*sum[j]/w.nw
 	}
 	w.R = make([]float64, p*p)
 	for i := 0; i < p; i++ {
@@ -529,6 +581,18 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 			x := w.xd[lo*w.stride+j:]
 			stride := w.stride
 			ii := 0
+			if w.sw != nil {
+				// Weighted: Σ w (x - c) and √w (x - c) (weights.go).
+				wc, swc := w.wt[lo:hi], w.sw[lo:hi]
+				for ; ii < mr; ii++ {
+					v0 := x[ii*stride]
+					b0 += v0 * 0
+					diff = diff || v0 != fj
+					d0 := v0 - cj
+					s0 += wc[ii] * d0
+					col[ii] = d0 * pj * swc[ii]
+				}
+			}
 			for ; ii+2 <= mr; ii += 2 {
 				v0, v1 := x[ii*stride], x[(ii+1)*stride]
 				b0 += v0 * 0
@@ -571,6 +635,11 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 				if v > st.max[p] {
 					st.max[p] = v
 				}
+			}
+			if w.sw != nil {
+				st.sum[p] += w.wt[i] * (v - cen[p])
+				a[p*mr+ii] = v * pre[p] * w.sw[i]
+				continue
 			}
 			st.sum[p] += v - cen[p]
 			a[p*mr+ii] = v * pre[p]
@@ -856,8 +925,16 @@ func (w *work) refineSemi(cond float64, f0 []float64) (b, db []float64) {
 				row := xd[i*stride : i*stride+p]
 				s1, c1 := residualDD(y[i], 0, row, bb)
 				ri := s1 + c1
+				fi := (s1 - ri) + c1
+				if w.wt != nil {
+					// r + f = w (y - x'b), for X'W(y - Xb).
+					wi := w.wt[i]
+					pr := wi * ri
+					fi = math.FMA(wi, ri, -pr) + wi*fi
+					ri = pr
+				}
 				r[i] = ri
-				f0[i] = (s1 - ri) + c1
+				f0[i] = fi
 			}
 			gs := gpart[3*c*p : (3*c+1)*p]
 			gc := gpart[(3*c+1)*p : (3*c+2)*p]
