@@ -354,6 +354,51 @@ write_case("ketterby_stability_batches",
   num_cols = c("assay", "months", "w"), text_cols = "batch",
   labels = sprintf("%s-m%02d", batch, months))
 
+# Poolability of the stability batches (ICH Q1E: slopes, then intercepts),
+# weighted as above: anova(common, separate) and anova(pooled, common).
+pool_case <- function(name, source, data, wts) {
+  sep <- lm(assay ~ bf + months + bf:months, data = data, weights = wts)
+  com <- lm(assay ~ bf + months, data = data, weights = wts)
+  poo <- lm(assay ~ months, data = data, weights = wts)
+  a1 <- anova(com, sep)
+  a2 <- anova(poo, com)
+  L <- c("{",
+    paste0("  \"source\": ", jstr(source), ","),
+    paste0("  \"oracle\": ", jstr("R stats: lm(weights = ), anova"), ","),
+    paste0("  \"r_version\": ", jstr(R.version.string), ","),
+    paste0("  \"assay\": ", jdata(data$assay), ","),
+    paste0("  \"months\": ", jdata(data$months), ","),
+    paste0("  \"batch\": ", jsarr(data$batch), ","),
+    paste0("  \"w\": ", jdata(data$w), ","),
+    paste0("  \"slopes\": {\"f\": ", jnum(a1$F[2]), ", \"df1\": ", a1$Df[2], ", \"df2\": ", a1$Res.Df[2],
+           ", \"p\": ", jnum(a1[2, "Pr(>F)"]), "},"),
+    paste0("  \"intercepts\": {\"f\": ", jnum(a2$F[2]), ", \"df1\": ", a2$Df[2], ", \"df2\": ", a2$Res.Df[2],
+           ", \"p\": ", jnum(a2[2, "Pr(>F)"]), "}"),
+    "}")
+  dir.create(file.path(out_dir, "pool"), showWarnings = FALSE)
+  path <- file.path(out_dir, "pool", paste0(name, ".json"))
+  writeLines(L, path)
+  cat("wrote", path, "\n")
+}
+pool_case("ketterby_stability_batches",
+  "invented: Ketterby instrument workshop, reagent stability study, three batches, measured weights (set.seed(1701))",
+  stab, stab$w)
+# The same batches with a common slope (the K-115 and K-309 slopes set to
+# K-207's), so that the intercept test is reached.
+stab2 <- stab
+stab2$assay <- round(stab$assay - (slope + 0.21) * stab$months, 2)
+pool_case("ketterby_stability_common_slope",
+  "invented: Ketterby stability study with a common slope (derived from the above)",
+  stab2, stab2$w)
+# ... and one line for all: 100.4 - 0.21 months plus the residuals of the
+# separate lines (which average zero within each batch).
+stab3 <- stab
+stab3$assay <- round(100.4 - 0.21 * stab$months +
+  residuals(lm(assay ~ bf + months + bf:months, data = stab, weights = w)), 2)
+pool_case("ketterby_stability_one_line",
+  "invented: Ketterby stability study with one line for all batches (derived from the above)",
+  stab3, stab3$w)
+
 # 8. Invented: Ketterby workshop balance check over four numbered lots
 # (numbers used as labels: byte order puts lot 10 before lot 2) without an
 # intercept, so every lot gets its own level.
