@@ -29,6 +29,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -260,6 +261,11 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	if len(cols) == 0 {
 		return nil, &RegionError{Column: "", Msg: "the model has no predictor columns"}
 	}
+	if wt := f.Model.Weight; f.Weights != nil && (wt.Power == 0 || !slices.Contains(cols, wt.Column)) {
+		// The weight of a reading not yet taken is known only from a
+		// variance function of a predictor.
+		return nil, fmt.Errorf("%w: the weights of new readings are unknown (weights from column %q); suggestions need weights that are a variance function of a predictor, such as inverse(x^2)", ErrWeightUnknown, wt.Column)
+	}
 	if region == nil {
 		if region, err = ObservedRegion(f); err != nil {
 			return nil, err
@@ -319,7 +325,7 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	z := make([]float64, p)
 	u := make([]float64, p)
 	for _, pt := range pts {
-		if err := f.Model.DesignRow(z, func(col string) float64 { return pt[colIdx[col]] }); err != nil {
+		if err := sgRow(f, z, func(col string) float64 { return pt[colIdx[col]] }); err != nil {
 			continue // outside the domain of a term (log of a non-positive value)
 		}
 		fgMatVec(u, base.c, z, p)
@@ -331,7 +337,8 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 				q := fgDot(base.rows(i), u)
 				hn := o.Leverage - r*q*q/(1+r*d)
 				if sumCook > 0 {
-					sc.primary += sgCook(o.Cook) - sgCook(o.Residual*o.Residual*hn/(float64(p)*s2new*(1-hn)*(1-hn)))
+					e2 := o.Residual * o.Residual * f.weightAt(i) // weighted: w e²
+					sc.primary += sgCook(o.Cook) - sgCook(e2*hn/(float64(p)*s2new*(1-hn)*(1-hn)))
 				} else {
 					sc.primary += o.Leverage - hn
 				}
@@ -382,7 +389,7 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	kept := picks[:0]
 	for _, c := range picks {
 		zc := make([]float64, p)
-		if err := f.Model.DesignRow(zc, func(col string) float64 { return c.pt[colIdx[col]] }); err != nil {
+		if err := sgRow(f, zc, func(col string) float64 { return c.pt[colIdx[col]] }); err != nil {
 			continue
 		}
 		zs = append(zs, zc)
@@ -455,6 +462,32 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 		out = append(out, sg)
 	}
 	return out, nil
+}
+
+// ErrWeightUnknown: Suggest cannot weigh a reading not yet taken, because
+// the fit's weights come from a column rather than a variance function of
+// a predictor.
+var ErrWeightUnknown = errors.New("engine: weight of a new reading unknown")
+
+// sgRow writes the design row of a new reading into z: for a weighted fit
+// √w z, with w from the model's variance function (the scaled rows of
+// weights.go).
+func sgRow(f *Fit, z []float64, value func(col string) float64) error {
+	if err := f.Model.DesignRow(z, value); err != nil {
+		return err
+	}
+	if f.Weights == nil {
+		return nil
+	}
+	w, err := f.Model.Weight.RowWeight(value)
+	if err != nil {
+		return err
+	}
+	s := math.Sqrt(w)
+	for j := range z {
+		z[j] *= s
+	}
+	return nil
 }
 
 // sgParallel calls fn(0..n-1) on up to two goroutines and waits for them.

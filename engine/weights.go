@@ -63,7 +63,48 @@ func RefitWeighted(m Model, X *mat.Dense, y, w []float64) (*Fit, error) {
 	if err := checkWeights(w, col); err != nil {
 		return nil, err
 	}
+	if c, ok := equalWeights(w); ok {
+		f, err := Refit(m, X, y)
+		if err != nil {
+			return nil, err
+		}
+		f.weighEqually(w, c)
+		return f, nil
+	}
 	return refit(m, X, y, w)
+}
+
+// equalWeights reports whether every weight equals w[0].
+func equalWeights(w []float64) (float64, bool) {
+	for _, v := range w {
+		if v != w[0] {
+			return 0, false
+		}
+	}
+	return w[0], len(w) > 0
+}
+
+// weighEqually turns the unweighted fit f into the fit with every weight
+// c: the same least-squares problem, so the estimates, standard errors,
+// R², the F test and every influence measure are unchanged, while RSS,
+// TSS and Sigma² scale by c and the factors of X'X become those of
+// X'WX = c X'X (R by √c, R^-1 and M by 1/√c). With c = 1 nothing moves.
+func (f *Fit) weighEqually(w []float64, c float64) {
+	f.Weights = w
+	f.sw = sqrtWeights(w)
+	if c == 1 {
+		return
+	}
+	s := math.Sqrt(c)
+	for i := range f.r {
+		f.r[i] *= s
+		f.ri[i] /= s
+		f.m[i] /= s
+	}
+	f.rss = f.rss.mulDD(dd{c, 0})
+	f.RSS = f.rss.float()
+	f.TSS *= c
+	f.Sigma *= s
 }
 
 // checkWeights returns a *DataError wrapping ErrWeight for the first
@@ -193,7 +234,7 @@ func ParseWeighting(s string) (Weighting, error) {
 }
 
 // rowWeights computes the weights of the rows from the numeric columns:
-// a *DataError wrapping ErrMissingColumn, ErrNonFinite or ErrWeight
+// a *DataError wrapping ErrMissingColumn or ErrWeight (also for a NaN)
 // (Column the weighting's column) when they cannot be had.
 func (w Weighting) rowWeights(cols map[string][]float64, n int) ([]float64, error) {
 	if !w.Weighted() {
@@ -208,9 +249,6 @@ func (w Weighting) rowWeights(cols map[string][]float64, n int) ([]float64, erro
 	}
 	out := make([]float64, n)
 	for i, x := range v {
-		if math.IsNaN(x) || math.IsInf(x, 0) {
-			return nil, &DataError{Row: i, Column: w.Column, Err: ErrNonFinite}
-		}
 		wi := x
 		if w.Power > 0 {
 			wi = 1 / ipow(x, w.Power)
