@@ -347,22 +347,116 @@ func (m Model) designGroups(num map[string][]float64, labels map[string][]string
 		idx[col] = ix
 	}
 	data := make([]float64, n*p)
+	plan := m.rowPlan()
+	// Resolve the columns once.
+	for _, tp := range plan.terms {
+		for k := range tp.num {
+			tp.num[k].v = num[tp.num[k].f.Column]
+		}
+		for k := range tp.grp {
+			tp.grp[k].ix = idx[tp.grp[k].col]
+		}
+	}
 	for i := 0; i < n; i++ {
 		row := data[i*p : (i+1)*p]
-		err := m.fillRow(row, func(col string) float64 { return num[col][i] }, func(col string) (int, error) {
-			return int(idx[col][i]), nil
-		})
-		if err != nil {
-			var de *DataError
-			if errors.As(err, &de) {
-				de.Row = i
-			}
+		if err := plan.fill(row, i); err != nil {
 			return nil, nil, err
 		}
 	}
 	y := make([]float64, n)
 	copy(y, yc)
 	return mat.NewDense(n, p, data), y, nil
+}
+
+// rowPlan is fillRow with every term's layout worked out once, for
+// building many rows.
+type rowPlan struct {
+	intercept bool
+	terms     []*termPlan
+}
+
+type termPlan struct {
+	text  string
+	width int
+	num   []struct {
+		f Factor
+		v []float64
+	}
+	grp []struct {
+		col   string
+		nc    int
+		shift int // 1 when the reference level has no column
+		ix    []int32
+	}
+}
+
+func (m Model) rowPlan() rowPlan {
+	pl := rowPlan{intercept: m.Intercept}
+	for k, t := range m.Terms {
+		tp := &termPlan{text: t.Text, width: m.termWidth(k)}
+		for _, f := range t.Factors {
+			if f.Group {
+				shift := 1
+				if m.fullCoding(k) {
+					shift = 0
+				}
+				tp.grp = append(tp.grp, struct {
+					col   string
+					nc    int
+					shift int
+					ix    []int32
+				}{f.Column, len(m.coded(k, f)), shift, nil})
+				continue
+			}
+			tp.num = append(tp.num, struct {
+				f Factor
+				v []float64
+			}{f, nil})
+		}
+		pl.terms = append(pl.terms, tp)
+	}
+	return pl
+}
+
+// fill writes row i (dst zeroed). Errors are *DataError with Row i.
+func (pl rowPlan) fill(dst []float64, i int) error {
+	off := 0
+	if pl.intercept {
+		dst[0] = 1
+		off = 1
+	}
+	for _, tp := range pl.terms {
+		at, inside := 0, true
+		for _, g := range tp.grp {
+			li := int(g.ix[i]) - g.shift
+			if li < 0 {
+				inside = false
+			}
+			at = at*g.nc + li
+		}
+		val := 1.0
+		for _, nf := range tp.num {
+			x := nf.v[i]
+			if math.IsNaN(x) || math.IsInf(x, 0) {
+				return &DataError{Row: i, Column: nf.f.Column, Err: ErrNonFinite}
+			}
+			if nf.f.Log {
+				if x <= 0 {
+					return &DataError{Row: i, Column: nf.f.Column, Err: ErrLogDomain}
+				}
+				x = math.Log(x)
+			}
+			val *= ipow(x, nf.f.Power)
+		}
+		if math.IsNaN(val) || math.IsInf(val, 0) {
+			return &DataError{Row: i, Column: tp.text, Err: ErrNonFinite}
+		}
+		if inside {
+			dst[off+at] = val
+		}
+		off += tp.width
+	}
+	return nil
 }
 
 // usesNumerically reports whether column c enters some term as a number.
