@@ -72,10 +72,17 @@ const (
 const DWExactRows = 250
 
 // BreuschPagan is the studentized Breusch-Pagan test (Koenker 1981):
-// the squared residuals ẽ_i² regressed on an intercept and the model's
-// terms, LM = n R² of that auxiliary fit, chi-square with DF = its
-// number of coefficients minus one; P = P(χ²_DF > LM). R's
-// lmtest::bptest(studentize = TRUE) computes the same.
+// the squared residuals ẽ_i², centred, regressed on the model's columns
+// as they enter the fit (√w_i x_i; x_i itself unweighted),
+//
+//	LM = n u'Hu / u'u,  u = ẽ² - mean(ẽ²),  H the fit's hat matrix,
+//
+// which is n R² of the auxiliary regression when the model has an
+// intercept (or a group coded with every level); chi-square with DF =
+// p - 1; P = P(χ²_DF > LM). It needs no auxiliary fit: u'Hu comes from
+// the fit's own factors. R's lmtest::bptest(studentize = TRUE) on the
+// model y√w ~ 0 + X√w (its default variance regressors, the model's own)
+// computes the same.
 type BreuschPagan struct {
 	Statistic float64
 	DF        int
@@ -84,8 +91,8 @@ type BreuschPagan struct {
 
 // FormChecks holds the checks of one fit. A check that cannot be made is
 // nil (lack of fit without replicates or with no more settings than
-// coefficients; Breusch-Pagan when the auxiliary fit is impossible, as
-// with residuals all zero), an undefined number NaN.
+// coefficients; Breusch-Pagan with one coefficient or squared residuals
+// all equal), an undefined number NaN.
 //
 // PRESS = Σ w (e_i/(1-h_i))², the sum of squared leave-one-out prediction
 // errors (Allen 1974), NaN when some h_i = 1; PredictedRSquared =
@@ -99,19 +106,133 @@ type FormChecks struct {
 }
 
 // CheckForm computes the model-form checks of f. inf is f's influence
-// table (for the leverages); nil computes it. It runs in O(n p²) time
-// plus one auxiliary fit, and O(n³) for the exact Durbin-Watson p-value
-// of a fit of at most DWExactRows rows.
+// table (for the leverages); nil computes it. It runs in O(n p²) time,
+// and O(n³) for the exact Durbin-Watson p-value of a fit of at most
+// DWExactRows rows.
 func CheckForm(f *Fit, inf *Influence) FormChecks {
 	if inf == nil {
 		inf = Diagnose(f)
 	}
 	var fc FormChecks
-	fc.LackOfFit = lackOfFit(f)
-	fc.DurbinWatson = durbinWatson(f)
-	fc.BreuschPagan = breuschPagan(f)
+	sums := formPass(f)
+	fc.LackOfFit = lackOfFit(f, sums.keys)
+	fc.DurbinWatson = durbinWatson(f, sums)
+	fc.BreuschPagan = breuschPagan(f, sums)
 	fc.PRESS, fc.PredictedRSquared = press(f, inf)
 	return fc
+}
+
+// formSums is what one pass over the rows gathers for the checks (on up
+// to GOMAXPROCS goroutines, per chunk, combined in chunk order).
+type formSums struct {
+	keys         []uint64  // hash of each raw design row
+	dwNum, dwDen float64   // Σ(ẽ_i - ẽ_{i-1})², Σ ẽ_i²
+	xax, axax    []float64 // X̃'AX̃ and (AX̃)'(AX̃), p x p
+	g            []float64 // X̃'u, u = ẽ² - mean(ẽ²)
+	uu           float64   // Σ u²
+}
+
+func formPass(f *Fit) formSums {
+	n, p := f.N, f.P
+	raw := f.x.RawMatrix()
+	xd, stride := raw.Data, raw.Stride
+	e := f.WeightedResiduals()
+	mean := 0.0
+	for _, v := range e {
+		mean += v * v
+	}
+	mean /= float64(n)
+	ch := newChunking(n, p)
+	type part struct {
+		num, den, uu float64
+		xax, axax, g []float64
+	}
+	parts := make([]part, ch.nc)
+	keys := make([]uint64, n)
+	ch.run(func(c int) {
+		lo, hi := ch.bounds(c)
+		pt := part{xax: make([]float64, p*p), axax: make([]float64, p*p), g: make([]float64, p)}
+		prev, cur, next := make([]float64, p), make([]float64, p), make([]float64, p)
+		ax := make([]float64, p)
+		if lo > 0 {
+			f.scaledRow(prev, lo-1)
+		}
+		f.scaledRow(cur, lo)
+		if lo+1 < n {
+			f.scaledRow(next, lo+1)
+		}
+		for i := lo; i < hi; i++ {
+			h := uint64(14695981039346656037)
+			for _, v := range xd[i*stride : i*stride+p] {
+				h = (h ^ math.Float64bits(v)) * 1099511628211
+				h ^= h >> 29
+			}
+			keys[i] = h
+			switch {
+			case n == 1:
+				clear(ax)
+			case i == 0:
+				for j := range ax {
+					ax[j] = cur[j] - next[j]
+				}
+			case i == n-1:
+				for j := range ax {
+					ax[j] = cur[j] - prev[j]
+				}
+			default:
+				for j := range ax {
+					ax[j] = 2*cur[j] - prev[j] - next[j]
+				}
+			}
+			ei := e[i]
+			u := ei*ei - mean
+			pt.den += ei * ei
+			if i > 0 {
+				d := ei - e[i-1]
+				pt.num += d * d
+			}
+			pt.uu += u * u
+			// Upper halves only: X̃'AX̃ is symmetric (A is), though no
+			// one row's term is.
+			for j := 0; j < p; j++ {
+				cj, aj := cur[j], ax[j]
+				pt.g[j] += cj * u
+				xr, ar := pt.xax[j*p+j:(j+1)*p], pt.axax[j*p+j:(j+1)*p]
+				axj := ax[j:p]
+				axj = axj[:len(xr)]
+				ar = ar[:len(xr)]
+				for k, v := range axj {
+					xr[k] += cj * v
+					ar[k] += aj * v
+				}
+			}
+			prev, cur, next = cur, next, prev
+			if i+2 < n {
+				f.scaledRow(next, i+2)
+			}
+		}
+		parts[c] = pt
+	})
+	s := formSums{keys: keys, xax: make([]float64, p*p), axax: make([]float64, p*p), g: make([]float64, p)}
+	for _, pt := range parts {
+		s.dwNum += pt.num
+		s.dwDen += pt.den
+		s.uu += pt.uu
+		for j := range pt.xax {
+			s.xax[j] += pt.xax[j]
+			s.axax[j] += pt.axax[j]
+		}
+		for j := range pt.g {
+			s.g[j] += pt.g[j]
+		}
+	}
+	for j := 0; j < p; j++ {
+		for k := 0; k < j; k++ {
+			s.xax[j*p+k] = s.xax[k*p+j]
+			s.axax[j*p+k] = s.axax[k*p+j]
+		}
+	}
+	return s
 }
 
 // weightAt returns w_i (1 unweighted).
@@ -123,49 +244,77 @@ func (f *Fit) weightAt(i int) float64 {
 }
 
 func press(f *Fit, inf *Influence) (float64, float64) {
-	var s dd
+	var s float64
 	for i, o := range inf.Rows {
 		om := 1 - o.Leverage
 		if om < 0x1p-46 {
 			return math.NaN(), math.NaN()
 		}
 		d := o.Residual / om
-		s = s.addProd(f.weightAt(i)*d, d)
+		s += f.weightAt(i) * d * d
 	}
-	pr := s.float()
-	return pr, 1 - pr/f.TSS
+	return s, 1 - s/f.TSS
 }
 
-func lackOfFit(f *Fit) *LackOfFit {
-	n, p := f.N, f.P
-	raw := f.x.RawMatrix()
-	// Settings: distinct design rows, found by hashing their bits.
-	const (
-		off   = 14695981039346656037
-		prime = 1099511628211
-	)
-	gid := make([]int32, n)
-	first := make([]int, 0)
-	byHash := make(map[uint64][]int32)
-	for i := 0; i < n; i++ {
-		row := raw.Data[i*raw.Stride : i*raw.Stride+p]
-		h := uint64(off)
-		for _, v := range row {
-			h = (h ^ math.Float64bits(v)) * prime
-		}
-		id := int32(-1)
-		for _, g := range byHash[h] {
-			if sameRow(row, raw.Data[first[g]*raw.Stride:first[g]*raw.Stride+p]) {
-				id = g
+// anyRepeat reports whether two keys are equal (open addressing on a
+// table twice the size of keys, rounded up to a power of two).
+func anyRepeat(keys []uint64) bool {
+	size := 1
+	for size < 2*len(keys) {
+		size <<= 1
+	}
+	table := make([]uint64, size)
+	used := make([]bool, size)
+	mask := uint64(size - 1)
+	for _, k := range keys {
+		h := (k * 0x9E3779B97F4A7C15) >> 7
+		for j := h & mask; ; j = (j + 1) & mask {
+			if !used[j] {
+				used[j], table[j] = true, k
 				break
 			}
+			if table[j] == k {
+				return true
+			}
 		}
-		if id < 0 {
-			id = int32(len(first))
-			first = append(first, i)
-			byHash[h] = append(byHash[h], id)
+	}
+	return false
+}
+
+func lackOfFit(f *Fit, keys []uint64) *LackOfFit {
+	n, p := f.N, f.P
+	raw := f.x.RawMatrix()
+	rowAt := func(i int) []float64 { return raw.Data[i*raw.Stride : i*raw.Stride+p] }
+	// Settings: distinct design rows. Sort the rows' hashes (LSD radix,
+	// 16 bits a pass) and split the runs of equal hashes into rows that
+	// are equal bit for bit.
+	if !anyRepeat(keys) {
+		return nil // no replicates: every setting is seen once
+	}
+	order := radixOrder(keys)
+	gid := make([]int32, n)
+	var first []int
+	for a := 0; a < n; {
+		b := a + 1
+		for b < n && keys[order[b]] == keys[order[a]] {
+			b++
 		}
-		gid[i] = id
+		start := len(first)
+		for _, i := range order[a:b] {
+			id := int32(-1)
+			for g := start; g < len(first); g++ {
+				if sameRow(rowAt(int(i)), rowAt(first[g])) {
+					id = int32(g)
+					break
+				}
+			}
+			if id < 0 {
+				id = int32(len(first))
+				first = append(first, int(i))
+			}
+			gid[i] = id
+		}
+		a = b
 	}
 	g := len(first)
 	if g <= p || n <= g {
@@ -206,6 +355,36 @@ func lackOfFit(f *Fit) *LackOfFit {
 	return l
 }
 
+// radixOrder returns the indices of keys in ascending key order (a
+// stable LSD radix sort, 16 bits a pass).
+func radixOrder(keys []uint64) []int32 {
+	n := len(keys)
+	a := make([]int32, n)
+	b := make([]int32, n)
+	for i := range a {
+		a[i] = int32(i)
+	}
+	var count [1 << 16]int32
+	for shift := 0; shift < 64; shift += 16 {
+		clear(count[:])
+		for _, k := range keys {
+			count[(k>>shift)&0xffff]++
+		}
+		sum := int32(0)
+		for d, c := range count {
+			count[d] = sum
+			sum += c
+		}
+		for _, i := range a {
+			d := (keys[i] >> shift) & 0xffff
+			b[count[d]] = i
+			count[d]++
+		}
+		a, b = b, a
+	}
+	return a
+}
+
 func sameRow(a, b []float64) bool {
 	for j := range a {
 		if math.Float64bits(a[j]) != math.Float64bits(b[j]) {
@@ -228,27 +407,18 @@ func (f *Fit) scaledRow(dst []float64, i int) {
 	}
 }
 
-func durbinWatson(f *Fit) *DurbinWatson {
+func durbinWatson(f *Fit, s formSums) *DurbinWatson {
 	n := f.N
-	e := f.WeightedResiduals()
-	var num, den dd
-	for i, v := range e {
-		den = den.addProd(v, v)
-		if i > 0 {
-			d := v - e[i-1]
-			num = num.addProd(d, d)
-		}
-	}
-	if den.float() == 0 {
+	if s.dwDen == 0 {
 		return &DurbinWatson{Statistic: math.NaN(), P: math.NaN(), Method: DWNormal}
 	}
-	d := num.float() / den.float()
+	d := s.dwNum / s.dwDen
 	if n <= DWExactRows {
 		if pv, ok := dwExact(f, d); ok {
 			return &DurbinWatson{Statistic: d, P: pv, Method: DWExact}
 		}
 	}
-	return &DurbinWatson{Statistic: d, P: dwNormal(f, d), Method: DWNormal}
+	return &DurbinWatson{Statistic: d, P: dwNormal(f, s, d), Method: DWNormal}
 }
 
 // dwNormal is P(D <= d) by the normal approximation with the exact
@@ -257,52 +427,21 @@ func durbinWatson(f *Fit) *DurbinWatson {
 //
 //	P = 2(n-1) - tr(X̃'AX̃ C),  Q = 2(3n-4) - 2 tr((AX̃)'(AX̃) C) + tr((X̃'AX̃ C)²)
 //	E d = P/(n-p),  Var d = 2 (Q - P E d) / ((n-p)(n-p+2)).
-func dwNormal(f *Fit, d float64) float64 {
+func dwNormal(f *Fit, s formSums, d float64) float64 {
 	n, p := f.N, f.P
 	if n < 5 || n-p <= 0 {
 		return math.NaN()
 	}
-	xax := make([]float64, p*p)  // X̃'AX̃
-	axax := make([]float64, p*p) // (AX̃)'(AX̃)
-	prev, cur, next := make([]float64, p), make([]float64, p), make([]float64, p)
-	ax := make([]float64, p)
-	f.scaledRow(cur, 0)
-	f.scaledRow(next, 1)
-	for i := 0; i < n; i++ {
-		switch {
-		case i == 0:
-			for j := range ax {
-				ax[j] = cur[j] - next[j]
-			}
-		case i == n-1:
-			for j := range ax {
-				ax[j] = cur[j] - prev[j]
-			}
-		default:
-			for j := range ax {
-				ax[j] = 2*cur[j] - prev[j] - next[j]
-			}
-		}
-		for j := 0; j < p; j++ {
-			for k := 0; k < p; k++ {
-				xax[j*p+k] += cur[j] * ax[k]
-				axax[j*p+k] += ax[j] * ax[k]
-			}
-		}
-		prev, cur, next = cur, next, prev
-		if i+2 < n {
-			f.scaledRow(next, i+2)
-		}
-	}
+	xax, axax := s.xax, s.axax
 	C := f.Unscaled()
 	m := make([]float64, p*p) // X̃'AX̃ C
 	for j := 0; j < p; j++ {
 		for k := 0; k < p; k++ {
-			s := 0.0
+			v := 0.0
 			for l := 0; l < p; l++ {
-				s += xax[j*p+l] * C.At(l, k)
+				v += xax[j*p+l] * C.At(l, k)
 			}
-			m[j*p+k] = s
+			m[j*p+k] = v
 		}
 	}
 	tr1, tr2, tr3 := 0.0, 0.0, 0.0
@@ -499,56 +638,22 @@ func legendre(m int) ([]float64, []float64) {
 	return xs, ws
 }
 
-func breuschPagan(f *Fit) *BreuschPagan {
+func breuschPagan(f *Fit, s formSums) *BreuschPagan {
 	n, p := f.N, f.P
-	e := f.WeightedResiduals()
-	u := make([]float64, n)
-	for i, v := range e {
-		u[i] = v * v
-	}
-	aux := Model{Response: "squared residual", Terms: f.Model.Terms, Intercept: true, Levels: f.Model.Levels}
-	var Z *mat.Dense
-	if f.Model.Intercept {
-		Z = f.x
-	} else {
-		// Z = [1, X]; a group coded with every level (no intercept) loses
-		// its reference column, now absorbed in the intercept.
-		drop := -1
-		off := 0
-		for k := range f.Model.Terms {
-			if f.Model.fullCoding(k) {
-				drop = off
-				break
-			}
-			off += f.Model.termWidth(k)
-		}
-		q := aux.P()
-		if (drop < 0 && q != p+1) || (drop >= 0 && q != p) {
-			return nil
-		}
-		raw := f.x.RawMatrix()
-		data := make([]float64, n*q)
-		for i := 0; i < n; i++ {
-			dst := data[i*q : (i+1)*q]
-			dst[0] = 1
-			c := 1
-			for j, v := range raw.Data[i*raw.Stride : i*raw.Stride+p] {
-				if j != drop {
-					dst[c] = v
-					c++
-				}
-			}
-		}
-		Z = mat.NewDense(n, q, data)
-	}
-	if aux.P() <= 1 {
+	if p < 2 || !(s.uu > 0) {
 		return nil
 	}
-	af, err := Refit(aux, Z, u)
-	if err != nil || !(af.TSS > 0) {
-		return nil
+	// Explained sum of squares of u on the fit's own columns √w x:
+	// u'Hu = |M' X̃'u|² with (X̃'X̃)^-1 = M M' (M upper triangular).
+	ess := 0.0
+	for l := 0; l < p; l++ {
+		q := 0.0
+		for j := 0; j <= l; j++ {
+			q += f.m[j*p+l] * s.g[j]
+		}
+		ess += q * q
 	}
-	df := af.P - 1
-	lm := float64(n) * (1 - af.RSS/af.TSS)
+	lm := float64(n) * ess / s.uu
+	df := p - 1
 	return &BreuschPagan{Statistic: lm, DF: df, P: mathext.GammaIncRegComp(float64(df)/2, lm/2)}
 }

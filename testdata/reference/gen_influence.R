@@ -167,7 +167,7 @@ write_case <- function(name, source, data, formula, response, terms,
 #     positive autocorrelation, exactly (Pan's algorithm, exact = TRUE)
 #     and by the normal approximation with the exact moments (exact = FALSE);
 #   studentized Breusch-Pagan (Koenker): lmtest::bptest on the scaled rows,
-#     the variance regressed on an intercept and the model's terms;
+#     the variance regressed on the model's own (scaled) columns;
 #   PRESS = sum w (e/(1-h))^2 and predicted R^2 = 1 - PRESS/TSS.
 form_checks <- function(fit, X, wv, intercept) {
   n <- nrow(X); p <- ncol(X)
@@ -188,8 +188,7 @@ form_checks <- function(fit, X, wv, intercept) {
   }
   dwe <- dwtest(ys ~ 0 + Xs, exact = TRUE)
   dwa <- dwtest(ys ~ 0 + Xs, exact = FALSE)
-  Z <- unname(if (intercept) X[, -1, drop = FALSE] else X)
-  bp <- bptest(ys ~ 0 + Xs, varformula = ~ Z, studentize = TRUE)
+  bp <- bptest(ys ~ 0 + Xs, studentize = TRUE)
   h <- hatvalues(fit)
   press <- sum(wv * (residuals(fit) / (1 - h))^2)
   tss <- if (intercept) sum(wv * (yv - weighted.mean(yv, wv))^2) else sum(wv * yv^2)
