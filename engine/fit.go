@@ -230,34 +230,13 @@ func refit(m Model, X *mat.Dense, y, wt []float64) (*Fit, error) {
 	rssPart := make([]dd, ch.nc)
 	tssPart := make([]float64, 2*ch.nc)
 	ybar := ws.ybar
-	ch.run(func(c int) {
+	final := func(c int) {
 		lo, hi := ch.bounds(c)
 		var rs, rc float64
 		var t1, t2 float64
 		for i := lo; i < hi; i++ {
 			row := xd[i*stride : i*stride+p]
 			var e float64
-			if wt != nil {
-				// Weighted: e = y - x'b, RSS = Σ w e², TSS = Σ w (y - ȳ_w)².
-				e = residual2(y[i], 0, row, b)
-				res[i] = e
-				fitted[i] = y[i] - e
-				wi := wt[i]
-				q := e * e
-				qe := math.FMA(e, e, -q)
-				wq := wi * q
-				wqe := math.FMA(wi, q, -wq) + wi*qe
-				var se float64
-				rs, se = twoSum(rs, wq)
-				rc += se + wqe
-				d := y[i]
-				if m.Intercept {
-					d -= ybar
-				}
-				t1 += wi * d
-				t2 += wi * d * d
-				continue
-			}
 			if single {
 				// r0 + f0 = y - X b0 to double-double accuracy and
 				// b = b0 + db0, so e = r0 + (f0 - x·db0): the small
@@ -286,7 +265,14 @@ func refit(m Model, X *mat.Dense, y, wt []float64) (*Fit, error) {
 		}
 		rssPart[c] = dd{rs, 0}.add(rc)
 		tssPart[2*c], tssPart[2*c+1] = t1, t2
-	})
+	}
+	if wt != nil {
+		final = func(c int) {
+			lo, hi := ch.bounds(c)
+			rssPart[c], tssPart[2*c], tssPart[2*c+1] = weightedFinal(xd[lo*stride:], stride, p, y[lo:hi], wt[lo:hi], b, res[lo:hi], fitted[lo:hi], m.Intercept, ybar)
+		}
+	}
+	ch.run(final)
 	var rss dd
 	t1, t2 := 0.0, 0.0
 	for c := 0; c < ch.nc; c++ {
@@ -580,19 +566,15 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 			diff := false
 			x := w.xd[lo*w.stride+j:]
 			stride := w.stride
-			ii := 0
 			if w.sw != nil {
-				// Weighted: Σ w (x - c) and √w (x - c) (weights.go).
-				wc, swc := w.wt[lo:hi], w.sw[lo:hi]
-				for ; ii < mr; ii++ {
-					v0 := x[ii*stride]
-					b0 += v0 * 0
-					diff = diff || v0 != fj
-					d0 := v0 - cj
-					s0 += wc[ii] * d0
-					col[ii] = d0 * pj * swc[ii]
+				// Weighted (weights.go).
+				bad[j], st.sum[j], differs[j] = weightedColumn(col, x, stride, w.wt[lo:hi], w.sw[lo:hi], cj, pj, fj)
+				if j == 0 && intercept && (differs[j] || fj != 1) {
+					st.badOne = true
 				}
+				continue
 			}
+			ii := 0
 			for ; ii+2 <= mr; ii += 2 {
 				v0, v1 := x[ii*stride], x[(ii+1)*stride]
 				b0 += v0 * 0
@@ -621,7 +603,14 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 				st.badOne = true
 			}
 		}
-		for i := lo; i < hi; i++ {
+		if w.sw != nil {
+			weightedResponse(&st, a[p*mr:(p+1)*mr], w.y[lo:hi], w.wt[lo:hi], w.sw[lo:hi], cen[p], pre[p], p, lo)
+		}
+		yhi := hi
+		if w.sw != nil {
+			yhi = lo // done above
+		}
+		for i := lo; i < yhi; i++ {
 			ii := i - lo
 			v := w.y[i]
 			if v-v != 0 {
@@ -635,11 +624,6 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 				if v > st.max[p] {
 					st.max[p] = v
 				}
-			}
-			if w.sw != nil {
-				st.sum[p] += w.wt[i] * (v - cen[p])
-				a[p*mr+ii] = v * pre[p] * w.sw[i]
-				continue
 			}
 			st.sum[p] += v - cen[p]
 			a[p*mr+ii] = v * pre[p]

@@ -290,3 +290,64 @@ func quoteName(s string) string {
 	}
 	return `"` + strings.ReplaceAll(s, `"`, `""`) + `"`
 }
+
+// weightedColumn is the weighted form of one column of a chunk in the QR
+// pass: col = √w (x - c) pre, and the checks' values (NaN test, Σ w (x -
+// c), whether a value differs from the first).
+func weightedColumn(col, x []float64, stride int, wt, sw []float64, cj, pj, fj float64) (bad, sum float64, diff bool) {
+	for ii := range col {
+		v0 := x[ii*stride]
+		bad += v0 * 0
+		diff = diff || v0 != fj
+		d0 := v0 - cj
+		sum += wt[ii] * d0
+		col[ii] = d0 * pj * sw[ii]
+	}
+	return bad, sum, diff
+}
+
+// weightedResponse is the weighted form of the response column of a
+// chunk in the QR pass (rows from lo).
+func weightedResponse(st *chunkStat, col, y, wt, sw []float64, cen, pre float64, p, lo int) {
+	for ii, v := range y {
+		if v-v != 0 {
+			if st.badRow < 0 {
+				st.badRow, st.badCol = lo+ii, p
+			}
+		} else {
+			st.min[p] = math.Min(st.min[p], v)
+			st.max[p] = math.Max(st.max[p], v)
+		}
+		st.sum[p] += wt[ii] * (v - cen)
+		col[ii] = v * pre * sw[ii]
+	}
+}
+
+// weightedFinal is the final pass of a weighted fit over one chunk:
+// e = y - x'b (compensated), the fitted values, RSS = Σ w e² in
+// double-double and the sums Σ w d, Σ w d² of d = y - ȳ_w (y without an
+// intercept) for TSS.
+func weightedFinal(x []float64, stride, p int, y, wt, b, res, fitted []float64, intercept bool, ybar float64) (rss dd, t1, t2 float64) {
+	var rs, rc float64
+	for i := range y {
+		row := x[i*stride : i*stride+p]
+		e := residual2(y[i], 0, row, b)
+		res[i] = e
+		fitted[i] = y[i] - e
+		wi := wt[i]
+		q := e * e
+		qe := math.FMA(e, e, -q)
+		wq := wi * q
+		wqe := math.FMA(wi, q, -wq) + wi*qe
+		var se float64
+		rs, se = twoSum(rs, wq)
+		rc += se + wqe
+		d := y[i]
+		if intercept {
+			d -= ybar
+		}
+		t1 += wi * d
+		t2 += wi * d * d
+	}
+	return dd{rs, 0}.add(rc), t1, t2
+}

@@ -361,3 +361,33 @@ func TestFormChecksWeighted(t *testing.T) {
 		t.Errorf("method %q", plain.DurbinWatson.Method)
 	}
 }
+
+// TestWeightedNonFiniteX: a NaN in the design of a weighted fit is a
+// *DataError naming its row and term, as for an unweighted one.
+func TestWeightedNonFiniteX(t *testing.T) {
+	for _, n := range []int{10, 40000} {
+		X := mat.NewDense(n, 2, nil)
+		y := make([]float64, n)
+		w := make([]float64, n)
+		for i := 0; i < n; i++ {
+			X.Set(i, 0, 1)
+			X.Set(i, 1, float64(i%17))
+			y[i] = float64(i%13) + 0.5
+			w[i] = 1 + float64(i%3)
+		}
+		bad := n - 3
+		X.Set(bad, 1, math.NaN())
+		m, _ := engine.NewModel("y", []string{"x"}, true)
+		_, err := engine.RefitWeighted(m, X, y, w)
+		var de *engine.DataError
+		if !errors.As(err, &de) || de.Row != bad || de.Column != "x" || !errors.Is(err, engine.ErrNonFinite) {
+			t.Errorf("n=%d: %v, want a *DataError at row %d, term x", n, err, bad)
+		}
+		X.Set(bad, 1, 1)
+		y[bad+1] = math.Inf(1)
+		_, err = engine.RefitWeighted(m, X, y, w)
+		if !errors.As(err, &de) || de.Row != bad+1 || de.Column != "y" {
+			t.Errorf("n=%d: %v, want a *DataError at row %d, response y", n, err, bad+1)
+		}
+	}
+}
