@@ -149,18 +149,37 @@ func formPass(f *Fit) formSums {
 	}
 	parts := make([]part, ch.nc)
 	keys := make([]uint64, n)
+	sw := f.sw
 	ch.run(func(c int) {
 		lo, hi := ch.bounds(c)
 		pt := part{xax: make([]float64, p*p), axax: make([]float64, p*p), g: make([]float64, p)}
-		prev, cur, next := make([]float64, p), make([]float64, p), make([]float64, p)
 		ax := make([]float64, p)
+		// Rows i-1, i, i+1 of X̃: views into X when unweighted, scaled
+		// copies (rotating through three buffers) when weighted.
+		var bufs [3][]float64
+		for k := range bufs {
+			bufs[k] = make([]float64, p)
+		}
+		rowAt := func(i, k int) []float64 {
+			r := xd[i*stride : i*stride+p]
+			if sw == nil {
+				return r
+			}
+			b := bufs[k%3]
+			for j, v := range r {
+				b[j] = v * sw[i]
+			}
+			return b
+		}
+		var prev, cur, next []float64
 		if lo > 0 {
-			f.scaledRow(prev, lo-1)
+			prev = rowAt(lo-1, lo-1)
 		}
-		f.scaledRow(cur, lo)
+		cur = rowAt(lo, lo)
 		if lo+1 < n {
-			f.scaledRow(next, lo+1)
+			next = rowAt(lo+1, lo+1)
 		}
+		xax, axax, g := pt.xax, pt.axax, pt.g
 		for i := lo; i < hi; i++ {
 			h := uint64(14695981039346656037)
 			for _, v := range xd[i*stride : i*stride+p] {
@@ -168,18 +187,23 @@ func formPass(f *Fit) formSums {
 				h ^= h >> 29
 			}
 			keys[i] = h
+			cur = cur[:p]
+			ax = ax[:p]
 			switch {
 			case n == 1:
 				clear(ax)
 			case i == 0:
+				next = next[:p]
 				for j := range ax {
 					ax[j] = cur[j] - next[j]
 				}
 			case i == n-1:
+				prev = prev[:p]
 				for j := range ax {
 					ax[j] = cur[j] - prev[j]
 				}
 			default:
+				prev, next = prev[:p], next[:p]
 				for j := range ax {
 					ax[j] = 2*cur[j] - prev[j] - next[j]
 				}
@@ -194,11 +218,12 @@ func formPass(f *Fit) formSums {
 			pt.uu += u * u
 			// Upper halves only: X̃'AX̃ is symmetric (A is), though no
 			// one row's term is.
-			for j := 0; j < p; j++ {
-				cj, aj := cur[j], ax[j]
-				pt.g[j] += cj * u
-				xr, ar := pt.xax[j*p+j:(j+1)*p], pt.axax[j*p+j:(j+1)*p]
-				axj := ax[j:p]
+			for j, cj := range cur {
+				aj := ax[j]
+				g[j] += cj * u
+				xr := xax[j*p+j : (j+1)*p]
+				ar := axax[j*p+j : (j+1)*p]
+				axj := ax[j:]
 				axj = axj[:len(xr)]
 				ar = ar[:len(xr)]
 				for k, v := range axj {
@@ -206,9 +231,9 @@ func formPass(f *Fit) formSums {
 					ar[k] += aj * v
 				}
 			}
-			prev, cur, next = cur, next, prev
+			prev, cur = cur, next
 			if i+2 < n {
-				f.scaledRow(next, i+2)
+				next = rowAt(i+2, i+2)
 			}
 		}
 		parts[c] = pt

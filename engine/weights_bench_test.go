@@ -68,7 +68,7 @@ func BenchmarkWeightsPaired(b *testing.B) {
 		Assess(f, c)
 	}
 	for b.Loop() {
-		tu, tw, _, r := pairedRatio(7, plain, weighted)
+		tu, tw, _, r := pairedRatio(11, plain, weighted)
 		b.ReportMetric(float64(tu.Microseconds())/1e3, "unweighted-ms")
 		b.ReportMetric(float64(tw.Microseconds())/1e3, "weighted-ms")
 		b.ReportMetric(r, "ratio")
