@@ -210,6 +210,7 @@ func refit(m Model, X *mat.Dense, y, wt []float64) (*Fit, error) {
 			b, _ = ws.refineSemi(cond, fitted)
 		} else {
 			b, _ = ws.start()
+			ws.r = make([]float64, n)
 		}
 	} else if cond <= seminormalCond {
 		b, db0 = ws.refineSemi(cond, fitted)
