@@ -80,6 +80,10 @@
 //	outlier p           2 P(T_{n-p-1} > |t_i|)
 //	Bonferroni p        min(1, n · outlier p)   (Cook & Weisberg 1982)
 //
+// A weighted fit (RefitWeighted, weights.go) has every measure of its
+// scaled rows √w_i [x_i y_i]: h_i = w_i x_i'(X'WX)^-1 x_i and √w_i e_i in
+// place of e_i, s² = Σ w e²/(n-p); Obs.Residual stays y_i - x_i'b.
+//
 // All are computed in closed form from the QR factors in O(n p²); none
 // needs a leave-one-out refit. Values that are undefined (h_i = 1, or
 // n-p-1 = 0 for the deletion measures) are NaN. Tail probabilities use the

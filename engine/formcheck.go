@@ -47,13 +47,13 @@ type LackOfFit struct {
 //     quadratic forms, from the eigenvalues λ of M A M (M = I - H, A the
 //     difference matrix), P(Σ (λ_i - d) z_i² <= 0) by Imhof's (1961)
 //     inversion integral, integrated by 32-point Gauss-Legendre panels to
-//     an absolute error below 1e-10; on the 17 reference cases it agrees
+//     an absolute error below 1e-10; on the 18 reference cases it agrees
 //     with Pan's algorithm in R's lmtest::dwtest(exact = TRUE) within
 //     3.1e-9 absolute (TestRFormChecks holds it to 1e-8);
 //   - DWNormal (larger n): the normal approximation with the exact mean
 //     and variance of d given X (Durbin & Watson 1971), as
 //     lmtest::dwtest(exact = FALSE) computes it; against the exact P it
-//     errs by at most 0.012 absolute on the reference cases (n = 18..84)
+//     errs by at most 0.012 absolute on the reference cases (n = 15..84)
 //     and the error shrinks as n grows (about 1/√n).
 type DurbinWatson struct {
 	Statistic float64
