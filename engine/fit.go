@@ -1054,7 +1054,9 @@ func (f *Fit) Unscaled() *mat.SymDense {
 }
 
 // Leverage returns x'(X'X)^-1 x for any design row x (length P), computed
-// as |R^-T T^-T x|². For a row of X it is that row's hat value h_ii.
+// as |R^-T T^-T x|². For a row of X it is that row's hat value h_ii. For
+// a weighted fit it is x'(X'WX)^-1 x, and row i's hat value is w_i times
+// it (weights.go).
 func (f *Fit) Leverage(x []float64) float64 {
 	if len(x) != f.P {
 		panic(fmt.Sprintf("engine: Leverage: row has length %d, fit has %d coefficients", len(x), f.P))

@@ -240,7 +240,7 @@ func (m Model) Build(d Data) (*Design, error) {
 		if n < 0 {
 			return nil, &DataError{Row: -1, Column: m.Response, Err: ErrMissingColumn}
 		}
-		labels := make(map[string][]string)
+		labels := make(map[string][]int32) // level index of each row
 		for _, col := range m.GroupColumns() {
 			var lab []string
 			if v, ok := d.Num[col]; ok {
@@ -259,16 +259,31 @@ func (m Model) Build(d Data) (*Design, error) {
 			if len(lab) != n {
 				panic(fmt.Sprintf("engine: column %q has %d values, response %q has %d", col, len(lab), m.Response, n))
 			}
-			labels[col] = lab
-			seen := make(map[string]bool)
+			// One pass: each row's index among the labels in order of
+			// first appearance, then mapped to the sorted level list.
+			local := make(map[string]int32)
 			var found []string
-			for _, l := range lab {
-				if !seen[l] {
-					seen[l] = true
+			codes := make([]int32, n)
+			for i, l := range lab {
+				k, ok := local[l]
+				if !ok {
+					k = int32(len(found))
+					local[l] = k
 					found = append(found, l)
 				}
+				codes[i] = k
 			}
 			out.Model = out.Model.WithLevels(col, found...)
+			levels := out.Model.Levels[col]
+			perm := make([]int32, len(found))
+			for k, l := range found {
+				j, _ := slices.BinarySearch(levels, l)
+				perm[k] = int32(j)
+			}
+			for i, k := range codes {
+				codes[i] = perm[k]
+			}
+			labels[col] = codes
 		}
 		for _, t := range m.Terms {
 			for _, f := range t.Factors {
@@ -296,15 +311,15 @@ func (d *Design) Fit() (*Fit, error) {
 	return RefitWeighted(d.Model, d.X, d.Y, d.W)
 }
 
-// designGroups builds X and y for a model with group terms whose Levels
-// are complete.
-func (m Model) designGroups(num map[string][]float64, labels map[string][]string, n int) (*mat.Dense, []float64, error) {
+// designGroups builds X and y for a model with group terms from the level
+// index of every row in each group column (indices into m.Levels).
+func (m Model) designGroups(num map[string][]float64, idx map[string][]int32, n int) (*mat.Dense, []float64, error) {
 	yc, ok := num[m.Response]
 	if !ok {
 		return nil, nil, &DataError{Row: -1, Column: m.Response, Err: ErrMissingColumn}
 	}
 	for _, c := range m.Columns() {
-		if _, isGroup := labels[c]; isGroup {
+		if _, isGroup := idx[c]; isGroup {
 			if _, used := num[c]; !used && m.usesNumerically(c) {
 				return nil, nil, textColumnError(c)
 			}
@@ -329,23 +344,6 @@ func (m Model) designGroups(num map[string][]float64, labels map[string][]string
 		}
 	}
 	p := m.P()
-	// Level index of every row for each group column.
-	idx := make(map[string][]int32, len(labels))
-	for col, lab := range labels {
-		pos := make(map[string]int32, len(m.Levels[col]))
-		for k, l := range m.Levels[col] {
-			pos[l] = int32(k)
-		}
-		ix := make([]int32, n)
-		for i, l := range lab {
-			k, ok := pos[l]
-			if !ok {
-				return nil, nil, &DataError{Row: i, Column: col, Err: fmt.Errorf("%w: %q", ErrNewLevel, l)}
-			}
-			ix[i] = k
-		}
-		idx[col] = ix
-	}
 	data := make([]float64, n*p)
 	plan := m.rowPlan()
 	// Resolve the columns once.
