@@ -227,3 +227,45 @@ func TestFragilityWeighted(t *testing.T) {
 		})
 	}
 }
+
+// TestGroupSuggestRegion: ObservedRegion finds a numeric column's range
+// past a group term's columns, and Suggest declines a group model with a
+// *RegionError naming the group column (never a panic or a wrong range).
+func TestGroupSuggestRegion(t *testing.T) {
+	d := stability(5, 100, 6)
+	m, _ := engine.NewModel("assay", []string{"group(batch)", "months"}, true)
+	b, err := m.Build(d)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := b.Fit()
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = engine.ObservedRegion(f)
+	var re *engine.RegionError
+	if !errors.As(err, &re) || re.Column != "batch" {
+		t.Errorf("ObservedRegion: %v, want a RegionError for batch", err)
+	}
+	m2, _ := engine.NewModel("assay", []string{"months", "group(batch)*months"}, true)
+	b2, err := m2.Build(d)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f2, err := b2.Fit()
+	if err != nil {
+		t.Fatal(err)
+	}
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, v := range d.Num["months"] {
+		lo, hi = math.Min(lo, v), math.Max(hi, v)
+	}
+	_, err = engine.ObservedRegion(f2)
+	if !errors.As(err, &re) || re.Column != "batch" {
+		t.Errorf("ObservedRegion with group(batch)*months: %v", err)
+	}
+	_, err = engine.Suggest(f2, nil, nil, engine.Region{"months": {lo, hi}, "batch": {0, 1}}, engine.SuggestOptions{})
+	if !errors.As(err, &re) || re.Column != "batch" {
+		t.Errorf("Suggest on a group model: %v, want a RegionError for batch", err)
+	}
+}

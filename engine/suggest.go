@@ -94,16 +94,22 @@ func ObservedRegion(f *Fit) (Region, error) {
 		off = 1
 	}
 	reg := Region{}
+	// Design column of each term (a group term spans several).
+	col := make([]int, len(f.Model.Terms))
+	for k := range f.Model.Terms {
+		col[k] = off
+		off += f.Model.termWidth(k)
+	}
 	for _, c := range f.Model.Columns() {
 		found := false
 		for k, t := range f.Model.Terms {
-			if len(t.Factors) != 1 || t.Factors[0].Column != c || t.Factors[0].Power%2 == 0 {
+			if len(t.Factors) != 1 || t.Factors[0].Column != c || t.Factors[0].Power%2 == 0 || t.Factors[0].Group {
 				continue
 			}
 			fc := t.Factors[0]
 			lo, hi := math.Inf(1), math.Inf(-1)
 			for i := 0; i < f.N; i++ {
-				v := X.At(i, off+k)
+				v := X.At(i, col[k])
 				if fc.Power != 1 {
 					v = math.Copysign(math.Pow(math.Abs(v), 1/float64(fc.Power)), v)
 				}
@@ -260,6 +266,9 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	cols := f.Model.Columns()
 	if len(cols) == 0 {
 		return nil, &RegionError{Column: "", Msg: "the model has no predictor columns"}
+	}
+	if g := f.Model.GroupColumns(); len(g) > 0 {
+		return nil, &RegionError{Column: g[0], Msg: "a group column: suggestions for models with group terms are not made yet"}
 	}
 	if wt := f.Model.Weight; f.Weights != nil && (wt.Power == 0 || !slices.Contains(cols, wt.Column)) {
 		// The weight of a reading not yet taken is known only from a
