@@ -162,6 +162,9 @@ func (f *Fit) WeightedResiduals() []float64 {
 //
 // so "w", "inverse(conc)" (w = 1/conc) and "inverse(conc^2)"
 // (w = 1/conc²); names follow the term grammar (quoted when needed).
+//
+// Model.Build computes the weights and Design.Fit fits with them; Refit
+// itself ignores Model.Weight (RefitWeighted takes the weights).
 type Weighting struct {
 	Column string
 	Power  int
