@@ -391,3 +391,29 @@ func TestWeightedNonFiniteX(t *testing.T) {
 		}
 	}
 }
+
+// TestLoadCellLackOfFit: on the NIST StRD Pontius load-cell data (from
+// memory, the data of the NIST/SEMATECH e-Handbook's load-cell case
+// study, section 4.6.1; 20 loads measured twice) the lack-of-fit test
+// rejects the straight line and not the quadratic, with R's anova values
+// (testdata/reference/pontius_*.json, compared to 1e-9 in
+// TestRFormChecks).
+func TestLoadCellLackOfFit(t *testing.T) {
+	got := map[string]*engine.LackOfFit{}
+	for _, c := range loadRCases(t) {
+		if strings.HasPrefix(c.Dataset, "pontius_") {
+			f, inf := fitCase(t, c)
+			got[c.Dataset] = engine.CheckForm(f, inf).LackOfFit
+		}
+	}
+	line, quad := got["pontius_line"], got["pontius_quadratic"]
+	if line == nil || quad == nil {
+		t.Fatalf("lack of fit: line %+v, quadratic %+v", line, quad)
+	}
+	if line.Groups != 20 || line.PureErrorDF != 20 || line.LackOfFitDF != 18 || quad.LackOfFitDF != 17 {
+		t.Errorf("degrees of freedom: line %+v, quadratic %+v", line, quad)
+	}
+	if !(line.P < 1e-15) || !(quad.P > 0.5) {
+		t.Errorf("line p %g (want < 1e-15), quadratic p %g (want > 0.5)", line.P, quad.P)
+	}
+}

@@ -418,9 +418,9 @@ write_case("ketterby_lots_no_intercept",
 # 9. NIST StRD Pontius (public domain): deflection of a load cell against
 # load, 20 loads each measured twice, so the lack-of-fit test has pure
 # error. These are, from memory, the data of the NIST/SEMATECH
-# e-Handbook's load-cell calibration case study (section 4.6.1), whose
-# quadratic model passes the lack-of-fit test where the straight line
-# fails it; both fits are written.
+# e-Handbook's load-cell calibration case study (section 4.6.1), which
+# fits a quadratic after the straight line shows curvature; both fits are
+# written (R's lack-of-fit test rejects the line, not the quadratic).
 pontius <- data.frame(
   load = c(150000, 300000, 450000, 600000, 750000, 900000, 1050000, 1200000, 1350000, 1500000, 1650000, 1800000, 1950000, 2100000, 2250000, 2400000, 2550000, 2700000, 2850000, 3000000, 150000, 300000, 450000, 600000, 750000, 900000, 1050000, 1200000, 1350000, 1500000, 1650000, 1800000, 1950000, 2100000, 2250000, 2400000, 2550000, 2700000, 2850000, 3000000),
   deflection = c(0.11019, 0.21956, 0.32949, 0.43899, 0.54803, 0.65694, 0.76562, 0.87487, 0.98292, 1.09146, 1.20001, 1.30822, 1.41599, 1.52399, 1.63194, 1.73947, 1.84646, 1.95392, 2.06128, 2.16844, 0.11052, 0.22018, 0.32939, 0.43886, 0.54798, 0.65739, 0.76596, 0.87474, 0.983, 1.0915, 1.20004, 1.30818, 1.41613, 1.52408, 1.63159, 1.73965, 1.84696, 1.95445, 2.06177, 2.16829))
