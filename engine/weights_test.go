@@ -357,8 +357,16 @@ func TestFormChecksWeighted(t *testing.T) {
 	if plain.LackOfFit == nil || weighted.LackOfFit == nil || weighted.LackOfFit.Groups != 40 {
 		t.Errorf("lack of fit: %+v, %+v", plain.LackOfFit, weighted.LackOfFit)
 	}
-	if plain.DurbinWatson.Method != engine.DWExact && n <= engine.DWExactRows {
-		t.Errorf("method %q", plain.DurbinWatson.Method)
+	want := engine.DWNormal
+	if n <= engine.DWExactRows {
+		want = engine.DWExact
+	}
+	if plain.DurbinWatson.Method != want || weighted.DurbinWatson.Method != want {
+		t.Errorf("Durbin-Watson method %q, %q at n = %d, want %q", plain.DurbinWatson.Method, weighted.DurbinWatson.Method, n, want)
+	}
+	// Independent errors in row order: no evidence of autocorrelation.
+	if !(plain.DurbinWatson.P > 0.001) || !(weighted.DurbinWatson.P > 0.001) {
+		t.Errorf("Durbin-Watson p %g, %g on independent errors", plain.DurbinWatson.P, weighted.DurbinWatson.P)
 	}
 }
 
