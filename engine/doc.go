@@ -19,15 +19,37 @@
 // Term grammar (our own notation):
 //
 //	term   = factor { "*" factor }
-//	factor = atom [ "^" digit ]           digit 1..9
+//	factor = atom [ "^" power ] | "group" "(" name ")"
+//	power  = 1..20 (MaxPower), decimal digits
 //	atom   = name | "log" "(" name ")"    natural log
 //	name   = ident | quoted
 //	ident  = (letter | "_" | ".") { letter | digit | "_" | "." }
 //	quoted = `"` { any character, `""` for a quote } `"`
 //
-// so "x", "x^2", "x*z", "log(x)", "log(x)^2" and `"flow rate (l/min)"` are
-// terms. Malformed terms give a *TermError whose message points a caret at
-// the offending character.
+// so "x", "x^2", "x^10", "x*z", "log(x)", "log(x)^2", "group(batch)",
+// "group(batch)*months" and `"flow rate (l/min)"` are terms. Malformed
+// terms give a *TermError whose message points a caret at the offending
+// character.
+//
+// # Data with text, groups and weights
+//
+// Build takes numeric and text columns and returns a Design: the model
+// with the levels of its group columns, X, y and the row weights.
+//
+//	m.Weight, _ = engine.ParseWeighting("inverse(conc^2)") // or "w", a column
+//	d, err := m.Build(engine.Data{Num: nums, Text: texts})
+//	fit, err := d.Fit()                                  // RefitWeighted
+//	checks := engine.CheckForm(fit, inf)
+//
+// group(batch) codes a column of labels by indicators, one per level but
+// the reference, the first level in byte order (group.go); a level first
+// seen later gives ErrNewLevel for one row (DesignRowData) and is added by
+// WithLevels or the next Build. A weighted fit (weights.go) minimises
+// Σ w (y - x'b)², with every influence measure from the weighted hat
+// matrix. Pool tests whether the groups of a one-group, one-line model can
+// share a slope and an intercept (ICH Q1E, pool.go). CheckForm
+// (formcheck.go) tests the form: lack of fit, Durbin-Watson,
+// Breusch-Pagan, PRESS.
 //
 // # Fit
 //
@@ -57,6 +79,10 @@
 //	COVRATIO            (s_(i)²/s²)^p / (1-h_i)
 //	outlier p           2 P(T_{n-p-1} > |t_i|)
 //	Bonferroni p        min(1, n · outlier p)   (Cook & Weisberg 1982)
+//
+// A weighted fit (RefitWeighted, weights.go) has every measure of its
+// scaled rows √w_i [x_i y_i]: h_i = w_i x_i'(X'WX)^-1 x_i and √w_i e_i in
+// place of e_i, s² = Σ w e²/(n-p); Obs.Residual stays y_i - x_i'b.
 //
 // All are computed in closed form from the QR factors in O(n p²); none
 // needs a leave-one-out refit. Values that are undefined (h_i = 1, or

@@ -54,6 +54,11 @@ type Fit struct {
 	VIF         map[string]float64
 	Residuals   []float64
 	Fitted      []float64
+	// Weights holds the row weights of a weighted fit (RefitWeighted),
+	// nil for an unweighted one.
+	Weights []float64
+
+	sw []float64 // √Weights, nil when unweighted
 
 	x   *mat.Dense
 	y   []float64
@@ -156,6 +161,10 @@ func (s *scaling) fromW(b, c []float64) {
 // between m, X and y, or an intercept column that is not all ones, is a
 // caller bug and panics.
 func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
+	return refit(m, X, y, nil)
+}
+
+func refit(m Model, X *mat.Dense, y, wt []float64) (*Fit, error) {
 	n, p := X.Dims()
 	if p != m.P() {
 		panic(fmt.Sprintf("engine: Refit: X has %d columns, model has %d coefficients", p, m.P()))
@@ -168,7 +177,15 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	}
 	names := m.Names()
 	raw := X.RawMatrix()
-	ws := &work{m: m, n: n, p: p, k: p + 1, xd: raw.Data, stride: raw.Stride, y: y, ch: newChunking(n, p)}
+	ws := &work{m: m, n: n, p: p, k: p + 1, xd: raw.Data, stride: raw.Stride, y: y, ch: newChunking(n, p), nw: float64(n)}
+	var sw []float64
+	if wt != nil {
+		// Weighted (weights.go): every row of [X y] is multiplied by √w_i
+		// in the QR pass and the refinement works on X'W(y - Xb).
+		ws.wt, sw = wt, sqrtWeights(wt)
+		ws.sw = sw
+		ws.nw = sumDD(wt)
+	}
 	if err := ws.factor(); err != nil {
 		return nil, err
 	}
@@ -184,7 +201,18 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	fitted := make([]float64, n)
 	var b, db0 []float64
 	single := true
-	if cond <= seminormalCond {
+	if wt != nil {
+		// Weighted fits are refined on the corrected seminormal
+		// equations only, which contract while κ² eps is small; past
+		// weightedRefineCond the QR solution is kept as it is.
+		single = false
+		if cond <= weightedRefineCond {
+			b, _ = ws.refineSemi(cond, fitted)
+		} else {
+			b, _ = ws.start()
+			ws.r = make([]float64, n)
+		}
+	} else if cond <= seminormalCond {
 		b, db0 = ws.refineSemi(cond, fitted)
 	} else {
 		// The augmented refinement needs every chunk's reflectors:
@@ -203,7 +231,7 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	rssPart := make([]dd, ch.nc)
 	tssPart := make([]float64, 2*ch.nc)
 	ybar := ws.ybar
-	ch.run(func(c int) {
+	final := func(c int) {
 		lo, hi := ch.bounds(c)
 		var rs, rc float64
 		var t1, t2 float64
@@ -238,7 +266,14 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 		}
 		rssPart[c] = dd{rs, 0}.add(rc)
 		tssPart[2*c], tssPart[2*c+1] = t1, t2
-	})
+	}
+	if wt != nil {
+		final = func(c int) {
+			lo, hi := ch.bounds(c)
+			rssPart[c], tssPart[2*c], tssPart[2*c+1] = weightedFinal(xd[lo*stride:], stride, p, y[lo:hi], wt[lo:hi], b, res[lo:hi], fitted[lo:hi], m.Intercept, ybar)
+		}
+	}
+	ch.run(final)
 	var rss dd
 	t1, t2 := 0.0, 0.0
 	for c := 0; c < ch.nc; c++ {
@@ -248,7 +283,7 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	}
 	tss := t2
 	if m.Intercept {
-		tss = t2 - t1*t1/float64(n)
+		tss = t2 - t1*t1/ws.nw
 	}
 
 	f := &Fit{
@@ -257,6 +292,7 @@ func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 		Condition: cond,
 		Residuals: res, Fitted: fitted,
 		x: X, y: y, sc: *sc, r: R, rss: rss,
+		Weights: wt, sw: sw,
 	}
 	f.finish(b, names, ws.ssCentred)
 	if !f.finite() {
@@ -324,6 +360,9 @@ type work struct {
 	R      []float64 // scaled R, p x p row-major
 	pre    []float64 // power-of-two prescale per column (y last)
 	r      []float64 // residual iterate
+
+	wt, sw []float64 // row weights and their square roots (nil unweighted)
+	nw     float64   // Σ w (n unweighted)
 }
 
 type chunkStat struct {
@@ -415,7 +454,7 @@ func (w *work) factor() error {
 			return fmt.Errorf("%w: the design overflows double precision (values too large)", ErrNonFinite)
 		}
 	}
-	w.ybar = cen[p] + sum[p]/float64(n)
+	w.ybar = cen[p] + sum[p]/w.nw
 
 	w.tauS = make([]float64, p)
 	sm := w.ch.nc * p
@@ -434,7 +473,7 @@ func (w *work) factor() error {
 		}
 		// Σ(x - x̄)² = Σ(x - c)² - (Σ(x - c))²/n.
 		s2 := w.sc.scale[j] * w.sc.scale[j]
-		w.ssCentred[j] = s2 - sum[j]*sum[j]/float64(n)
+		w.ssCentred[j] = s2 - sum[j]*sum[j]/w.nw
 	}
 	w.R = make([]float64, p*p)
 	for i := 0; i < p; i++ {
@@ -528,6 +567,14 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 			diff := false
 			x := w.xd[lo*w.stride+j:]
 			stride := w.stride
+			if w.sw != nil {
+				// Weighted (weights.go).
+				bad[j], st.sum[j], differs[j] = weightedColumn(col, x, stride, w.wt[lo:hi], w.sw[lo:hi], cj, pj, fj)
+				if j == 0 && intercept && (differs[j] || fj != 1) {
+					st.badOne = true
+				}
+				continue
+			}
 			ii := 0
 			for ; ii+2 <= mr; ii += 2 {
 				v0, v1 := x[ii*stride], x[(ii+1)*stride]
@@ -557,7 +604,14 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 				st.badOne = true
 			}
 		}
-		for i := lo; i < hi; i++ {
+		if w.sw != nil {
+			weightedResponse(&st, a[p*mr:(p+1)*mr], w.y[lo:hi], w.wt[lo:hi], w.sw[lo:hi], cen[p], pre[p], p, lo)
+		}
+		yhi := hi
+		if w.sw != nil {
+			yhi = lo // done above
+		}
+		for i := lo; i < yhi; i++ {
 			ii := i - lo
 			v := w.y[i]
 			if v-v != 0 {
@@ -856,8 +910,16 @@ func (w *work) refineSemi(cond float64, f0 []float64) (b, db []float64) {
 				row := xd[i*stride : i*stride+p]
 				s1, c1 := residualDD(y[i], 0, row, bb)
 				ri := s1 + c1
+				fi := (s1 - ri) + c1
+				if w.wt != nil {
+					// r + f = w (y - x'b), for X'W(y - Xb).
+					wi := w.wt[i]
+					pr := wi * ri
+					fi = math.FMA(wi, ri, -pr) + wi*fi
+					ri = pr
+				}
 				r[i] = ri
-				f0[i] = (s1 - ri) + c1
+				f0[i] = fi
 			}
 			gs := gpart[3*c*p : (3*c+1)*p]
 			gc := gpart[(3*c+1)*p : (3*c+2)*p]
@@ -992,7 +1054,9 @@ func (f *Fit) Unscaled() *mat.SymDense {
 }
 
 // Leverage returns x'(X'X)^-1 x for any design row x (length P), computed
-// as |R^-T T^-T x|². For a row of X it is that row's hat value h_ii.
+// as |R^-T T^-T x|². For a row of X it is that row's hat value h_ii. For
+// a weighted fit it is x'(X'WX)^-1 x, and row i's hat value is w_i times
+// it (weights.go).
 func (f *Fit) Leverage(x []float64) float64 {
 	if len(x) != f.P {
 		panic(fmt.Sprintf("engine: Leverage: row has length %d, fit has %d coefficients", len(x), f.P))

@@ -56,6 +56,7 @@ package engine
 import (
 	"errors"
 	"fmt"
+	"gonum.org/v1/gonum/mat"
 	"math"
 	"sort"
 	"strconv"
@@ -479,10 +480,21 @@ func fgBaseSearch(f *Fit, maxM int) *fragSearch {
 	for j := range b {
 		b[j] = f.Coef[j].Estimate
 	}
+	rows := X.RawRowView
+	if f.sw != nil {
+		// A weighted fit is the ordinary fit of the rows √w_i x_i with
+		// residuals √w_i e_i (weights.go); every removal formula holds on
+		// them as they are.
+		xs := mat.NewDense(f.N, p, nil)
+		for i := 0; i < f.N; i++ {
+			f.scaledRow(xs.RawRowView(i), i)
+		}
+		rows = xs.RawRowView
+	}
 	fs := &fragSearch{
 		n: f.N, p: p,
-		rows: X.RawRowView,
-		e:    f.Residuals,
+		rows: rows,
+		e:    f.WeightedResiduals(),
 		c:    c, b: b, rss: f.RSS, df: f.N - p,
 		base: f,
 	}

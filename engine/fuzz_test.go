@@ -38,7 +38,7 @@ func FuzzParseTerm(f *testing.F) {
 			t.Fatalf("ParseTerm(%q): no factors", s)
 		}
 		for _, fa := range term.Factors {
-			if fa.Column == "" || fa.Power < 1 || fa.Power > 9 {
+			if fa.Column == "" || fa.Power < 1 || fa.Power > MaxPower || (fa.Group && (fa.Power != 1 || fa.Log)) {
 				t.Fatalf("ParseTerm(%q): bad factor %+v", s, fa)
 			}
 		}

@@ -120,8 +120,15 @@ func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 				for j := range v {
 					v[j] = bk.v[j][r]
 				}
-				del, ok := d.deleted(f.Residuals[i], h)
-				d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], f.Residuals[i], h, v, del)
+				e := f.Residuals[i]
+				if f.sw != nil {
+					h, e = d.weigh(i, h, v, e)
+				}
+				del, ok := d.deleted(e, h)
+				d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], e, h, v, del)
+				if f.sw != nil {
+					inf.Rows[i].Residual = f.Residuals[i]
+				}
 				if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
 					cands[c] = append(cands[c], cand{i, del})
 				}
@@ -155,7 +162,14 @@ func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 	v := make([]float64, p)
 	for k, i := range rows {
 		h := d.row(w, v, i)
-		d.fill(&inf.Rows[i], inf.DFBETASRow(i), f.Residuals[i], h, v, dels[k])
+		e := f.Residuals[i]
+		if f.sw != nil {
+			h, e = d.weigh(i, h, v, e)
+		}
+		d.fill(&inf.Rows[i], inf.DFBETASRow(i), e, h, v, dels[k])
+		if f.sw != nil {
+			inf.Rows[i].Residual = f.Residuals[i]
+		}
 		if j != nil {
 			j.one(inf, out, i)
 		}
@@ -232,7 +246,7 @@ func (d *diag) row(w, v []float64, i int) float64 {
 		}
 		v[j] = s
 	}
-	if h > 1 {
+	if h > 1 && d.f.sw == nil { // weighted: clamped by weigh
 		h = 1
 	}
 	return h
@@ -289,17 +303,30 @@ func (d *diag) deletedExact(rows []int) []float64 {
 	for k, i := range rows {
 		qi[k] = make([]float64, p)
 		d.q(qi[k], i)
+		e := d.f.Residuals[i]
+		if sw := d.f.sw; sw != nil {
+			for j := range qi[k] {
+				qi[k][j] *= sw[i]
+			}
+			e *= sw[i]
+		}
 		h := 0.0
 		for _, v := range qi[k] {
 			h += v * v
 		}
-		coef[k] = d.f.Residuals[i] / (1 - h)
+		coef[k] = e / (1 - h)
 	}
 	acc := make([]dd, len(rows))
 	w := make([]float64, p)
 	for r := 0; r < n; r++ {
 		d.q(w, r)
 		e := d.f.Residuals[r]
+		if sw := d.f.sw; sw != nil {
+			for j := range w {
+				w[j] *= sw[r]
+			}
+			e *= sw[r]
+		}
 		for k, i := range rows {
 			if r == i {
 				continue
@@ -390,6 +417,21 @@ func powInt(x float64, k int) float64 {
 	return r
 }
 
+// weigh turns row i's h = x_i'(X'WX)^-1 x_i, v = (X'WX)^-1 x_i and raw
+// residual e into those of the scaled row √w_i x_i of a weighted fit:
+// h w_i, v √w_i, e √w_i (weights.go).
+func (d *diag) weigh(i int, h float64, v []float64, e float64) (float64, float64) {
+	s := d.f.sw[i]
+	h *= d.f.Weights[i]
+	if h > 1 {
+		h = 1
+	}
+	for j := range v {
+		v[j] *= s
+	}
+	return h, e * s
+}
+
 // clone returns a copy with its own scratch space, for another goroutine.
 func (d *diag) clone() *diag {
 	c := *d
@@ -462,6 +504,9 @@ func (d *diag) block(b *block, lo, nb int) {
 	for j := 0; j < p; j++ {
 		// v_j = Σ_{l>=j} M_jl q_l, l ascending.
 		triSum(&b.v[j], b.q[j:], m[j*p+j:], 1)
+	}
+	if d.f.sw != nil {
+		return // weighted: h is x'(X'WX)^-1 x, clamped by weigh
 	}
 	for r := range h {
 		if h[r] > 1 {

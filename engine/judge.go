@@ -223,7 +223,7 @@ func newJudge(f *Fit, c Cutoffs, rows []Obs) *judge {
 	j.minDFFITS = math.Min(j.lim.DFFITSAbsolute, j.lim.DFFITSSize)
 	j.minDFBETAS = math.Min(j.lim.DFBETASAbsolute, j.lim.DFBETASSize)
 	if c.Test == GrubbsTest {
-		j.gr = Grubbs(f.Residuals, c.Alpha)
+		j.gr = Grubbs(f.WeightedResiduals(), c.Alpha)
 		if j.gr.Outlier {
 			j.grubbsRow = j.gr.Index
 		}

@@ -13,12 +13,20 @@ import (
 )
 
 // Factor is one factor of a term: a column, or its natural log, raised to
-// Power (1..9).
+// Power (1..MaxPower); or, with Group, the levels of a column (group.go).
+// Text is the factor as written.
 type Factor struct {
 	Column string
 	Power  int
 	Log    bool
+	Group  bool
+	Text   string
 }
+
+// MaxPower is the largest power the term grammar accepts. Past it a
+// polynomial in double precision is past saving (already x^10 on [0, 10]
+// spans ten decades); a NIST StRD degree-10 model (Filip) needs 10.
+const MaxPower = 20
 
 // Term is a product of factors. Text is the term as written (trimmed); it
 // is the coefficient's name in every output.
@@ -29,10 +37,17 @@ type Term struct {
 
 // Model is a linear model: Response regressed on Terms, with a leading
 // intercept column when Intercept is true.
+//
+// Weight names the source of row weights (the zero value: unweighted).
+// Levels holds the levels of each group column in byte order, the first
+// being the reference; Build fills it from the data, and P and Names need
+// it for a model with group terms.
 type Model struct {
 	Response  string
 	Terms     []Term
 	Intercept bool
+	Weight    Weighting
+	Levels    map[string][]string
 }
 
 // InterceptName is the coefficient name of the intercept.
@@ -81,6 +96,9 @@ func (t Term) key() string {
 		if f.Log {
 			k = "l:" + f.Column
 		}
+		if f.Group {
+			k = "g:" + f.Column
+		}
 		pow[k] += f.Power
 	}
 	keys := make([]string, 0, len(pow))
@@ -95,23 +113,34 @@ func (t Term) key() string {
 	return b.String()
 }
 
-// P is the number of coefficients: the terms plus the intercept.
+// P is the number of coefficients: the intercept, one per plain term and,
+// for a term with group factors, one per coded level combination (see
+// group.go; a group whose levels are not yet known counts none).
 func (m Model) P() int {
+	p := 0
 	if m.Intercept {
-		return len(m.Terms) + 1
+		p = 1
 	}
-	return len(m.Terms)
+	for k := range m.Terms {
+		p += m.termWidth(k)
+	}
+	return p
 }
 
 // Names lists the coefficient names, "intercept" first when present, then
-// each term's Text.
+// each term's Text, or for a term with group factors one name per coded
+// level combination ("batch=B", "batch=B*months", "months*batch=B").
 func (m Model) Names() []string {
 	names := make([]string, 0, m.P())
 	if m.Intercept {
 		names = append(names, InterceptName)
 	}
-	for _, t := range m.Terms {
-		names = append(names, t.Text)
+	for k, t := range m.Terms {
+		if !t.HasGroup() {
+			names = append(names, t.Text)
+			continue
+		}
+		names = append(names, m.groupNames(k)...)
 	}
 	return names
 }
@@ -137,7 +166,27 @@ func (m Model) Columns() []string {
 // infinite value (also one produced by a power) wraps ErrNonFinite; log of
 // a non-positive value wraps ErrLogDomain. n = 0 gives ErrTooFewRows.
 // Columns of unequal length are a caller bug and panic.
+//
+// For a model with group terms Design takes each group column's labels
+// from its numbers (as strconv.FormatFloat 'g' writes them) and needs
+// m.Levels to hold every level found (a level not in it gives a *DataError
+// wrapping ErrNewLevel); Build takes text columns and finds the levels.
 func (m Model) Design(cols map[string][]float64) (*mat.Dense, []float64, error) {
+	if m.hasGroups() {
+		d, err := m.Build(Data{Num: cols})
+		if err != nil {
+			return nil, nil, err
+		}
+		if err := m.sameLevels(d.Model); err != nil {
+			return nil, nil, err
+		}
+		return d.X, d.Y, nil
+	}
+	return m.designNum(cols)
+}
+
+// designNum is Design for a model without group terms.
+func (m Model) designNum(cols map[string][]float64) (*mat.Dense, []float64, error) {
 	yc, ok := cols[m.Response]
 	if !ok {
 		return nil, nil, &DataError{Row: -1, Column: m.Response, Err: ErrMissingColumn}
@@ -215,7 +264,14 @@ func (m Model) Design(cols map[string][]float64) (*mat.Dense, []float64, error) 
 // DesignRow writes one design row (length P) into dst, taking column values
 // from value. Errors are as for Design, with Row -1. A dst of the wrong
 // length is a caller bug and panics.
+//
+// A group column's label is its number as strconv.FormatFloat 'g' writes
+// it; DesignRowData takes text labels. A label not in m.Levels gives a
+// *DataError wrapping ErrNewLevel.
 func (m Model) DesignRow(dst []float64, value func(col string) float64) error {
+	if m.hasGroups() {
+		return m.DesignRowData(dst, value, nil)
+	}
 	if len(dst) != m.P() {
 		panic(fmt.Sprintf("engine: DesignRow: dst has length %d, model has %d coefficients", len(dst), m.P()))
 	}
@@ -271,7 +327,8 @@ func ipow(x float64, k int) float64 {
 // ParseTerm parses one term. Grammar:
 //
 //	term   = factor { "*" factor }
-//	factor = atom [ "^" digit ]          digit 1..9
+//	factor = atom [ "^" power ] | "group" "(" name ")"
+//	power  = 1..MaxPower (20), in decimal digits
 //	atom   = name | "log" "(" name ")"
 //	name   = ident | quoted
 //	ident  = (letter | "_" | ".") { letter | digit | "_" | "." }
@@ -330,7 +387,31 @@ func (p *termParser) factor() (Factor, error) {
 	if err != nil {
 		return f, err
 	}
-	if !quoted && name == "log" {
+	if !quoted && name == "group" {
+		save := p.pos
+		p.skip()
+		if p.pos < len(p.src) && p.src[p.pos] == '(' {
+			p.pos++
+			p.skip()
+			if p.pos == len(p.src) {
+				return f, p.fail(p.pos, "expected a column name inside group()")
+			}
+			inner, _, err := p.name()
+			if err != nil {
+				return f, err
+			}
+			p.skip()
+			if p.pos == len(p.src) || p.src[p.pos] != ')' {
+				return f, p.fail(p.pos, "expected \")\" to close group(")
+			}
+			p.pos++
+			name = inner
+			f.Group = true
+		} else {
+			p.pos = save
+		}
+	}
+	if !quoted && name == "log" && !f.Group {
 		save := p.pos
 		p.skip()
 		if p.pos < len(p.src) && p.src[p.pos] == '(' {
@@ -354,30 +435,45 @@ func (p *termParser) factor() (Factor, error) {
 			p.pos = save
 		}
 	}
-	_ = start
 	f.Column = name
 	save := p.pos
 	p.skip()
 	if p.pos < len(p.src) && p.src[p.pos] == '^' {
+		if f.Group {
+			return f, p.fail(p.pos, "a group(...) factor takes no power")
+		}
 		p.pos++
 		p.skip()
-		if p.pos == len(p.src) {
-			return f, p.fail(p.pos, "expected a power 1-9 after \"^\"")
+		k, err := p.power()
+		if err != nil {
+			return f, err
 		}
-		c := p.src[p.pos]
-		if c < '1' || c > '9' {
-			return f, p.fail(p.pos, "power must be a single digit 1-9")
-		}
-		k, _ := strconv.Atoi(string(c))
 		f.Power = k
-		p.pos++
-		if p.pos < len(p.src) && p.src[p.pos] >= '0' && p.src[p.pos] <= '9' {
-			return f, p.fail(p.pos, "power must be a single digit 1-9 (write x^9*x for x^10)")
-		}
 	} else {
 		p.pos = save
 	}
+	f.Text = strings.TrimRight(p.src[start:p.pos], " \t")
 	return f, nil
+}
+
+// power reads a power 1..MaxPower at p.pos.
+func (p *termParser) power() (int, error) {
+	msg := fmt.Sprintf("power must be a whole number 1-%d", MaxPower)
+	if p.pos == len(p.src) {
+		return 0, p.fail(p.pos, fmt.Sprintf("expected a power 1-%d after \"^\"", MaxPower))
+	}
+	start := p.pos
+	for p.pos < len(p.src) && p.src[p.pos] >= '0' && p.src[p.pos] <= '9' {
+		p.pos++
+	}
+	if p.pos == start || p.src[start] == '0' {
+		return 0, p.fail(start, msg)
+	}
+	k, err := strconv.Atoi(p.src[start:p.pos])
+	if err != nil || k > MaxPower {
+		return 0, p.fail(start, msg)
+	}
+	return k, nil
 }
 
 // name reads an identifier or a quoted name at p.pos.

@@ -14,23 +14,28 @@ func TestParseTerm(t *testing.T) {
 		in   string
 		want Term
 	}{
-		{"column", "x", Term{"x", []Factor{{"x", 1, false}}}},
-		{"trimmed", "  x\t", Term{"x", []Factor{{"x", 1, false}}}},
-		{"power", "x^2", Term{"x^2", []Factor{{"x", 2, false}}}},
-		{"spaced power", "x ^ 3", Term{"x ^ 3", []Factor{{"x", 3, false}}}},
-		{"product", "x*z", Term{"x*z", []Factor{{"x", 1, false}, {"z", 1, false}}}},
-		{"log", "log(x)", Term{"log(x)", []Factor{{"x", 1, true}}}},
-		{"log power", "log( x )^2", Term{"log( x )^2", []Factor{{"x", 2, true}}}},
-		{"column named log", "log", Term{"log", []Factor{{"log", 1, false}}}},
-		{"log column power", "log^2", Term{"log^2", []Factor{{"log", 2, false}}}},
-		{"dots and digits", "a.b_2", Term{"a.b_2", []Factor{{"a.b_2", 1, false}}}},
-		{"leading dot", ".x", Term{".x", []Factor{{".x", 1, false}}}},
-		{"unicode letters", "température", Term{"température", []Factor{{"température", 1, false}}}},
-		{"quoted", `"flow rate (l/min)"`, Term{`"flow rate (l/min)"`, []Factor{{"flow rate (l/min)", 1, false}}}},
-		{"quoted quote", `"a""b"^2`, Term{`"a""b"^2`, []Factor{{`a"b`, 2, false}}}},
-		{"quoted log", `log("c 1")*x^9`, Term{`log("c 1")*x^9`, []Factor{{"c 1", 1, true}, {"x", 9, false}}}},
-		{"quoted digit start", `"2x"`, Term{`"2x"`, []Factor{{"2x", 1, false}}}},
-		{"repeated factor", "x*x", Term{"x*x", []Factor{{"x", 1, false}, {"x", 1, false}}}},
+		{"column", "x", Term{"x", []Factor{{Column: "x", Power: 1, Log: false, Text: "x"}}}},
+		{"trimmed", "  x\t", Term{"x", []Factor{{Column: "x", Power: 1, Log: false, Text: "x"}}}},
+		{"power", "x^2", Term{"x^2", []Factor{{Column: "x", Power: 2, Log: false, Text: "x^2"}}}},
+		{"spaced power", "x ^ 3", Term{"x ^ 3", []Factor{{Column: "x", Power: 3, Log: false, Text: "x ^ 3"}}}},
+		{"product", "x*z", Term{"x*z", []Factor{{Column: "x", Power: 1, Log: false, Text: "x"}, {Column: "z", Power: 1, Log: false, Text: "z"}}}},
+		{"log", "log(x)", Term{"log(x)", []Factor{{Column: "x", Power: 1, Log: true, Text: "log(x)"}}}},
+		{"log power", "log( x )^2", Term{"log( x )^2", []Factor{{Column: "x", Power: 2, Log: true, Text: "log( x )^2"}}}},
+		{"column named log", "log", Term{"log", []Factor{{Column: "log", Power: 1, Log: false, Text: "log"}}}},
+		{"log column power", "log^2", Term{"log^2", []Factor{{Column: "log", Power: 2, Log: false, Text: "log^2"}}}},
+		{"dots and digits", "a.b_2", Term{"a.b_2", []Factor{{Column: "a.b_2", Power: 1, Log: false, Text: "a.b_2"}}}},
+		{"leading dot", ".x", Term{".x", []Factor{{Column: ".x", Power: 1, Log: false, Text: ".x"}}}},
+		{"unicode letters", "température", Term{"température", []Factor{{Column: "température", Power: 1, Log: false, Text: "température"}}}},
+		{"quoted", `"flow rate (l/min)"`, Term{`"flow rate (l/min)"`, []Factor{{Column: "flow rate (l/min)", Power: 1, Log: false, Text: `"flow rate (l/min)"`}}}},
+		{"quoted quote", `"a""b"^2`, Term{`"a""b"^2`, []Factor{{Column: `a"b`, Power: 2, Log: false, Text: `"a""b"^2`}}}},
+		{"quoted log", `log("c 1")*x^9`, Term{`log("c 1")*x^9`, []Factor{{Column: "c 1", Power: 1, Log: true, Text: `log("c 1")`}, {Column: "x", Power: 9, Log: false, Text: "x^9"}}}},
+		{"quoted digit start", `"2x"`, Term{`"2x"`, []Factor{{Column: "2x", Power: 1, Log: false, Text: `"2x"`}}}},
+		{"power 10", "x^10", Term{"x^10", []Factor{{Column: "x", Power: 10, Text: "x^10"}}}},
+		{"power 20", "x ^ 20", Term{"x ^ 20", []Factor{{Column: "x", Power: 20, Text: "x ^ 20"}}}},
+		{"group", "group(batch)", Term{"group(batch)", []Factor{{Column: "batch", Power: 1, Group: true, Text: "group(batch)"}}}},
+		{"group product", "group( b )*months", Term{"group( b )*months", []Factor{{Column: "b", Power: 1, Group: true, Text: "group( b )"}, {Column: "months", Power: 1, Text: "months"}}}},
+		{"column named group", "group*x", Term{"group*x", []Factor{{Column: "group", Power: 1, Text: "group"}, {Column: "x", Power: 1, Text: "x"}}}},
+		{"repeated factor", "x*x", Term{"x*x", []Factor{{Column: "x", Power: 1, Log: false, Text: "x"}, {Column: "x", Power: 1, Log: false, Text: "x"}}}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -55,9 +60,12 @@ func TestParseTermErrors(t *testing.T) {
 		{"   ", 3, "empty term"},
 		{"2x", 0, "cannot start with a digit"},
 		{"x^", 2, "expected a power"},
-		{"x^0", 2, "single digit 1-9"},
-		{"x^10", 3, "x^9*x"},
-		{"x^a", 2, "single digit 1-9"},
+		{"x^0", 2, "whole number 1-20"},
+		{"x^21", 2, "whole number 1-20"},
+		{"x^a", 2, "whole number 1-20"},
+		{"x^02", 2, "whole number 1-20"},
+		{"group(x)^2", 8, "takes no power"},
+		{"group(x", 7, `expected ")"`},
 		{"x*", 2, "expected a column name"},
 		{"x**z", 2, "expected a column name"},
 		{"x z", 2, `expected "*"`},
@@ -87,7 +95,7 @@ func TestParseTermErrors(t *testing.T) {
 
 func TestTermErrorCaret(t *testing.T) {
 	_, err := ParseTerm("é*x^a")
-	want := "engine: term \"é*x^a\": power must be a single digit 1-9 (at byte 5)\n  é*x^a\n      ^"
+	want := "engine: term \"é*x^a\": power must be a whole number 1-20 (at byte 5)\n  é*x^a\n      ^"
 	if err == nil || err.Error() != want {
 		t.Errorf("error\n%v\nwant\n%s", err, want)
 	}

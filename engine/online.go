@@ -100,9 +100,45 @@ func (o *Online) Seed(f *Fit) {
 	clear(o.r)
 	o.n, o.diagOK, o.since = 0, false, 0
 	X, y := f.X(), f.Y()
+	if f.sw != nil {
+		// A weighted fit: the rows √w_i [x_i y_i] (weights.go).
+		row := make([]float64, o.p)
+		for i := 0; i < f.N; i++ {
+			s := f.sw[i]
+			for j, v := range X.RawRowView(i) {
+				row[j] = v * s
+			}
+			o.fold(row, y[i]*s)
+		}
+		return
+	}
 	for i := 0; i < f.N; i++ {
 		o.fold(X.RawRowView(i), y[i])
 	}
+}
+
+// AddWeighted adds a row of weight w (> 0 and finite) to an online fit of
+// weighted rows (one seeded from a weighted Fit): it folds in √w [x y],
+// so that the diagnostics are those of Diagnose on a weighted fit, and
+// returns Obs.Residual on the scale of y. A weight that is not positive
+// and finite is not added and gives false. Add(x, y) is AddWeighted(x, y, 1).
+func (o *Online) AddWeighted(x []float64, y, w float64) (Obs, bool) {
+	if !(w > 0) || math.IsInf(w, 0) {
+		return Obs{}, false
+	}
+	if w == 1 {
+		return o.Add(x, y)
+	}
+	s := math.Sqrt(w)
+	xs := make([]float64, len(x))
+	for j, v := range x {
+		xs[j] = v * s
+	}
+	ob, ok := o.Add(xs, y*s)
+	if ok {
+		ob.Residual /= s
+	}
+	return ob, ok
 }
 
 // N returns the number of rows added.

@@ -75,6 +75,37 @@ type rCase struct {
 	COVRATIO    []*float64         `json:"covratio"`
 	OutlierP    []*float64         `json:"outlier_p"`
 	BonferroniP []*float64         `json:"outlier_p_bonferroni"`
+
+	// Weighted and grouped cases: text columns (group labels), the
+	// weighting in plumb's notation with R's weights, and plumb's
+	// coefficient names.
+	TextData         map[string][]string `json:"text_data"`
+	Weighting        string              `json:"weighting"`
+	Weights          []float64           `json:"weights"`
+	CoefficientNames []string            `json:"coefficient_names"`
+
+	// Model-form checks (R anova, lmtest::dwtest and bptest).
+	Form struct {
+		LackOfFit *struct {
+			Groups      int      `json:"groups"`
+			PureErrorDF int      `json:"pure_error_df"`
+			LackOfFitDF int      `json:"lack_of_fit_df"`
+			F           *float64 `json:"f"`
+			P           *float64 `json:"p"`
+		} `json:"lack_of_fit"`
+		DurbinWatson struct {
+			Statistic *float64 `json:"statistic"`
+			PExact    *float64 `json:"p_exact"`
+			PNormal   *float64 `json:"p_normal"`
+		} `json:"durbin_watson"`
+		BreuschPagan struct {
+			Statistic *float64 `json:"statistic"`
+			DF        int      `json:"df"`
+			P         *float64 `json:"p"`
+		} `json:"breusch_pagan"`
+		PRESS             *float64 `json:"press"`
+		PredictedRSquared *float64 `json:"predicted_r_squared"`
+	} `json:"form"`
 }
 
 func loadRCases(tb testing.TB) []rCase {
@@ -202,16 +233,42 @@ func fitCase(t *testing.T, c rCase) (*engine.Fit, *engine.Influence) {
 	if err != nil {
 		t.Fatalf("NewModel(%q, %q): %v", c.Response, c.Terms, err)
 	}
-	if m.P() != c.P {
-		t.Fatalf("model has %d coefficients, R's has %d", m.P(), c.P)
+	if m.Weight, err = engine.ParseWeighting(c.Weighting); err != nil {
+		t.Fatalf("ParseWeighting(%q): %v", c.Weighting, err)
 	}
-	X, y, err := m.Design(cols)
-	if err != nil {
-		t.Fatalf("Design: %v", err)
+	if c.TextData == nil && c.Weights == nil && !strings.Contains(strings.Join(c.Terms, " "), "group(") {
+		// The plain route: Design and Refit.
+		if m.P() != c.P {
+			t.Fatalf("model has %d coefficients, R's has %d", m.P(), c.P)
+		}
+		X, y, err := m.Design(cols)
+		if err != nil {
+			t.Fatalf("Design: %v", err)
+		}
+		f, err := engine.Refit(m, X, y)
+		if err != nil {
+			t.Fatalf("Refit: %v", err)
+		}
+		return f, engine.Diagnose(f)
 	}
-	f, err := engine.Refit(m, X, y)
+	d, err := m.Build(engine.Data{Num: cols, Text: c.TextData})
 	if err != nil {
-		t.Fatalf("Refit: %v", err)
+		t.Fatalf("Build: %v", err)
+	}
+	if d.Model.P() != c.P {
+		t.Fatalf("model has %d coefficients, R's has %d", d.Model.P(), c.P)
+	}
+	if len(d.W) != len(c.Weights) {
+		t.Fatalf("Build gave %d weights, R fitted with %d", len(d.W), len(c.Weights))
+	}
+	for i := range d.W {
+		if math.Abs(d.W[i]-c.Weights[i]) > 1e-15*c.Weights[i] {
+			t.Fatalf("weight[%d] = %.17g, R's is %.17g", i, d.W[i], c.Weights[i])
+		}
+	}
+	f, err := d.Fit()
+	if err != nil {
+		t.Fatalf("Fit: %v", err)
 	}
 	return f, engine.Diagnose(f)
 }
@@ -316,6 +373,55 @@ func TestRReference(t *testing.T) {
 			if math.Abs(sum-float64(p)) > 1e-9*float64(p) {
 				t.Errorf("sum of leverages = %.17g, want p = %d", sum, p)
 			}
+		})
+	}
+}
+
+// TestRFormChecks compares the model-form checks with R: lack of fit with
+// anova(fit, lm(y ~ factor(setting))), Durbin-Watson with
+// lmtest::dwtest (statistic to 1e-9; the exact p within 1e-8 of Pan's
+// algorithm, the normal-approximation p to 1e-9), studentized
+// Breusch-Pagan with lmtest::bptest, PRESS and predicted R² from R's
+// hatvalues (weighted versions for the weighted cases).
+func TestRFormChecks(t *testing.T) {
+	for _, c := range loadRCases(t) {
+		t.Run(c.Dataset, func(t *testing.T) {
+			f, inf := fitCase(t, c)
+			fc := engine.CheckForm(f, inf)
+			w := c.Form
+			if (w.LackOfFit == nil) != (fc.LackOfFit == nil) {
+				t.Fatalf("lack of fit: got %+v, R has %+v", fc.LackOfFit, w.LackOfFit)
+			}
+			if l := fc.LackOfFit; l != nil {
+				if l.Groups != w.LackOfFit.Groups || l.PureErrorDF != w.LackOfFit.PureErrorDF || l.LackOfFitDF != w.LackOfFit.LackOfFitDF {
+					t.Errorf("lack of fit: groups %d, df %d/%d; R: %d, %d/%d", l.Groups, l.LackOfFitDF, l.PureErrorDF,
+						w.LackOfFit.Groups, w.LackOfFit.LackOfFitDF, w.LackOfFit.PureErrorDF)
+				}
+				compareScalar(t, "lack_of_fit.f", l.F, val(w.LackOfFit.F))
+				compareScalar(t, "lack_of_fit.p", l.P, val(w.LackOfFit.P))
+			}
+			dw := fc.DurbinWatson
+			compareScalar(t, "durbin_watson.statistic", dw.Statistic, val(w.DurbinWatson.Statistic))
+			if dw.Method != engine.DWExact {
+				t.Errorf("durbin_watson.method = %q for n = %d, want exact", dw.Method, f.N)
+			}
+			d := math.Abs(dw.P - val(w.DurbinWatson.PExact))
+			t.Logf("durbin_watson.p = %.12g, R (Pan) %.12g, difference %.2g", dw.P, val(w.DurbinWatson.PExact), d)
+			if !(d <= 1e-8) {
+				t.Errorf("durbin_watson.p = %.10g, R (Pan, exact) %.10g: off by %.2g", dw.P, val(w.DurbinWatson.PExact), d)
+			}
+			compareScalar(t, "durbin_watson.p_normal", engine.DWNormalP(f, dw.Statistic), val(w.DurbinWatson.PNormal))
+			bp := fc.BreuschPagan
+			if bp == nil {
+				t.Fatalf("breusch_pagan: nil, R has %+v", w.BreuschPagan)
+			}
+			if bp.DF != w.BreuschPagan.DF {
+				t.Errorf("breusch_pagan.df = %d, R has %d", bp.DF, w.BreuschPagan.DF)
+			}
+			compareScalar(t, "breusch_pagan.statistic", bp.Statistic, val(w.BreuschPagan.Statistic))
+			compareScalar(t, "breusch_pagan.p", bp.P, val(w.BreuschPagan.P))
+			compareScalar(t, "press", fc.PRESS, val(w.PRESS))
+			compareScalar(t, "predicted_r_squared", fc.PredictedRSquared, val(w.PredictedRSquared))
 		})
 	}
 }

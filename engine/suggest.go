@@ -59,6 +59,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -166,16 +167,22 @@ func DesignColumns(f *Fit) (map[string][]float64, error) {
 		off = 1
 	}
 	out := make(map[string][]float64)
+	// Design column of each term (a group term spans several).
+	col := make([]int, len(f.Model.Terms))
+	for k := range f.Model.Terms {
+		col[k] = off
+		off += f.Model.termWidth(k)
+	}
 	for _, c := range f.Model.Columns() {
 		found := false
 		for k, t := range f.Model.Terms {
-			if len(t.Factors) != 1 || t.Factors[0].Column != c || t.Factors[0].Power%2 == 0 {
+			if len(t.Factors) != 1 || t.Factors[0].Column != c || t.Factors[0].Power%2 == 0 || t.Factors[0].Group {
 				continue
 			}
 			fc := t.Factors[0]
 			vals := make([]float64, f.N)
 			for i := 0; i < f.N; i++ {
-				v := X.At(i, off+k)
+				v := X.At(i, col[k])
 				if fc.Power != 1 {
 					v = math.Copysign(math.Pow(math.Abs(v), 1/float64(fc.Power)), v)
 				}
@@ -375,6 +382,14 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	if len(cols) == 0 {
 		return nil, &RegionError{Column: "", Msg: "the model has no predictor columns"}
 	}
+	if g := f.Model.GroupColumns(); len(g) > 0 {
+		return nil, &RegionError{Column: g[0], Msg: "a group column: suggestions for models with group terms are not made yet"}
+	}
+	if wt := f.Model.Weight; f.Weights != nil && (wt.Power == 0 || !slices.Contains(cols, wt.Column)) {
+		// The weight of a reading not yet taken is known only from a
+		// variance function of a predictor.
+		return nil, fmt.Errorf("%w: the weights of new readings are unknown (weights from column %q); suggestions need weights that are a variance function of a predictor, such as inverse(x^2)", ErrWeightUnknown, wt.Column)
+	}
 	if inf == nil {
 		inf = Diagnose(f)
 	}
@@ -501,7 +516,7 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	z := make([]float64, p)
 	u := make([]float64, p)
 	for _, pt := range pts {
-		if err := f.Model.DesignRow(z, func(col string) float64 { return pt[colIdx[col]] }); err != nil {
+		if err := sgRow(f, z, func(col string) float64 { return pt[colIdx[col]] }); err != nil {
 			continue // outside the domain of a term (log of a non-positive value)
 		}
 		fgMatVec(u, base.c, z, p)
@@ -513,7 +528,8 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 				q := fgDot(base.rows(i), u)
 				hn := o.Leverage - r*q*q/(1+r*d)
 				if sumCook > 0 {
-					sc.primary += sgCook(o.Cook) - sgCook(o.Residual*o.Residual*hn/(float64(p)*s2new*(1-hn)*(1-hn)))
+					e2 := o.Residual * o.Residual * f.weightAt(i) // weighted: w e²
+					sc.primary += sgCook(o.Cook) - sgCook(e2*hn/(float64(p)*s2new*(1-hn)*(1-hn)))
 				} else {
 					sc.primary += o.Leverage - hn
 				}
@@ -552,12 +568,18 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 	if fgNeedsRanking(f.N, fopt) {
 		ranked = fgRankRows(inf, base.b, fopt.Candidates)
 	}
-	zs := make([][]float64, len(picks))
-	for k, c := range picks {
-		zs[k] = make([]float64, p)
-		// The design row exists: it was scored above.
-		_ = f.Model.DesignRow(zs[k], func(col string) float64 { return c.pt[colIdx[col]] })
+	// Design rows of the picks.
+	zs := make([][]float64, 0, len(picks))
+	kept := picks[:0]
+	for _, c := range picks {
+		zc := make([]float64, p)
+		if err := sgRow(f, zc, func(col string) float64 { return c.pt[colIdx[col]] }); err != nil {
+			continue
+		}
+		zs = append(zs, zc)
+		kept = append(kept, c)
 	}
+	picks = kept
 
 	// Fragility now and after the readings at each point of the pool:
 	// independent searches, run on up to two cores.
@@ -661,6 +683,32 @@ func Suggest(f *Fit, inf *Influence, v []Verdict, region Region, opt SuggestOpti
 		out = append(out, sg)
 	}
 	return out, nil
+}
+
+// ErrWeightUnknown: Suggest cannot weigh a reading not yet taken, because
+// the fit's weights come from a column rather than a variance function of
+// a predictor.
+var ErrWeightUnknown = errors.New("engine: weight of a new reading unknown")
+
+// sgRow writes the design row of a new reading into z: for a weighted fit
+// √w z, with w from the model's variance function (the scaled rows of
+// weights.go).
+func sgRow(f *Fit, z []float64, value func(col string) float64) error {
+	if err := f.Model.DesignRow(z, value); err != nil {
+		return err
+	}
+	if f.Weights == nil {
+		return nil
+	}
+	w, err := f.Model.Weight.RowWeight(value)
+	if err != nil {
+		return err
+	}
+	s := math.Sqrt(w)
+	for j := range z {
+		z[j] *= s
+	}
+	return nil
 }
 
 // sgParallel calls fn(0..n-1) on up to two goroutines and waits for them.

@@ -34,7 +34,7 @@ cross a cutoff listed first. FILE may be "-" for standard input.
 
 Terms are separated by commas (commas inside double quotes belong to the
 name). A term is a product of factors joined by "*"; a factor is a column
-name, optionally raised to a power 1-9 with "^", or log(name). Names that
+name, optionally raised to a power 1-20 with "^", or log(name). Names that
 are not plain identifiers (letters, digits, "_", ".") are double-quoted:
   --terms "emf_mv, emf_mv^2, log(\"flow rate (l/min)\"), emf_mv*bath_c"
 An intercept is included unless --no-intercept is given. Columns the model

@@ -215,7 +215,7 @@ func TestInspectErrors(t *testing.T) {
 		// The caret sits under the offending character of the whole
 		// --terms string: "emf_mv, emf_mv^x" has the bad power at byte 15.
 		{"bad power", []string{thermo, "--response", "temp_c", "--terms", "emf_mv, emf_mv^x"}, 2,
-			[]string{"power must be a single digit 1-9", "(character 16)", "\n  emf_mv, emf_mv^x\n                 ^"}},
+			[]string{"power must be a whole number 1-20", "(character 16)", "\n  emf_mv, emf_mv^x\n                 ^"}},
 		{"open quote", []string{thermo, "--response", "temp_c", "--terms", `emf_mv, "emf mv`}, 2,
 			[]string{"never closed", "\n  emf_mv, \"emf mv\n          ^"}},
 		{"empty term", []string{thermo, "--response", "temp_c", "--terms", "emf_mv,,emf_mv^2"}, 2,

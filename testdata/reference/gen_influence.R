@@ -1,9 +1,12 @@
 # gen_influence.R writes the reference values that engine/rgolden_test.go
 # checks plumb's fit and influence measures against.
 #
-# Oracle: R (Debian's r-base-core), functions lm, summary.lm, confint,
-# residuals, hatvalues, rstandard, rstudent, cooks.distance, dffits, dfbetas
-# and covratio from the stats package, on published data sets shipped in R's datasets package and
+# Oracle: R (Debian's r-base-core), functions lm (with weights = for the
+# weighted cases, factors with treatment contrasts for the group cases),
+# summary.lm, confint, residuals, hatvalues, rstandard, rstudent,
+# cooks.distance, dffits, dfbetas, covratio and anova from the stats
+# package, and dwtest and bptest from Debian's r-cran-lmtest (the model-form
+# checks under "form"), on published data sets shipped in R's datasets package and
 # on three small data sets of our own, generated here with set.seed in an
 # invented scenario (a calibration bench at the fictitious "Ketterby
 # instrument workshop").
@@ -40,9 +43,17 @@ jsarr <- function(x) paste0("[", paste(vapply(x, jstr, ""), collapse = ", "), "]
 #   terms:      the same model in plumb's term notation
 #   response:   the data column holding the response
 #   transform:  "" or "log" (the response in R's formula is log(response))
+#   weights:    NULL, or the row weights R fits with (lm(weights = ))
+#   weighting:  the same weights in plumb's weighting notation
+#   coef_names: plumb's coefficient names when they are not the terms
+#               (group terms expand to one name per coded level)
+#   num_cols, text_cols: the data columns written as numbers and as text
+#               (by default the formula's variables, all numeric)
 write_case <- function(name, source, data, formula, response, terms,
-                       intercept = TRUE, transform = "", labels = rownames(data)) {
-  fit <- lm(formula, data = data)
+                       intercept = TRUE, transform = "", labels = rownames(data),
+                       weights = NULL, weighting = "", coef_names = NULL,
+                       num_cols = NULL, text_cols = character()) {
+  fit <- do.call("lm", list(formula = formula, data = data, weights = weights))
   s <- summary(fit)
   X <- model.matrix(fit)
   n <- nrow(X); p <- ncol(X)
@@ -59,18 +70,21 @@ write_case <- function(name, source, data, formula, response, terms,
   bp <- pmin(1, n * op)
   cf <- coef(s)
   ci <- confint(fit, level = 0.95)
-  coef_names <- c(if (intercept) "intercept", terms)
+  if (is.null(coef_names)) coef_names <- c(if (intercept) "intercept", terms)
   stopifnot(length(coef_names) == p)
+  wv <- if (is.null(weights)) rep(1, n) else weights
 
   # VIF_j = 1/(1 - R_j^2), the diagonal of the inverse correlation matrix
   # of the non-intercept columns (defined only with an intercept and at
   # least two other terms).
   vif <- NULL
+  # (Weighted: the correlation matrix weighted by the row weights.)
   if (intercept && p >= 3) {
-    vif <- diag(solve(cor(X[, -1, drop = FALSE])))
+    vif <- diag(solve(cov.wt(X[, -1, drop = FALSE], wt = wv, cor = TRUE)$cor))
+    names(vif) <- coef_names[-1]
   }
 
-  cols <- unique(c(response, all.vars(formula)[-1]))
+  cols <- if (is.null(num_cols)) unique(c(response, all.vars(formula)[-1])) else num_cols
   L <- character()
   add <- function(...) L <<- c(L, paste0(...))
   add("{")
@@ -91,6 +105,19 @@ write_case <- function(name, source, data, formula, response, terms,
     add("    ", jstr(cols[i]), ": ", jdata(data[[cols[i]]]), if (i < length(cols)) "," else "")
   }
   add("  },")
+  if (length(text_cols) > 0) {
+    add("  \"text_data\": {")
+    for (i in seq_along(text_cols)) {
+      add("    ", jstr(text_cols[i]), ": ", jsarr(as.character(data[[text_cols[i]]])),
+          if (i < length(text_cols)) "," else "")
+    }
+    add("  },")
+  }
+  if (!is.null(weights)) {
+    add("  \"weighting\": ", jstr(weighting), ",")
+    add("  \"weights\": ", jarr(weights), ",")
+  }
+  add("  \"coefficient_names\": ", jsarr(coef_names), ",")
   add("  \"coefficients\": [")
   for (j in seq_len(p)) {
     add("    {\"term\": ", jstr(coef_names[j]),
@@ -110,7 +137,7 @@ write_case <- function(name, source, data, formula, response, terms,
     add("  \"f_p\": ", jnum(pf(fs[1], fs[2], fs[3], lower.tail = FALSE)), ",")
   }
   if (!is.null(vif)) {
-    add("  \"vif\": {", paste(paste0(vapply(terms, jstr, ""), ": ", jnum(vif)), collapse = ", "), "},")
+    add("  \"vif\": {", paste(paste0(vapply(names(vif), jstr, ""), ": ", jnum(vif)), collapse = ", "), "},")
   }
   add("  \"residuals\": ", jarr(residuals(fit)), ",")
   add("  \"hat\": ", jarr(h), ",")
@@ -123,12 +150,57 @@ write_case <- function(name, source, data, formula, response, terms,
   add("  ],")
   add("  \"covratio\": ", jarr(cvr), ",")
   add("  \"outlier_p\": ", jarr(op), ",")
-  add("  \"outlier_p_bonferroni\": ", jarr(bp))
+  add("  \"outlier_p_bonferroni\": ", jarr(bp), ",")
+  add("  \"form\": ", form_checks(fit, X, wv, intercept))
   add("}")
   path <- file.path(out_dir, paste0(name, ".json"))
   writeLines(L, path)
   cat("wrote", path, "\n")
 }
+
+# form_checks computes the model-form checks of a fit (weighted versions
+# on the rows sqrt(w) [x y] when the fit is weighted):
+#   lack of fit: anova(fit, lm(y ~ factor(setting), weights = w)), the
+#     settings being the distinct design rows; null without replicates or
+#     with no more settings than coefficients;
+#   Durbin-Watson: lmtest::dwtest on the scaled rows, in row order, p for
+#     positive autocorrelation, exactly (Pan's algorithm, exact = TRUE)
+#     and by the normal approximation with the exact moments (exact = FALSE);
+#   studentized Breusch-Pagan (Koenker): lmtest::bptest on the scaled rows,
+#     the variance regressed on the model's own (scaled) columns;
+#   PRESS = sum w (e/(1-h))^2 and predicted R^2 = 1 - PRESS/TSS.
+form_checks <- function(fit, X, wv, intercept) {
+  n <- nrow(X); p <- ncol(X)
+  yv <- model.response(model.frame(fit))
+  sw <- sqrt(wv)
+  Xs <- unname(X * sw)
+  ys <- unname(yv * sw)
+  setting <- factor(apply(X, 1, function(r) paste(sprintf("%.17g", r), collapse = ",")))
+  g <- nlevels(setting)
+  lof <- "null"
+  if (g > p && n > g) {
+    reduced <- lm(yv ~ 0 + X, weights = wv)
+    full <- lm(yv ~ setting, weights = wv)
+    a <- anova(reduced, full)
+    lof <- paste0("{\"groups\": ", g, ", \"pure_error_df\": ", a$Res.Df[2],
+                  ", \"lack_of_fit_df\": ", a$Df[2], ", \"f\": ", jnum(a$F[2]),
+                  ", \"p\": ", jnum(a[2, "Pr(>F)"]), "}")
+  }
+  dwe <- dwtest(ys ~ 0 + Xs, exact = TRUE)
+  dwa <- dwtest(ys ~ 0 + Xs, exact = FALSE)
+  bp <- bptest(ys ~ 0 + Xs, studentize = TRUE)
+  h <- hatvalues(fit)
+  press <- sum(wv * (residuals(fit) / (1 - h))^2)
+  tss <- if (intercept) sum(wv * (yv - weighted.mean(yv, wv))^2) else sum(wv * yv^2)
+  paste0("{\"lack_of_fit\": ", lof,
+         ", \"durbin_watson\": {\"statistic\": ", jnum(dwe$statistic),
+         ", \"p_exact\": ", jnum(dwe$p.value), ", \"p_normal\": ", jnum(dwa$p.value), "}",
+         ", \"breusch_pagan\": {\"statistic\": ", jnum(bp$statistic),
+         ", \"df\": ", bp$parameter, ", \"p\": ", jnum(bp$p.value), "}",
+         ", \"press\": ", jnum(press), ", \"predicted_r_squared\": ", jnum(1 - press / tss), "}")
+}
+
+suppressPackageStartupMessages(library(lmtest))
 
 # Published data sets from R's datasets package.
 
@@ -327,3 +399,143 @@ write_predictions("ketterby_balance",
   "invented: Ketterby instrument workshop, balance check-weight drift (set.seed(99))",
   balance, dev_mg ~ day + log(rh_pct), "dev_mg", c("day", "log(rh_pct)"),
   data.frame(day = c(1, 13, 30), rh_pct = c(30, 47.5, 70)))
+
+# Weighted and grouped cases.
+
+# byte_factor makes a factor whose levels are in byte order (plumb's
+# reference level is the first in byte order).
+byte_factor <- function(x) {
+  x <- as.character(x)
+  factor(x, levels = sort(unique(x), method = "radix"))
+}
+
+# 4. cars weighted by 1/speed (variance growing with speed).
+write_case("cars_weighted_inverse_speed",
+  "R datasets::cars; Ezekiel (1930); weighted by 1/speed",
+  cars, dist ~ speed, "dist", c("speed"),
+  weights = 1 / cars$speed, weighting = "inverse(speed)")
+
+# 5. Invented: Ketterby workshop photometer calibration, five replicates at
+# eight standards, standard deviation proportional to concentration,
+# weighted by 1/conc^2 (replicates give the lack-of-fit test its pure error).
+set.seed(4242)
+conc <- rep(c(0.5, 1, 2, 5, 10, 20, 50, 100), each = 5)
+absb <- round(0.004 + 0.0213 * conc - 0.0000242 * conc^2 + rnorm(40, sd = 0.02 * 0.0213 * conc), 5)
+absb[23] <- absb[23] * 1.12
+photo <- data.frame(conc = conc, abs = absb)
+write_case("ketterby_photometer_weighted",
+  "invented: Ketterby instrument workshop, photometer calibration, weights 1/conc^2 (set.seed(4242))",
+  photo, abs ~ conc, "abs", c("conc"),
+  weights = 1 / photo$conc^2, weighting = "inverse(conc^2)",
+  labels = sprintf("std-%02d", 1:40))
+
+# 6. R datasets::CO2: uptake against ambient CO2 concentration with the
+# treatment as a group: separate intercepts and slopes per treatment.
+co2 <- data.frame(uptake = CO2$uptake, conc = CO2$conc, treatment = as.character(CO2$Treatment))
+co2$tf <- byte_factor(co2$treatment)
+write_case("co2_group_slopes",
+  "R datasets::CO2; Potvin, Lechowicz & Tardif (1990), Ecology 71:1389",
+  co2, uptake ~ tf + conc + tf:conc, "uptake",
+  c("group(treatment)", "conc", "group(treatment)*conc"),
+  coef_names = c("intercept", "treatment=nonchilled", "conc", "treatment=nonchilled*conc"),
+  num_cols = c("uptake", "conc"), text_cols = "treatment")
+
+# 7. Invented: Ketterby workshop reagent stability study, assay (% of label)
+# of three batches over 0-18 months; batch labels are text, the months*batch
+# spelling, and a column of weights (1/variance of each assay, measured).
+set.seed(1701)
+months <- rep(c(0, 3, 6, 9, 12, 18), times = 3)
+batch <- rep(c("K-207", "K-115", "K-309"), each = 6)
+slope <- c(-0.21, -0.18, -0.26)[match(batch, c("K-207", "K-115", "K-309"))]
+start <- c(100.4, 99.8, 100.9)[match(batch, c("K-207", "K-115", "K-309"))]
+assay <- round(start + slope * months + rnorm(18, sd = 0.25), 2)
+wvar <- round(1 / (0.04 + 0.002 * months + runif(18, 0, 0.02)), 3)
+stab <- data.frame(assay = assay, months = months, batch = batch, w = wvar)
+stab$bf <- byte_factor(stab$batch)
+write_case("ketterby_stability_batches",
+  "invented: Ketterby instrument workshop, reagent stability study, three batches, measured weights (set.seed(1701))",
+  stab, assay ~ bf + months + months:bf, "assay",
+  c("group(batch)", "months", "months*group(batch)"),
+  coef_names = c("intercept", "batch=K-207", "batch=K-309", "months",
+                 "months*batch=K-207", "months*batch=K-309"),
+  weights = stab$w, weighting = "w",
+  num_cols = c("assay", "months", "w"), text_cols = "batch",
+  labels = sprintf("%s-m%02d", batch, months))
+
+# Poolability of the stability batches (ICH Q1E: slopes, then intercepts),
+# weighted as above: anova(common, separate) and anova(pooled, common).
+pool_case <- function(name, source, data, wts) {
+  sep <- lm(assay ~ bf + months + bf:months, data = data, weights = wts)
+  com <- lm(assay ~ bf + months, data = data, weights = wts)
+  poo <- lm(assay ~ months, data = data, weights = wts)
+  a1 <- anova(com, sep)
+  a2 <- anova(poo, com)
+  L <- c("{",
+    paste0("  \"source\": ", jstr(source), ","),
+    paste0("  \"oracle\": ", jstr("R stats: lm(weights = ), anova"), ","),
+    paste0("  \"r_version\": ", jstr(R.version.string), ","),
+    paste0("  \"assay\": ", jdata(data$assay), ","),
+    paste0("  \"months\": ", jdata(data$months), ","),
+    paste0("  \"batch\": ", jsarr(data$batch), ","),
+    paste0("  \"w\": ", jdata(data$w), ","),
+    paste0("  \"slopes\": {\"f\": ", jnum(a1$F[2]), ", \"df1\": ", a1$Df[2], ", \"df2\": ", a1$Res.Df[2],
+           ", \"p\": ", jnum(a1[2, "Pr(>F)"]), "},"),
+    paste0("  \"intercepts\": {\"f\": ", jnum(a2$F[2]), ", \"df1\": ", a2$Df[2], ", \"df2\": ", a2$Res.Df[2],
+           ", \"p\": ", jnum(a2[2, "Pr(>F)"]), "}"),
+    "}")
+  dir.create(file.path(out_dir, "pool"), showWarnings = FALSE)
+  path <- file.path(out_dir, "pool", paste0(name, ".json"))
+  writeLines(L, path)
+  cat("wrote", path, "\n")
+}
+pool_case("ketterby_stability_batches",
+  "invented: Ketterby instrument workshop, reagent stability study, three batches, measured weights (set.seed(1701))",
+  stab, stab$w)
+# The same batches with a common slope (the K-115 and K-309 slopes set to
+# K-207's), so that the intercept test is reached.
+stab2 <- stab
+stab2$assay <- round(stab$assay - (slope + 0.21) * stab$months, 2)
+pool_case("ketterby_stability_common_slope",
+  "invented: Ketterby stability study with a common slope (derived from the above)",
+  stab2, stab2$w)
+# ... and one line for all: 100.4 - 0.21 months plus the residuals of the
+# separate lines (which average zero within each batch).
+stab3 <- stab
+stab3$assay <- round(100.4 - 0.21 * stab$months +
+  residuals(lm(assay ~ bf + months + bf:months, data = stab, weights = w)), 2)
+pool_case("ketterby_stability_one_line",
+  "invented: Ketterby stability study with one line for all batches (derived from the above)",
+  stab3, stab3$w)
+
+# 8. Invented: Ketterby workshop balance check over four numbered lots
+# (numbers used as labels: byte order puts lot 10 before lot 2) without an
+# intercept, so every lot gets its own level.
+set.seed(515)
+lot <- rep(c(2, 3, 10, 11), each = 7)
+temp <- round(runif(28, 18, 26), 1)
+drift <- round(c(0.12, -0.05, 0.31, 0.02)[match(lot, c(2, 3, 10, 11))] + 0.015 * temp + rnorm(28, sd = 0.03), 3)
+lots <- data.frame(drift = drift, lot = lot, temp = temp)
+lots$lf <- byte_factor(lots$lot)
+write_case("ketterby_lots_no_intercept",
+  "invented: Ketterby instrument workshop, balance drift over numbered lots (set.seed(515))",
+  lots, drift ~ 0 + lf + temp, "drift", c("group(lot)", "temp"),
+  intercept = FALSE,
+  coef_names = c("lot=10", "lot=11", "lot=2", "lot=3", "temp"),
+  num_cols = c("drift", "lot", "temp"),
+  labels = sprintf("lot%d-%d", lot, rep(1:7, 4)))
+
+# 9. NIST StRD Pontius (public domain): deflection of a load cell against
+# load, 20 loads each measured twice, so the lack-of-fit test has pure
+# error. These are, from memory, the data of the NIST/SEMATECH
+# e-Handbook's load-cell calibration case study (section 4.6.1), which
+# fits a quadratic after the straight line shows curvature; both fits are
+# written (R's lack-of-fit test rejects the line, not the quadratic).
+pontius <- data.frame(
+  load = c(150000, 300000, 450000, 600000, 750000, 900000, 1050000, 1200000, 1350000, 1500000, 1650000, 1800000, 1950000, 2100000, 2250000, 2400000, 2550000, 2700000, 2850000, 3000000, 150000, 300000, 450000, 600000, 750000, 900000, 1050000, 1200000, 1350000, 1500000, 1650000, 1800000, 1950000, 2100000, 2250000, 2400000, 2550000, 2700000, 2850000, 3000000),
+  deflection = c(0.11019, 0.21956, 0.32949, 0.43899, 0.54803, 0.65694, 0.76562, 0.87487, 0.98292, 1.09146, 1.20001, 1.30822, 1.41599, 1.52399, 1.63194, 1.73947, 1.84646, 1.95392, 2.06128, 2.16844, 0.11052, 0.22018, 0.32939, 0.43886, 0.54798, 0.65739, 0.76596, 0.87474, 0.983, 1.0915, 1.20004, 1.30818, 1.41613, 1.52408, 1.63159, 1.73965, 1.84696, 1.95445, 2.06177, 2.16829))
+write_case("pontius_line",
+  "NIST StRD Pontius (load cell calibration), straight line",
+  pontius, deflection ~ load, "deflection", c("load"))
+write_case("pontius_quadratic",
+  "NIST StRD Pontius (load cell calibration), quadratic (the certified model)",
+  pontius, deflection ~ load + I(load^2), "deflection", c("load", "load^2"))
