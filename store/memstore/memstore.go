@@ -59,6 +59,7 @@ type Store struct {
 	dels     []store.Delivery // ascending id
 	delIdx   map[int64]int
 	delEvent map[[2]string]bool
+	dec      decisions // decide.go
 }
 
 // New returns an empty store.
