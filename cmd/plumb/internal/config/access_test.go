@@ -60,7 +60,7 @@ trusted = ["10.1.2.3", "10.1.2.0/24"]
 	}
 	for _, tt := range []struct {
 		token, remote, user string
-		want               access.User
+		want                access.User
 	}{
 		{"reviewer-token-0123456789abcdef", "192.0.2.1:1", "", access.User{Name: "r.okafor", Role: access.Reviewer, Via: "token"}},
 		{"operator-token-0123456789abcdef", "192.0.2.1:1", "", access.User{Name: "l.hart", Role: access.Operator, Via: "token"}},
