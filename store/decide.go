@@ -60,6 +60,14 @@ type Decisions interface {
 	// end after the time after (zero: all), oldest first (by ID).
 	QuietPeriods(ctx context.Context, model string, after time.Time) ([]QuietPeriod, error)
 
+	// PutAlertAudited is Store.PutAlert that, in the same transaction,
+	// appends the audit record that audit derives from the stored alert
+	// (nil when there is none) and the record written, if audit returns
+	// ok. A write that fails (ErrChanged included) stores neither. The
+	// record's Seq, Prev and Hash are set by the store; its At, when zero,
+	// by the store's clock.
+	PutAlertAudited(ctx context.Context, a AlertRecord, deliveries []Delivery, audit AlertAudit) error
+
 	// AppendAudit appends a record of an action taken elsewhere (an alert
 	// acknowledged or resolved, a summary sent) and returns it with Seq,
 	// At (when zero), Prev and Hash set. Seq, Prev and Hash given are
@@ -71,6 +79,12 @@ type Decisions interface {
 	// returns the records exactly as stored, for VerifyAudit.
 	Audit(ctx context.Context, q AuditQuery) ([]AuditRecord, error)
 }
+
+// AlertAudit derives the audit record of an alert write from the stored
+// alert before it (nil for a new alert) and the alert written; ok false
+// means the write needs no record (for instance only LastSeen moved). It
+// runs inside the store's transaction: it must not call the store.
+type AlertAudit func(before *AlertRecord, after AlertRecord) (rec AuditRecord, ok bool)
 
 // ErrConflict is returned (wrapped) for a decision that contradicts the
 // current state: excluding an excluded reading, reinstating one that is
@@ -90,6 +104,8 @@ const (
 	ActionQuietEnd    = "quiet_end"
 	ActionAcknowledge = "acknowledge"
 	ActionResolve     = "resolve"
+	ActionOpen        = "open"   // an alert raised (by plumb)
+	ActionReopen      = "reopen" // a resolved alert raised again
 )
 
 // Decision is the exclusion or reinstatement of one reading.

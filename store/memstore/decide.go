@@ -218,3 +218,19 @@ func (s *Store) Audit(ctx context.Context, q store.AuditQuery) ([]store.AuditRec
 	}
 	return out, nil
 }
+
+// PutAlertAudited implements store.Decisions.
+func (s *Store) PutAlertAudited(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery, audit store.AlertAudit) error {
+	return s.putAlert(ctx, a, deliveries, func(old *store.AlertRecord) error {
+		rec, ok := audit(old, a)
+		if !ok {
+			return nil
+		}
+		if err := store.CheckAudit(rec); err != nil {
+			return err
+		}
+		rec.At = s.stamp(rec.At)
+		s.appendAudit(rec)
+		return nil
+	})
+}

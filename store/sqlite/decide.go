@@ -393,3 +393,30 @@ func (db *DB) Audit(ctx context.Context, q store.AuditQuery) ([]store.AuditRecor
 	}
 	return out, nil
 }
+
+// PutAlertAudited implements store.Decisions.
+func (db *DB) PutAlertAudited(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery, audit store.AlertAudit) error {
+	return db.putAlert(ctx, a, deliveries, func(tx *sql.Tx) error {
+		var old *store.AlertRecord
+		var stored store.AlertRecord
+		switch err := scanAlert(tx.QueryRowContext(ctx, alertSelect+"WHERE id = ?", a.ID), &stored); {
+		case err == nil:
+			old = &stored
+		case !errors.Is(err, sql.ErrNoRows):
+			return err
+		}
+		rec, ok := audit(old, a)
+		if !ok {
+			return nil
+		}
+		if err := store.CheckAudit(rec); err != nil {
+			return err
+		}
+		rec.At = db.stamp(rec.At)
+		if _, err := encTime(rec.At); err != nil {
+			return fmt.Errorf("%w: %v", store.ErrInvalid, err)
+		}
+		_, err := appendAudit(ctx, tx, rec)
+		return err
+	})
+}

@@ -38,6 +38,7 @@ func RunDecisions(t *testing.T, open DecisionOpener) {
 		{"DecisionRefused", testDecisionRefused},
 		{"Rebaseline", testRebaseline},
 		{"QuietPeriods", testQuietPeriods},
+		{"AlertAudited", testAlertAudited},
 		{"AuditChain", testAuditChain},
 		{"AuditVector", testAuditVector},
 		{"AuditQuery", testAuditQuery},
@@ -546,5 +547,74 @@ func testDecisionsCancelled(t *testing.T, s DecisionStore) {
 	}
 	if recs := trail(t, s); len(recs) != 0 {
 		t.Errorf("%d audit records after cancelled writes, want 0", len(recs))
+	}
+}
+
+// alertChange is the AlertAudit of testAlertAudited: a record for a new
+// alert and for every change of state, by the actor given, none for a
+// write that changes no state.
+func alertChange(actor string, seen *[]*store.AlertRecord) store.AlertAudit {
+	return func(before *store.AlertRecord, after store.AlertRecord) (store.AuditRecord, bool) {
+		*seen = append(*seen, before)
+		from := ""
+		if before != nil {
+			if before.State == after.State {
+				return store.AuditRecord{}, false
+			}
+			from = fmt.Sprintf(`{"state":%q}`, before.State)
+		}
+		return store.AuditRecord{Actor: actor, Action: "alert_" + after.State, Model: after.Model, Subject: after.ID,
+			Before: from, After: fmt.Sprintf(`{"state":%q}`, after.State)}, true
+	}
+}
+
+func testAlertAudited(t *testing.T, s DecisionStore) {
+	ctx := ctxT(t)
+	var seen []*store.AlertRecord
+	a := alert("al-1", "cal", "suspect_point", "a.csv:9", t0)
+	a.Revision = 1
+	if err := s.PutAlertAudited(ctx, a, []store.Delivery{{Route: "log", EventID: "e1", Payload: []byte("{}")}}, alertChange("plumb", &seen)); err != nil {
+		t.Fatal(err)
+	}
+	if len(seen) != 1 || seen[0] != nil {
+		t.Fatalf("the deriver saw %v, want nil (a new alert)", seen)
+	}
+	// Seen again: no state change, no record.
+	a.Revision, a.LastSeen = 2, t0.Add(time.Minute)
+	if err := s.PutAlertAudited(ctx, a, nil, alertChange("plumb", &seen)); err != nil {
+		t.Fatal(err)
+	}
+	if seen[1] == nil || seen[1].State != "open" || seen[1].Revision != 1 {
+		t.Errorf("the deriver saw %+v, want the stored alert at revision 1", seen[1])
+	}
+	// A stale conditional write stores neither the alert nor the record.
+	stale := a
+	stale.State, stale.Revision = "acknowledged", 2
+	if err := s.PutAlertAudited(ctx, stale, nil, alertChange("l.hart", &seen)); !errors.Is(err, store.ErrChanged) {
+		t.Fatalf("stale write: %v, want ErrChanged", err)
+	}
+	// A record without an actor is refused, and the alert is not written.
+	ack := a
+	ack.State, ack.Revision = "acknowledged", 3
+	if err := s.PutAlertAudited(ctx, ack, nil, alertChange("", &seen)); !errors.Is(err, store.ErrInvalid) {
+		t.Fatalf("record without actor: %v, want ErrInvalid", err)
+	}
+	if got, err := s.Alert(ctx, "al-1"); err != nil || got.State != "open" || got.Revision != 2 {
+		t.Fatalf("alert after refused writes = %+v, %v; want open at revision 2", got, err)
+	}
+	if err := s.PutAlertAudited(ctx, ack, nil, alertChange("l.hart", &seen)); err != nil {
+		t.Fatal(err)
+	}
+	if got, _ := s.Alert(ctx, "al-1"); got.State != "acknowledged" || got.Revision != 3 {
+		t.Errorf("alert = %+v, want acknowledged at revision 3", got)
+	}
+	recs := trail(t, s)
+	if len(recs) != 2 || recs[0].Action != "alert_open" || recs[0].Before != "" || recs[1].Actor != "l.hart" ||
+		recs[1].Before != `{"state":"open"}` || recs[1].After != `{"state":"acknowledged"}` || recs[1].Subject != "al-1" {
+		t.Errorf("trail = %+v", recs)
+	}
+	intact(t, s, 2)
+	if ds, _ := s.Deliveries(ctx, "", 0); len(ds) != 1 {
+		t.Errorf("%d deliveries, want 1", len(ds))
 	}
 }
