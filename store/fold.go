@@ -69,3 +69,28 @@ func QuietAt(qs []QuietPeriod, model string, t time.Time) []QuietPeriod {
 	}
 	return out
 }
+
+// QuietUntil returns when the quiet of model that covers t ends: the end
+// of the covering period, followed through periods that overlap or touch
+// it. ok is false when no period covers t. The daemon holds the model's
+// deliveries until then, and at that time sends one summary of the
+// alerts still open.
+func QuietUntil(qs []QuietPeriod, model string, t time.Time) (end time.Time, ok bool) {
+	for _, q := range QuietAt(qs, model, t) {
+		if q.End.After(end) {
+			end, ok = q.End, true
+		}
+	}
+	for ok {
+		grown := false
+		for _, q := range qs {
+			if (q.Model == "" || q.Model == model) && !q.Start.After(end) && q.End.After(end) {
+				end, grown = q.End, true
+			}
+		}
+		if !grown {
+			break
+		}
+	}
+	return end, ok
+}
