@@ -23,8 +23,7 @@ const decideUsage = `Decide records, in the state database, a decision that qual
 took after an alert, with the operating-system user as the one who decided
 and a reason, which is required. Each decision is written with its record
 in the audit trail in one transaction; the command prints it only after
-the commit. It works beside a running daemon, which takes decisions into
-account from its next refresh.
+the commit. It works beside a running daemon.
 
 plumb never deletes or alters a measurement: a reading set aside stays
 stored with its values, provenance and history, and is only left out of
