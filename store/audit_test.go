@@ -286,3 +286,20 @@ func FuzzAuditChain(f *testing.F) {
 		}
 	})
 }
+
+func TestNotes(t *testing.T) {
+	at := time.Date(2026, 5, 4, 23, 30, 0, 0, time.FixedZone("UTC-2", -2*3600))
+	tests := []struct{ got, want string }{
+		{store.Decision{Action: store.ActionExclude, Actor: "r.okafor", At: at, Reason: "valve left open"}.Note(),
+			"set aside by r.okafor on 2026-05-05: valve left open"},
+		{store.Decision{Action: store.ActionReinstate, Actor: "m.silva", At: at, Reason: "re-run agrees"}.Note(),
+			"reinstated by m.silva on 2026-05-05: re-run agrees"},
+		{store.Rebaseline{From: at, Actor: "t.berg", Reason: "sensor replaced"}.Note(),
+			"re-baselined from 2026-05-05 01:30 UTC by t.berg: sensor replaced"},
+	}
+	for _, tt := range tests {
+		if tt.got != tt.want {
+			t.Errorf("note %q, want %q", tt.got, tt.want)
+		}
+	}
+}

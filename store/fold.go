@@ -94,3 +94,21 @@ func QuietUntil(qs []QuietPeriod, model string, t time.Time) (end time.Time, ok 
 	}
 	return end, ok
 }
+
+// Note is the words every view shows beside a reading set aside, and the
+// note its alert resolves with: "set aside by r.okafor on 2026-05-04:
+// valve left open" (the date in UTC). A reinstatement reads "reinstated
+// by ...".
+func (d Decision) Note() string {
+	verb := "set aside"
+	if d.Action == ActionReinstate {
+		verb = "reinstated"
+	}
+	return verb + " by " + d.Actor + " on " + d.At.UTC().Format(time.DateOnly) + ": " + d.Reason
+}
+
+// Note is the note drift alerts raised before the event resolve with:
+// "re-baselined from 2026-05-04 08:00 UTC by t.berg: sensor replaced".
+func (r Rebaseline) Note() string {
+	return "re-baselined from " + r.From.UTC().Format("2006-01-02 15:04") + " UTC by " + r.Actor + ": " + r.Reason
+}
