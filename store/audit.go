@@ -211,3 +211,30 @@ func movedFrom(r AuditRecord) (int64, bool) {
 	}
 	return 0, false
 }
+
+// BreakCut: a record whose number and hash were kept apart from the
+// database is gone or different: records were cut from the end of the
+// trail (or the trail was rewritten from some record on).
+const BreakCut = "cut"
+
+// CheckKept checks a record number and hash kept apart from the database
+// (an AuditReport.Head printed earlier) against the trail: the record
+// must still be there with the same hash. Together with VerifyAudit this
+// detects records cut from the end, which no chain shows by itself. It
+// returns nil when the record is there unchanged; the error is only for a
+// failure to read.
+func CheckKept(ctx context.Context, src AuditSource, seq int64, hash string) (*ChainBreak, error) {
+	recs, err := src.Audit(ctx, AuditQuery{AfterSeq: seq - 1, Limit: 1})
+	if err != nil {
+		return nil, fmt.Errorf("check kept audit record %d: %w", seq, err)
+	}
+	switch {
+	case len(recs) == 0 || recs[0].Seq != seq:
+		return &ChainBreak{Seq: seq, Kind: BreakCut,
+			Detail: fmt.Sprintf("record %d, whose hash was kept, is no longer in the trail (records cut from the end)", seq)}, nil
+	case !strings.EqualFold(recs[0].Hash, hash):
+		return &ChainBreak{Seq: seq, Kind: BreakCut,
+			Detail: fmt.Sprintf("record %d has hash %s, the kept hash is %s (the trail was rewritten)", seq, recs[0].Hash, hash)}, nil
+	}
+	return nil, nil
+}

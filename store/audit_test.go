@@ -303,3 +303,36 @@ func TestNotes(t *testing.T) {
 		}
 	}
 }
+
+func TestCheckKept(t *testing.T) {
+	c := chain(10)
+	kept := c[7]
+	tests := []struct {
+		name   string
+		trail  trailOf
+		seq    int64
+		hash   string
+		broken bool
+	}{
+		{"there", c, kept.Seq, kept.Hash, false},
+		{"there, upper-case hex", c, kept.Seq, strings.ToUpper(kept.Hash), false},
+		{"cut from the end", c[:6], kept.Seq, kept.Hash, true},
+		{"rewritten", func() trailOf {
+			d := append(trailOf(nil), c...)
+			d[7].Reason = "rewritten"
+			d[7] = store.Seal(d[7], d[6])
+			return d
+		}(), kept.Seq, kept.Hash, true},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			b, err := store.CheckKept(context.Background(), tt.trail, tt.seq, tt.hash)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if (b != nil) != tt.broken || (b != nil && (b.Kind != store.BreakCut || b.Seq != tt.seq)) {
+				t.Errorf("CheckKept = %v, want broken %v", b, tt.broken)
+			}
+		})
+	}
+}

@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"strconv"
+	"strings"
 	"time"
 
 	"plumb/store"
@@ -18,12 +20,13 @@ const auditUsage = `Audit works on the audit trail of the state database: the ap
 record of every decision and every change of an alert's state, each record
 chained to the one before by a SHA-256 hash.
 
-  plumb audit verify --config FILE
+  plumb audit verify --config FILE [--kept SEQ:HASH]
       walks the whole chain and reports the first break: a record edited,
       deleted, or moved. It prints the last record's number and hash: keep
       them apart from the database (a signed note, the quality office), as
-      only they show that records were cut from the end. Exit 0 when the
-      chain is intact, 1 when it is broken.
+      only they show that records were cut from the end; --kept checks such
+      a pair, given as printed ("412:9f3a..."). Exit 0 when the chain is
+      intact, 1 when it is broken.
 
   plumb audit export --config FILE [--from TIME] [--to TIME] [--format csv|json] [--out FILE]
       writes the records of a period [from, to) as CSV or JSON, every field
@@ -36,6 +39,7 @@ func runAudit(ctx context.Context, e *env, args []string) error {
 	to := fs.String("to", "", "export records before `TIME`")
 	format := fs.String("format", "csv", "export format: csv or json")
 	out := fs.String("out", "", "write the export to `FILE` (default: standard output)")
+	kept := fs.String("kept", "", "verify: a record number and hash kept apart, as `SEQ:HASH`")
 	pos, err := parseFlags(fs, args)
 	if err != nil {
 		return err
@@ -54,7 +58,17 @@ func runAudit(ctx context.Context, e *env, args []string) error {
 		return fmt.Errorf("audit: the state database keeps no audit trail")
 	}
 	if pos[0] == "verify" {
-		return auditVerify(ctx, e, dec)
+		var seq int64
+		var hash string
+		if *kept != "" {
+			n, h, ok := strings.Cut(*kept, ":")
+			v, err := strconv.ParseInt(n, 10, 64)
+			if !ok || err != nil || v < 1 || len(h) != 64 {
+				return fmt.Errorf("audit verify: %w: --kept wants SEQ:HASH (a record number and its 64-digit hash), got %q", errUsage, *kept)
+			}
+			seq, hash = v, h
+		}
+		return auditVerify(ctx, e, dec, seq, hash)
 	}
 	if *format != "csv" && *format != "json" {
 		return fmt.Errorf("audit export: %w: --format wants csv or json, got %q", errUsage, *format)
@@ -108,10 +122,21 @@ func writeAudit(w io.Writer, format string, recs []store.AuditRecord, q store.Au
 	return store.WriteAuditCSV(w, recs)
 }
 
-func auditVerify(ctx context.Context, e *env, dec store.Decisions) error {
+func auditVerify(ctx context.Context, e *env, dec store.Decisions, keptSeq int64, keptHash string) error {
 	rep, err := store.VerifyAudit(ctx, dec)
 	if err != nil {
 		return err
+	}
+	if rep.Break == nil && keptSeq > 0 {
+		b, err := store.CheckKept(ctx, dec, keptSeq, keptHash)
+		if err != nil {
+			return err
+		}
+		if b != nil {
+			fmt.Fprintf(e.stdout, "audit trail BROKEN at record %d (%s): %s\n", b.Seq, b.Kind, b.Detail)
+			return &exitError{code: 1, err: fmt.Errorf("audit trail broken at record %d", b.Seq)}
+		}
+		fmt.Fprintf(e.stdout, "kept record %d is in the trail with its hash\n", keptSeq)
 	}
 	if rep.Break != nil {
 		fmt.Fprintf(e.stdout, "audit trail BROKEN at record %d (%s): %s\n", rep.Break.Seq, rep.Break.Kind, rep.Break.Detail)
@@ -124,8 +149,8 @@ func auditVerify(ctx context.Context, e *env, dec store.Decisions) error {
 		fmt.Fprintln(e.stdout, "audit trail intact: no records yet")
 		return nil
 	}
-	fmt.Fprintf(e.stdout, "audit trail intact: %d records\nlast record %d at %s, hash %s\n", rep.Records, rep.Head.Seq,
-		rep.Head.At.Local().Format(time.DateTime), rep.Head.Hash)
+	fmt.Fprintf(e.stdout, "audit trail intact: %d records\nlast record %d at %s: %d:%s\n", rep.Records, rep.Head.Seq,
+		rep.Head.At.Local().Format(time.DateTime), rep.Head.Seq, rep.Head.Hash)
 	fmt.Fprintln(e.stdout, "Keep the last record's number and hash apart from the database: only they show records cut from the end.")
 	return nil
 }

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"testing"
 	"time"
@@ -114,6 +115,24 @@ func TestDecideAndAudit(t *testing.T) {
 	out = mustRun(t, "audit", "verify", "--config", cfg)
 	if !strings.Contains(out, "audit trail intact: 6 records") {
 		t.Errorf("verify printed %q", out)
+	}
+	// The printed head, kept apart, checks the end of the trail later.
+	head := regexp.MustCompile(`\b6:[0-9a-f]{64}\b`).FindString(out)
+	if head == "" {
+		t.Fatalf("verify printed no head: %q", out)
+	}
+	if out := mustRun(t, "audit", "verify", "--config", cfg, "--kept", head); !strings.Contains(out, "kept record 6 is in the trail") {
+		t.Errorf("verify --kept printed %q", out)
+	}
+	forged := head[:len(head)-1] + map[bool]string{true: "0", false: "1"}[head[len(head)-1] != '0']
+	if out, _, code := runPlumb(t, "", "audit", "verify", "--config", cfg, "--kept", forged); code != 1 || !strings.Contains(out, "(cut)") {
+		t.Errorf("verify --kept with another hash: exit %d, %q", code, out)
+	}
+	if out, _, code := runPlumb(t, "", "audit", "verify", "--config", cfg, "--kept", "7:"+head[2:]); code != 1 || !strings.Contains(out, "no longer in the trail") {
+		t.Errorf("verify --kept past the end: exit %d, %q", code, out)
+	}
+	if _, _, code := runPlumb(t, "", "audit", "verify", "--config", cfg, "--kept", "x"); code != 2 {
+		t.Errorf("verify --kept x: exit %d, want 2", code)
 	}
 
 	csvOut := mustRun(t, "audit", "export", "--config", cfg, "--format", "csv")
