@@ -25,7 +25,8 @@
 //     when configured, still works: it acts as an operator named
 //     "shared token" (it acknowledges and resolves as before, and cannot
 //     decide about readings). A bearer that matches nothing is refused
-//     (ErrBadToken), never downgraded.
+//     (ErrBadToken), never downgraded. With no token and no account
+//     configured the header is ignored, as it always was.
 //  2. A trusted-proxy header (for sites that put single sign-on in front):
 //     only from a peer whose address is in the configured prefixes, the
 //     header names the user; a listed account of that name gives the role,
@@ -239,7 +240,9 @@ func (g *Gate) open() bool { return len(g.accounts) == 0 && !g.hasShare }
 // ErrBadToken or ErrForbidden (an unlisted name from the proxy when the
 // proxy's role is none).
 func (g *Gate) Identify(r *http.Request) (User, error) {
-	if auth := r.Header.Get("Authorization"); auth != "" {
+	// With nothing configured a bearer means nothing, as before named
+	// users existed: the loopback rule below decides.
+	if auth := r.Header.Get("Authorization"); auth != "" && !g.open() {
 		tok, ok := strings.CutPrefix(auth, "Bearer ")
 		if !ok {
 			return User{}, fmt.Errorf("%w (want \"Authorization: Bearer TOKEN\")", ErrBadToken)

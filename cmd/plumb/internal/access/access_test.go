@@ -118,6 +118,8 @@ func TestIdentify(t *testing.T) {
 		{"anonymous", full, "192.0.2.7:5000", "plumb.lab", nil, User{"", Viewer, "anonymous"}, nil},
 		{"loopback is not trusted once tokens exist", full, "127.0.0.1:5000", "localhost", nil, User{"", Viewer, "anonymous"}, nil},
 		{"nothing configured: loopback acts", open, "127.0.0.1:5000", "localhost:8765", nil, User{"local", Operator, "local"}, nil},
+		{"nothing configured: a bearer is ignored", open, "127.0.0.1:5000", "localhost", map[string]string{"Authorization": "Bearer x"},
+			User{"local", Operator, "local"}, nil},
 		{"nothing configured: rebinding host", open, "127.0.0.1:5000", "evil.example:8765", nil, User{"", Viewer, "anonymous"}, nil},
 		{"nothing configured: remote", open, "192.0.2.7:5000", "localhost", nil, User{"", Viewer, "anonymous"}, nil},
 	}
