@@ -60,6 +60,7 @@ type Store struct {
 	dels     []store.Delivery // ascending id
 	delIdx   map[int64]int
 	delEvent map[[2]string]bool
+	dec      decisions // decide.go
 }
 
 // New returns an empty store.
@@ -496,6 +497,13 @@ func (s *Store) ModelStates(ctx context.Context) ([]store.ModelState, error) {
 
 // PutAlert upserts the alert (keeping FirstSeen) and enqueues deliveries.
 func (s *Store) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery) error {
+	return s.putAlert(ctx, a, deliveries, nil)
+}
+
+// putAlert is PutAlert; before, when not nil, is called with the stored
+// alert (nil: none) once the write is known to succeed, before anything
+// changes (PutAlertAudited appends the audit record there).
+func (s *Store) putAlert(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery, before func(old *store.AlertRecord) error) error {
 	fail := func(err error) error { return fmt.Errorf("store: put alert %s: %w", a.ID, err) }
 	if a.ID == "" {
 		return fail(errors.New("alert needs an id"))
@@ -517,6 +525,15 @@ func (s *Store) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []
 	old, had := s.alerts[a.ID]
 	if a.Revision > 0 && old.Revision != a.Revision-1 {
 		return fail(fmt.Errorf("%w: revision %d stored, %d written", store.ErrChanged, old.Revision, a.Revision))
+	}
+	if before != nil {
+		var prev *store.AlertRecord
+		if had {
+			prev = &old
+		}
+		if err := before(prev); err != nil {
+			return fail(err)
+		}
 	}
 	if had && !old.FirstSeen.IsZero() {
 		a.FirstSeen = old.FirstSeen

@@ -61,3 +61,11 @@ func TestClosed(t *testing.T) {
 		t.Error("Ingest after Close: nil error")
 	}
 }
+
+func TestDecisionsConformance(t *testing.T) {
+	storetest.RunDecisions(t, func(t *testing.T) storetest.DecisionStore {
+		s := memstore.New()
+		t.Cleanup(func() { s.Close() })
+		return s
+	})
+}

@@ -20,6 +20,13 @@ import (
 // CreatedAt. A delivery with a non-empty EventID already enqueued for the
 // same Route is skipped, so retrying PutAlert never delivers an event twice.
 func (db *DB) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery) error {
+	return db.putAlert(ctx, a, deliveries, nil)
+}
+
+// putAlert is PutAlert; before, when not nil, runs first in the same
+// transaction (PutAlertAudited appends the audit record there, so that a
+// conditional write that fails takes it back too).
+func (db *DB) putAlert(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery, before func(tx *sql.Tx) error) error {
 	fail := func(err error) error { return fmt.Errorf("store: put alert %s: %w", a.ID, err) }
 	if a.ID == "" {
 		return fail(errors.New("alert needs an id"))
@@ -52,6 +59,11 @@ func (db *DB) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []st
 		dargs[i] = []any{d.AlertID, d.Route, d.EventID, payload, string(d.State), d.Attempts, ts[0], d.LastError, ts[1], ts[2]}
 	}
 	err = db.write(ctx, func(tx *sql.Tx) error {
+		if before != nil {
+			if err := before(tx); err != nil {
+				return err
+			}
+		}
 		if err := putAlertRow(ctx, tx, a, first, last); err != nil {
 			return err
 		}

@@ -93,6 +93,9 @@ func TestMain(m *testing.M) {
 	if path := os.Getenv(crashEnv); path != "" {
 		crashChild(path)
 	}
+	if path := os.Getenv(decideCrashEnv); path != "" {
+		decideCrashChild(path)
+	}
 	os.Exit(m.Run())
 }
 

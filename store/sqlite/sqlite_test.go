@@ -32,3 +32,10 @@ func TestConformance(t *testing.T) {
 		return db
 	})
 }
+
+func TestDecisionsConformance(t *testing.T) {
+	storetest.RunDecisions(t, func(t *testing.T) storetest.DecisionStore {
+		db, _ := openTemp(t)
+		return db
+	})
+}

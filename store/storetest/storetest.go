@@ -20,6 +20,10 @@
 // pagination (and the latest-n reads, which must agree with it),
 // store.ErrNotFound, the alert upsert keeping FirstSeen, the
 // outbox ordering, and use from several goroutines (run it under -race).
+//
+// A backend that also implements store.Decisions calls RunDecisions the
+// same way (decisions.go): decisions and their audit records, the hash
+// chain pinned to fixed values, refusals that store nothing.
 package storetest
 
 import (

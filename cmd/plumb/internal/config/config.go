@@ -53,6 +53,12 @@ type Config struct {
 	Models []Model `toml:"model"`
 	Routes []Route `toml:"route"`
 
+	// Named users, the trusted proxy and the longest quiet period: see
+	// access.go.
+	Users    []User   `toml:"user"`
+	Proxy    *Proxy   `toml:"proxy"`
+	QuietMax Duration `toml:"quiet_max"`
+
 	// Dir is the directory of the config file, against which relative
 	// paths resolve. It is set by Load, not read from the file.
 	Dir string `toml:"-"`
@@ -387,6 +393,7 @@ func Default() *Config {
 }
 
 func (c *Config) applyDefaults() {
+	c.applyAccessDefaults()
 	for i := range c.Models {
 		m := &c.Models[i]
 		if m.Pattern == "" {
@@ -672,6 +679,7 @@ func (c *Config) Validate() error {
 			}
 		}
 	}
+	c.validateAccess(&v)
 	if len(v.errs) > 0 {
 		sort.SliceStable(v.errs, func(a, b int) bool { return v.errs[a].Line < v.errs[b].Line })
 		return v.errs
