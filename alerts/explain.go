@@ -5,6 +5,8 @@ import (
 	"math"
 	"strings"
 	"time"
+
+	"plumb/engine"
 )
 
 // Caution is carried by every alert document.
@@ -12,13 +14,13 @@ const Caution = "plumb flags; it alters no data. Whether to keep, correct, re-me
 	"is a decision for qualified staff under your local quality procedures."
 
 var measureWords = map[string]string{
-	"leverage":             "leverage",
-	"cooks_distance":       "Cook's distance",
-	"dffits":               "DFFITS",
-	"dfbetas":              "DFBETAS",
-	"covratio":             "COVRATIO",
-	"outlier_p_bonferroni": "Bonferroni outlier p-value",
-	"grubbs":               "Grubbs statistic",
+	engine.MeasureLeverage:   "leverage",
+	engine.MeasureCook:       "Cook's distance",
+	engine.MeasureDFFITS:     "DFFITS",
+	engine.MeasureDFBETAS:    "DFBETAS",
+	engine.MeasureCOVRATIO:   "COVRATIO",
+	engine.MeasureBonferroni: "Bonferroni outlier p-value",
+	engine.MeasureGrubbs:     "Grubbs statistic",
 }
 
 // describe renders one crossed measure, e.g. "Cook's distance 3.42, above 1".
@@ -32,11 +34,11 @@ func describe(m Measure) string {
 	}
 	v := m.Value
 	switch m.Measure {
-	case "outlier_p_bonferroni":
+	case engine.MeasureBonferroni:
 		return fmt.Sprintf("%s %s, at most %s", name, fmtNum(v), fmtNum(m.Cutoff))
-	case "covratio":
+	case engine.MeasureCOVRATIO:
 		return fmt.Sprintf("%s %s, cutoff %s", name, fmtNum(v), fmtNum(m.Cutoff))
-	case "dffits", "dfbetas":
+	case engine.MeasureDFFITS, engine.MeasureDFBETAS:
 		name, v = "|"+name+"|", math.Abs(v)
 	}
 	return fmt.Sprintf("%s %s, above %s", name, fmtNum(v), fmtNum(m.Cutoff))

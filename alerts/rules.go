@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"math"
 	"time"
+
+	"plumb/engine"
 )
 
 // Sentinels wrapped by ConfigError.
@@ -125,7 +127,7 @@ func DefaultRules() Rules {
 	base := func(s Severity) Rule { return Rule{Enabled: true, Severity: s, Renotify: DefaultRenotify} }
 	return Rules{
 		SuspectPoint: PointRule{Rule: base(SeverityWarning), Test: "bonferroni",
-			Influence: []string{"cooks_distance", "dffits"}},
+			Influence: []string{engine.MeasureCook, engine.MeasureDFFITS}},
 		FragileFit: FragilityRule{Rule: base(SeverityWarning), Limit: DefaultFragileLimit},
 		Drift:      DriftRule{Rule: base(SeverityCritical), K: DefaultDriftK, BaselineRows: DefaultBaselineRows},
 		Blocked:    BlockedRule{Rule: base(SeverityWarning), Silence: DefaultSilence},
@@ -219,7 +221,7 @@ func (r PointRule) suspect(c PointCondition) (outlier, influential bool) {
 	want := testMeasure(r.Test)
 	for _, m := range c.Measures {
 		switch {
-		case m.Family == "test" || m.Measure == "outlier_p_bonferroni" || m.Measure == "grubbs":
+		case m.Family == engine.FamilyTest || m.Measure == engine.MeasureBonferroni || m.Measure == engine.MeasureGrubbs:
 			sawTest = true
 			if m.Measure == want {
 				outlier = true

@@ -76,14 +76,7 @@ func TestInspectRejectedRows(t *testing.T) {
 	})
 	t.Run("log of non-positive value", func(t *testing.T) {
 		csvText := "x,y\n1,2\n2,3.9\n-1,0.1\n3,6.2\n4,7.7\n5,10.1\n"
-		out, stderr, code := runPlumb(t, csvText, "inspect", "-", "--response", "y", "--terms", "log(x)", "--format", "json")
-		if code != 0 {
-			t.Fatalf("exit code %d; stderr:\n%s", code, stderr)
-		}
-		var got inspectJSON
-		if err := json.Unmarshal([]byte(out), &got); err != nil {
-			t.Fatal(err)
-		}
+		got := inspectStdinJSON(t, csvText, "--response", "y", "--terms", "log(x)")
 		if got.N != 5 || len(got.Rejected) != 1 {
 			t.Fatalf("n = %d, rejected %+v; want 5 and one row", got.N, got.Rejected)
 		}
@@ -95,14 +88,7 @@ func TestInspectRejectedRows(t *testing.T) {
 		// Line 4 starts a record whose quoted id runs onto line 5
 		// (`c",0,0.1`); x is the second field, at byte 4 of line 5.
 		csvText := "id,x,y\na,1,2\nb,2,3.9\n\"c\nc\",0,0.1\nd,3,6.2\ne,4,7.7\nf,5,10.1\n"
-		out, stderr, code := runPlumb(t, csvText, "inspect", "-", "--response", "y", "--terms", "log(x)", "--format", "json")
-		if code != 0 {
-			t.Fatalf("exit code %d; stderr:\n%s", code, stderr)
-		}
-		var got inspectJSON
-		if err := json.Unmarshal([]byte(out), &got); err != nil {
-			t.Fatal(err)
-		}
+		got := inspectStdinJSON(t, csvText, "--response", "y", "--terms", "log(x)")
 		if len(got.Rejected) != 1 {
 			t.Fatalf("rejected %+v, want one row", got.Rejected)
 		}
@@ -169,4 +155,20 @@ func TestInspectSplitDecode(t *testing.T) {
 	if len(js.Rejected) != 8 || js.N != 392 {
 		t.Errorf("n = %d, %d rejected; want 392 and 8", js.N, len(js.Rejected))
 	}
+}
+
+// inspectStdinJSON inspects csvText from standard input with args and
+// --format json, and returns the document; a non-zero exit or output that
+// is not JSON fails the test.
+func inspectStdinJSON(t *testing.T, csvText string, args ...string) inspectJSON {
+	t.Helper()
+	out, stderr, code := runPlumb(t, csvText, append(append([]string{"inspect", "-"}, args...), "--format", "json")...)
+	if code != 0 {
+		t.Fatalf("exit code %d; stderr:\n%s", code, stderr)
+	}
+	var got inspectJSON
+	if err := json.Unmarshal([]byte(out), &got); err != nil {
+		t.Fatal(err)
+	}
+	return got
 }

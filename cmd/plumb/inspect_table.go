@@ -18,13 +18,13 @@ import (
 
 // measureWords names each measure in the table.
 var measureWords = map[string]string{
-	"leverage":             "leverage",
-	"cooks_distance":       "Cook's distance",
-	"dffits":               "DFFITS",
-	"dfbetas":              "DFBETAS",
-	"covratio":             "COVRATIO",
-	"outlier_p_bonferroni": "Bonferroni outlier p",
-	"grubbs":               "Grubbs statistic",
+	engine.MeasureLeverage:   "leverage",
+	engine.MeasureCook:       "Cook's distance",
+	engine.MeasureDFFITS:     "DFFITS",
+	engine.MeasureDFBETAS:    "DFBETAS",
+	engine.MeasureCOVRATIO:   "COVRATIO",
+	engine.MeasureBonferroni: "Bonferroni outlier p",
+	engine.MeasureGrubbs:     "Grubbs statistic",
 }
 
 // flagWords says in plain words which cutoff a flag crosses.
@@ -39,13 +39,13 @@ func flagWords(fl engine.Flag) string {
 	family := strings.ReplaceAll(fl.Family, "_", "-")
 	v, c := num4(fl.Value), num4(fl.Cutoff)
 	switch fl.Measure {
-	case "outlier_p_bonferroni":
+	case engine.MeasureBonferroni:
 		return fmt.Sprintf("%s is %s, below the significance level %s", name, v, c)
-	case "covratio":
+	case engine.MeasureCOVRATIO:
 		return fmt.Sprintf("%s is %s, more than %s away from 1 (%s cutoff)", name, v, c, family)
-	case "dffits", "dfbetas":
+	case engine.MeasureDFFITS, engine.MeasureDFBETAS:
 		return fmt.Sprintf("%s is %s, beyond ±%s (%s cutoff)", name, v, c, family)
-	case "grubbs":
+	case engine.MeasureGrubbs:
 		return fmt.Sprintf("%s is %s, above the critical value %s", name, v, c)
 	default:
 		return fmt.Sprintf("%s is %s, above %s (%s cutoff)", name, v, c, family)

@@ -162,11 +162,19 @@ func (r *refresher) refresh(ctx context.Context) error {
 	if len(sugg) > 0 {
 		ss := make([]map[string]any, len(sugg))
 		for i, s := range sugg {
-			ss[i] = map[string]any{"at": s.At, "replicates": s.Replicates, "d_gain": view.Float(s.DGain), "text": s.Text}
+			at := make(map[string]view.Float, len(s.At))
+			for k, x := range s.At {
+				at[k] = view.Float(x)
+			}
+			ss[i] = map[string]any{"at": at, "replicates": s.Replicates, "d_gain": view.Float(s.DGain), "text": s.Text}
 		}
 		detail["suggestions"] = ss
 	}
-	dj, _ := json.Marshal(detail)
+	dj, err := json.Marshal(detail)
+	if err != nil {
+		m.log.Error("fit detail", "err", err) // stored without it
+		dj = []byte("{}")
+	}
 	rec.Detail = string(dj)
 	var fitID int64
 	if !m.d.opts.ReadOnly {
