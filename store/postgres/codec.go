@@ -1,72 +1,21 @@
 package postgres
 
 import (
-	"encoding/binary"
-	"fmt"
-	"math"
 	"time"
 
 	"github.com/jackc/pgx/v5/pgtype"
 
 	"plumb/engine"
 	"plumb/store"
+	"plumb/store/internal/column"
 )
 
-// Times are stored as UTC unix nanoseconds; int64 nanoseconds since 1970
-// reach from 1677-09-21 to 2262-04-11.
-var (
-	minTime = time.Unix(0, math.MinInt64).UTC()
-	maxTime = time.Unix(0, math.MaxInt64).UTC()
-)
-
-// encTime returns the column value for t: nil (NULL) for the zero time,
-// unix nanoseconds otherwise. A time int64 nanoseconds cannot hold is an
-// error.
-func encTime(t time.Time) (any, error) {
-	if t.IsZero() {
-		return nil, nil
-	}
-	if t.Before(minTime) || t.After(maxTime) {
-		return nil, fmt.Errorf("time %s outside the storable range %d..%d", t.Format(time.RFC3339Nano), minTime.Year(), maxTime.Year())
-	}
-	return t.UnixNano(), nil
-}
-
-// decTime is the inverse of encTime; times come back in UTC.
-func decTime(v pgtype.Int8) time.Time {
-	if !v.Valid {
-		return time.Time{}
-	}
-	return time.Unix(0, v.Int64).UTC()
-}
-
-// encFloats packs v as little-endian IEEE 754 float64s; nil (NULL) for an
-// empty slice. Every bit pattern, NaN payloads included, round-trips.
-func encFloats(v []float64) []byte {
-	if len(v) == 0 {
-		return nil
-	}
-	b := make([]byte, 8*len(v))
-	for i, x := range v {
-		binary.LittleEndian.PutUint64(b[8*i:], math.Float64bits(x))
-	}
-	return b
-}
-
-// decFloats is the inverse of encFloats; an empty value gives nil.
-func decFloats(b []byte) ([]float64, error) {
-	if len(b)%8 != 0 {
-		return nil, fmt.Errorf("float vector of %d bytes is not a multiple of 8", len(b))
-	}
-	if len(b) == 0 {
-		return nil, nil
-	}
-	v := make([]float64, len(b)/8)
-	for i := range v {
-		v[i] = math.Float64frombits(binary.LittleEndian.Uint64(b[8*i:]))
-	}
-	return v, nil
-}
+// Times and float vectors are stored in the shared column forms
+// (store/internal/column).
+func encTime(t time.Time) (any, error)      { return column.Time(t) }
+func decTime(v pgtype.Int8) time.Time       { return column.FromTime(v.Int64, v.Valid) }
+func encFloats(v []float64) []byte          { return column.Floats(v) }
+func decFloats(b []byte) ([]float64, error) { return column.FromFloats(b) }
 
 // The verdict words and the crossed cutoffs (store.Diagnostics.Verdict and
 // Flags, store.VerdictChange.To and Flags) are encoded here and nowhere
