@@ -86,6 +86,8 @@ type inspectOptions struct {
 	suggest     bool
 	region      engine.Region // columns given with --region
 	replicates  int
+
+	calibOptions // --at, --reading, --unit (inspect_calib.go)
 }
 
 func runInspect(ctx context.Context, e *env, args []string) error {
@@ -173,6 +175,7 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 		return nil
 	})
 	fs.IntVar(&opt.replicates, "replicates", engine.DefaultReplicates, "with --suggest: readings proposed at each point")
+	calib := addCalibFlags(fs)
 	pos, err := parseFlags(fs, args)
 	if err != nil {
 		return nil, err
@@ -254,6 +257,9 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 	}
 	if opt.region != nil && !opt.suggest {
 		return nil, bad("--region needs --suggest")
+	}
+	if err := calib.parse(&opt); err != nil {
+		return nil, bad("%v", err)
 	}
 	return &opt, nil
 }
