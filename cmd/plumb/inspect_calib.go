@@ -261,4 +261,3 @@ func (r *inspectResult) worstRow() int {
 	}
 	return at
 }
-
