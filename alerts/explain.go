@@ -127,6 +127,7 @@ func fillDrift(a *Alert, c DriftCondition, rule DriftRule) {
 	}
 	a.Summary = fmt.Sprintf("Model %s has drifted from its baseline.", c.Model)
 	a.Explanation = fmt.Sprintf("Compared with the baseline (%s), %s. ", c.Baseline, strings.Join(parts, "; ")) +
+		shiftSentence(c.Measures) +
 		"A calibration that moves after it was established can mean that the instrument, the standards or the " +
 		"process have changed; results computed with the new fit are not comparable with those reported under the baseline."
 }

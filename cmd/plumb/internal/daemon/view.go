@@ -110,7 +110,7 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 	if err != nil {
 		return view.ModelDetail{}, err
 	}
-	d := view.ModelDetail{ModelSummary: m.summary(open[name])}
+	d := view.ModelDetail{ModelSummary: m.summary(open[name]), Units: m.cfg.Units}
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	vr := m.ref.view()

@@ -2,6 +2,7 @@ package view
 
 import (
 	"context"
+	"errors"
 
 	"plumb/cmd/plumb/internal/analysis"
 	"plumb/engine"
@@ -113,11 +114,26 @@ type Answers struct {
 	Caution     string            `json:"caution"`
 }
 
+// Question asks a model's current fit for predictions at points and
+// inverse predictions of readings.
+type Question struct {
+	At       []map[string]float64
+	Readings []float64
+	// Level is the two-sided level (0: 0.95); Averaged the number of new
+	// readings averaged into one value (0: 1).
+	Level    float64
+	Averaged int
+}
+
+// ErrQuestion is wrapped by an Answerer's error for a question the fit
+// cannot answer: a point that names a column the model does not use or
+// leaves one out, a model that cannot be inverted, a bad level.
+var ErrQuestion = errors.New("view: the fit cannot answer this question")
+
 // Answerer is an optional interface of a Source that answers
-// predictions and inverse predictions from a model's current fit. Errors:
-// ErrNotFound for an unknown model, ErrState before the first fit, and a
-// *analysis.StepError for a question the fit cannot answer (a column it
-// does not use, a model that cannot be inverted, a bad level).
+// predictions and inverse predictions from a model's current fit. Errors
+// wrap ErrNotFound for an unknown model, ErrState before the first fit
+// and ErrQuestion for a question the fit cannot answer.
 type Answerer interface {
-	Answer(ctx context.Context, name string, q analysis.Answers) (Answers, error)
+	Answer(ctx context.Context, name string, q Question) (Answers, error)
 }

@@ -240,6 +240,8 @@ type ModelDetail struct {
 	Suggestions []Suggestion `json:"suggestions"`
 	// Drift holds the drift band of each coefficient (may be empty).
 	Drift []DriftBand `json:"drift"`
+	// Units gives the configured unit of a column by name (may be nil).
+	Units map[string]string `json:"units,omitempty"`
 }
 
 // Curve returns the curve over predictor, or false.
