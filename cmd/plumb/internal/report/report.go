@@ -132,7 +132,7 @@ func Render(w io.Writer, c Contents, opts Options) error {
 	}
 	if len(d.Points) > 0 {
 		if predictor != "" {
-			caption := "The response against " + predictor + " with the fitted mean and its 95 % confidence band"
+			caption := "The response against " + predictor + " with the fitted mean, its 95 % confidence band and the 95 % prediction band of one new reading"
 			if c, ok := d.Curve(predictor); ok && len(c.Held) > 0 {
 				caption += ", the other predictors held at " + chart.Settings(c.Held)
 			}
@@ -141,6 +141,7 @@ func Render(w io.Writer, c Contents, opts Options) error {
 				caption += fmt.Sprintf(" %d ordinary rows are not drawn (evenly thinned); every flagged row is.", thinned)
 			}
 			pd.Figures = append(pd.Figures, figure{ChartFit, caption, chart.Fit(d, predictor).HTML()})
+			pd.Figures = append(pd.Figures, deviationFigure(d, predictor))
 		}
 		pd.Figures = append(pd.Figures, figure{ChartInfluence, fmt.Sprintf(
 			"Externally studentized residual against leverage. Dashed: 2p/n = %s. Dotted: ±%s, the Bonferroni critical |t| at α = %s.",

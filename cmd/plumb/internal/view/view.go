@@ -337,6 +337,10 @@ type Curve struct {
 	Y     []Float          `json:"y"`
 	Lower []Float          `json:"lower"`
 	Upper []Float          `json:"upper"`
+	// PredLower and PredUpper are the 95 % prediction interval of one
+	// new reading at each X: where a new reading is expected to fall.
+	PredLower []Float `json:"pred_lower"`
+	PredUpper []Float `json:"pred_upper"`
 }
 
 // Suggestion is a place in predictor space where one more row would most
