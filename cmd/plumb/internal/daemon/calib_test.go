@@ -128,6 +128,18 @@ func TestCalibrationAnswersAndDriftShift(t *testing.T) {
 		t.Errorf("reading 100, far above the curve: %+v", g)
 	}
 
+	// The model's picture carries the answers and the units.
+	md, err := r.d.View().Model(ctx, "cal")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(md.Predictions) != 1 || float64(md.Predictions[0].Fitted) != want.Fitted || len(md.Inverse) != 2 || md.Units["x"] != "mV" {
+		t.Errorf("model detail: predictions %+v inverse %d units %v", md.Predictions, len(md.Inverse), md.Units)
+	}
+	if c, ok := md.Curve("x"); !ok || len(c.PredLower) != len(c.X) || !(c.PredLower[0] < c.Lower[0]) || !(c.PredUpper[0] > c.Upper[0]) {
+		t.Errorf("curve lacks a prediction band wider than the confidence band: %+v", c)
+	}
+
 	// The API's answers are the engine's on the current fit.
 	src := r.d.View().(view.Answerer)
 	ans, err := src.Answer(ctx, "cal", view.Question{At: []map[string]float64{{"x": 7.5}}, Readings: []float64{5.1}, Level: 0.99, Averaged: 3})

@@ -321,6 +321,19 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 {{if .D.Suggestions}}<ol>{{range .D.Suggestions}}<li><b>{{at .}}</b>: {{.Text}}</li>{{end}}</ol>
 {{else}}<p class="empty">No suggestion for this fit.</p>{{end}}
 
+{{if or .D.Predictions .D.Inverse}}
+<h2 id="answers">Calibration answers</h2>
+<p class="meta">From the current fit, as configured for this model{{with index .D.Units .D.Response}}; {{$.D.Response}} in {{.}}{{end}}. An interval marked — reaches the end of the calibrated range: the data do not bound it there.</p>
+{{if .D.Predictions}}<table data-predictions>
+<thead><tr><th>at</th><th>{{.D.Response}}</th><th>std. error</th><th>the mean lies in</th><th>a new value falls in</th><th>level</th><th>readings</th></tr></thead>
+<tbody>{{range .D.Predictions}}<tr><td class="m">{{.Point}}</td><td class="n">{{num .Fitted}}</td><td class="n">{{num .SEFit}}</td><td class="n">{{num (index .Confidence 0)}} … {{num (index .Confidence 1)}}</td><td class="n">{{num (index .Prediction 0)}} … {{num (index .Prediction 1)}}</td><td class="n">{{num .Level}}</td><td class="n">{{.Readings}}</td></tr>{{end}}</tbody>
+</table>{{end}}
+{{if .D.Inverse}}<table data-inverse>
+<thead><tr><th>reading</th><th>stands for</th><th>std. uncertainty</th><th>interval</th><th>level</th><th>readings</th></tr></thead>
+<tbody>{{range .D.Inverse}}<tr><td class="n">{{num .Reading}}</td><td class="m">{{.Column}} = {{num .Estimate}}</td><td class="n">{{num .StandardUncertainty}}</td><td class="n">{{num (index .Interval 0)}} … {{num (index .Interval 1)}}</td><td class="n">{{num .Level}}</td><td class="n">{{.Readings}}</td></tr>{{if .Note}}<tr><td colspan="6">{{.Note}}</td></tr>{{end}}{{end}}</tbody>
+</table>{{end}}
+{{end}}
+
 {{if .History}}
 <h2>Coefficient history</h2>
 <p class="meta">The last {{.FitCount}} fits. Shaded amber: the drift band around the baseline; grey: ±1.96 standard errors.</p>

@@ -3,6 +3,9 @@ package view
 import (
 	"context"
 	"errors"
+	"sort"
+	"strconv"
+	"strings"
 
 	"plumb/cmd/plumb/internal/analysis"
 	"plumb/engine"
@@ -136,4 +139,19 @@ var ErrQuestion = errors.New("view: the fit cannot answer this question")
 // and ErrQuestion for a question the fit cannot answer.
 type Answerer interface {
 	Answer(ctx context.Context, name string, q Question) (Answers, error)
+}
+
+// Point is the prediction's point in words, by column name:
+// "emf_mv = 10, bath_c = 20".
+func (p Prediction) Point() string {
+	keys := make([]string, 0, len(p.At))
+	for k := range p.At {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	parts := make([]string, len(keys))
+	for i, k := range keys {
+		parts[i] = k + " = " + strconv.FormatFloat(float64(p.At[k]), 'g', 6, 64)
+	}
+	return strings.Join(parts, ", ")
 }

@@ -242,6 +242,10 @@ type ModelDetail struct {
 	Drift []DriftBand `json:"drift"`
 	// Units gives the configured unit of a column by name (may be nil).
 	Units map[string]string `json:"units,omitempty"`
+	// Predictions and Inverse are the configured calibration answers
+	// from the current fit (none when none are configured).
+	Predictions []Prediction `json:"predictions,omitempty"`
+	Inverse     []Inverse    `json:"inverse,omitempty"`
 }
 
 // Curve returns the curve over predictor, or false.

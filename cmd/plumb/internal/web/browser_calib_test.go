@@ -27,6 +27,10 @@ func TestBrowserDeviation(t *testing.T) {
 	}
 	x := d.Predictors[0]
 	d.Units = map[string]string{d.Response: "mV", x: "kPa"}
+	d.Predictions = []view.Prediction{{At: map[string]view.Float{x: 75}, Fitted: 150.1, SEFit: 0.3,
+		Confidence: view.Pair{149.5, 150.7}, Prediction: view.Pair{146.2, 154}, Level: 0.95, Readings: 1, DF: 18}}
+	d.Inverse = []view.Inverse{{Reading: 150, Column: x, Estimate: 74.9, StandardUncertainty: 0.9,
+		Interval: view.Pair{73.1, 76.7}, Status: "unique", Shape: "bounded", Level: 0.95, Readings: 1, DF: 18}}
 	src.SetModel(d)
 	srv := httptest.NewServer(New(src, Options{Refresh: time.Hour}))
 	defer srv.Close()
@@ -49,6 +53,8 @@ func TestBrowserDeviation(t *testing.T) {
 		{"suspects marked", `svg[data-chart=deviation] .pt.v-suspect`, d.Suspects},
 		{"fit prediction band", `svg[data-chart=fit] polygon.pred-band`, 1},
 		{"fit confidence band", `svg[data-chart=fit] polygon.band`, 1},
+		{"predictions listed", `[data-answers] table[data-predictions] tbody tr`, 1},
+		{"inverse listed", `[data-answers] table[data-inverse] tbody tr`, 1},
 	}
 	for _, tt := range tests {
 		if got := count(t, ctx, tt.sel); got != tt.want {
