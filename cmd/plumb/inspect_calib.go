@@ -7,6 +7,7 @@ import (
 	"bufio"
 	"flag"
 	"fmt"
+	"io"
 	"math"
 	"slices"
 	"strconv"
@@ -36,7 +37,7 @@ func addCalibFlags(fs *flag.FlagSet) *calibFlags {
 		c.at = append(c.at, v)
 		return nil
 	})
-	fs.Func("reading", "invert a `reading` of the response: the predictor value it stands for, with its uncertainty (a line or polynomial in one column); may be repeated", func(v string) error {
+	fs.Func("reading", "invert `Y[,Y...]`, readings of the response: the predictor value each stands for, with its standard uncertainty and interval (a line or polynomial in one column); may be repeated", func(v string) error {
 		c.readings = append(c.readings, v)
 		return nil
 	})
@@ -168,6 +169,14 @@ func readingsWords(m int) string {
 		return "one new reading"
 	}
 	return fmt.Sprintf("the mean of %d new readings", m)
+}
+
+// answersTo writes the answers in words to w (the csv format's standard
+// error); nothing when none were asked.
+func (r *inspectResult) answersTo(w io.Writer) error {
+	bw := bufio.NewWriter(w)
+	r.writeAnswers(bw)
+	return bw.Flush()
 }
 
 // writeAnswers writes the predictions and inverse predictions in words.

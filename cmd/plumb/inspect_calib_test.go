@@ -208,3 +208,25 @@ func TestInspectAnswerErrors(t *testing.T) {
 		t.Errorf("two-column inverse: exit %d, stderr %q", code, stderr)
 	}
 }
+
+// With --format csv the answers go to standard error in words and the
+// rows to standard output unchanged.
+func TestInspectAnswersCSV(t *testing.T) {
+	plain, _, code := runPlumb(t, "", "inspect", fixture("thermo.csv"), "--response", "temp_c", "--terms", thermoTerms, "--format", "csv")
+	if code != 0 {
+		t.Fatal(code)
+	}
+	out, stderr, code := runPlumb(t, "", "inspect", fixture("thermo.csv"), "--response", "temp_c", "--terms", thermoTerms, "--format", "csv",
+		"--at", "emf_mv=10", "--reading", "150", "--unit", "temp_c=°C")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if out != plain {
+		t.Error("--at changed the csv rows")
+	}
+	for _, want := range []string{"At emf_mv = 10 the curve gives temp_c = 234.8 °C", "A reading of temp_c = 150 °C stands for emf_mv = 6.311"} {
+		if !strings.Contains(stderr, want) {
+			t.Errorf("standard error lacks %q:\n%s", want, stderr)
+		}
+	}
+}

@@ -13,11 +13,11 @@ import (
 	"plumb/engine"
 )
 
-// checkCalibration checks a model's [model.calibration] and units against
+// CheckCalibration checks a model's [model.calibration] and units against
 // its terms: every point gives a value for each predictor column and no
 // other, readings to invert need a line or polynomial in one column, and
 // units name columns of the model.
-func checkCalibration(spec engine.Model, mc config.Model) error {
+func CheckCalibration(spec engine.Model, mc config.Model) error {
 	cols := spec.Columns()
 	for k, at := range mc.Calibration.PredictAt {
 		for _, c := range cols {

@@ -272,7 +272,7 @@ func TestCalibrationChecked(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			c := testConfig(t, t.TempDir(), fmt.Sprintf(base, tt.terms, tt.extra))
-			err := checkCalibration(mustModel(t, c.Models[0]), c.Models[0])
+			err := CheckCalibration(mustModel(t, c.Models[0]), c.Models[0])
 			if err == nil || !strings.Contains(err.Error(), tt.want) {
 				t.Errorf("err = %v, want one naming %q", err, tt.want)
 			}

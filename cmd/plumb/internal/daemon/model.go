@@ -88,7 +88,7 @@ func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
 	if err != nil {
 		return nil, fmt.Errorf("model %q: %w", mc.Name, err)
 	}
-	if err := checkCalibration(spec, mc); err != nil {
+	if err := CheckCalibration(spec, mc); err != nil {
 		return nil, fmt.Errorf("model %q: %w", mc.Name, err)
 	}
 	m := &watchedModel{
