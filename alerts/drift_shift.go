@@ -62,3 +62,11 @@ func atWords(at Values, units map[string]string) string {
 	}
 	return strings.Join(parts, ", ")
 }
+
+// inUnit is x with the measure's unit, if any.
+func (d DriftMeasure) inUnit(x float64) string {
+	if d.Unit == "" {
+		return fmtNum(x)
+	}
+	return fmtNum(x) + " " + d.Unit
+}

@@ -45,3 +45,19 @@ func TestShiftSentence(t *testing.T) {
 		t.Errorf("a coefficient has no shift_se: %s", b)
 	}
 }
+
+// A checkpoint with units names them in the drift explanation.
+func TestDriftExplanationUnits(t *testing.T) {
+	var a Alert
+	c := DriftCondition{Model: "bench-a", Baseline: "fit after the first 30 rows", Measures: []DriftMeasure{
+		{Name: "hot end", Kind: DriftPrediction, At: Values{"emf_mv": 10}, Baseline: 250, Current: 250.41, StdError: 0.1,
+			Difference: 0.41, Band: 0.3, Rule: "k_se", ShiftSE: 0.08, Unit: "°C", AtUnits: map[string]string{"emf_mv": "mV"}},
+	}}
+	fillDrift(&a, c, DriftRule{K: 3})
+	for _, want := range []string{"the prediction at checkpoint hot end is 250.4 °C against 250 °C at baseline, 4.1 standard errors away",
+		"at emf_mv = 10 mV the curve now reads 0.41 °C higher (± 0.08 °C)"} {
+		if !strings.Contains(a.Explanation, want) {
+			t.Errorf("explanation lacks %q:\n%s", want, a.Explanation)
+		}
+	}
+}

@@ -117,9 +117,9 @@ func fillDrift(a *Alert, c DriftCondition, rule DriftRule) {
 		if d.Kind == DriftPrediction {
 			what = "the prediction at checkpoint " + d.Name
 		}
-		s := fmt.Sprintf("%s is %s against %s at baseline", what, fmtNum(d.Current), fmtNum(d.Baseline))
+		s := fmt.Sprintf("%s is %s against %s at baseline", what, d.inUnit(d.Current), d.inUnit(d.Baseline))
 		if d.Rule == "tolerance" {
-			s += fmt.Sprintf(", a change of %s beyond the tolerance %s", fmtNum(d.Difference), fmtNum(d.Band))
+			s += fmt.Sprintf(", a change of %s beyond the tolerance %s", d.inUnit(d.Difference), d.inUnit(d.Band))
 		} else {
 			s += fmt.Sprintf(", %s standard errors away (band %s)", fmtNum(math.Abs(d.Difference)/d.StdError), fmtNum(rule.K))
 		}
