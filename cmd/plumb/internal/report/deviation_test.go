@@ -40,7 +40,7 @@ func TestReportDeviationUnitsAnswers(t *testing.T) {
 	for _, want := range []string{
 		`data-chart="deviation"`, `class="pred-band"`, `class="highlight"`,
 		`>reading − curve (mV)<`, ">" + x + " (kPa)<", ">" + d.Response + " (mV)<",
-		"Each reading minus the curve (mV)",
+		"Each reading minus the curve (mV)", "σ (residual SD)</span><b>" + num(d.Sigma) + " mV</b>",
 		`data-predictions`, x + " = 75", "146.2 … 154",
 		`data-inverse`, x + " = 74.9", "73.1 … —", "reaches the high end of the calibrated range",
 	} {

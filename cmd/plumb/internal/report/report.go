@@ -269,7 +269,7 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <div class="facts">
 <div><span>rows in fit</span><b>{{.D.N}}</b></div>
 <div><span>rows quarantined</span><b>{{.D.Quarantined}}</b></div>
-<div><span>σ (residual SD)</span><b>{{num .D.Sigma}}</b></div>
+<div><span>σ (residual SD)</span><b>{{num .D.Sigma}}{{with index .D.Units .D.Response}} {{.}}{{end}}</b></div>
 <div><span>R² (adjusted)</span><b>{{num6 .D.RSquared}} ({{num6 .D.AdjRSquared}})</b></div>
 <div><span>fragility index</span><b {{if .D.Fragility.Alarming}}class="hot"{{end}}>{{.D.Fragility}}</b></div>
 </div>
