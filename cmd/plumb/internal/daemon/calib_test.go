@@ -128,6 +128,16 @@ func TestCalibrationAnswersAndDriftShift(t *testing.T) {
 		t.Errorf("reading 100, far above the curve: %+v", g)
 	}
 
+	// The fit history reads them back.
+	fvs, err := r.d.View().Fits(ctx, "cal", 0, 100)
+	if err != nil || len(fvs) == 0 {
+		t.Fatalf("fits: %d, %v", len(fvs), err)
+	}
+	if last := fvs[len(fvs)-1]; len(last.Predictions) != 1 || float64(last.Predictions[0].Fitted) != want.Fitted ||
+		len(last.Inverse) != 2 || float64(last.Inverse[0].Estimate) != inv.Estimate || !math.IsNaN(float64(last.Inverse[1].Estimate)) {
+		t.Errorf("fit history's answers: %+v %+v", last.Predictions, last.Inverse)
+	}
+
 	// The model's picture carries the answers and the units.
 	md, err := r.d.View().Model(ctx, "cal")
 	if err != nil {

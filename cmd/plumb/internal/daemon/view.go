@@ -196,8 +196,10 @@ func fitView(f store.FitRecord) view.FitView {
 		fv.Fragility = view.Fragility{Computed: true, K: f.FragilityK}
 	}
 	var detail struct {
-		MaxCook   *float64 `json:"max_cooks_distance"`
-		Fragility struct {
+		MaxCook     *float64          `json:"max_cooks_distance"`
+		Predictions []view.Prediction `json:"predictions"`
+		Inverse     []view.Inverse    `json:"inverse"`
+		Fragility   struct {
 			Conclusion string `json:"conclusion"`
 			Searched   string `json:"searched"`
 			Fragile    bool   `json:"fragile"`
@@ -210,6 +212,7 @@ func fitView(f store.FitRecord) view.FitView {
 		fv.Fragility.Conclusion = detail.Fragility.Conclusion
 		fv.Fragility.Searched = detail.Fragility.Searched
 		fv.Fragility.Fragile = detail.Fragility.Fragile
+		fv.Predictions, fv.Inverse = detail.Predictions, detail.Inverse
 	}
 	return fv
 }

@@ -383,6 +383,10 @@ type FitView struct {
 	Fragility Fragility `json:"fragility"`
 	MaxCook   Float     `json:"max_cooks_distance"`
 	LastObsID int64     `json:"last_obs_id"`
+	// Predictions and Inverse are the calibration answers recorded with
+	// the fit (none when none were configured).
+	Predictions []Prediction `json:"predictions,omitempty"`
+	Inverse     []Inverse    `json:"inverse,omitempty"`
 }
 
 // Estimate returns the estimate of term and whether the fit has it.
