@@ -65,6 +65,15 @@ type DriftMeasure struct {
 	// Rule is "k_se" or "tolerance": which band applied.
 	Rule   string `json:"rule"`
 	InBand bool   `json:"in_band"`
+
+	// For a prediction, the daemon may add the standard error of the
+	// shift Current - Baseline (engine.ShiftAt; 0 when not known), the
+	// response's unit and the units of the checkpoint's columns: the
+	// alert then says how far the curve moved there in units
+	// (drift_shift.go).
+	ShiftSE float64           `json:"-"`
+	Unit    string            `json:"unit,omitempty"`
+	AtUnits map[string]string `json:"at_units,omitempty"`
 }
 
 // DriftCondition reports a refit compared with the model's baseline.

@@ -119,9 +119,9 @@ func fillDrift(a *Alert, c DriftCondition, rule DriftRule) {
 		if d.Kind == DriftPrediction {
 			what = "the prediction at checkpoint " + d.Name
 		}
-		s := fmt.Sprintf("%s is %s against %s at baseline", what, fmtNum(d.Current), fmtNum(d.Baseline))
+		s := fmt.Sprintf("%s is %s against %s at baseline", what, d.inUnit(d.Current), d.inUnit(d.Baseline))
 		if d.Rule == "tolerance" {
-			s += fmt.Sprintf(", a change of %s beyond the tolerance %s", fmtNum(d.Difference), fmtNum(d.Band))
+			s += fmt.Sprintf(", a change of %s beyond the tolerance %s", d.inUnit(d.Difference), d.inUnit(d.Band))
 		} else {
 			s += fmt.Sprintf(", %s standard errors away (band %s)", fmtNum(math.Abs(d.Difference)/d.StdError), fmtNum(rule.K))
 		}
@@ -129,6 +129,7 @@ func fillDrift(a *Alert, c DriftCondition, rule DriftRule) {
 	}
 	a.Summary = fmt.Sprintf("Model %s has drifted from its baseline.", c.Model)
 	a.Explanation = fmt.Sprintf("Compared with the baseline (%s), %s. ", c.Baseline, strings.Join(parts, "; ")) +
+		shiftSentence(c.Measures) +
 		"A calibration that moves after it was established can mean that the instrument, the standards or the " +
 		"process have changed; results computed with the new fit are not comparable with those reported under the baseline."
 }

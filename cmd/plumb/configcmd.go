@@ -6,6 +6,7 @@ import (
 	"fmt"
 
 	"plumb/cmd/plumb/internal/config"
+	"plumb/cmd/plumb/internal/daemon"
 	"plumb/engine"
 )
 
@@ -48,8 +49,13 @@ func loadConfig(path string) (*config.Config, error) {
 	}
 	var errs []error
 	for i, m := range c.Models {
-		if _, err := engine.NewModel(m.Response, m.Terms, *m.Intercept); err != nil {
+		spec, err := engine.NewModel(m.Response, m.Terms, *m.Intercept)
+		if err != nil {
 			errs = append(errs, fmt.Errorf("%s: model[%d].terms (model %q): %w", path, i+1, m.Name, err))
+			continue
+		}
+		if err := daemon.CheckCalibration(spec, m); err != nil {
+			errs = append(errs, fmt.Errorf("%s: model[%d] (model %q): %w", path, i+1, m.Name, err))
 		}
 	}
 	if len(errs) > 0 {

@@ -63,6 +63,16 @@ where in the operating region (--region, else the observed range) new
 readings would lower the influence of the worst rows and the fragility.
 With --format csv both are written to standard error.
 
+--at COL=X gives the fitted value there with its standard error, the
+confidence interval of the mean and the prediction interval of a new
+reading (or of the mean of --readings-averaged M readings), at --level.
+--reading Y converts a reading back: the predictor value it stands for,
+its standard uncertainty and the values consistent with it, saying so
+when there is no single answer or the interval reaches the end of the
+calibrated range. --unit COL=UNIT labels a column's values. The json
+format has them as "predictions" and "inverse"; with --format csv they
+go to standard error in words.
+
 Exit status: 0 when the report was written, 1 when the file cannot be
 read or fitted (or a row is bad under --strict), 2 for a bad command line.
 
@@ -86,6 +96,8 @@ type inspectOptions struct {
 	suggest     bool
 	region      engine.Region // columns given with --region
 	replicates  int
+
+	calibOptions // --at, --reading, --unit (inspect_calib.go)
 }
 
 func runInspect(ctx context.Context, e *env, args []string) error {
@@ -133,7 +145,7 @@ func runInspect(ctx context.Context, e *env, args []string) error {
 				fmt.Fprintln(e.stderr, "suggestion:", l)
 			}
 		}
-		return nil
+		return res.answersTo(e.stderr)
 	default:
 		return writeInspectTable(e.stdout, res)
 	}
@@ -173,6 +185,7 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 		return nil
 	})
 	fs.IntVar(&opt.replicates, "replicates", engine.DefaultReplicates, "with --suggest: readings proposed at each point")
+	calib := addCalibFlags(fs)
 	pos, err := parseFlags(fs, args)
 	if err != nil {
 		return nil, err
@@ -254,6 +267,9 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 	}
 	if opt.region != nil && !opt.suggest {
 		return nil, bad("--region needs --suggest")
+	}
+	if err := calib.parse(&opt); err != nil {
+		return nil, bad("%v", err)
 	}
 	return &opt, nil
 }

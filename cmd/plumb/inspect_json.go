@@ -203,6 +203,9 @@ type jsonReport struct {
 	Rejected     []rejectedRow     `json:"rejected"`
 	Fragility    *jsonFragility    `json:"fragility,omitempty"`
 	Suggestions  *[]jsonSuggestion `json:"suggestions,omitempty"`
+	Units        map[string]string `json:"units,omitempty"`
+	Predictions  []view.Prediction `json:"predictions,omitempty"`
+	Inverse      []view.Inverse    `json:"inverse,omitempty"`
 	Caution      string            `json:"caution"`
 }
 
@@ -244,6 +247,9 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		Rejected:    r.ds.rejected,
 		Fragility:   r.jsonFragility(),
 		Suggestions: r.jsonSuggestions(),
+		Units:       r.units,
+		Predictions: r.Predictions(),
+		Inverse:     r.Inverses(),
 		Caution:     cautionText,
 	}
 	rep.Terms = make([]string, len(r.model.Terms))

@@ -24,6 +24,7 @@ type inspectResult struct {
 	cutoffs engine.Cutoffs
 
 	checkpoints []engine.Checkpoint
+	units       map[string]string
 }
 
 func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspectData) (*inspectResult, error) {
@@ -35,7 +36,13 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 			}
 		}
 	}
-	res := &inspectResult{file: ds.file, ds: ds, model: m, names: m.Names(), cutoffs: opt.cutoffs, checkpoints: opt.checkpoints}
+	if err := checkUnits(m, opt.units); err != nil {
+		return nil, err
+	}
+	if err := checkAt(m, opt.answers.At); err != nil {
+		return nil, err
+	}
+	res := &inspectResult{file: ds.file, ds: ds, model: m, names: m.Names(), cutoffs: opt.cutoffs, checkpoints: opt.checkpoints, units: opt.units}
 	conc := engine.DefaultConclusions()
 	conc.Checkpoints = opt.checkpoints
 	a := analysis.Analysis{Model: m, Options: analysis.Options{
@@ -46,6 +53,7 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 		Suggest:          opt.suggest,
 		SuggestOptions:   engine.SuggestOptions{Replicates: opt.replicates},
 		Region:           opt.region,
+		Answers:          opt.answers,
 		Label:            res.rowLabel,
 	}}
 	for {

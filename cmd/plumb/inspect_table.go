@@ -225,8 +225,24 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 		bw.WriteByte('\n')
 	}
 
-	// The fit.
+	// The fit: what an engineer acts on first (the curve, its scatter in
+	// the response's units, the reading farthest from it), then the
+	// coefficients, then the checks on the fit.
 	bw.WriteString("== The fit ==\n")
+	y := r.model.Response
+	fmt.Fprintf(bw, "  curve        %s\n", r.curveWords())
+	fmt.Fprintf(bw, "  scatter      %s about the curve (residual standard deviation, %d rows, %d degrees of freedom)\n",
+		r.withUnit(y, num4(f.Sigma)), f.N, f.DF)
+	if i := r.worstRow(); i >= 0 {
+		o := r.Influence.Rows[i]
+		side := "above"
+		if o.Residual < 0 {
+			side = "below"
+		}
+		fmt.Fprintf(bw, "  farthest     row %d (line %d): %s %s the curve, %s residual standard deviations (studentized)\n",
+			r.ds.rowNo[i], r.ds.line[i], r.withUnit(y, num4(math.Abs(o.Residual))), side, num4(math.Abs(o.StudentExternal)))
+	}
+	bw.WriteByte('\n')
 	g := grid{left: map[int]bool{0: true}}
 	g.add("coefficient", "estimate", "std error", "t", "p", "95% from", "95% to")
 	for _, c := range r.Coefficients() {
@@ -234,12 +250,22 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	}
 	g.write(bw, "  ")
 	bw.WriteByte('\n')
-	fmt.Fprintf(bw, "  residual sigma %s on %d degrees of freedom\n", num4(f.Sigma), f.DF)
-	fmt.Fprintf(bw, "  R-squared %s, adjusted %s\n", strconv.FormatFloat(f.RSquared, 'f', 5, 64), strconv.FormatFloat(f.AdjRSquared, 'f', 5, 64))
-	if f.FDF1 > 0 {
-		fmt.Fprintf(bw, "  F %s on %d and %d degrees of freedom, p %s\n", num4(f.FStat), f.FDF1, f.FDF2, pval(f.FP))
+	bw.WriteString("  checks on the fit\n")
+	variation := "the variation of " + y
+	if !r.model.Intercept {
+		variation = "the sum of squares of " + y + " about zero"
 	}
-	fmt.Fprintf(bw, "  condition number of the scaled design %s\n", num4(f.Condition))
+	fmt.Fprintf(bw, "    explained      %s of %s (%s allowing for the %d coefficients)\n",
+		share(f.RSquared), variation, share(f.AdjRSquared), f.P)
+	if f.FDF1 > 0 {
+		against := "a constant"
+		if !r.model.Intercept {
+			against = "zero"
+		}
+		fmt.Fprintf(bw, "    overall test   the terms together against %s: F = %s (df %d, %d), p %s\n",
+			against, num4(f.FStat), f.FDF1, f.FDF2, pval(f.FP))
+	}
+	fmt.Fprintf(bw, "    conditioning   %s (condition number of the scaled design)\n", num4(f.Condition))
 	if f.VIF != nil {
 		var parts []string
 		for _, t := range terms {
@@ -247,9 +273,10 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 				parts = append(parts, t+" "+num4(x))
 			}
 		}
-		fmt.Fprintf(bw, "  variance inflation: %s\n", strings.Join(parts, ", "))
+		fmt.Fprintf(bw, "    inflation      %s (variance inflation of each term)\n", strings.Join(parts, ", "))
 	}
 	bw.WriteByte('\n')
+	r.writeAnswers(bw)
 
 	if r.Fragility != nil {
 		bw.WriteString("== How fragile the conclusions are ==\n")
@@ -407,4 +434,12 @@ func seriousness(w engine.Word) int {
 		return 1
 	}
 	return 0
+}
+
+// share is a proportion as a percentage to 5 significant digits.
+func share(x float64) string {
+	if math.IsNaN(x) {
+		return "undefined"
+	}
+	return strconv.FormatFloat(100*x, 'g', 5, 64) + " %"
 }

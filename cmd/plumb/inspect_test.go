@@ -73,6 +73,12 @@ func TestInspectGolden(t *testing.T) {
 			"--fragility", "--checkpoint", "emf_mv=48.2:0.5", "--suggest", "--region", "emf_mv=0:65"}, "thermo_fragility.table.golden"},
 		{"json fragility and suggestions", []string{"inspect", fixture("thermo.csv"), "--response", "temp_c", "--terms", thermoTerms,
 			"--fragility", "--checkpoint", "emf_mv=48.2:0.5", "--suggest", "--region", "emf_mv=0:65", "--format", "json"}, "thermo_fragility.json.golden"},
+		{"table answers and units", []string{"inspect", fixture("thermo.csv"), "--response", "temp_c", "--terms", thermoTerms,
+			"--at", "emf_mv=10", "--at", "emf_mv=30", "--reading", "150", "--reading", "1800,5", "--readings-averaged", "3", "--level", "0.99",
+			"--unit", "temp_c=°C", "--unit", "emf_mv=mV"}, "thermo_answers.table.golden"},
+		{"json answers and units", []string{"inspect", fixture("thermo.csv"), "--response", "temp_c", "--terms", thermoTerms,
+			"--at", "emf_mv=10", "--at", "emf_mv=30", "--reading", "150", "--reading", "1800,5", "--readings-averaged", "3", "--level", "0.99",
+			"--unit", "temp_c=°C,emf_mv=mV", "--format", "json"}, "thermo_answers.json.golden"},
 		{"table absolute cutoffs grubbs", []string{"inspect", fixture("stackloss.csv"), "--response", "stack.loss",
 			"--terms", "Air.Flow, Water.Temp, Acid.Conc.", "--cutoffs", "absolute", "--cook-rule", "one", "--outlier-test", "grubbs", "--alpha", "0.1"}, "stackloss_absolute.table.golden"},
 	}

@@ -11,6 +11,8 @@
 //	assess    influence measures and verdicts in one pass (engine.Assess)
 //	fragility the fragility index, when asked (engine.Fragility)
 //	suggest   where to measure next, when asked (engine.Suggest)
+//	answers   predictions at points and inverse predictions of
+//	          readings, when asked (Answer: engine.PredictAt, Invert)
 //
 // To add a measure (intervals, model-form checks, weights): give Options
 // its knob, Result its field, write a step method and list it in steps.
@@ -51,6 +53,10 @@ type Options struct {
 	// in the operating region the suggestions search.
 	Region engine.Region
 
+	// Answers asks for predictions and inverse predictions (none when
+	// empty).
+	Answers Answers
+
 	// Label names the k-th fitted row (1-based) in words, e.g. "feed.csv:212".
 	Label func(row int) string
 }
@@ -82,6 +88,11 @@ type Result struct {
 	// Suggested is true when the suggestions were computed (possibly
 	// none).
 	Suggested bool
+
+	// Predictions and Inverse are the answers asked in Options.Answers,
+	// in the order asked.
+	Predictions []Prediction
+	Inverse     []engine.Inverse
 
 	// Problems are the failures of optional steps, in step order.
 	Problems []*StepError
@@ -151,6 +162,9 @@ func (a *Analysis) steps() []step {
 	}
 	if a.Suggest {
 		s = append(s, step{StepSuggest, true, a.suggest})
+	}
+	if !a.Answers.Empty() {
+		s = append(s, step{StepPredict, true, a.answer}) // names its step
 	}
 	return s
 }

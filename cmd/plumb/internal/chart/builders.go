@@ -21,6 +21,7 @@ const (
 	NameInfluence = "influence"
 	NameCooks     = "cooks"
 	NameHistory   = "history"
+	NameDeviation = "deviation"
 )
 
 // Sizes in CSS pixels.
@@ -31,17 +32,21 @@ const (
 )
 
 // Fit is the response against one predictor: the fitted curve with its
-// confidence band, the points by verdict, and the suggested collection
+// confidence band and the prediction band of one new reading, the points by verdict, and the suggested collection
 // points as marks on the predictor axis.
 func Fit(d view.ModelDetail, predictor string) Spec {
 	s := Spec{
 		Name: NameFit, Width: wideW, Height: wideH,
-		Label: "Data and fitted curve with its confidence band and the suggested collection points",
-		X:     Axis{Label: predictor},
-		Y:     Axis{Label: d.Response},
+		Label: "Data and fitted curve with its confidence and prediction bands and the suggested collection points",
+		X:     Axis{Label: predictor, Unit: d.Units[predictor]},
+		Y:     Axis{Label: d.Response, Unit: d.Units[d.Response]},
 	}
 	if c, ok := d.Curve(predictor); ok {
 		x := floats(c.X)
+		if len(c.PredLower) == len(c.X) {
+			s.Layers = append(s.Layers,
+				Band{Class: "pred-band", Legend: "95 % prediction band (one new reading)", X: x, Lo: floats(c.PredLower), Hi: floats(c.PredUpper), Tone: TonePrediction})
+		}
 		s.Layers = append(s.Layers,
 			Band{Class: "band", Legend: "95 % confidence band", X: x, Lo: floats(c.Lower), Hi: floats(c.Upper), Tone: ToneFit},
 			Line{Class: "curve", Legend: "fitted", X: x, Y: floats(c.Y), Tone: ToneFit})

@@ -129,6 +129,14 @@ type Model struct {
 	Suggest     Suggest              `toml:"suggest"`
 	Alerts      ModelAlerts          `toml:"alerts"`
 
+	// Units gives the unit of each column by name ("°C", "mV"), shown
+	// with its values on charts, in alerts, the report and the API.
+	// Default none.
+	Units map[string]string `toml:"units"`
+	// Calibration lists the points to predict and the readings to invert
+	// at every refresh (config_calib.go).
+	Calibration Calibration `toml:"calibration"`
+
 	// Routes names the routes this model's alerts go to; default all.
 	Routes []string `toml:"routes"`
 }
@@ -447,6 +455,7 @@ func (c *Config) applyDefaults() {
 		if m.Alerts.Drift.BaselineRows == 0 {
 			m.Alerts.Drift.BaselineRows = 30
 		}
+		m.Calibration.applyDefaults()
 	}
 	for i := range c.Routes {
 		r := &c.Routes[i]
@@ -648,6 +657,12 @@ func (c *Config) Validate() error {
 		for _, cp := range m.Checkpoints {
 			if len(cp.At) == 0 || !(cp.Tolerance > 0) {
 				v.add(at("checkpoint"), i, ErrBadValue, "a checkpoint needs at = {column = value} and tolerance > 0")
+			}
+		}
+		m.Calibration.validate(&v, i)
+		for col, u := range m.Units {
+			if col == "" || u == "" || strings.ContainsAny(u, "\n\r") {
+				v.add(at("units"), i, ErrBadValue, "want column = \"unit\" with a one-line unit, got %q = %q", col, u)
 			}
 		}
 		if m.Suggest.Replicates < 1 || m.Suggest.Replicates > 100 {

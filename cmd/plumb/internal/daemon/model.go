@@ -88,6 +88,9 @@ func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
 	if err != nil {
 		return nil, fmt.Errorf("model %q: %w", mc.Name, err)
 	}
+	if err := CheckCalibration(spec, mc); err != nil {
+		return nil, fmt.Errorf("model %q: %w", mc.Name, err)
+	}
 	m := &watchedModel{
 		d:             d,
 		cfg:           mc,

@@ -170,6 +170,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 		}
 		detail["suggestions"] = ss
 	}
+	recordAnswers(detail, res)
 	dj, err := json.Marshal(detail)
 	if err != nil {
 		m.log.Error("fit detail", "err", err) // stored without it
@@ -236,7 +237,10 @@ func (r *refresher) refresh(ctx context.Context) error {
 	}
 	if base != nil && base.fit != fit {
 		if df := r.driftFit(cols, verdicts, fit); df != nil {
-			if err := m.d.drift(ctx, r.driftCondition(base, df, top)); err != nil {
+			// The baseline's rows are all in the drift fit when the
+			// window starts at the first row and no suspect was left out.
+			nested := len(win) > 0 && win[0] == 0 && len(engine.Flagged(verdicts, engine.WordSuspect)) == 0
+			if err := m.d.drift(ctx, r.driftCondition(base, df, top, nested)); err != nil {
 				m.log.Error("alert", "err", err)
 			}
 		}
@@ -334,6 +338,7 @@ func (m *watchedModel) analysis(label func(int) string) *analysis.Analysis {
 		Suggest:          true,
 		SuggestOptions:   engine.SuggestOptions{Replicates: m.cfg.Suggest.Replicates, Top: m.cfg.Suggest.Count},
 		Region:           engine.Region{},
+		Answers:          m.answers(),
 		Label:            label,
 	}}
 	for c, b := range m.cfg.Region {
@@ -416,7 +421,7 @@ func (r *refresher) makeBaseline() *baseline {
 	return b
 }
 
-func (r *refresher) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Suggestion) alerts.DriftCondition {
+func (r *refresher) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Suggestion, nested bool) alerts.DriftCondition {
 	m := r.m
 	c := alerts.DriftCondition{Model: m.cfg.Name, Baseline: b.label, Suggestion: sugg}
 	for i, c0 := range f.Coef {
@@ -446,7 +451,9 @@ func (r *refresher) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Sugg
 			if name == "" {
 				name = "checkpoint " + formatAt(cp.At)
 			}
-			c.Measures = append(c.Measures, alerts.DriftMeasure{Name: name, Kind: alerts.DriftPrediction, At: alerts.Values(cp.At), Baseline: y0, Current: y1, StdError: se0})
+			dm := alerts.DriftMeasure{Name: name, Kind: alerts.DriftPrediction, At: alerts.Values(cp.At), Baseline: y0, Current: y1, StdError: se0}
+			m.shiftOf(&dm, b.fit, f, x, nested)
+			c.Measures = append(c.Measures, dm)
 		}
 	}
 	return c

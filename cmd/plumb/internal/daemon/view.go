@@ -110,7 +110,7 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 	if err != nil {
 		return view.ModelDetail{}, err
 	}
-	d := view.ModelDetail{ModelSummary: m.summary(open[name])}
+	d := view.ModelDetail{ModelSummary: m.summary(open[name]), Units: m.cfg.Units}
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	vr := m.ref.view()
@@ -125,6 +125,7 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 	d.Cutoffs = vr.Lines()
 	d.Curves = vr.Curves(curveSteps)
 	d.Suggestions = vr.SuggestionViews()
+	d.Predictions, d.Inverse = vr.Predictions(), vr.Inverses()
 	if b := m.ref.baseline; b != nil {
 		k := m.cfg.Alerts.Drift.K
 		for i, t := range b.terms {
@@ -195,8 +196,10 @@ func fitView(f store.FitRecord) view.FitView {
 		fv.Fragility = view.Fragility{Computed: true, K: f.FragilityK}
 	}
 	var detail struct {
-		MaxCook   *float64 `json:"max_cooks_distance"`
-		Fragility struct {
+		MaxCook     *float64          `json:"max_cooks_distance"`
+		Predictions []view.Prediction `json:"predictions"`
+		Inverse     []view.Inverse    `json:"inverse"`
+		Fragility   struct {
 			Conclusion string `json:"conclusion"`
 			Searched   string `json:"searched"`
 			Fragile    bool   `json:"fragile"`
@@ -209,6 +212,7 @@ func fitView(f store.FitRecord) view.FitView {
 		fv.Fragility.Conclusion = detail.Fragility.Conclusion
 		fv.Fragility.Searched = detail.Fragility.Searched
 		fv.Fragility.Fragile = detail.Fragility.Fragile
+		fv.Predictions, fv.Inverse = detail.Predictions, detail.Inverse
 	}
 	return fv
 }

@@ -16,6 +16,7 @@ const (
 	ChartFit       = chart.NameFit       // response against the first predictor, fitted curve, band, suggestions
 	ChartInfluence = chart.NameInfluence // studentized residual against leverage, 2p/n and ±Bonferroni |t|
 	ChartCooks     = chart.NameCooks     // Cook's distance by row, 4/n and the absolute cutoff
+	ChartDeviation = chart.NameDeviation // reading minus curve against the first predictor, prediction band around zero
 )
 
 // MaxDrawn is the most points a chart draws (chart.MaxDrawn).
@@ -34,7 +35,7 @@ func firstPredictor(d view.ModelDetail) string {
 }
 
 // Chart writes one chart of the model's current fit as a standalone SVG or
-// PNG: name is ChartFit, ChartInfluence or ChartCooks; format is "svg" or
+// PNG: name is ChartFit, ChartDeviation, ChartInfluence or ChartCooks; format is "svg" or
 // "png". An unknown name or format gives an error wrapping ErrUnknownChart.
 func Chart(w io.Writer, d view.ModelDetail, name, format string) error {
 	if format != "svg" && format != "png" {
@@ -48,6 +49,9 @@ func Chart(w io.Writer, d view.ModelDetail, name, format string) error {
 	case ChartFit:
 		s = chart.Fit(d, firstPredictor(d))
 		s.Title = d.Name + ": data and fit"
+	case ChartDeviation:
+		s = chart.Deviation(d, firstPredictor(d))
+		s.Title = d.Name + ": deviation from the curve"
 	case ChartInfluence:
 		s = chart.Influence(d)
 		s.Title = d.Name + ": residual against leverage"
@@ -55,7 +59,7 @@ func Chart(w io.Writer, d view.ModelDetail, name, format string) error {
 		s = chart.Cooks(d)
 		s.Title = d.Name + ": Cook's distance"
 	default:
-		return fmt.Errorf("chart %q (want fit, influence or cooks): %w", name, ErrUnknownChart)
+		return fmt.Errorf("chart %q (want fit, deviation, influence or cooks): %w", name, ErrUnknownChart)
 	}
 	return write(w, s, format)
 }

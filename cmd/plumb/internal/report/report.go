@@ -132,7 +132,7 @@ func Render(w io.Writer, c Contents, opts Options) error {
 	}
 	if len(d.Points) > 0 {
 		if predictor != "" {
-			caption := "The response against " + predictor + " with the fitted mean and its 95 % confidence band"
+			caption := "The response against " + predictor + " with the fitted mean, its 95 % confidence band and the 95 % prediction band of one new reading"
 			if c, ok := d.Curve(predictor); ok && len(c.Held) > 0 {
 				caption += ", the other predictors held at " + chart.Settings(c.Held)
 			}
@@ -141,6 +141,7 @@ func Render(w io.Writer, c Contents, opts Options) error {
 				caption += fmt.Sprintf(" %d ordinary rows are not drawn (evenly thinned); every flagged row is.", thinned)
 			}
 			pd.Figures = append(pd.Figures, figure{ChartFit, caption, chart.Fit(d, predictor).HTML()})
+			pd.Figures = append(pd.Figures, deviationFigure(d, predictor))
 		}
 		pd.Figures = append(pd.Figures, figure{ChartInfluence, fmt.Sprintf(
 			"Externally studentized residual against leverage. Dashed: 2p/n = %s. Dotted: ±%s, the Bonferroni critical |t| at α = %s.",
@@ -268,7 +269,7 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <div class="facts">
 <div><span>rows in fit</span><b>{{.D.N}}</b></div>
 <div><span>rows quarantined</span><b>{{.D.Quarantined}}</b></div>
-<div><span>σ (residual SD)</span><b>{{num .D.Sigma}}</b></div>
+<div><span>σ (residual SD)</span><b>{{num .D.Sigma}}{{with index .D.Units .D.Response}} {{.}}{{end}}</b></div>
 <div><span>R² (adjusted)</span><b>{{num6 .D.RSquared}} ({{num6 .D.AdjRSquared}})</b></div>
 <div><span>fragility index</span><b {{if .D.Fragility.Alarming}}class="hot"{{end}}>{{.D.Fragility}}</b></div>
 </div>
@@ -319,6 +320,19 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <h2>Where to collect more data</h2>
 {{if .D.Suggestions}}<ol>{{range .D.Suggestions}}<li><b>{{at .}}</b>: {{.Text}}</li>{{end}}</ol>
 {{else}}<p class="empty">No suggestion for this fit.</p>{{end}}
+
+{{if or .D.Predictions .D.Inverse}}
+<h2 id="answers">Calibration answers</h2>
+<p class="meta">From the current fit, as configured for this model{{with index .D.Units .D.Response}}; {{$.D.Response}} in {{.}}{{end}}. An interval marked — reaches the end of the calibrated range: the data do not bound it there.</p>
+{{if .D.Predictions}}<table data-predictions>
+<thead><tr><th>at</th><th>{{.D.Response}}</th><th>std. error</th><th>the mean lies in</th><th>a new value falls in</th><th>level</th><th>readings</th></tr></thead>
+<tbody>{{range .D.Predictions}}<tr><td class="m">{{.Point}}</td><td class="n">{{num .Fitted}}</td><td class="n">{{num .SEFit}}</td><td class="n">{{num (index .Confidence 0)}} … {{num (index .Confidence 1)}}</td><td class="n">{{num (index .Prediction 0)}} … {{num (index .Prediction 1)}}</td><td class="n">{{num .Level}}</td><td class="n">{{.Readings}}</td></tr>{{end}}</tbody>
+</table>{{end}}
+{{if .D.Inverse}}<table data-inverse>
+<thead><tr><th>reading</th><th>stands for</th><th>std. uncertainty</th><th>interval</th><th>level</th><th>readings</th></tr></thead>
+<tbody>{{range .D.Inverse}}<tr><td class="n">{{num .Reading}}</td><td class="m">{{.Column}} = {{num .Estimate}}</td><td class="n">{{num .StandardUncertainty}}</td><td class="n">{{num (index .Interval 0)}} … {{num (index .Interval 1)}}</td><td class="n">{{num .Level}}</td><td class="n">{{.Readings}}</td></tr>{{if .Note}}<tr><td colspan="6">{{.Note}}</td></tr>{{end}}{{end}}</tbody>
+</table>{{end}}
+{{end}}
 
 {{if .History}}
 <h2>Coefficient history</h2>

@@ -114,7 +114,7 @@ func TestWriteNoFit(t *testing.T) {
 
 func TestChart(t *testing.T) {
 	dm := loadDemo(t)
-	for _, name := range []string{ChartFit, ChartInfluence, ChartCooks} {
+	for _, name := range []string{ChartFit, ChartDeviation, ChartInfluence, ChartCooks} {
 		t.Run(name+"/svg", func(t *testing.T) {
 			var buf bytes.Buffer
 			if err := Chart(&buf, dm.d, name, "svg"); err != nil {
@@ -183,7 +183,7 @@ func TestWriteUndefinedValues(t *testing.T) {
 	if m := regexp.MustCompile(`(?i)="[^"]*\b(nan|[+-]?inf)\b[^"]*"`).FindString(buf.String()); m != "" {
 		t.Errorf("non-finite value in markup: %s", m)
 	}
-	for _, name := range []string{ChartFit, ChartInfluence, ChartCooks} {
+	for _, name := range []string{ChartFit, ChartDeviation, ChartInfluence, ChartCooks} {
 		if err := Chart(io.Discard, d, name, "png"); err != nil {
 			t.Errorf("%s: %v", name, err)
 		}

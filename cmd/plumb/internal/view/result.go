@@ -123,9 +123,10 @@ func (r *Result) SuggestionViews() []Suggestion {
 	return out
 }
 
-// Curves evaluates the fitted mean and its 95 % band over each predictor
-// column at steps+1 points across its observed range, the other
-// predictors held at their means.
+// Curves evaluates the fitted mean, its 95 % confidence band and the 95 %
+// prediction band of one new reading over each predictor column at
+// steps+1 points across its observed range, the other predictors held at
+// their means.
 func (r *Result) Curves(steps int) []Curve {
 	cols := r.Model.Columns()
 	means := map[string]float64{}
@@ -168,6 +169,10 @@ func (r *Result) Curves(steps int) []Curve {
 			cv.Y = append(cv.Y, Float(y))
 			cv.Lower = append(cv.Lower, Float(y-tq*se))
 			cv.Upper = append(cv.Upper, Float(y+tq*se))
+			// One new reading: s·√(1 + h), with se² = s²h.
+			sp := math.Sqrt(r.Fit.Sigma*r.Fit.Sigma + se*se)
+			cv.PredLower = append(cv.PredLower, Float(y-tq*sp))
+			cv.PredUpper = append(cv.PredUpper, Float(y+tq*sp))
 		}
 		out = append(out, cv)
 	}

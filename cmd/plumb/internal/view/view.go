@@ -240,6 +240,12 @@ type ModelDetail struct {
 	Suggestions []Suggestion `json:"suggestions"`
 	// Drift holds the drift band of each coefficient (may be empty).
 	Drift []DriftBand `json:"drift"`
+	// Units gives the configured unit of a column by name (may be nil).
+	Units map[string]string `json:"units,omitempty"`
+	// Predictions and Inverse are the configured calibration answers
+	// from the current fit (none when none are configured).
+	Predictions []Prediction `json:"predictions,omitempty"`
+	Inverse     []Inverse    `json:"inverse,omitempty"`
 }
 
 // Curve returns the curve over predictor, or false.
@@ -335,6 +341,10 @@ type Curve struct {
 	Y     []Float          `json:"y"`
 	Lower []Float          `json:"lower"`
 	Upper []Float          `json:"upper"`
+	// PredLower and PredUpper are the 95 % prediction interval of one
+	// new reading at each X: where a new reading is expected to fall.
+	PredLower []Float `json:"pred_lower"`
+	PredUpper []Float `json:"pred_upper"`
 }
 
 // Suggestion is a place in predictor space where one more row would most
@@ -373,6 +383,10 @@ type FitView struct {
 	Fragility Fragility `json:"fragility"`
 	MaxCook   Float     `json:"max_cooks_distance"`
 	LastObsID int64     `json:"last_obs_id"`
+	// Predictions and Inverse are the calibration answers recorded with
+	// the fit (none when none were configured).
+	Predictions []Prediction `json:"predictions,omitempty"`
+	Inverse     []Inverse    `json:"inverse,omitempty"`
 }
 
 // Estimate returns the estimate of term and whether the fit has it.

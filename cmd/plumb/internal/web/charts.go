@@ -28,6 +28,7 @@ func modelCharts(mp *modelPage, md view.ModelDetail, fits []view.FitView, x stri
 	if len(md.Points) > 0 {
 		if x != "" {
 			mp.FitSVG = chart.Fit(md, x).HTML()
+			mp.DevSVG = chart.Deviation(md, x).HTML()
 		}
 		mp.InflSVG = chart.Influence(md).HTML()
 		mp.CooksSVG = chart.Cooks(md).HTML()

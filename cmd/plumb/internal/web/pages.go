@@ -111,6 +111,7 @@ type modelPage struct {
 	Thinned    int    // ordinary points not drawn
 	Predictor  string
 	FitSVG     template.HTML
+	DevSVG     template.HTML // the deviation chart (chart.Deviation)
 	InflSVG    template.HTML
 	CooksSVG   template.HTML
 	History    []historyPanel

@@ -15,6 +15,8 @@
 //	GET  /api/v1/models/{name}                  the model's current picture ?points=all|flagged|none
 //	GET  /api/v1/models/{name}/fits             fit history        ?after=&limit=
 //	GET  /api/v1/models/{name}/observations     accepted rows      ?after=&limit=
+//	GET  /api/v1/models/{name}/predict          fitted value, intervals ?at=COL=X[,COL=X]&level=&readings=
+//	GET  /api/v1/models/{name}/inverse          inverse prediction ?reading=Y&level=&readings=
 //	GET  /api/v1/quarantine                     unreadable rows    ?model=&after=&limit=
 //	GET  /api/v1/alerts                         alerts, newest first ?state=&model=&kind=&offset=&limit=
 //	GET  /api/v1/alerts/{id}                    one alert
@@ -126,6 +128,8 @@ func New(src view.Source, opts Options) http.Handler {
 	api("GET", "/api/v1/models/{name}", s.apiModel)
 	api("GET", "/api/v1/models/{name}/fits", s.apiFits)
 	api("GET", "/api/v1/models/{name}/observations", s.apiObservations)
+	api("GET", "/api/v1/models/{name}/predict", s.apiPredict) // api_calib.go
+	api("GET", "/api/v1/models/{name}/inverse", s.apiInverse)
 	api("GET", "/api/v1/quarantine", s.apiQuarantine)
 	api("GET", "/api/v1/alerts", s.apiAlerts)
 	api("GET", "/api/v1/alerts/{id}", s.apiAlert)

@@ -178,6 +178,10 @@ func StraightLine(l Line) (view.ModelDetail, error) {
 		c.Y = append(c.Y, view.Float(y))
 		c.Lower = append(c.Lower, view.Float(y-t975*se))
 		c.Upper = append(c.Upper, view.Float(y+t975*se))
+		// One new reading: s·√(1 + 1/n + (x - x̄)²/Sxx).
+		sp := s * math.Sqrt(1+1/float64(n)+(x-fit.xbar)*(x-fit.xbar)/fit.sxx)
+		c.PredLower = append(c.PredLower, view.Float(y-t975*sp))
+		c.PredUpper = append(c.PredUpper, view.Float(y+t975*sp))
 	}
 	d.Curves = []view.Curve{c}
 	for _, x := range []float64{hi, lo} {
