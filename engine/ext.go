@@ -310,6 +310,7 @@ func (w *work) refineExt(e *extFactors, b0, c0, fscr []float64) (bh, bl []float6
 	dc := make([]dd, p)
 	db := make([]dd, p)
 	prev := math.Inf(1)
+	rho := 16 * float64(p) * e.cond * e.cond * 0x1p-104
 	for it := 0; it < maxRefineExt; it++ {
 		split()
 		ch.run(func(c int) {
@@ -361,9 +362,14 @@ func (w *work) refineExt(e *extFactors, b0, c0, fscr []float64) (bh, bl []float6
 			den := math.Max(math.Abs(c[j].hi), 1e-16*cmax)
 			nd = math.Max(nd, math.Abs(dc[j].hi)/den)
 		}
-		// Stop at double-double rounding level, or when the corrections
-		// no longer shrink (the limit above is reached).
+		// Stop at double-double rounding level, when the corrections no
+		// longer shrink (the limit above is reached), or when the next
+		// one, predicted by the contraction (the observed ratio, at least
+		// the a-priori 16p·κ²·2^-104), is below rounding level.
 		if nd <= 0x1p-100 || math.IsNaN(nd) || nd > prev/2 {
+			break
+		}
+		if it > 0 && nd*math.Max(nd/prev, rho) <= 0x1p-100 {
 			break
 		}
 		prev = nd

@@ -728,6 +728,20 @@ var illCases = []illCase{
 		condLo: 1e4, condHi: 1e6,
 	},
 	{
+		name: "collinear pair, huge offsets", terms: []string{"x1", "x2"},
+		cols: func(rng *rand.Rand) map[string][]float64 {
+			n := 40
+			x1, x2, y := make([]float64, n), make([]float64, n), make([]float64, n)
+			for i := range x1 {
+				x1[i] = 1e6 + 10*rng.Float64()
+				x2[i] = x1[i] + 6e-8*rng.NormFloat64()
+				y[i] = 1e9 + 2*x1[i] - x2[i] + 0.1*rng.NormFloat64()
+			}
+			return map[string][]float64{"x1": x1, "x2": x2, "y": y}
+		},
+		condLo: 5e7, condHi: 5e8,
+	},
+	{
 		name: "uncentred degree 10", terms: polyTerms(10),
 		cols:   polyCols(24, 2.5, 8.5, []float64{2, -1, 3, 0.5, -4, 1, 2, -0.5, 1, 0.2, -0.1}, 0.01),
 		condLo: 1e9, condHi: 1e10,
