@@ -776,14 +776,23 @@ func (w *work) refineSemi(cond float64, f0 []float64) (b, bl, db []float64) {
 			for i := lo0; i < hi; i++ {
 				row := xd[i*stride : i*stride+p]
 				s1, c1 := residualDD(y[i], 0, row, bb)
-				for j, l := range lo {
-					if l != nil {
-						c1 -= l[i] * bb[j]
-					}
-				}
 				ri := s1 + c1
 				r[i] = ri
 				f0[i] = (s1 - ri) + c1
+			}
+			if lo != nil {
+				// Derived columns: subtract lo·b, and round again.
+				for i := lo0; i < hi; i++ {
+					c1 := f0[i]
+					for j, l := range lo {
+						if l != nil {
+							c1 -= l[i] * bb[j]
+						}
+					}
+					ri := r[i] + c1
+					f0[i] = (r[i] - ri) + c1
+					r[i] = ri
+				}
 			}
 			gs := gpart[3*c*p : (3*c+1)*p]
 			gc := gpart[(3*c+1)*p : (3*c+2)*p]

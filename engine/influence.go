@@ -115,23 +115,27 @@ func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 			nb := min(blockRows, hi-b0)
 			if f.ext == nil {
 				d.block(bk, b0, nb)
-			}
-			for r := 0; r < nb; r++ {
-				i := b0 + r
-				var h, om float64
-				if f.ext == nil {
-					h = bk.h[r]
-					om = 1 - h
+				for r := 0; r < nb; r++ {
+					i := b0 + r
+					h := bk.h[r]
 					for j := range v {
 						v[j] = bk.v[j][r]
 					}
-				} else {
-					h, om = d.rowExt(v, i)
+					om := 1 - h
+					del, ok := d.deleted(f.Residuals[i], om)
+					d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], f.Residuals[i], h, om, v, del)
+					if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
+						cands[c] = append(cands[c], cand{i, del})
+					}
 				}
-				del, ok := d.deleted(f.Residuals[i], om)
-				d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], f.Residuals[i], h, om, v, del)
-				if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
-					cands[c] = append(cands[c], cand{i, del})
+			} else {
+				for i := b0; i < b0+nb; i++ {
+					h, om := d.rowExt(v, i)
+					del, ok := d.deleted(f.Residuals[i], om)
+					d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], f.Residuals[i], h, om, v, del)
+					if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
+						cands[c] = append(cands[c], cand{i, del})
+					}
 				}
 			}
 			if j != nil {
