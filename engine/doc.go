@@ -74,20 +74,25 @@
 // arithmetic (TestExactOracleIllConditioned, TestExtendedLarge):
 //
 //	binary64 route   about κ·1e-16 relative     worst 1.2e-10 (κ up to 9.3e3)
-//	extended route   about κ·1e-31 (factors),   worst 7e-15 (κ up to 7.5e9,
-//	                 κ²·1e-31·|r|/|Xb| (coef.)  near-collinear pair, uncentred
+//	extended route   about κ·1e-31 (factors),   worst 1e-14 (κ up to 7.5e9:
+//	                 κ²·1e-31·|r|/|Xb| (coef.)  near-collinear pairs, uncentred
 //	                                            cubic, quartic, degree 10)
 //
 // The limit is set by the coefficients: with residuals in double-double
 // their attainable accuracy is about κ²·1e-31 times the ratio of the
 // residuals to the fitted values, 1e-11 at 1e10 and 1e-9 at 1e11, so 1e10
-// keeps two digits of margin. The binary64 route alone misses the same
-// cases by 6e-7 to 2e-4 (the rounding of the coefficients and of x^k
-// moves the residuals; leverage and (X'X)^-1 are good to κ·eps).
+// keeps two digits of margin. With the binary64 R instead (but exact derived terms and
+// unrounded coefficients), the same cases miss by 6e-7 to 2e-4 (DFBETAS):
+// leverage and (X'X)^-1 are then good to about κ·eps only.
 //
-// The cost of the extended route, at n = 1e5, p = 5, κ = 1e9
-// (BenchmarkRoutes): the fit about 5 times the binary64 route's and the
-// full table about 4 times.
+// The cost of the extended route at n = 1e5, p = 5, κ = 1e9, against the
+// binary64 route on the same size (BenchmarkRoutes; measured on a loaded
+// machine, median of five alternating runs, so read the ratios): the fit
+// 22 against 5.8 ms (ratio 4.5), the full table 34 against 15 ms (ratio
+// 2.5). Counted in instructions, which the load does not move: fit
+// 4.0e8 against 1.0e8, table 7.2e8 against 2.1e8. The cost is one more
+// pass for R, two or three refinement passes in double-double and about
+// three times the per-row work in Diagnose; it grows as n p².
 //
 // # Diagnostics
 //
