@@ -2,6 +2,7 @@ package engine
 
 import (
 	"math"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"testing"
@@ -86,6 +87,21 @@ func TestRefinePaths(t *testing.T) {
 			X2.Set(i, 2, X2.At(i, 1)+1e-3*X2.At(i, 2))
 		}
 		probs = append(probs, problem{"collinear", m2, X2, y2})
+	}
+	// Uncentred polynomials below the threshold (derived columns with
+	// low parts): quadratic on 1000..1010, cubic on 50..60.
+	for _, k := range []int{4, 6} {
+		tc := illCases[k]
+		cols := tc.cols(rand.New(rand.NewPCG(uint64(k), 1)))
+		m, err := NewModel("y", tc.terms, true)
+		if err != nil {
+			t.Fatal(err)
+		}
+		X, y, err := m.Design(cols)
+		if err != nil {
+			t.Fatal(err)
+		}
+		probs = append(probs, problem{"poly", m, X, y})
 	}
 	const eps = 0x1p-52
 	for _, pr := range probs {
