@@ -74,7 +74,7 @@
 // arithmetic (TestExactOracleIllConditioned, TestExtendedLarge):
 //
 //	binary64 route   about κ·1e-16 relative     worst 1.2e-10 (κ up to 9.3e3)
-//	extended route   about κ·1e-31 (factors),   worst 1e-14 (κ up to 7.5e9:
+//	extended route   about κ·1e-31 (factors),   worst 1e-14 (κ up to 7.8e9:
 //	                 κ²·1e-31·|r|/|Xb| (coef.)  near-collinear pairs, uncentred
 //	                                            cubic, quartic, degree 10)
 //
@@ -86,13 +86,14 @@
 // leverage and (X'X)^-1 are then good to about κ·eps only.
 //
 // The cost of the extended route at n = 1e5, p = 5, κ = 1e9, against the
-// binary64 route on the same size (BenchmarkRoutes; measured on a loaded
-// machine, median of five alternating runs, so read the ratios): the fit
-// 22 against 5.8 ms (ratio 4.5), the full table 34 against 15 ms (ratio
-// 2.5). Counted in instructions, which the load does not move: fit
-// 4.0e8 against 1.0e8, table 7.2e8 against 2.1e8. The cost is one more
-// pass for R, two or three refinement passes in double-double and about
-// three times the per-row work in Diagnose; it grows as n p².
+// binary64 route on the same size (BenchmarkRoutes). Counted in
+// instructions (callgrind, one goroutine), which the load of a shared
+// machine does not move: the fit 3.9e8 against 1.0e8 (ratio 3.9), the
+// full table 7.1e8 against 2.1e8 (3.4). In time, median of the ratios of
+// five alternating runs on a loaded machine: 4.1 and 2.7. The cost is one
+// more pass for R, the refinement passes in double-double (two, three
+// near 1e10) and about three times the per-row work in Diagnose; it grows
+// as n p².
 //
 // # Diagnostics
 //

@@ -168,12 +168,17 @@ func (w *work) factorExt() *extFactors {
 		invD[l] = recip(R0[l*p+l])
 	}
 	pp := p * p
-	parts := make([]dd, ch.nc*pp)
+	// Per chunk, G as unevaluated sums s + c (the products' exact high
+	// parts summed error-free into s, everything else into c, as the
+	// compensated dot product does: as accurate as double-double
+	// accumulation, fewer operations).
+	parts := make([]float64, 2*ch.nc*pp)
 	ch.run(func(c int) {
 		lo, hi := ch.bounds(c)
 		u := make([]dd, p)
 		yv := make([]dd, p)
-		g := parts[c*pp : (c+1)*pp]
+		gs := parts[2*c*pp : (2*c+1)*pp]
+		gc := parts[(2*c+1)*pp : (2*c+2)*pp]
 		for i := lo; i < hi; i++ {
 			w.centred(u, i)
 			for l := 0; l < p; l++ {
@@ -185,9 +190,14 @@ func (w *work) factorExt() *extFactors {
 			}
 			for a := 0; a < p; a++ {
 				ya := yv[a]
-				ga := g[a*p : (a+1)*p]
+				sa, ca := gs[a*p:(a+1)*p], gc[a*p:(a+1)*p]
 				for b := a; b < p; b++ {
-					ga[b] = ga[b].addDD(ya.mulDD(yv[b]))
+					yb := yv[b]
+					ph := ya.hi * yb.hi
+					pe := math.FMA(ya.hi, yb.hi, -ph) + (ya.hi*yb.lo + ya.lo*yb.hi)
+					var t float64
+					sa[b], t = twoSum(sa[b], ph)
+					ca[b] += t + pe
 				}
 			}
 		}
@@ -195,7 +205,7 @@ func (w *work) factorExt() *extFactors {
 	G := make([]dd, pp)
 	for c := 0; c < ch.nc; c++ {
 		for k := range G {
-			G[k] = G[k].addDD(parts[c*pp+k])
+			G[k] = G[k].add(parts[2*c*pp+k]).add(parts[(2*c+1)*pp+k])
 		}
 	}
 	// Cholesky: G = RG'RG, RG upper.

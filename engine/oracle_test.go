@@ -743,7 +743,7 @@ var illCases = []illCase{
 	},
 	{
 		name: "uncentred degree 10", terms: polyTerms(10),
-		cols:   polyCols(24, 2.5, 8.5, []float64{2, -1, 3, 0.5, -4, 1, 2, -0.5, 1, 0.2, -0.1}, 0.01),
+		cols:   polyCols(24, 3, 9, []float64{2, -1, 3, 0.5, -4, 1, 2, -0.5, 1, 0.2, -0.1}, 0.01),
 		condLo: 1e9, condHi: 1e10,
 	},
 }
