@@ -72,3 +72,31 @@ func (d dd) neg() dd { return dd{-d.hi, -d.lo} }
 
 // float returns the double nearest to d.
 func (d dd) float() float64 { return d.hi + d.lo }
+
+// mulF returns d*x for a double x.
+func (d dd) mulF(x float64) dd {
+	p := d.hi * x
+	pe := math.FMA(d.hi, x, -p) + d.lo*x
+	s, e := twoSumQuick(p, pe)
+	return dd{s, e}
+}
+
+// sub returns d-o.
+func (d dd) sub(o dd) dd { return d.addDD(o.neg()) }
+
+// sqrt returns √d for d >= 0 (one Newton step on the double root).
+func (d dd) sqrt() dd {
+	if d.hi <= 0 {
+		return dd{math.Sqrt(d.hi), 0}
+	}
+	s := math.Sqrt(d.hi)
+	// √d ≈ s + (d - s²)/(2s), with s² exact.
+	sq := dd{s, 0}.mulF(s)
+	r := d.sub(sq)
+	c := r.hi / (2 * s)
+	hi, lo := twoSumQuick(s, c)
+	return dd{hi, lo}
+}
+
+// recip returns 1/x in double-double.
+func recip(x float64) dd { return dd{1, 0}.divDD(dd{x, 0}) }

@@ -3,6 +3,7 @@ package engine
 import (
 	"fmt"
 	"math"
+	"strings"
 	"sync"
 
 	"gonum.org/v1/gonum/mat"
@@ -38,7 +39,11 @@ type Coefficient struct {
 // the t statistics are ±Inf.
 //
 // The fit keeps references to X and y (no copy); the caller must not
-// change them while the fit is in use. A Fit is safe for concurrent reads.
+// change them while the fit is in use. For each derived term (x^3 when x
+// is a term too) it also keeps the low parts of its exact values, 8n
+// bytes a term. Condition is measured on the double-double factor when
+// it is above 1e4 (the extended route, package documentation). A Fit is
+// safe for concurrent reads.
 type Fit struct {
 	Model       Model
 	N, P        int
@@ -67,6 +72,11 @@ type Fit struct {
 	ri  []float64 // R^-1, row-major
 	m   []float64 // M = T^-1 R^-1, row-major: (X'X)^-1 = M M'
 	rss dd        // RSS in double-double
+	bl  []float64 // low parts of the coefficients: b = Estimate + bl
+
+	der []*derivedTerm // per column, how a derived column follows from others
+	lo  [][]float64    // low parts of derived columns (nil: none)
+	ext *extFactors    // double-double factors (nil on the binary64 route)
 }
 
 // Limits used by Refit.
@@ -75,14 +85,16 @@ const (
 	// columns before it is below rankTol is collinear with them.
 	rankTol = 1e-13
 	// maxCondition: a scaled design with a larger condition number is
-	// refused with ErrIllConditioned.
-	maxCondition = 1e12
+	// refused with ErrIllConditioned: up to it every field is promised to
+	// 1e-9 relative (package documentation, "Accuracy").
+	maxCondition = 1e10
 	// maxRefine bounds the refinement steps.
 	maxRefine = 10
 	// seminormalCond: up to this condition number of the scaled design
-	// the solution is refined on the corrected seminormal equations,
-	// which need only R; above it, on the augmented system, which needs
-	// the chunks' Householder reflectors kept.
+	// the fit is refined on the corrected seminormal equations with the
+	// binary64 R and its diagnostics are computed in binary64; above it,
+	// R is computed again in double-double (factorExt) and the fit and
+	// its diagnostics are computed with it (the extended route).
 	seminormalCond = 1e4
 )
 
@@ -137,17 +149,22 @@ func (s *scaling) fromW(b, c []float64) {
 //     two, and computes a Householder QR of the chunk;
 //   - the stacked chunk R factors are factored again (TSQR); the columns
 //     of the resulting R are scaled to unit length, W = X T^-1;
+//   - a derived term (x^3 when x is a term too, x^9*x, x*z) is taken at
+//     its exact value, the product of its factors in double-double, not
+//     at its rounding in X (see derivations);
 //   - never the normal equations X'X: the QR solution b0 is refined with
 //     residuals and X'r accumulated in extended precision (compensated
-//     products and sums) against the original X, until the predicted next
-//     correction is below rounding level. A well-conditioned design
-//     (scaled condition number at most seminormalCond, the usual case)
-//     takes the corrections from the corrected seminormal equations
-//     R'R dc = W'(y - Xb) (Björck 1987), which need R only, so no chunk's
-//     reflectors are kept; a worse-conditioned one is factored again,
-//     keeping them, and refined on the augmented system
-//     [I X; X' 0][r; b] = [y; 0] (Björck 1967) from the consistent start
-//     r = y - X b0, each correction of r and b solved with the QR factors.
+//     products and sums) against the original X, on the corrected
+//     seminormal equations R'R dc = W'(y - Xb) (Björck 1987). A
+//     well-conditioned design (scaled condition number at most
+//     seminormalCond, the usual case) is refined with the binary64 R
+//     until the predicted next correction is below rounding level, and
+//     keeps the last correction unrounded (Fit's coefficients are then
+//     known to about twice double precision); a worse-conditioned one
+//     takes the extended route: R again in double-double by one more
+//     pass over the rows (factorExt), the refinement in double-double
+//     (refineExt), and (X'X)^-1, the standard errors and, in Diagnose,
+//     every row's leverage and (X'X)^-1 x_i in double-double.
 //
 // Large problems are split over up to GOMAXPROCS goroutines inside the
 // call; results do not depend on their number.
@@ -156,10 +173,11 @@ func (s *scaling) fromW(b, c []float64) {
 // ErrZeroResponse; *ColumnError wrapping ErrConstantColumn for a constant
 // term (or response, with an intercept); *CollinearError when a scaled
 // column lies within 1e-13 of the span of the columns before it; and, when
-// the scaled design has condition number above 1e12, an error wrapping
-// both ErrIllConditioned and the mat.Condition value. A shape mismatch
-// between m, X and y, or an intercept column that is not all ones, is a
-// caller bug and panics.
+// the scaled design has condition number above 1e10 (the limit of the
+// accuracy promise in the package documentation), an error wrapping both
+// ErrIllConditioned and the mat.Condition value, naming the terms
+// involved. A shape mismatch between m, X and y, or an intercept column
+// that is not all ones, is a caller bug and panics.
 func Refit(m Model, X *mat.Dense, y []float64) (*Fit, error) {
 	return refit(m, X, y, nil)
 }
@@ -195,60 +213,65 @@ func refit(m Model, X *mat.Dense, y, wt []float64) (*Fit, error) {
 		return nil, err
 	}
 	cond := conditionUpper(R, p)
-	if cond > maxCondition || math.IsNaN(cond) {
-		return nil, fmt.Errorf("%w: %w", ErrIllConditioned, mat.Condition(cond))
+	// The binary64 estimate is within about κ·eps of the true value: far
+	// above the limit, refuse without the double-double pass.
+	if cond > 2*maxCondition || math.IsNaN(cond) {
+		return nil, illConditioned(R, p, cond, names)
+	}
+	if wt == nil {
+		ws.der = derivations(m)
+		ws.lo = designLo(ws.der, ws.xd, ws.stride, n, p)
 	}
 	fitted := make([]float64, n)
-	var b, db0 []float64
-	single := true
-	if wt != nil {
-		// Weighted fits are refined on the corrected seminormal
-		// equations only, which contract while κ² eps is small; past
-		// weightedRefineCond the QR solution is kept as it is.
-		single = false
-		if cond <= weightedRefineCond {
-			b, _ = ws.refineSemi(cond, fitted)
-		} else {
-			b, _ = ws.start()
-			ws.r = make([]float64, n)
-		}
-	} else if cond <= seminormalCond {
-		b, db0 = ws.refineSemi(cond, fitted)
+	var b, bl, db []float64
+	var ext *extFactors
+	// Weighted fits take the design as given (no derived term gets low
+	// parts: der and lo stay nil), weight their rows inside the
+	// refinements and factorExt, and keep the refined coefficients
+	// unrounded (bl) for the residuals (weightedFinal) and Predict.
+	if cond <= seminormalCond {
+		b, bl, db = ws.refineSemi(cond, fitted)
 	} else {
-		// The augmented refinement needs every chunk's reflectors:
-		// factor again, keeping them (the same factors, bit for bit).
-		ws.keep = true
-		if err := ws.factor(); err != nil {
-			return nil, err
+		ext = ws.factorExt()
+		if ext == nil {
+			return nil, illConditioned(R, p, math.Inf(1), names)
 		}
-		b, db0, single = ws.refine(cond, fitted)
+		if ext.cond > maxCondition || math.IsNaN(ext.cond) {
+			return nil, illConditioned(roundDD(ext.r), p, ext.cond, names)
+		}
+		cond = ext.cond
+		b0, c0 := ws.start()
+		b, bl = ws.refineExt(ext, b0, c0, fitted)
 	}
+	ws.S = nil
 
 	// Final pass: residuals, fitted values, RSS in double-double, TSS.
 	xd, stride := ws.xd, ws.stride
-	f0 := fitted // holds the it0 remainders when single
+	f0 := fitted // holds the remainders of the last refinement step
 	res := ws.r
 	rssPart := make([]dd, ch.nc)
 	tssPart := make([]float64, 2*ch.nc)
 	ybar := ws.ybar
+	lo := ws.lo
 	final := func(c int) {
-		lo, hi := ch.bounds(c)
+		lo0, hi := ch.bounds(c)
 		var rs, rc float64
 		var t1, t2 float64
-		for i := lo; i < hi; i++ {
+		for i := lo0; i < hi; i++ {
 			row := xd[i*stride : i*stride+p]
 			var e float64
-			if single {
-				// r0 + f0 = y - X b0 to double-double accuracy and
-				// b = b0 + db0, so e = r0 + (f0 - x·db0): the small
-				// terms in double, then one rounding.
+			if ext == nil {
+				// r0 + f0 = y - X(b - db) to double-double accuracy
+				// and b + bl = (b - db) + db, so e = r0 + (f0 - x·db):
+				// the small terms in double, then one rounding.
 				t := f0[i]
 				for j, v := range row {
-					t = math.FMA(-v, db0[j], t)
+					t = math.FMA(-v, db[j], t)
 				}
 				e = res[i] + t
 			} else {
-				e = residual2(y[i], 0, row, b)
+				s, c := residualExt(y[i], row, lo, i, b, bl)
+				e = s + c
 			}
 			res[i] = e
 			fitted[i] = y[i] - e
@@ -269,8 +292,8 @@ func refit(m Model, X *mat.Dense, y, wt []float64) (*Fit, error) {
 	}
 	if wt != nil {
 		final = func(c int) {
-			lo, hi := ch.bounds(c)
-			rssPart[c], tssPart[2*c], tssPart[2*c+1] = weightedFinal(xd[lo*stride:], stride, p, y[lo:hi], wt[lo:hi], b, res[lo:hi], fitted[lo:hi], m.Intercept, ybar)
+			lo0, hi := ch.bounds(c)
+			rssPart[c], tssPart[2*c], tssPart[2*c+1] = weightedFinal(xd[lo0*stride:], stride, p, y[lo0:hi], wt[lo0:hi], b, bl, res[lo0:hi], fitted[lo0:hi], m.Intercept, ybar)
 		}
 	}
 	ch.run(final)
@@ -291,7 +314,8 @@ func refit(m Model, X *mat.Dense, y, wt []float64) (*Fit, error) {
 		RSS: rss.float(), TSS: tss,
 		Condition: cond,
 		Residuals: res, Fitted: fitted,
-		x: X, y: y, sc: *sc, r: R, rss: rss,
+		x: X, y: y, sc: *sc, r: R, rss: rss, bl: bl,
+		der: ws.der, lo: lo, ext: ext,
 		Weights: wt, sw: sw,
 	}
 	f.finish(b, names, ws.ssCentred)
@@ -352,14 +376,15 @@ type work struct {
 	ybar      float64
 	ssCentred []float64 // Σ(x_j - x̄_j)², for the VIF
 
-	keep   bool      // keep every chunk's reflectors in blocks (refine needs them)
-	blocks []float64 // per chunk, column-major m x k: reflectors, then z
-	taus   []float64 // per chunk reflector scalars
-	S      []float64 // stacked chunk R factors (nc·p x k), column-major
-	tauS   []float64
-	R      []float64 // scaled R, p x p row-major
-	pre    []float64 // power-of-two prescale per column (y last)
-	r      []float64 // residual iterate
+	taus []float64 // per chunk reflector scalars
+	S    []float64 // stacked chunk R factors (nc·p x k), column-major
+	tauS []float64
+	R    []float64 // scaled R, p x p row-major
+	pre  []float64 // power-of-two prescale per column (y last)
+	r    []float64 // residual iterate
+
+	der []*derivedTerm // per column, how a derived column follows from others
+	lo  [][]float64    // low parts of derived columns (nil: none)
 
 	wt, sw []float64 // row weights and their square roots (nil unweighted)
 	nw     float64   // Σ w (n unweighted)
@@ -521,11 +546,8 @@ func (w *work) provisional(lo, hi int, cen []float64) {
 // qrPass copies, checks and factors every chunk, and stacks the chunk R
 // factors into S.
 func (w *work) qrPass(cen []float64) []chunkStat {
-	n, p, k := w.n, w.p, w.k
+	p, k := w.p, w.k
 	ch := w.ch
-	if w.keep && w.blocks == nil {
-		w.blocks = make([]float64, n*k)
-	}
 	if w.S == nil {
 		w.taus = make([]float64, ch.nc*p)
 		w.S = make([]float64, ch.nc*p*k)
@@ -537,17 +559,12 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 	ch.run(func(c int) {
 		lo, hi := ch.bounds(c)
 		mr := hi - lo
-		var a []float64
-		if w.keep {
-			a = w.blocks[lo*k : hi*k]
-		} else {
-			sp := qrScratch.Get().(*[]float64)
-			if cap(*sp) < mr*k {
-				*sp = make([]float64, mr*k)
-			}
-			a = (*sp)[:mr*k]
-			defer qrScratch.Put(sp)
+		sp := qrScratch.Get().(*[]float64)
+		if cap(*sp) < mr*k {
+			*sp = make([]float64, mr*k)
 		}
+		a := (*sp)[:mr*k]
+		defer qrScratch.Put(sp)
 		st := chunkStat{sum: make([]float64, k), min: make([]float64, k), max: make([]float64, k), badRow: -1}
 		for j := range st.min {
 			st.min[j] = math.Inf(1)
@@ -666,7 +683,7 @@ func (w *work) qrPass(cen []float64) []chunkStat {
 	return stats
 }
 
-// qrScratch holds chunk blocks for a qrPass that keeps no reflectors.
+// qrScratch holds the chunk blocks of qrPass.
 var qrScratch = sync.Pool{New: func() any { return new([]float64) }}
 
 func allFinite(v []float64) bool {
@@ -676,110 +693,6 @@ func allFinite(v []float64) bool {
 		}
 	}
 	return true
-}
-
-// refine returns the least-squares coefficients, refined on the augmented
-// system [I X; X' 0][r; b] = [y; 0] (Björck 1967) from the consistent
-// start r = y - X b0, with y - r - Xb and X'r accumulated in extended
-// precision. The factors are those of the scaled design.
-//
-// It also returns the first correction db0 and whether it was the only
-// one; then w.r holds r0 = fl(y - X b0) and f0 the remainders y - X b0 - r0.
-func (w *work) refine(cond float64, f0 []float64) (b, db0 []float64, single bool) {
-	n, p, k := w.n, w.p, w.k
-	ch, sc, R := w.ch, &w.sc, w.R
-	sm := ch.nc * p
-	xd, stride, y := w.xd, w.stride, w.y
-
-	b, cvec := w.start()
-	db0 = make([]float64, p)
-	single = true
-
-	w.r = make([]float64, n)
-	r := w.r
-	s := make([]float64, sm)
-	gpart := make([]float64, 2*ch.nc*p)
-	gfs := make([]float64, ch.nc*p)
-	dc := make([]float64, p)
-	db := make([]float64, p)
-	h := make([]float64, p)
-	const eps = 0x1p-52
-	// Contraction of the augmented refinement, about c·κ·eps.
-	rho := 16 * float64(p) * cond * eps
-	prev := math.Inf(1)
-	for it := 0; it < maxRefine; it++ {
-		bb := b
-		ch.run(func(c int) {
-			lo, hi := ch.bounds(c)
-			mr := hi - lo
-			a := w.blocks[lo*k : hi*k]
-			tau := w.taus[c*p : (c+1)*p]
-			z := a[p*mr : k*mr]
-			if it > 0 {
-				copy(z[:p], s[c*p:(c+1)*p])
-				applyQ(a, mr, p, tau, z)
-				for i := range z {
-					r[lo+i] += z[i]
-				}
-			}
-			gs := gpart[2*c*p : (2*c+1)*p]
-			gc := gpart[(2*c+1)*p : (2*c+2)*p]
-			for i := lo; i < hi; i++ {
-				row := xd[i*stride : i*stride+p]
-				var ri, fi float64
-				if it == 0 {
-					// Consistent start: r = y - X b0 rounded, f the rest.
-					s1, c1 := residualDD(y[i], 0, row, bb)
-					ri = s1 + c1
-					fi = (s1 - ri) + c1
-					r[i] = ri
-					f0[i] = fi
-				} else {
-					ri = r[i]
-					fi = residual2(y[i], ri, row, bb)
-				}
-				z[i-lo] = fi
-			}
-			// X'r of the chunk in double-double (X'f, in gf, is not used:
-			// Q'f carries f into the correction).
-			xtr(xd[lo*stride:], stride, p, r[lo:hi], z[:mr], gs, gc, gfs[c*p:(c+1)*p])
-			applyQT(a, mr, p, tau, z)
-			copy(s[c*p:(c+1)*p], z[:p])
-		})
-		applyQT(w.S, sm, p, w.tauS, s)
-		// g = X'r, gW = T^-T g, h = -R^-T gW.
-		g := make([]dd, p)
-		for c := 0; c < ch.nc; c++ {
-			for j := 0; j < p; j++ {
-				g[j] = g[j].add(gpart[2*c*p+j]).add(gpart[(2*c+1)*p+j])
-			}
-		}
-		for j := 0; j < p; j++ {
-			v := g[j]
-			if sc.intercept && j > 0 {
-				v = v.addDD(g[0].mulDD(dd{-sc.mean[j], 0}))
-			}
-			h[j] = -v.float() / sc.scale[j]
-		}
-		solveUpperT(R, p, h)
-		for j := 0; j < p; j++ {
-			dc[j] = s[j] - h[j]
-		}
-		solveUpper(R, p, dc)
-		sc.fromW(db, dc)
-		if it == 0 {
-			copy(db0, db)
-		} else {
-			single = false
-		}
-		if w.converged(b, db, cvec, dc, &rho, &prev, it) {
-			break
-		}
-		copy(s[:p], h)
-		applyQ(w.S, sm, p, w.tauS, s)
-	}
-	w.blocks, w.S = nil, nil
-	return b, db0, single
 }
 
 // converged applies the correction (b += db, cvec += dc, the scaled
@@ -880,22 +793,29 @@ func xtr(x []float64, stride, p int, r, f, gs, gc, gf []float64) {
 // corrected seminormal equations (Björck 1987): from b0 of the QR
 // factors, each step computes r + f = y - Xb to double-double accuracy
 // (r rounded, f the rest), g = X'(r + f) with X'r in extended precision,
-// and the correction T^-1 R^-1 R^-T T^-T g, which needs R only. A step
-// contracts the error by about κ² eps, so it serves well-conditioned
-// designs (κ <= seminormalCond); it stops as refine does.
+// and the correction T^-1 R^-1 R^-T T^-T g, which needs R only. X
+// includes the low parts of derived columns (w.lo). A step contracts the
+// error by about κ² eps, so it serves well-conditioned designs
+// (κ <= seminormalCond). It stops when the correction is at rounding
+// level, no longer shrinks by half, or the next one is predicted below it.
 //
-// It also returns the last correction db; w.r and f0 then hold r and f
-// for b - db, so that the residuals of b are r + (f - X db).
-func (w *work) refineSemi(cond float64, f0 []float64) (b, db []float64) {
+// It returns b, the low parts bl of the refined solution (b + bl is the
+// last iterate plus its correction, unrounded) and the last correction
+// db; w.r and f0 then hold r and f for b + bl - db, so that the residuals
+// of b + bl are r + (f - X db).
+func (w *work) refineSemi(cond float64, f0 []float64) (b, bl, db []float64) {
 	n, p := w.n, w.p
 	ch, sc, R := w.ch, &w.sc, w.R
 	xd, stride, y := w.xd, w.stride, w.y
 
 	b, cvec := w.start()
 	db = make([]float64, p)
+	bl = make([]float64, p)
+	bprev := make([]float64, p)
 
 	w.r = make([]float64, n)
 	r := w.r
+	lo := w.lo
 	// Per chunk and column: X'r as s + c, then X'f.
 	gpart := make([]float64, 3*ch.nc*p)
 	dc := make([]float64, p)
@@ -905,26 +825,47 @@ func (w *work) refineSemi(cond float64, f0 []float64) (b, db []float64) {
 	for it := 0; it < maxRefine; it++ {
 		bb := b
 		ch.run(func(c int) {
-			lo, hi := ch.bounds(c)
-			for i := lo; i < hi; i++ {
+			lo0, hi := ch.bounds(c)
+			for i := lo0; i < hi; i++ {
 				row := xd[i*stride : i*stride+p]
 				s1, c1 := residualDD(y[i], 0, row, bb)
 				ri := s1 + c1
-				fi := (s1 - ri) + c1
-				if w.wt != nil {
-					// r + f = w (y - x'b), for X'W(y - Xb).
-					wi := w.wt[i]
-					pr := wi * ri
-					fi = math.FMA(wi, ri, -pr) + wi*fi
-					ri = pr
-				}
 				r[i] = ri
-				f0[i] = fi
+				f0[i] = (s1 - ri) + c1
+			}
+			if lo != nil {
+				// Derived columns: subtract lo·b, and round again.
+				for i := lo0; i < hi; i++ {
+					c1 := f0[i]
+					for j, l := range lo {
+						if l != nil {
+							c1 -= l[i] * bb[j]
+						}
+					}
+					ri := r[i] + c1
+					f0[i] = (r[i] - ri) + c1
+					r[i] = ri
+				}
+			}
+			if wt := w.wt; wt != nil {
+				// Weighted (weights.go): r + f = w (y - x'b), for
+				// X'W(y - Xb).
+				for i := lo0; i < hi; i++ {
+					wi, ri := wt[i], r[i]
+					pr := wi * ri
+					f0[i] = math.FMA(wi, ri, -pr) + wi*f0[i]
+					r[i] = pr
+				}
 			}
 			gs := gpart[3*c*p : (3*c+1)*p]
 			gc := gpart[(3*c+1)*p : (3*c+2)*p]
 			gf := gpart[(3*c+2)*p : (3*c+3)*p]
-			xtr(xd[lo*stride:], stride, p, r[lo:hi], f0[lo:hi], gs, gc, gf)
+			xtr(xd[lo0*stride:], stride, p, r[lo0:hi], f0[lo0:hi], gs, gc, gf)
+			for j, l := range lo {
+				if l != nil {
+					gf[j] += dot(l[lo0:hi], r[lo0:hi])
+				}
+			}
 		})
 		// g = X'(r + f), gW = T^-T g, dc = R^-1 R^-T gW.
 		g := make([]dd, p)
@@ -943,34 +884,44 @@ func (w *work) refineSemi(cond float64, f0 []float64) (b, db []float64) {
 		solveUpperT(R, p, dc)
 		solveUpper(R, p, dc)
 		sc.fromW(db, dc)
+		copy(bprev, b)
 		if w.converged(b, db, cvec, dc, &rho, &prev, it) {
 			break
 		}
 	}
-	w.S = nil
-	return b, db
+	for j := range b {
+		b[j], bl[j] = twoSum(bprev[j], db[j])
+	}
+	return b, bl, db
 }
 
 // finish computes the inverse factors, coefficient table and summary
 // statistics from the refined coefficients b.
 func (f *Fit) finish(b []float64, names []string, ssCentred []float64) {
 	p, n := f.P, f.N
-	ri := invertUpper(f.r, p)
-	f.ri = ri
-	// M = T^-1 R^-1.
-	M := make([]float64, p*p)
-	for j := 0; j < p; j++ {
-		for l := 0; l < p; l++ {
-			M[j*p+l] = ri[j*p+l] / f.sc.scale[j]
-		}
-	}
-	if f.sc.intercept {
-		for j := 1; j < p; j++ {
+	var ri, M []float64
+	if e := f.ext; e != nil {
+		f.r = roundDD(e.r)
+		ri = roundDD(e.ri)
+		M = roundDD(e.m)
+	} else {
+		ri = invertUpper(f.r, p)
+		// M = T^-1 R^-1.
+		M = make([]float64, p*p)
+		for j := 0; j < p; j++ {
 			for l := 0; l < p; l++ {
-				M[l] -= f.sc.mean[j] * M[j*p+l]
+				M[j*p+l] = ri[j*p+l] / f.sc.scale[j]
+			}
+		}
+		if f.sc.intercept {
+			for j := 1; j < p; j++ {
+				for l := 0; l < p; l++ {
+					M[l] -= f.sc.mean[j] * M[j*p+l]
+				}
 			}
 		}
 	}
+	f.ri = ri
 	f.m = M
 	df := float64(f.DF)
 	f.Sigma = math.Sqrt(f.RSS / df)
@@ -978,8 +929,12 @@ func (f *Fit) finish(b []float64, names []string, ssCentred []float64) {
 	f.Coef = make([]Coefficient, p)
 	for j := 0; j < p; j++ {
 		cjj := 0.0
-		for l := j; l < p; l++ {
-			cjj += M[j*p+l] * M[j*p+l]
+		if f.ext != nil {
+			cjj = f.ext.unscaled(j, j).float()
+		} else {
+			for l := j; l < p; l++ {
+				cjj += M[j*p+l] * M[j*p+l]
+			}
 		}
 		se := f.Sigma * math.Sqrt(cjj)
 		t := b[j] / se
@@ -1015,8 +970,16 @@ func (f *Fit) finish(b []float64, names []string, ssCentred []float64) {
 		f.VIF = make(map[string]float64, p-first)
 		for j := first; j < p; j++ {
 			g := 0.0
-			for l := j; l < p; l++ {
-				g += ri[j*p+l] * ri[j*p+l]
+			if e := f.ext; e != nil {
+				var s dd
+				for l := j; l < p; l++ {
+					s = s.addDD(e.ri[j*p+l].mulDD(e.ri[j*p+l]))
+				}
+				g = s.float()
+			} else {
+				for l := j; l < p; l++ {
+					g += ri[j*p+l] * ri[j*p+l]
+				}
 			}
 			if f.Model.Intercept {
 				// W is centred on a provisional centre; rescale to the
@@ -1036,13 +999,18 @@ func (f *Fit) X() *mat.Dense { return f.x }
 func (f *Fit) Y() []float64 { return f.y }
 
 // Unscaled returns (X'X)^-1, computed as (T^-1 R^-1)(T^-1 R^-1)' from the
-// factors of the scaled design. Multiply by Sigma² for the covariance of
-// the estimates.
+// factors of the scaled design (in double-double on the extended route,
+// see the package documentation). Multiply by Sigma² for the covariance
+// of the estimates.
 func (f *Fit) Unscaled() *mat.SymDense {
 	p := f.P
 	c := mat.NewSymDense(p, nil)
 	for i := 0; i < p; i++ {
 		for j := i; j < p; j++ {
+			if f.ext != nil {
+				c.SetSym(i, j, f.ext.unscaled(i, j).float())
+				continue
+			}
 			s := 0.0
 			for l := j; l < p; l++ {
 				s += f.m[i*p+l] * f.m[j*p+l]
@@ -1054,15 +1022,35 @@ func (f *Fit) Unscaled() *mat.SymDense {
 }
 
 // Leverage returns x'(X'X)^-1 x for any design row x (length P), computed
-// as |R^-T T^-T x|². For a row of X it is that row's hat value h_ii. For
-// a weighted fit it is x'(X'WX)^-1 x, and row i's hat value is w_i times
-// it (weights.go).
+// as |R^-T T^-T x|² (in double-double on the extended route, with the
+// exact values of derived terms such as x^3 taken from the row's own
+// base terms, as for the fit). For a row of X it is that row's hat value
+// h_ii. For a weighted fit it is x'(X'WX)^-1 x, and row i's hat value is
+// w_i times it (weights.go).
 func (f *Fit) Leverage(x []float64) float64 {
 	if len(x) != f.P {
 		panic(fmt.Sprintf("engine: Leverage: row has length %d, fit has %d coefficients", len(x), f.P))
 	}
+	if e := f.ext; e != nil {
+		lo := make([]float64, f.P)
+		if !rowLo(f.der, x, lo) {
+			lo = nil
+		}
+		q := make([]dd, f.P)
+		u := make([]dd, f.P)
+		h, _ := e.qRow(q, u, x, lo, &f.sc, 1)
+		return h
+	}
 	w := make([]float64, f.P)
 	f.sc.toW(w, x)
+	if f.lo != nil {
+		// The low parts of derived entries (x^2 from the row's x).
+		lo := make([]float64, f.P)
+		rowLo(f.der, x, lo)
+		for j, l := range lo {
+			w[j] += l / f.sc.scale[j]
+		}
+	}
 	solveUpperT(f.r, f.P, w)
 	h := 0.0
 	for _, v := range w {
@@ -1072,16 +1060,25 @@ func (f *Fit) Leverage(x []float64) float64 {
 }
 
 // Predict returns the fitted mean at design row x, yhat = x'b, and its
-// standard error se = Sigma·sqrt(x'(X'X)^-1 x).
+// standard error se = Sigma·sqrt(x'(X'X)^-1 x). yhat is formed in
+// double-double from the unrounded coefficients and the exact values of
+// the row's derived terms (x^3 from the row's x), then rounded once.
 func (f *Fit) Predict(x []float64) (yhat, se float64) {
 	if len(x) != f.P {
 		panic(fmt.Sprintf("engine: Predict: row has length %d, fit has %d coefficients", len(x), f.P))
 	}
+	lo := make([]float64, f.P)
+	rowLo(f.der, x, lo)
 	var acc dd
+	t := 0.0
 	for j, v := range x {
 		acc = acc.addProd(v, f.Coef[j].Estimate)
+		t += lo[j] * f.Coef[j].Estimate
+		if f.bl != nil {
+			t += v * f.bl[j]
+		}
 	}
-	return acc.float(), f.Sigma * math.Sqrt(f.Leverage(x))
+	return acc.add(t).float(), f.Sigma * math.Sqrt(f.Leverage(x))
 }
 
 // checkRank returns a *CollinearError when a scaled column lies within
@@ -1118,6 +1115,30 @@ func checkRank(R []float64, p int, names []string) error {
 		return &CollinearError{Terms: terms}
 	}
 	return nil
+}
+
+// illConditioned returns the error for a scaled design with condition
+// number cond (R its triangular factor): ErrIllConditioned and the
+// mat.Condition value, and the terms involved, those with a large
+// component in the right singular vector of the smallest singular value
+// (the near-dependence among the scaled columns).
+func illConditioned(R []float64, p int, cond float64, names []string) error {
+	var terms []string
+	var svd mat.SVD
+	if svd.Factorize(mat.NewDense(p, p, append([]float64(nil), R...)), mat.SVDThin) {
+		var v mat.Dense
+		svd.VTo(&v)
+		big := 0.0
+		for j := 0; j < p; j++ {
+			big = math.Max(big, math.Abs(v.At(j, p-1)))
+		}
+		for j := 0; j < p; j++ {
+			if math.Abs(v.At(j, p-1)) >= 0.1*big {
+				terms = append(terms, names[j])
+			}
+		}
+	}
+	return fmt.Errorf("%w: %w (limit %.0e); terms involved: %s", ErrIllConditioned, mat.Condition(cond), maxCondition, strings.Join(terms, ", "))
 }
 
 // conditionUpper returns the 2-norm condition number of the p x p upper

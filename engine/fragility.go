@@ -35,7 +35,7 @@ package engine
 // every row) is skipped: the reduced fit does not exist, so it cannot
 // state a conclusion. Skipped subsets are counted in
 // FragilityResult.Skipped. (Refit also refuses a design whose scaled
-// condition number exceeds 1e12; the downdate does not test that.)
+// condition number exceeds 1e10; the downdate does not test that.)
 //
 // # Search
 //

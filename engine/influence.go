@@ -113,24 +113,51 @@ func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 		}
 		for b0 := lo; b0 < hi; b0 += blockRows {
 			nb := min(blockRows, hi-b0)
-			d.block(bk, b0, nb)
-			for r := 0; r < nb; r++ {
-				i := b0 + r
-				h := bk.h[r]
-				for j := range v {
-					v[j] = bk.v[j][r]
+			switch {
+			case f.ext == nil && f.sw == nil:
+				d.block(bk, b0, nb)
+				for r := 0; r < nb; r++ {
+					i := b0 + r
+					h := bk.h[r]
+					for j := range v {
+						v[j] = bk.v[j][r]
+					}
+					om := 1 - h
+					del, ok := d.deleted(f.Residuals[i], om)
+					d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], f.Residuals[i], h, om, v, del)
+					if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
+						cands[c] = append(cands[c], cand{i, del})
+					}
 				}
-				e := f.Residuals[i]
-				if f.sw != nil {
-					h, e = d.weigh(i, h, v, e)
-				}
-				del, ok := d.deleted(e, h)
-				d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], e, h, v, del)
-				if f.sw != nil {
+			case f.ext == nil:
+				// Weighted (weights.go): the measures of the scaled
+				// rows √w_i x_i, residuals reported on the scale of y.
+				d.block(bk, b0, nb)
+				for r := 0; r < nb; r++ {
+					i := b0 + r
+					h := bk.h[r]
+					for j := range v {
+						v[j] = bk.v[j][r]
+					}
+					h, e := d.weigh(i, h, v, f.Residuals[i])
+					om := 1 - h
+					del, ok := d.deleted(e, om)
+					d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], e, h, om, v, del)
 					inf.Rows[i].Residual = f.Residuals[i]
+					if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
+						cands[c] = append(cands[c], cand{i, del})
+					}
 				}
-				if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
-					cands[c] = append(cands[c], cand{i, del})
+			default:
+				for i := b0; i < b0+nb; i++ {
+					h, om := d.rowExt(v, i)
+					e := d.eRow(i)
+					del, ok := d.deleted(e, om)
+					d.fill(&inf.Rows[i], dfb[i*p:(i+1)*p], e, h, om, v, del)
+					inf.Rows[i].Residual = f.Residuals[i]
+					if ok && del < deletedRecompute*f.RSS && len(cands[c]) < maxRecompute {
+						cands[c] = append(cands[c], cand{i, del})
+					}
 				}
 			}
 			if j != nil {
@@ -161,15 +188,20 @@ func diagnose(f *Fit, c *Cutoffs) (*Influence, []Verdict) {
 	w := make([]float64, p)
 	v := make([]float64, p)
 	for k, i := range rows {
-		h := d.row(w, v, i)
+		var h, om float64
 		e := f.Residuals[i]
-		if f.sw != nil {
-			h, e = d.weigh(i, h, v, e)
+		if f.ext == nil {
+			h = d.row(w, v, i)
+			if f.sw != nil {
+				h, e = d.weigh(i, h, v, e)
+			}
+			om = 1 - h
+		} else {
+			h, om = d.rowExt(v, i)
+			e = d.eRow(i)
 		}
-		d.fill(&inf.Rows[i], inf.DFBETASRow(i), e, h, v, dels[k])
-		if f.sw != nil {
-			inf.Rows[i].Residual = f.Residuals[i]
-		}
+		d.fill(&inf.Rows[i], inf.DFBETASRow(i), e, h, om, v, dels[k])
+		inf.Rows[i].Residual = f.Residuals[i]
 		if j != nil {
 			j.one(inf, out, i)
 		}
@@ -186,6 +218,8 @@ type diag struct {
 	kj     []float64 // 1/sqrt(C_jj)
 	riS    []float64 // R^-1 with row j divided by scale_j
 	xs     []float64 // scratch (one diag per goroutine)
+	qd, ud []dd      // scratch of the extended route
+	lo, vs []float64 // scratch: a row's low parts of derived columns, v
 	tail   tTail
 	table  *tailTable // nil for small fits
 	s2, s  float64
@@ -216,12 +250,62 @@ func newDiag(f *Fit) *diag {
 	}
 	for j := 0; j < p; j++ {
 		c := 0.0
-		for l := 0; l < p; l++ {
-			c += f.m[j*p+l] * f.m[j*p+l]
+		if f.ext != nil {
+			c = f.ext.unscaled(j, j).float()
+		} else {
+			for l := 0; l < p; l++ {
+				c += f.m[j*p+l] * f.m[j*p+l]
+			}
 		}
 		d.kj[j] = 1 / math.Sqrt(c)
 	}
+	d.scratch()
 	return d
+}
+
+// scratch allocates the scratch space of the extended route.
+func (d *diag) scratch() {
+	if d.f.ext != nil {
+		d.qd, d.ud = make([]dd, d.p), make([]dd, d.p)
+		d.lo, d.vs = make([]float64, d.p), make([]float64, d.p)
+	}
+}
+
+// rowExt is row on the extended route: h_i, 1 - h_i and v = (X'X)^-1 x_i,
+// computed in double-double from the design row and the low parts of its
+// derived columns, each rounded once. For a weighted fit they are those
+// of the scaled row √w_i x_i, as weigh gives them on the binary64 route:
+// h = w_i x_i'(X'WX)^-1 x_i with 1 - h in double-double,
+// v = √w_i (X'WX)^-1 x_i.
+func (d *diag) rowExt(v []float64, i int) (h, om float64) {
+	f := d.f
+	row := d.xd[i*d.stride : i*d.stride+d.p]
+	var lo []float64
+	if f.lo != nil {
+		lo = d.lo
+		for j, l := range f.lo {
+			lo[j] = 0
+			if l != nil {
+				lo[j] = l[i]
+			}
+		}
+	}
+	wt := 1.0
+	if f.sw != nil {
+		wt = f.Weights[i]
+	}
+	h, om = f.ext.qRow(d.qd, d.ud, row, lo, &f.sc, wt)
+	f.ext.vRow(v, d.qd)
+	if f.sw != nil {
+		s := f.sw[i]
+		for j := range v {
+			v[j] *= s
+		}
+	}
+	if h > 1 {
+		h, om = 1, 0
+	}
+	return h, om
 }
 
 // row returns h_i and sets v = (X'X)^-1 x_i; w is scratch. With
@@ -254,7 +338,8 @@ func (d *diag) row(w, v []float64, i int) float64 {
 
 // q sets w = R^-T T^-T x_i, using R^-1 with its rows divided by the
 // column scales (riS, precomputed): R^-T is lower triangular, so
-// q_l = Σ_{j<=l} riS_jl (x_ij - mean_j).
+// q_l = Σ_{j<=l} riS_jl (x_ij - mean_j), x_ij including the low part of
+// a derived column.
 func (d *diag) q(w []float64, i int) {
 	p := d.p
 	row := d.xd[i*d.stride : i*d.stride+p]
@@ -268,6 +353,11 @@ func (d *diag) q(w []float64, i int) {
 	} else {
 		copy(x, row)
 	}
+	for j, l := range d.f.lo {
+		if l != nil {
+			x[j] += l[i]
+		}
+	}
 	ri := d.riS
 	for l := 0; l < p; l++ {
 		s := 0.0
@@ -278,12 +368,11 @@ func (d *diag) q(w []float64, i int) {
 	}
 }
 
-// deleted returns RSS - e²/(1-h) (ok false when it is undefined). Its
-// relative rounding error is about eps·RSS/result, at most 100 eps for
-// results above deletedRecompute·RSS; smaller results are recomputed by
-// deletedExact.
-func (d *diag) deleted(e, h float64) (float64, bool) {
-	om := 1 - h
+// deleted returns RSS - e²/(1-h), om = 1-h (ok false when it is
+// undefined). Its relative rounding error is about eps·RSS/result, at most
+// 100 eps for results above deletedRecompute·RSS; smaller results are
+// recomputed by deletedExact.
+func (d *diag) deleted(e, om float64) (float64, bool) {
 	if om < 0x1p-46 || d.df1 <= 0 {
 		return math.NaN(), false
 	}
@@ -302,31 +391,14 @@ func (d *diag) deletedExact(rows []int) []float64 {
 	coef := make([]float64, len(rows))
 	for k, i := range rows {
 		qi[k] = make([]float64, p)
-		d.q(qi[k], i)
-		e := d.f.Residuals[i]
-		if sw := d.f.sw; sw != nil {
-			for j := range qi[k] {
-				qi[k][j] *= sw[i]
-			}
-			e *= sw[i]
-		}
-		h := 0.0
-		for _, v := range qi[k] {
-			h += v * v
-		}
-		coef[k] = e / (1 - h)
+		om := d.qAny(qi[k], i)
+		coef[k] = d.eRow(i) / om
 	}
 	acc := make([]dd, len(rows))
 	w := make([]float64, p)
 	for r := 0; r < n; r++ {
-		d.q(w, r)
-		e := d.f.Residuals[r]
-		if sw := d.f.sw; sw != nil {
-			for j := range w {
-				w[j] *= sw[r]
-			}
-			e *= sw[r]
-		}
+		d.qAny(w, r)
+		e := d.eRow(r)
 		for k, i := range rows {
 			if r == i {
 				continue
@@ -346,14 +418,52 @@ func (d *diag) deletedExact(rows []int) []float64 {
 	return out
 }
 
+// qAny sets w = R^-T T^-T x_i (in double-double on the extended route,
+// then rounded) and returns 1 - |w|²; for a weighted fit, those of the
+// scaled row √w_i x_i.
+func (d *diag) qAny(w []float64, i int) float64 {
+	sw := d.f.sw
+	if d.f.ext == nil {
+		d.q(w, i)
+		if sw != nil {
+			for j := range w {
+				w[j] *= sw[i]
+			}
+		}
+		h := 0.0
+		for _, v := range w {
+			h += v * v
+		}
+		return 1 - h
+	}
+	_, om := d.rowExt(d.vs, i)
+	for l, q := range d.qd {
+		if sw != nil {
+			q = q.mulF(sw[i])
+		}
+		w[l] = q.float()
+	}
+	return om
+}
+
+// eRow returns row i's residual as the measures take it: e_i, or
+// √w_i e_i for a weighted fit (the residual of the scaled row).
+func (d *diag) eRow(i int) float64 {
+	e := d.f.Residuals[i]
+	if sw := d.f.sw; sw != nil {
+		e *= sw[i]
+	}
+	return e
+}
+
 // fill computes the row's measures, its DFBETAS into dfb, from e, h,
-// v = (X'X)^-1 x_i and the deleted residual sum of squares del. It
-// divides twice (by 1-h and by s_(i)); the rest multiplies by reciprocals
-// computed once per fit, which moves each value by a few ulps at most.
-func (d *diag) fill(o *Obs, dfb []float64, e, h float64, v []float64, del float64) {
+// om = 1 - h, v = (X'X)^-1 x_i and the deleted residual sum of squares
+// del. It divides twice (by 1-h and by s_(i)); the rest multiplies by
+// reciprocals computed once per fit, which moves each value by a few ulps
+// at most.
+func (d *diag) fill(o *Obs, dfb []float64, e, h, om float64, v []float64, del float64) {
 	o.Residual = e
 	o.Leverage = h
-	om := 1 - h
 	nan := math.NaN()
 	if om < 0x1p-46 {
 		o.StudentInternal, o.Cook = nan, nan
@@ -436,6 +546,7 @@ func (d *diag) weigh(i int, h float64, v []float64, e float64) (float64, float64
 func (d *diag) clone() *diag {
 	c := *d
 	c.xs = make([]float64, d.p)
+	c.scratch()
 	return &c
 }
 
@@ -486,6 +597,15 @@ func (d *diag) block(b *block, lo, nb int) {
 		} else {
 			for j := 1; j < p; j++ {
 				x[j][r] = row[j]
+			}
+		}
+	}
+	// Derived columns (x^2 from x): add the low parts of their values.
+	for j, l := range d.f.lo {
+		if l != nil {
+			xj := &x[j]
+			for r := 0; r < nb; r++ {
+				xj[r] += l[lo+r]
 			}
 		}
 	}

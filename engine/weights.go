@@ -30,12 +30,6 @@ import (
 // *DataError naming the row and the weight column.
 var ErrWeight = errors.New("engine: weight must be a positive finite number")
 
-// weightedRefineCond: a weighted fit whose scaled design has a larger
-// condition number keeps its QR solution unrefined (the corrected
-// seminormal equations, the only refinement weighted fits take, contract
-// by about κ² eps per step).
-const weightedRefineCond = 1e7
-
 // RefitWeighted fits y = Xb + e by weighted least squares with the row
 // weights w (len n, every w_i > 0 and finite). w == nil is Refit. The
 // method and the errors are those of Refit, plus a *DataError wrapping
@@ -45,9 +39,13 @@ const weightedRefineCond = 1e7
 // and the VIFs from these weighted sums, as R's summary.lm reports for
 // lm(weights = ). Residuals and Fitted are on the scale of y (unweighted).
 //
-// Weighted fits are refined on the corrected seminormal equations up to a
-// scaled condition number of 1e7 and keep the Householder QR solution
-// (backward stable, relative error about κ·eps) above it.
+// Weighted fits take the routes of Refit by the scaled condition number
+// of √W X: the binary64 route up to 1e4, the extended route above it (R
+// again in double-double with the rows √w_i x_i formed in double-double,
+// the refinement on X'W(y - Xb) in double-double), refusal above 1e10.
+// Their design is taken as given: a derived term (x^3 when x is a term
+// too) keeps its rounded value in X, since the weighted rows are not
+// products of the model's terms.
 func RefitWeighted(m Model, X *mat.Dense, y, w []float64) (*Fit, error) {
 	if w == nil {
 		return Refit(m, X, y)
@@ -100,6 +98,16 @@ func (f *Fit) weighEqually(w []float64, c float64) {
 		f.r[i] *= s
 		f.ri[i] /= s
 		f.m[i] /= s
+	}
+	if e := f.ext; e != nil {
+		// The extended route's factors likewise, in double-double.
+		sd := dd{s, 0}
+		for i := range e.r {
+			e.r[i] = e.r[i].mulF(s)
+			e.ri[i] = e.ri[i].divDD(sd)
+			e.ris[i] = e.ris[i].divDD(sd)
+			e.m[i] = e.m[i].divDD(sd)
+		}
 	}
 	f.rss = f.rss.mulDD(dd{c, 0})
 	f.RSS = f.rss.float()
@@ -327,14 +335,21 @@ func weightedResponse(st *chunkStat, col, y, wt, sw []float64, cen, pre float64,
 }
 
 // weightedFinal is the final pass of a weighted fit over one chunk:
-// e = y - x'b (compensated), the fitted values, RSS = Σ w e² in
-// double-double and the sums Σ w d, Σ w d² of d = y - ȳ_w (y without an
-// intercept) for TSS.
-func weightedFinal(x []float64, stride, p int, y, wt, b, res, fitted []float64, intercept bool, ybar float64) (rss dd, t1, t2 float64) {
+// e = y - x'(b + bl) (compensated; bl the low parts of the refined
+// coefficients, nil to use b alone), the fitted values,
+// RSS = Σ w e² in double-double and the sums Σ w d, Σ w d² of
+// d = y - ȳ_w (y without an intercept) for TSS.
+func weightedFinal(x []float64, stride, p int, y, wt, b, bl, res, fitted []float64, intercept bool, ybar float64) (rss dd, t1, t2 float64) {
 	var rs, rc float64
 	for i := range y {
 		row := x[i*stride : i*stride+p]
-		e := residual2(y[i], 0, row, b)
+		var e float64
+		if bl == nil {
+			e = residual2(y[i], 0, row, b)
+		} else {
+			s, c := residualExt(y[i], row, nil, 0, b, bl)
+			e = s + c
+		}
 		res[i] = e
 		fitted[i] = y[i] - e
 		wi := wt[i]
