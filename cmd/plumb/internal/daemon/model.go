@@ -109,20 +109,7 @@ func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
 	return m, nil
 }
 
-func cutoffsFor(j config.Judge) engine.Cutoffs {
-	c := engine.DefaultCutoffs()
-	c.Alpha = j.Alpha
-	if j.Cutoffs == "size_adjusted" {
-		c.Family = engine.SizeAdjusted
-	}
-	if j.CookRule == "one" {
-		c.Cook = engine.CookOne
-	}
-	if j.OutlierTest == "grubbs" {
-		c.Test = engine.GrubbsTest
-	}
-	return c
-}
+func cutoffsFor(j config.Judge) engine.Cutoffs { return j.Engine() }
 
 // numeric returns the columns the decoder parses as numbers: the response,
 // then the predictors.

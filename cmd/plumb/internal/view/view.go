@@ -216,6 +216,9 @@ type RowRef struct {
 	ID   int64  `json:"id"`
 	File string `json:"file"`
 	Line int    `json:"line"`
+	// Label is the row's own name, the text of the model's id column (a
+	// serial number, a sample id); "" when the model has none.
+	Label string `json:"label,omitempty"`
 }
 
 // ModelDetail is the full picture of one model under its current fit.
@@ -269,6 +272,8 @@ type Point struct {
 	Row  int    `json:"row"` // 0-based position in the fit
 	File string `json:"file"`
 	Line int    `json:"line"`
+	// Label is the row's id-column text ("" when the model has none).
+	Label string `json:"label,omitempty"`
 	// X holds the row's predictor values by column name.
 	X                   map[string]Float `json:"x"`
 	Y                   Float            `json:"y"`
