@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"net/url"
+	"os"
 	"strings"
 	"sync"
 	"testing"
@@ -34,12 +35,18 @@ func TestPostgresMigrateConcurrent(t *testing.T) {
 		}
 		defer dbs[i].Close()
 	}
+	// Migration numbers may have gaps (they are handed out to changes
+	// made side by side): each embedded file is recorded once.
+	embedded, err := os.ReadDir("migrations")
+	if err != nil {
+		t.Fatal(err)
+	}
 	var applied int
 	if err := dbs[0].Pool().QueryRow(ctx, "SELECT COUNT(*) FROM schema_version").Scan(&applied); err != nil {
 		t.Fatal(err)
 	}
-	if applied != postgres.LatestSchemaVersion() {
-		t.Errorf("%d migrations recorded, want %d (each once)", applied, postgres.LatestSchemaVersion())
+	if applied != len(embedded) {
+		t.Errorf("%d migrations recorded, want %d (each once)", applied, len(embedded))
 	}
 	for i, db := range dbs {
 		v, err := db.SchemaVersion(ctx)
@@ -61,7 +68,7 @@ func TestPostgresMigrateConcurrent(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer again.Close()
-	if err := again.Pool().QueryRow(ctx, "SELECT COUNT(*) FROM schema_version").Scan(&applied); err != nil || applied != postgres.LatestSchemaVersion() {
+	if err := again.Pool().QueryRow(ctx, "SELECT COUNT(*) FROM schema_version").Scan(&applied); err != nil || applied != len(embedded) {
 		t.Errorf("after a reopen %d migrations recorded (%v)", applied, err)
 	}
 }
