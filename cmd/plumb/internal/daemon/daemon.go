@@ -612,6 +612,7 @@ func (d *Daemon) Close() error {
 type Summary struct {
 	Rows        int64          `json:"rows"`
 	Quarantined int64          `json:"quarantined"`
+	Missing     int64          `json:"missing"`
 	Fits        int64          `json:"fits"`
 	Alerts      []AlertSummary `json:"alerts"`
 }
@@ -636,6 +637,7 @@ func (d *Daemon) Summary(ctx context.Context) (Summary, error) {
 		m.mu.Lock()
 		s.Rows += m.rowsAccepted
 		s.Quarantined += m.quarantined
+		s.Missing += m.missing
 		s.Fits += m.ref.fits
 		m.mu.Unlock()
 	}

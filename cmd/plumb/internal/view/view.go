@@ -155,7 +155,10 @@ type ModelSummary struct {
 	Predictors  []string `json:"predictors"`
 	Rows        int64    `json:"rows"`
 	Quarantined int64    `json:"quarantined"`
-	Fits        int64    `json:"fits"`
+	// Missing counts rows left out for a missing value in a column the
+	// model uses (config missing): not quarantined, not in the fit.
+	Missing int64 `json:"missing"`
+	Fits    int64 `json:"fits"`
 	// LastFitAt is zero before the first fit.
 	LastFitAt  time.Time `json:"last_fit_at,omitzero"`
 	Fragility  Fragility `json:"fragility"`
