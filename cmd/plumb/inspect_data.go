@@ -10,6 +10,7 @@ import (
 	"io"
 	"os"
 	"runtime"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -366,7 +367,15 @@ func decodePart(sp *readSpec, buf []byte, pt part, slot *inspectData) (*inspectD
 	_, err := dec.Feed(buf[pt.off:pt.end], true, func(r decode.Record) error {
 		ds.total++
 		if r.Err != nil {
-			ds.rejected = append(ds.rejected, rowErrorRejected(r.Err, ds.total))
+			rj := rowErrorRejected(r.Err, ds.total)
+			if sp.idAt >= 0 {
+				// The decoder keeps no text of a refused row: find the
+				// id cell in the record as written, when it is there.
+				if k := slices.Index(sp.header, sp.text[sp.idAt]); k >= 0 {
+					rj.ID = strings.TrimSpace(fieldText(r.Raw, sp.dialect.Delimiter, k))
+				}
+			}
+			ds.rejected = append(ds.rejected, rj)
 			return nil
 		}
 		if sp.keep != nil && !sp.keep[strings.TrimSpace(r.Text[sp.filterAt])] {
@@ -539,6 +548,41 @@ func (ds *inspectData) lineText(l int) []byte {
 		return nil
 	}
 	return ds.buf[ds.starts[l-1]:]
+}
+
+// fieldText returns field k (0-based) of one CSV record, unquoted ("" if
+// the record has fewer fields). A delimiter of 0 means ','.
+func fieldText(rec string, delim byte, k int) string {
+	if delim == 0 {
+		delim = ','
+	}
+	field, inQuote := 0, false
+	var b strings.Builder
+	for i := 0; i < len(rec); i++ {
+		c := rec[i]
+		switch {
+		case c == '"' && inQuote && i+1 < len(rec) && rec[i+1] == '"':
+			if field == k {
+				b.WriteByte('"')
+			}
+			i++
+		case c == '"':
+			inQuote = !inQuote
+		case c == delim && !inQuote:
+			if field == k {
+				return b.String()
+			}
+			field++
+		default:
+			if field == k {
+				b.WriteByte(c)
+			}
+		}
+	}
+	if field == k {
+		return b.String()
+	}
+	return ""
 }
 
 // fieldPosition finds where field k (0-based) of the record at the start

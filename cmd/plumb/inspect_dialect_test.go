@@ -108,3 +108,35 @@ func TestJudgementWordsShared(t *testing.T) {
 		}
 	}
 }
+
+// TestInspectRejectedRowLabel: an unreadable row names its --id-column
+// label too, taken from the record as written.
+func TestInspectRejectedRowLabel(t *testing.T) {
+	const csvText = "serial,x,y\nSN-1,1,2.1\n\"SN-2, spare\",2,4x\nSN-3,3,6.2\nSN-4,4,7.9\nSN-5,5,9.8\n"
+	out, stderr, code := runPlumb(t, csvText, "inspect", "-", "--response", "y", "--terms", "x", "--id-column", "serial", "--format", "json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if !strings.Contains(out, `"id": "SN-2, spare"`) {
+		t.Errorf("rejected row lacks its id:\n%s", out)
+	}
+	_, stderr, _ = runPlumb(t, csvText, "inspect", "-", "--response", "y", "--terms", "x", "--id-column", "serial")
+	if w := `stdin:3:17: row left out: column "y" (field 3): not a number: "4x" (row "SN-2, spare")`; !strings.Contains(stderr, w) {
+		t.Errorf("stderr lacks %q:\n%s", w, stderr)
+	}
+}
+
+func TestFieldText(t *testing.T) {
+	for _, tt := range []struct {
+		rec  string
+		k    int
+		want string
+	}{
+		{"a,b,c", 0, "a"}, {"a,b,c", 2, "c"}, {"a,b,c", 3, ""},
+		{`"x, y",b`, 0, "x, y"}, {`"say ""hi""",b`, 0, `say "hi"`}, {`a,,c`, 1, ""},
+	} {
+		if got := fieldText(tt.rec, ',', tt.k); got != tt.want {
+			t.Errorf("fieldText(%q, %d) = %q, want %q", tt.rec, tt.k, got, tt.want)
+		}
+	}
+}
