@@ -269,10 +269,17 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 			return err
 		}
 		out := map[string]any{"id": o.ID, "file": o.Path, "line": o.Line, "raw": o.Raw, "arrived_at": o.ArrivedAt, "arrival": o.Arrival, "changes": ch}
+		if o.Label != "" {
+			out["label"] = o.Label
+		}
 		if *asJSON {
 			return writeJSON(e.stdout, out)
 		}
-		fmt.Fprintf(e.stdout, "%s:%d  %q  arrived %s\n", o.Path, o.Line, o.Raw, o.ArrivedAt.Local().Format(time.DateTime))
+		where := fmt.Sprintf("%s:%d", o.Path, o.Line)
+		if o.Label != "" {
+			where += " [" + o.Label + "]"
+		}
+		fmt.Fprintf(e.stdout, "%s  %q  arrived %s\n", where, o.Raw, o.ArrivedAt.Local().Format(time.DateTime))
 		if a := o.Arrival; a != nil {
 			fmt.Fprintf(e.stdout, "  at arrival: %s  leverage %.4g  studentized %.4g  Cook's D %.4g  DFFITS %.4g  Bonferroni p %.3g\n",
 				a.Verdict, a.Leverage, a.StudentizedExternal, a.CooksDistance, a.DFFITS, a.OutlierPBonferroni)

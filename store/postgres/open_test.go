@@ -155,3 +155,26 @@ func TestPostgresErrorsHidePassword(t *testing.T) {
 		})
 	}
 }
+
+// TestPostgresMigrateFillsGaps: a migration whose number is below one
+// already applied (numbers are handed out to changes made side by side,
+// and 0006 may be applied before 0004 exists) is applied when missing.
+func TestPostgresMigrateFillsGaps(t *testing.T) {
+	ctx := context.Background()
+	db, schema := openTemp(t)
+	// Undo 0003 (the sources' digest) by hand, as if a binary with 0006
+	// and without 0003 had migrated this database.
+	for _, q := range []string{"ALTER TABLE sources DROP COLUMN digest", "DELETE FROM schema_version WHERE version = 3"} {
+		if _, err := db.Pool().Exec(ctx, q); err != nil {
+			t.Fatal(err)
+		}
+	}
+	again := openSame(t, schema)
+	var n int
+	if err := again.Pool().QueryRow(ctx, "SELECT COUNT(*) FROM schema_version WHERE version = 3").Scan(&n); err != nil || n != 1 {
+		t.Errorf("0003 recorded %d times (%v), want once", n, err)
+	}
+	if _, err := again.Pool().Exec(ctx, "SELECT digest FROM sources"); err != nil {
+		t.Errorf("0003 not applied again: %v", err)
+	}
+}

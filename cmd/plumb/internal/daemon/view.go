@@ -227,7 +227,7 @@ func (v viewSource) Observations(ctx context.Context, name string, after int64, 
 	}
 	out := make([]view.ObservationView, len(obs))
 	for i, o := range obs {
-		ov := view.ObservationView{ID: o.ID, File: o.Path, Generation: o.Generation, Line: o.Line, Raw: o.Raw,
+		ov := view.ObservationView{ID: o.ID, File: o.Path, Generation: o.Generation, Line: o.Line, Raw: o.Raw, Label: o.Label,
 			Time: o.Time, ArrivedAt: o.ArrivedAt, Leverage: view.NaN(), Cook: view.NaN(), StudentizedExternal: view.NaN()}
 		for _, x := range o.Values {
 			ov.Values = append(ov.Values, view.Float(x))

@@ -401,6 +401,8 @@ type ObservationView struct {
 	Generation int    `json:"generation"`
 	Line       int    `json:"line"`
 	Raw        string `json:"raw"`
+	// Label is the row's id-column text ("" when the model has none).
+	Label string `json:"label,omitempty"`
 	// Values are the response first, then each predictor column.
 	Values    []Float   `json:"values"`
 	Time      time.Time `json:"time,omitzero"`
