@@ -290,13 +290,15 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 			}
 			tt, err := time.Parse(layout, strings.TrimSpace(rec.Text[ti]))
 			if err != nil {
-				quar = append(quar, quarantineRow(m.cfg.Name, b, rec, 0, fmt.Sprintf("%s:%d: column %q: not a time in layout %q: %q", b.Path, rec.Line, m.cfg.TimeColumn, layout, rec.Text[ti])))
+				col, why := m.cellError(b, rec, m.cfg.TimeColumn, fmt.Sprintf("not a time in layout %q: %q", layout, rec.Text[ti]))
+				quar = append(quar, quarantineRow(m.cfg.Name, b, rec, col, why))
 				continue
 			}
 			t = tt.UnixNano()
 		}
 		if err := m.designRow(rec.Values); err != nil {
-			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, 0, fmt.Sprintf("%s:%d: %v", b.Path, rec.Line, err)))
+			col, why := m.designError(b, rec, err)
+			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, col, why))
 			continue
 		}
 		p := pending{rec: rec, vals: rec.Values, t: t}
