@@ -49,9 +49,15 @@ func readRFit(t *testing.T, name string) rFit {
 	return f
 }
 
-// nearR: relative 1e-9, absolute for values below 1.
+// nearR: relative 1e-9, absolute for values below 1 (fitted values near
+// zero).
 func nearR(got, want float64) bool {
 	return math.Abs(got-want) <= 1e-9*math.Max(1, math.Abs(want))
+}
+
+// nearRel: relative 1e-9 (coefficients and their standard errors).
+func nearRel(got, want float64) bool {
+	return math.Abs(got-want) <= 1e-9*math.Abs(want)
 }
 
 func inspectJSONOf(t *testing.T, args ...string) inspectJSON {
@@ -73,10 +79,10 @@ func checkCoefficients(t *testing.T, got inspectJSON, want []float64, wantSE []f
 		t.Fatalf("%d coefficients, want %d", len(got.Coefficients), len(want))
 	}
 	for i, c := range got.Coefficients {
-		if !nearR(*c.Estimate, want[i]) {
+		if !nearRel(*c.Estimate, want[i]) {
 			t.Errorf("%s: estimate %.17g, R %.17g", c.Term, *c.Estimate, want[i])
 		}
-		if wantSE != nil && !nearR(*c.StdError, wantSE[i]) {
+		if wantSE != nil && !nearRel(*c.StdError, wantSE[i]) {
 			t.Errorf("%s: std error %.17g, R %.17g", c.Term, *c.StdError, wantSE[i])
 		}
 	}
