@@ -8,6 +8,9 @@ type PointCondition struct {
 	// File is relative to the model's folder, with '/'; Line is 1-based.
 	File string
 	Line int
+	// Label is the row's own name, the text of the model's id column (a
+	// serial number, a sample id); "" when the model has none.
+	Label string
 	// Values are the row's values by column name (response and predictors).
 	Values Values
 	// Outlier and Influential are the engine's verdict. When Measures holds

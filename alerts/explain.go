@@ -3,6 +3,7 @@ package alerts
 import (
 	"fmt"
 	"math"
+	"strconv"
 	"strings"
 	"time"
 
@@ -55,10 +56,15 @@ func describeAll(ms []Measure, keep func(Measure) bool) string {
 }
 
 func fillPoint(a *Alert, c PointCondition, rule PointRule) {
-	a.Point = &PointDetail{File: c.File, Line: c.Line, Values: c.Values}
+	a.Point = &PointDetail{File: c.File, Line: c.Line, Label: c.Label, Values: c.Values}
 	a.Measures = append([]Measure{}, c.Measures...)
 	a.Suggestion = c.Suggestion
 	a.Summary = fmt.Sprintf("Line %d of %s (model %s) is an outlier that also moves the fit.", c.Line, c.File, c.Model)
+	row := ""
+	if c.Label != "" {
+		a.Summary = fmt.Sprintf("Row %s, line %d of %s (model %s), is an outlier that also moves the fit.", strconv.Quote(c.Label), c.Line, c.File, c.Model)
+		row = " (row " + strconv.Quote(c.Label) + ")"
+	}
 	test := describeAll(c.Measures, func(m Measure) bool { return m.Measure == testMeasure(rule.Test) })
 	if test == "" {
 		test = "the outlier test flags it"
@@ -68,7 +74,7 @@ func fillPoint(a *Alert, c PointCondition, rule PointRule) {
 		infl = "the influence measures flag it"
 	}
 	var b strings.Builder
-	fmt.Fprintf(&b, "The row newly read from %s, line %d, lies far from what the rest of the data predict (%s), ", c.File, c.Line, test)
+	fmt.Fprintf(&b, "The row newly read from %s, line %d%s, lies far from what the rest of the data predict (%s), ", c.File, c.Line, row, test)
 	fmt.Fprintf(&b, "and it pulls the fitted model toward itself (%s). ", infl)
 	b.WriteString("A single row that is both unusual and influential can shift the coefficients and every prediction made " +
 		"with this model. If it comes from a recording, sample or instrument error, results computed with the current fit " +

@@ -340,7 +340,7 @@ func (m *Manager) Point(ctx context.Context, c PointCondition) (*Alert, error) {
 	rule := m.rules(c.Model).SuspectPoint
 	out, infl := rule.suspect(c)
 	return m.apply(ctx, m.cfg.Now(), change{
-		model: c.Model, kind: KindSuspectPoint, subject: PointSubject(c.Model, c.File, c.Line),
+		model: c.Model, kind: KindSuspectPoint, subject: LabeledPointSubject(c.Model, c.File, c.Line, c.Label),
 		active: out && infl,
 		note:   "the row is no longer both an outlier and influential under the current fit",
 		fill:   func(a *Alert) { fillPoint(a, c, rule) },

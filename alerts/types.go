@@ -119,6 +119,17 @@ func PointSubject(model, file string, line int) string {
 	return model + "/" + file + ":" + strconv.Itoa(line)
 }
 
+// LabeledPointSubject is the subject of a suspect-point alert whose row
+// has a label (the text of the model's id column):
+// PointSubject + " [" + label + "]"; without a label, PointSubject.
+func LabeledPointSubject(model, file string, line int, label string) string {
+	s := PointSubject(model, file, line)
+	if label != "" {
+		s += " [" + label + "]"
+	}
+	return s
+}
+
 // SilenceSubject is the subject of the blocked alert for a silent feed:
 // model + "/feed". A model that cannot be fitted has subject model.
 func SilenceSubject(model string) string { return model + "/feed" }
@@ -266,8 +277,10 @@ type Alert struct {
 
 // PointDetail is the row behind a suspect-point alert.
 type PointDetail struct {
-	File   string `json:"file"`
-	Line   int    `json:"line"`
+	File string `json:"file"`
+	Line int    `json:"line"`
+	// Label is the row's id-column text (a serial number, a sample id).
+	Label  string `json:"label,omitempty"`
 	Values Values `json:"values"`
 }
 

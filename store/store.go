@@ -182,9 +182,12 @@ type Source struct {
 	// watcher tell a file saved anew under the same name (a new inode)
 	// that begins with the bytes already read from one that differs.
 	Digest []byte
-	// Rows and Quarantined count what this source has contributed.
+	// Rows and Quarantined count what this source has contributed;
+	// Missing counts its rows left out for a missing value in a column
+	// the model uses (Batch.Missing summed; migration 0006).
 	Rows        int64
 	Quarantined int64
+	Missing     int64
 	UpdatedAt   time.Time
 }
 
@@ -193,6 +196,10 @@ type Batch struct {
 	Source       Source
 	Observations []Observation
 	Quarantine   []QuarantineRow
+	// Missing is the number of the batch's rows left out for a missing
+	// value; the store adds it to the source's Missing in the same
+	// transaction, so a row is never counted twice.
+	Missing int64
 }
 
 // Observation is one accepted data row of one model.
@@ -205,6 +212,11 @@ type Observation struct {
 	// Raw is the record's text as it stood in the file (without the line
 	// terminator).
 	Raw string
+	// Label is the text of the model's id column in the row (a serial
+	// number, a sample id), "" when the model has none (migration 0006).
+	// It is stored rather than derived from Raw again: the header and the
+	// dialect a row was read with may have changed since.
+	Label string
 	// Values are the numbers the model uses: the response first, then each
 	// predictor column in the model's column order.
 	Values []float64

@@ -12,6 +12,7 @@ import (
 	"strings"
 	"unicode/utf8"
 
+	"plumb/cmd/plumb/internal/config"
 	"plumb/engine"
 	"plumb/watcher/decode"
 )
@@ -40,14 +41,24 @@ are not plain identifiers (letters, digits, "_", ".") are double-quoted:
 An intercept is included unless --no-intercept is given. Columns the model
 does not use, text columns included, are ignored.
 
-Rows that cannot be used (a field that is not a number, a wrong number of
-fields, log of a value <= 0, ...) are left out of the fit and listed with
-file:line:column and the reason: on standard error for the table and csv
-formats, in a "rejected" array for json. --strict refuses the whole file
-instead.
+The file's dialect takes the flags the config's keys are (same names
+with '-' for '_', same values): --delimiter, --decimal-comma, --comment,
+--missing, --id-column, --filter. A file saved by a spreadsheet with a
+decimal comma reads with --delimiter ";" --decimal-comma.
+
+A row with a --missing text (e.g. NA, or "" for an empty cell) in a
+column the model uses is left out and counted as missing ("missing" in
+json), not listed as unreadable; one in a column the model does not use
+costs nothing. Rows that cannot be used (a field that is not a number, a
+wrong number of fields, log of a value <= 0, ...) are left out of the fit
+and listed with file:line:column, the column's name and its position, and
+the reason: on standard error for the table and csv formats, in a
+"rejected" array for json. --strict refuses the whole file instead.
 
 Rows are named by their data row (counting every record after the header,
-unreadable ones included) and by the file line on which they start.
+unreadable ones included) and by the file line on which they start, and
+with --id-column by that column's text (a serial number, a sample id):
+"id" in json and csv, the column's name in the table.
 
 Output formats:
   table  for people: rows worth a look first, the fit, then every row
@@ -87,6 +98,9 @@ type inspectOptions struct {
 	noIntercept bool
 	format      string
 	delimiter   byte
+	dialect     decode.Dialect // --delimiter, --decimal-comma, --comment, --missing
+	idColumn    string         // --id-column: the column that labels each row
+	filter      *config.Filter // --filter COLUMN=VALUE
 	strict      bool
 	cutoffs     engine.Cutoffs
 
@@ -115,7 +129,7 @@ func runInspect(ctx context.Context, e *env, args []string) error {
 	}
 	if len(ds.rejected) > 0 && (opt.strict || opt.format != "json") {
 		for _, r := range ds.rejected {
-			fmt.Fprintf(e.stderr, "%s: row left out: %s\n", r.where(), r.Reason)
+			fmt.Fprintf(e.stderr, "%s: row left out: %s\n", r.where(), r.why())
 		}
 	}
 	if opt.strict && len(ds.rejected) > 0 {
@@ -166,11 +180,28 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 	fs.StringVar(&opt.terms, "terms", "", "comma-separated model `terms` (required), e.g. \"a, b, a^2, log(c)\"")
 	fs.BoolVar(&opt.noIntercept, "no-intercept", false, "fit without an intercept (through the origin)")
 	fs.StringVar(&opt.format, "format", "table", "output `format`: table, json or csv")
-	fs.StringVar(&delim, "delimiter", ",", "field delimiter, one `character` (\\t for tab)")
+	fs.StringVar(&delim, "delimiter", ",", "field delimiter, one `character` (tab or \\t for tab); as the config's delimiter")
+	var (
+		decimalComma bool
+		comment      string
+		missing      []string
+		filters      []string
+	)
+	fs.BoolVar(&decimalComma, "decimal-comma", false, "numbers are written with a decimal comma (\"3,14\"); needs another --delimiter, usually \";\"")
+	fs.StringVar(&comment, "comment", "", "skip lines starting with this `prefix` (e.g. \"#\")")
+	fs.Func("missing", "a cell `text` that means no value (\"NA\", \"\" for an empty cell); may be repeated. A row with one in a column the model uses is left out and counted as missing", func(v string) error {
+		missing = append(missing, v)
+		return nil
+	})
+	fs.StringVar(&opt.idColumn, "id-column", "", "a `column` whose text labels each row (serial number, sample id) in every output")
+	fs.Func("filter", "keep only rows whose column holds the value, `COLUMN=VALUE`; repeat with the same column for more values", func(v string) error {
+		filters = append(filters, v)
+		return nil
+	})
 	fs.BoolVar(&opt.strict, "strict", false, "refuse the file (exit 1) if any row cannot be used")
 	fs.Float64Var(&alpha, "alpha", def.Alpha, "significance `level` of the outlier test")
-	fs.StringVar(&family, "cutoffs", familyName(def.Family), "cutoff `family`: absolute or size-adjusted")
-	fs.StringVar(&cookRule, "cook-rule", cookRuleName(def.Cook), "Cook's distance `rule`: fmedian (the median of F(p, n-p)) or one (D > 1)")
+	fs.StringVar(&family, "cutoffs", familyName(def.Family), "cutoff `family`: absolute or size_adjusted")
+	fs.StringVar(&cookRule, "cook-rule", cookRuleName(def.Cook), "Cook's distance `rule`: f_median (the median of F(p, n-p)) or one (D > 1)")
 	fs.StringVar(&outlierTs, "outlier-test", outlierTestName(def.Test), "outlier `test`: bonferroni (studentized residuals) or grubbs")
 	fs.BoolVar(&opt.fragility, "fragility", false, "search for the fewest rows whose removal changes a conclusion (sign or significance of a coefficient, or a --checkpoint)")
 	fs.IntVar(&opt.maxRemoved, "max-removed", engine.DefaultMaxRemoved, "with --fragility: the most rows removed together")
@@ -213,32 +244,48 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 	default:
 		return nil, bad("--format %q: want table, json or csv", opt.format)
 	}
-	switch delim {
-	case `\t`, "tab":
-		opt.delimiter = '\t'
-	default:
-		if len(delim) != 1 {
-			return nil, bad("--delimiter %q: want a single ASCII character", delim)
+	if err := config.CheckDialect(delim, decimalComma, comment, missing); err != nil {
+		var de *config.DialectError
+		if errors.As(err, &de) {
+			return nil, bad("--%s: %v", strings.ReplaceAll(de.Key, "_", "-"), de.Err)
 		}
-		opt.delimiter = delim[0]
+		return nil, bad("%v", err)
 	}
-	if err := (decode.Dialect{Delimiter: opt.delimiter}).Validate(); err != nil {
-		return nil, bad("--delimiter %q: %v", delim, err)
+	opt.delimiter, _ = config.ParseDelimiter(delim)
+	opt.dialect = decode.Dialect{Delimiter: opt.delimiter, Comment: comment, DecimalComma: decimalComma, Missing: missing}
+	opt.idColumn = unquoteName(strings.TrimSpace(opt.idColumn))
+	for _, v := range filters {
+		k := strings.IndexByte(v, '=')
+		if k <= 0 {
+			return nil, bad("--filter %q: want COLUMN=VALUE", v)
+		}
+		col := unquoteName(strings.TrimSpace(v[:k]))
+		val := strings.TrimSpace(v[k+1:])
+		if opt.filter == nil {
+			opt.filter = &config.Filter{Column: col}
+		} else if opt.filter.Column != col {
+			return nil, bad("--filter %q: one filter column at a time (already %q), as in the config", v, opt.filter.Column)
+		}
+		opt.filter.Values = append(opt.filter.Values, val)
 	}
 	if !(alpha > 0 && alpha < 1) {
 		return nil, bad("--alpha %v: want a level strictly between 0 and 1", alpha)
 	}
 	c := def
 	c.Alpha = alpha
-	var ok bool
-	if c.Family, ok = familyNames.value(family); !ok {
-		return nil, bad("--cutoffs %q: want %s", family, familyNames.choices())
+	var ok, old bool
+	if c.Family, old, ok = config.CutoffWords.Parse(family); !ok {
+		return nil, bad("--cutoffs %q: want %s", family, config.CutoffWords.Choices())
+	} else if old {
+		fmt.Fprintf(e.stderr, "plumb inspect: note: --cutoffs %s is the old spelling; write --cutoffs %s, as the config's cutoffs key does\n", family, familyName(c.Family))
 	}
-	if c.Cook, ok = cookRuleNames.value(cookRule); !ok {
-		return nil, bad("--cook-rule %q: want %s", cookRule, cookRuleNames.choices())
+	if c.Cook, old, ok = config.CookRuleWords.Parse(cookRule); !ok {
+		return nil, bad("--cook-rule %q: want %s", cookRule, config.CookRuleWords.Choices())
+	} else if old {
+		fmt.Fprintf(e.stderr, "plumb inspect: note: --cook-rule %s is the old spelling; write --cook-rule %s, as the config's cook_rule key does\n", cookRule, cookRuleName(c.Cook))
 	}
-	if c.Test, ok = outlierTestNames.value(outlierTs); !ok {
-		return nil, bad("--outlier-test %q: want %s", outlierTs, outlierTestNames.choices())
+	if c.Test, _, ok = config.OutlierTestWords.Parse(outlierTs); !ok {
+		return nil, bad("--outlier-test %q: want %s", outlierTs, config.OutlierTestWords.Choices())
 	}
 	opt.cutoffs = c
 	if opt.maxRemoved < 1 {
@@ -360,45 +407,11 @@ func parseRegion(v string, r engine.Region) error {
 	return nil
 }
 
-// names pairs the words of one flag with the values they choose.
-type names[T comparable] []struct {
-	word  string
-	value T
-}
-
-var (
-	familyNames      = names[engine.Family]{{"absolute", engine.Absolute}, {"size-adjusted", engine.SizeAdjusted}}
-	cookRuleNames    = names[engine.CookRule]{{"fmedian", engine.CookFMedian}, {"one", engine.CookOne}}
-	outlierTestNames = names[engine.OutlierTest]{{"bonferroni", engine.BonferroniTest}, {"grubbs", engine.GrubbsTest}}
-)
-
-func (n names[T]) value(word string) (T, bool) {
-	for _, e := range n {
-		if e.word == word {
-			return e.value, true
-		}
-	}
-	var zero T
-	return zero, false
-}
-
-func (n names[T]) word(v T) string {
-	for _, e := range n {
-		if e.value == v {
-			return e.word
-		}
-	}
-	return n[0].word
-}
-
-// choices is "a or b".
-func (n names[T]) choices() string {
-	return n[0].word + " or " + n[1].word
-}
-
-func familyName(f engine.Family) string           { return familyNames.word(f) }
-func cookRuleName(r engine.CookRule) string       { return cookRuleNames.word(r) }
-func outlierTestName(t engine.OutlierTest) string { return outlierTestNames.word(t) }
+// The words of the judgement flags are the config's (config.CutoffWords
+// and the others).
+func familyName(f engine.Family) string           { return config.CutoffWords.Name(f) }
+func cookRuleName(r engine.CookRule) string       { return config.CookRuleWords.Name(r) }
+func outlierTestName(t engine.OutlierTest) string { return config.OutlierTestWords.Name(t) }
 
 // unquoteName accepts a response given in the term notation's quoted form
 // ("flow rate (l/min)" with its quotes) as well as the bare column name.

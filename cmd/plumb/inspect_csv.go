@@ -66,7 +66,11 @@ func appendCSVNums(dst []byte, xs ...float64) []byte {
 
 func (r *inspectResult) csvHeader() []byte {
 	var b []byte
-	b = append(b, "row,line,verdict,outlier,influential,leverage,residual,studentized_internal,studentized_external,cooks_distance,dffits"...)
+	b = append(b, "row,"...)
+	if r.ds.labels != nil {
+		b = append(b, "id,"...) // as in the json format; the table names the column
+	}
+	b = append(b, "line,verdict,outlier,influential,leverage,residual,studentized_internal,studentized_external,cooks_distance,dffits"...)
 	for _, n := range r.names {
 		b = append(b, ',')
 		b = appendCSVField(b, "dfbetas["+n+"]")
@@ -82,6 +86,10 @@ func (r *inspectResult) appendCSVRows(dst []byte, lo, hi int) []byte {
 		v := &r.Verdicts[i]
 		dst = strconv.AppendInt(dst, int64(r.ds.rowNo[i]), 10)
 		dst = append(dst, ',')
+		if r.ds.labels != nil {
+			dst = appendCSVField(dst, r.ds.labels[i])
+			dst = append(dst, ',')
+		}
 		dst = strconv.AppendInt(dst, int64(r.ds.line[i]), 10)
 		dst = append(dst, ',')
 		dst = append(dst, v.Word()...)

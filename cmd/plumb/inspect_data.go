@@ -10,7 +10,10 @@ import (
 	"io"
 	"os"
 	"runtime"
+	"slices"
 	"sort"
+	"strconv"
+	"strings"
 	"sync"
 
 	"plumb/engine"
@@ -19,21 +22,51 @@ import (
 
 // rejectedRow is a data row left out of the fit, with where and why.
 type rejectedRow struct {
-	File   string `json:"file"`
-	Row    int    `json:"row"` // 1-based data row (0 if not known)
-	Line   int    `json:"line"`
-	Column int    `json:"column"`          // 1-based byte column in Line, 0 if none
-	Field  string `json:"field,omitempty"` // header name of the field concerned
-	Reason string `json:"reason"`
+	File    string `json:"file"`
+	Row     int    `json:"row"`          // 1-based data row (0 if not known)
+	ID      string `json:"id,omitempty"` // the --id-column label, when known
+	Line    int    `json:"line"`
+	Column  int    `json:"column"`                 // 1-based byte column in Line, 0 if none
+	Field   string `json:"field,omitempty"`        // header name of the field concerned
+	FieldNo int    `json:"field_number,omitempty"` // its 1-based position in the header
+	Reason  string `json:"reason"`
 
 	err error // the decoder's *RowError, if it found the fault
 }
 
+// where is "file:line:column" (the column when known).
 func (r rejectedRow) where() string {
 	if r.Column > 0 {
 		return fmt.Sprintf("%s:%d:%d", r.File, r.Line, r.Column)
 	}
 	return fmt.Sprintf("%s:%d", r.File, r.Line)
+}
+
+// why is the cause with the field it concerns, as the decoder's RowError
+// and the daemon write it: `column "emf_mv" (field 2): not a number:
+// "11.5x"`, and the row's label when known.
+func (r rejectedRow) why() string {
+	s := ""
+	switch {
+	case r.Field != "" && r.FieldNo > 0:
+		s = fmt.Sprintf("column %q (field %d): ", r.Field, r.FieldNo)
+	case r.Field != "":
+		s = fmt.Sprintf("column %q: ", r.Field)
+	case r.FieldNo > 0:
+		s = fmt.Sprintf("field %d: ", r.FieldNo)
+	}
+	s += r.Reason
+	if r.ID != "" {
+		s += fmt.Sprintf(" (row %s)", strconv.Quote(r.ID))
+	}
+	return s
+}
+
+// rowErrorRejected is the rejected row the decoder found, row being its
+// data row number.
+func rowErrorRejected(e *decode.RowError, row int) rejectedRow {
+	return rejectedRow{File: e.File, Row: row, Line: e.Line, Column: e.Column,
+		Field: e.Name, FieldNo: e.Field, Reason: e.Err.Error(), err: e}
 }
 
 // inspectData is the usable part of the file: one slice per column the
@@ -46,10 +79,31 @@ type inspectData struct {
 	vals     [][]float64 // the same columns, in the order of names
 	rowNo    []int
 	line     []int
+	labels   []string // --id-column text of each kept row; nil without one
+	idColumn string
 	buf      []byte // the whole file, to find a field of a rejected row
 	starts   []int  // byte offset of each line's start, built on first use
 	total    int    // data rows in the file, good and bad
 	rejected []rejectedRow
+	missing  int // rows left out for a missing value in a used column
+	filtered int // rows the --filter left out
+	// missingCols counts the missing rows by the first column found
+	// missing in them, in the order of names.
+	missingCols []int
+}
+
+// readSpec is what every part's decoder reads: the numeric columns, the
+// text columns (the id column, then the filter column) and the filter.
+type readSpec struct {
+	file       string
+	dialect    decode.Dialect
+	header     []string
+	headerLine int
+	names      []string
+	text       []string
+	idAt       int // index of the id column in text, -1 if none
+	filterAt   int // index of the filter column in text, -1 if none
+	keep       map[string]bool
 }
 
 func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData, error) {
@@ -68,11 +122,24 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 		return nil, fmt.Errorf("inspect: %w", err)
 	}
 	names := append([]string{m.Response}, m.Columns()...)
-	dialect := decode.Dialect{Delimiter: opt.delimiter}
+	dialect := opt.dialect
+	spec := readSpec{file: name, dialect: dialect, names: names, idAt: -1, filterAt: -1}
+	if opt.idColumn != "" {
+		spec.idAt = len(spec.text)
+		spec.text = append(spec.text, opt.idColumn)
+	}
+	if opt.filter != nil {
+		spec.filterAt = len(spec.text)
+		spec.text = append(spec.text, opt.filter.Column)
+		spec.keep = map[string]bool{}
+		for _, v := range opt.filter.Values {
+			spec.keep[v] = true
+		}
+	}
 
 	// The header first, alone, so that the rest can be cut into parts.
 	hdr := decode.NewDecoder(name, dialect)
-	if err := hdr.Select(names, nil); err != nil {
+	if err := hdr.Select(names, spec.text); err != nil {
 		return nil, fmt.Errorf("inspect: %w", err)
 	}
 	_, err = hdr.Feed(buf, true, func(decode.Record) error { return errHeaderRead })
@@ -84,12 +151,13 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 		return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: the file is empty (no header row)", name)}
 	}
 	off, line := hdr.Pos()
+	spec.header, spec.headerLine = header, hdr.HeaderLine()
 
 	parts := splitRecords(buf, int(off), line, runtime.GOMAXPROCS(0))
-	store := newRowStore(len(names), buf, parts)
+	store := newRowStore(len(names), spec.idAt >= 0, buf, parts)
 	results := make([]*inspectData, len(parts))
 	if len(parts) == 1 {
-		results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, parts[0], store.slot(0))
+		results[0], err = decodePart(&spec, buf, parts[0], store.slot(0))
 	} else {
 		errs := make([]error, len(parts))
 		var wg sync.WaitGroup
@@ -97,7 +165,7 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 			wg.Add(1)
 			go func() {
 				defer wg.Done()
-				results[k], errs[k] = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, parts[k], store.slot(k))
+				results[k], errs[k] = decodePart(&spec, buf, parts[k], store.slot(k))
 			}()
 		}
 		wg.Wait()
@@ -106,16 +174,16 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 			// A malformed quote may end a record elsewhere than quote
 			// parity says: decode the file in one piece after all.
 			whole := []part{{off: int(off), end: len(buf), line: line}}
-			store = newRowStore(len(names), buf, whole)
+			store = newRowStore(len(names), spec.idAt >= 0, buf, whole)
 			results = results[:1]
-			results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, whole[0], store.slot(0))
+			results[0], err = decodePart(&spec, buf, whole[0], store.slot(0))
 		}
 	}
 	if err != nil {
 		return nil, fmt.Errorf("inspect: %w", err)
 	}
 	ds := store.merge(results)
-	ds.file, ds.header, ds.buf, ds.names = name, header, buf, names
+	ds.file, ds.header, ds.buf, ds.names, ds.idColumn = name, header, buf, names, opt.idColumn
 	for i, n := range names {
 		ds.cols[n] = ds.vals[i]
 	}
@@ -188,14 +256,15 @@ func splitRecords(buf []byte, off, line, k int) []part {
 // writes from base[k] on, with room for one row per line end in it (plus
 // one for a last line without a newline), which no part can exceed.
 type rowStore struct {
-	cols  [][]float64
-	rowNo []int
-	line  []int
-	base  []int
-	room  []int
+	cols   [][]float64
+	rowNo  []int
+	line   []int
+	labels []string // nil without an id column
+	base   []int
+	room   []int
 }
 
-func newRowStore(ncols int, buf []byte, parts []part) *rowStore {
+func newRowStore(ncols int, labels bool, buf []byte, parts []part) *rowStore {
 	st := &rowStore{cols: make([][]float64, ncols)}
 	total := 0
 	for _, pt := range parts {
@@ -209,6 +278,9 @@ func newRowStore(ncols int, buf []byte, parts []part) *rowStore {
 	}
 	st.rowNo = make([]int, total)
 	st.line = make([]int, total)
+	if labels {
+		st.labels = make([]string, total)
+	}
 	return st
 }
 
@@ -219,6 +291,9 @@ func (st *rowStore) slot(k int) *inspectData {
 	ds := &inspectData{}
 	ds.rowNo = st.rowNo[b:b:e]
 	ds.line = st.line[b:b:e]
+	if st.labels != nil {
+		ds.labels = st.labels[b:b:e]
+	}
 	ds.cols = map[string][]float64{}
 	ds.vals = make([][]float64, len(st.cols))
 	for i := range st.cols {
@@ -242,6 +317,9 @@ func (st *rowStore) merge(parts []*inspectData) *inspectData {
 			st.rowNo[w+i] = p.rowNo[i] + base
 		}
 		copy(st.line[w:], p.line)
+		if st.labels != nil {
+			copy(st.labels[w:], p.labels)
+		}
 		for i := range st.cols {
 			copy(st.cols[i][w:], p.vals[i])
 		}
@@ -250,9 +328,22 @@ func (st *rowStore) merge(parts []*inspectData) *inspectData {
 			ds.rejected = append(ds.rejected, r)
 		}
 		ds.total += p.total
+		ds.missing += p.missing
+		ds.filtered += p.filtered
+		if p.missingCols != nil {
+			if ds.missingCols == nil {
+				ds.missingCols = make([]int, len(p.missingCols))
+			}
+			for i, c := range p.missingCols {
+				ds.missingCols[i] += c
+			}
+		}
 		w += n
 	}
 	ds.rowNo, ds.line = st.rowNo[:w], st.line[:w]
+	if st.labels != nil {
+		ds.labels = st.labels[:w]
+	}
 	ds.vals = make([][]float64, len(st.cols))
 	for i := range st.cols {
 		ds.vals[i] = st.cols[i][:w]
@@ -262,12 +353,12 @@ func (st *rowStore) merge(parts []*inspectData) *inspectData {
 
 // decodePart decodes the records of one part with its own decoder into
 // slot (see rowStore).
-func decodePart(name string, dialect decode.Dialect, header []string, headerLine int, names []string, buf []byte, pt part, slot *inspectData) (*inspectData, error) {
-	dec := decode.NewDecoder(name, dialect)
-	if err := dec.SetHeader(header, headerLine); err != nil {
+func decodePart(sp *readSpec, buf []byte, pt part, slot *inspectData) (*inspectData, error) {
+	dec := decode.NewDecoder(sp.file, sp.dialect)
+	if err := dec.SetHeader(sp.header, sp.headerLine); err != nil {
 		return nil, err
 	}
-	if err := dec.Select(names, nil); err != nil {
+	if err := dec.Select(sp.names, sp.text); err != nil {
 		return nil, err
 	}
 	dec.SetOffset(int64(pt.off), pt.line)
@@ -276,10 +367,32 @@ func decodePart(name string, dialect decode.Dialect, header []string, headerLine
 	_, err := dec.Feed(buf[pt.off:pt.end], true, func(r decode.Record) error {
 		ds.total++
 		if r.Err != nil {
-			ds.rejected = append(ds.rejected, rejectedRow{
-				File: r.Err.File, Row: ds.total, Line: r.Err.Line, Column: r.Err.Column,
-				Field: r.Err.Name, Reason: r.Err.Err.Error(), err: r.Err,
-			})
+			rj := rowErrorRejected(r.Err, ds.total)
+			if sp.idAt >= 0 {
+				// The decoder keeps no text of a refused row: find the
+				// id cell in the record as written, when it is there.
+				if k := slices.Index(sp.header, sp.text[sp.idAt]); k >= 0 {
+					rj.ID = strings.TrimSpace(fieldText(r.Raw, sp.dialect.Delimiter, k))
+				}
+			}
+			ds.rejected = append(ds.rejected, rj)
+			return nil
+		}
+		if sp.keep != nil && !sp.keep[strings.TrimSpace(r.Text[sp.filterAt])] {
+			ds.filtered++ // left out on purpose, whatever else it holds
+			return nil
+		}
+		if r.Missing != nil {
+			ds.missing++
+			if ds.missingCols == nil {
+				ds.missingCols = make([]int, len(sp.names))
+			}
+			for i, n := range sp.names {
+				if n == r.Missing.Name {
+					ds.missingCols[i]++
+					break
+				}
+			}
 			return nil
 		}
 		for i, v := range r.Values {
@@ -287,6 +400,9 @@ func decodePart(name string, dialect decode.Dialect, header []string, headerLine
 		}
 		ds.rowNo = append(ds.rowNo, ds.total)
 		ds.line = append(ds.line, r.Line)
+		if sp.idAt >= 0 {
+			ds.labels = append(ds.labels, strings.TrimSpace(r.Text[sp.idAt]))
+		}
 		return nil
 	})
 	if err != nil {
@@ -345,16 +461,16 @@ func (ds *inspectData) rejectLogDomain(m engine.Model, delim byte) {
 // reject records kept row i as rejected because of column col.
 func (ds *inspectData) reject(i int, col, reason string, delim byte) {
 	line, column := ds.line[i], 0
-	field := ""
+	field, fieldNo := "", 0
 	for k, h := range ds.header {
 		if h == col {
 			line, column = fieldPosition(ds.lineText(ds.line[i]), ds.line[i], delim, k)
-			field = col
+			field, fieldNo = col, k+1
 			break
 		}
 	}
 	ds.rejected = append(ds.rejected, rejectedRow{
-		File: ds.file, Row: ds.rowNo[i], Line: line, Column: column, Field: field, Reason: reason,
+		File: ds.file, Row: ds.rowNo[i], ID: ds.label(i), Line: line, Column: column, Field: field, FieldNo: fieldNo, Reason: reason,
 	})
 }
 
@@ -373,16 +489,49 @@ func (ds *inspectData) drop(idx []int) {
 			continue
 		}
 		ds.rowNo[w], ds.line[w] = ds.rowNo[i], ds.line[i]
+		if ds.labels != nil {
+			ds.labels[w] = ds.labels[i]
+		}
 		for _, n := range ds.names {
 			ds.cols[n][w] = ds.cols[n][i]
 		}
 		w++
 	}
 	ds.rowNo, ds.line = ds.rowNo[:w], ds.line[:w]
+	if ds.labels != nil {
+		ds.labels = ds.labels[:w]
+	}
 	for _, n := range ds.names {
 		ds.cols[n] = ds.cols[n][:w]
 	}
 	sort.Slice(ds.rejected, func(a, b int) bool { return ds.rejected[a].Row < ds.rejected[b].Row })
+}
+
+// leftOutWords says, after a count of rows, which were left out and why:
+// " (3 unreadable, 42 with a missing value, 5 left out by --filter)".
+func (ds *inspectData) leftOutWords() string {
+	var parts []string
+	if k := len(ds.rejected); k > 0 {
+		parts = append(parts, fmt.Sprintf("%d unreadable", k))
+	}
+	if ds.missing > 0 {
+		parts = append(parts, fmt.Sprintf("%d with a missing value", ds.missing))
+	}
+	if ds.filtered > 0 {
+		parts = append(parts, fmt.Sprintf("%d left out by --filter", ds.filtered))
+	}
+	if len(parts) == 0 {
+		return ""
+	}
+	return " (" + strings.Join(parts, ", ") + ")"
+}
+
+// label is kept row i's --id-column text ("" without one).
+func (ds *inspectData) label(i int) string {
+	if ds.labels == nil {
+		return ""
+	}
+	return ds.labels[i]
 }
 
 // lineText returns the file from the start of 1-based line l on.
@@ -399,6 +548,41 @@ func (ds *inspectData) lineText(l int) []byte {
 		return nil
 	}
 	return ds.buf[ds.starts[l-1]:]
+}
+
+// fieldText returns field k (0-based) of one CSV record, unquoted ("" if
+// the record has fewer fields). A delimiter of 0 means ','.
+func fieldText(rec string, delim byte, k int) string {
+	if delim == 0 {
+		delim = ','
+	}
+	field, inQuote := 0, false
+	var b strings.Builder
+	for i := 0; i < len(rec); i++ {
+		c := rec[i]
+		switch {
+		case c == '"' && inQuote && i+1 < len(rec) && rec[i+1] == '"':
+			if field == k {
+				b.WriteByte('"')
+			}
+			i++
+		case c == '"':
+			inQuote = !inQuote
+		case c == delim && !inQuote:
+			if field == k {
+				return b.String()
+			}
+			field++
+		default:
+			if field == k {
+				b.WriteByte(c)
+			}
+		}
+	}
+	if field == k {
+		return b.String()
+	}
+	return ""
 }
 
 // fieldPosition finds where field k (0-based) of the record at the start

@@ -19,9 +19,9 @@ func TestInspectRejectedRows(t *testing.T) {
 	// at byte 10); line 24 has 3 fields instead of 4.
 	wantStderr := []string{
 		fixture("thermo.csv") + ":12:10: row left out: ",
-		"not a number",
+		`row left out: column "emf_mv" (field 2): not a number: "11.5x"`,
 		fixture("thermo.csv") + ":24:",
-		"wrong number of fields",
+		":24:34: row left out: field 4: wrong number of fields",
 	}
 	for _, format := range []string{"table", "csv"} {
 		t.Run(format, func(t *testing.T) {
@@ -52,7 +52,10 @@ func TestInspectRejectedRows(t *testing.T) {
 		if r0.File != fixture("thermo.csv") || r0.Row != 11 || r0.Line != 12 || r0.Column != 10 || r0.Field != "emf_mv" || !strings.Contains(r0.Reason, "not a number") {
 			t.Errorf("first rejected row = %+v", r0)
 		}
-		if r1.Row != 23 || r1.Line != 24 || !strings.Contains(r1.Reason, "wrong number of fields") {
+		if r0.FieldNo != 2 {
+			t.Errorf("first rejected row: field_number %d, want 2 (emf_mv is the header's second column)", r0.FieldNo)
+		}
+		if r1.Row != 23 || r1.Line != 24 || r1.FieldNo != 4 || !strings.Contains(r1.Reason, "wrong number of fields") {
 			t.Errorf("second rejected row = %+v", r1)
 		}
 		// Kept rows keep their own row and line numbers.

@@ -56,6 +56,7 @@ type jsonFragility struct {
 	Searched     string     `json:"searched"`
 	RemovedRows  []int      `json:"removed_rows"`
 	RemovedLines []int      `json:"removed_lines"`
+	RemovedIDs   []string   `json:"removed_ids,omitempty"`
 	Conclusion   string     `json:"conclusion"`
 	Kind         string     `json:"kind"`
 	Term         string     `json:"term"`
@@ -70,6 +71,7 @@ type jsonFragility struct {
 
 type jsonRowEffect struct {
 	Row            int        `json:"row"`
+	ID             string     `json:"id,omitempty"`
 	Line           int        `json:"line"`
 	LeverageBefore view.Float `json:"leverage_before"`
 	LeverageAfter  view.Float `json:"leverage_after"`
@@ -123,6 +125,9 @@ func (r *inspectResult) jsonFragility() *jsonFragility {
 	for _, ref := range r.FragilityOf(fr.MaxRemoved, fr.Limit).Rows {
 		j.RemovedRows = append(j.RemovedRows, int(ref.ID))
 		j.RemovedLines = append(j.RemovedLines, ref.Line)
+		if r.ds.labels != nil {
+			j.RemovedIDs = append(j.RemovedIDs, ref.Label)
+		}
 	}
 	return j
 }
@@ -155,7 +160,7 @@ func (r *inspectResult) jsonSuggestions() *[]jsonSuggestion {
 		for _, re := range ef.Rows {
 			row, line := r.fileRow(re.Row)
 			je.Rows = append(je.Rows, jsonRowEffect{
-				Row: row, Line: line,
+				Row: row, Line: line, ID: r.fileLabel(re.Row),
 				LeverageBefore: view.Float(re.LeverageBefore), LeverageAfter: view.Float(re.LeverageAfter),
 				CookBefore: view.Float(re.CookBefore), CookAfter: view.Float(re.CookAfter),
 			})
@@ -189,6 +194,9 @@ type jsonReport struct {
 	P            int               `json:"p"`
 	DF           int               `json:"df"`
 	RowsInFile   int               `json:"rows_in_file"`
+	Missing      int               `json:"missing"`
+	Filtered     *int              `json:"filtered,omitempty"`
+	IDColumn     string            `json:"id_column,omitempty"`
 	Sigma        view.Float        `json:"sigma"`
 	RSquared     view.Float        `json:"r_squared"`
 	AdjRSquared  view.Float        `json:"adj_r_squared"`
@@ -221,6 +229,8 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		P:           f.P,
 		DF:          f.DF,
 		RowsInFile:  r.ds.total,
+		Missing:     r.ds.missing,
+		IDColumn:    r.ds.idColumn,
 		Sigma:       view.Float(f.Sigma),
 		RSquared:    view.Float(f.RSquared),
 		AdjRSquared: view.Float(f.AdjRSquared),
@@ -251,6 +261,9 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		Predictions: r.Predictions(),
 		Inverse:     r.Inverses(),
 		Caution:     cautionText,
+	}
+	if r.filter {
+		rep.Filtered = &r.ds.filtered
 	}
 	rep.Terms = make([]string, len(r.model.Terms))
 	for i, t := range r.model.Terms {
@@ -328,6 +341,10 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 	}
 	dst = append(dst, `{"row":`...)
 	dst = strconv.AppendInt(dst, int64(r.ds.rowNo[i]), 10)
+	if r.ds.labels != nil {
+		dst = append(dst, `,"id":`...)
+		dst = appendJSONString(dst, r.ds.labels[i])
+	}
 	dst = append(dst, `,"line":`...)
 	dst = strconv.AppendInt(dst, int64(r.ds.line[i]), 10)
 	num("fitted", r.Fit.Fitted[i])

@@ -29,7 +29,9 @@ type inspectJSON struct {
 	VIF  map[string]float64 `json:"vif"`
 	Rows []struct {
 		Row                 int                 `json:"row"`
+		ID                  *string             `json:"id"`
 		Line                int                 `json:"line"`
+		Fitted              *float64            `json:"fitted"`
 		Leverage            *float64            `json:"leverage"`
 		Residual            *float64            `json:"residual"`
 		StudentizedInternal *float64            `json:"studentized_internal"`
@@ -50,13 +52,18 @@ type inspectJSON struct {
 		} `json:"flags"`
 	} `json:"rows"`
 	Rejected []struct {
-		File   string `json:"file"`
-		Row    int    `json:"row"`
-		Line   int    `json:"line"`
-		Column int    `json:"column"`
-		Field  string `json:"field"`
-		Reason string `json:"reason"`
+		File    string `json:"file"`
+		Row     int    `json:"row"`
+		Line    int    `json:"line"`
+		Column  int    `json:"column"`
+		Field   string `json:"field"`
+		FieldNo int    `json:"field_number"`
+		ID      string `json:"id"`
+		Reason  string `json:"reason"`
 	} `json:"rejected"`
+	Missing  int    `json:"missing"`
+	Filtered *int   `json:"filtered"`
+	IDColumn string `json:"id_column"`
 }
 
 // rReference is the part of a testdata/reference file (written by

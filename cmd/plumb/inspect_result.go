@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"slices"
+	"strconv"
 	"strings"
 
 	"plumb/cmd/plumb/internal/analysis"
@@ -23,8 +24,10 @@ type inspectResult struct {
 	names   []string
 	cutoffs engine.Cutoffs
 
-	checkpoints []engine.Checkpoint
-	units       map[string]string
+	checkpoints   []engine.Checkpoint
+	units         map[string]string
+	missingTokens []string // --missing
+	filter        bool     // --filter given
 }
 
 func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspectData) (*inspectResult, error) {
@@ -42,7 +45,7 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 	if err := checkAt(m, opt.answers.At); err != nil {
 		return nil, err
 	}
-	res := &inspectResult{file: ds.file, ds: ds, model: m, names: m.Names(), cutoffs: opt.cutoffs, checkpoints: opt.checkpoints, units: opt.units}
+	res := &inspectResult{file: ds.file, ds: ds, model: m, names: m.Names(), cutoffs: opt.cutoffs, checkpoints: opt.checkpoints, units: opt.units, missingTokens: opt.dialect.Missing, filter: opt.filter != nil}
 	conc := engine.DefaultConclusions()
 	conc.Checkpoints = opt.checkpoints
 	a := analysis.Analysis{Model: m, Options: analysis.Options{
@@ -58,7 +61,7 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 	}}
 	for {
 		if len(ds.rowNo) == 0 {
-			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: none of the %d data rows could be used", ds.file, ds.total)}
+			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: none of the %d data rows could be used%s", ds.file, ds.total, ds.leftOutWords())}
 		}
 		r, err := a.Run(ctx, ds.cols)
 		var se *analysis.StepError
@@ -100,7 +103,7 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 // row is where the i-th fitted row (0-based) is in the file: its data row
 // number (as ID) and line.
 func (r *inspectResult) row(i int) view.RowRef {
-	return view.RowRef{ID: int64(r.ds.rowNo[i]), File: r.file, Line: r.ds.line[i]}
+	return view.RowRef{ID: int64(r.ds.rowNo[i]), File: r.file, Line: r.ds.line[i], Label: r.ds.label(i)}
 }
 
 // rowLabel names the k-th fitted row (1-based, as the engine counts) by
@@ -110,7 +113,7 @@ func (r *inspectResult) rowLabel(k int) string {
 		return "row ?"
 	}
 	ref := r.row(k - 1)
-	return fmt.Sprintf("row %d (line %d)", ref.ID, ref.Line)
+	return rowWords(int(ref.ID), ref.Line, ref.Label)
 }
 
 // fileRow is the data row number and line of the k-th fitted row
@@ -121,6 +124,24 @@ func (r *inspectResult) fileRow(k int) (row, line int) {
 	}
 	ref := r.row(k - 1)
 	return int(ref.ID), ref.Line
+}
+
+// rowWords names a row for people: `row 17 (line 18)`, or with its
+// --id-column label `row 17 "Fiat 128" (line 18)`.
+func rowWords(row, line int, label string) string {
+	if label == "" {
+		return fmt.Sprintf("row %d (line %d)", row, line)
+	}
+	return fmt.Sprintf("row %d %s (line %d)", row, strconv.Quote(label), line)
+}
+
+// fileLabel is the --id-column label of the k-th fitted row (1-based),
+// or "".
+func (r *inspectResult) fileLabel(k int) string {
+	if k < 1 || k > len(r.ds.rowNo) {
+		return ""
+	}
+	return r.ds.label(k - 1)
 }
 
 func plural(n int, one, many string) string {

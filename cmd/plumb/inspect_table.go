@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -172,6 +173,12 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	}
 	fmt.Fprintf(bw, "%s: %s explained by %s\n", r.file, r.model.Response, explained)
 	fmt.Fprintf(bw, "%d of %d data rows used", f.N, r.ds.total)
+	if r.ds.filtered > 0 {
+		fmt.Fprintf(bw, "; %d left out by --filter", r.ds.filtered)
+	}
+	if r.ds.missing > 0 {
+		fmt.Fprintf(bw, "; %d left out for a missing value in a column the model uses (%s)", r.ds.missing, r.missingWords())
+	}
 	if k := len(r.ds.rejected); k > 0 {
 		fmt.Fprintf(bw, "; %d set aside as unreadable (listed on standard error)", k)
 	}
@@ -204,7 +211,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 		}
 		for _, i := range shown {
 			v := r.Verdicts[i]
-			fmt.Fprintf(bw, "  row %d (line %d): %s\n", r.ds.rowNo[i], r.ds.line[i], verdictWords(v))
+			fmt.Fprintf(bw, "  %s: %s\n", rowWords(r.ds.rowNo[i], r.ds.line[i], r.ds.label(i)), verdictWords(v))
 			for _, fl := range v.Flags {
 				fmt.Fprintf(bw, "      - %s\n", flagWords(fl))
 			}
@@ -296,7 +303,16 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	// Every row.
 	fmt.Fprintf(bw, "== Every row, in file order ==\n")
 	g = grid{left: map[int]bool{9: true, 12: true}}
-	g.add("row", "line", "leverage", "residual", "stud. int.", "stud. ext.", "Cook's D", "DFFITS", "largest DFBETAS", "(term)", "COVRATIO", "Bonferroni p", "verdict")
+	ided := r.ds.labels != nil
+	if ided {
+		// The label column, left-aligned after the row number.
+		g.left = map[int]bool{1: true, 10: true, 13: true}
+	}
+	head := []string{"row", "line", "leverage", "residual", "stud. int.", "stud. ext.", "Cook's D", "DFFITS", "largest DFBETAS", "(term)", "COVRATIO", "Bonferroni p", "verdict"}
+	if ided {
+		head = slices.Insert(head, 1, r.ds.idColumn)
+	}
+	g.add(head...)
 	for i, o := range r.Influence.Rows {
 		big, bigAt := math.NaN(), -1
 		for j, x := range r.Influence.DFBETASRow(i) {
@@ -308,14 +324,47 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 		if bigAt >= 0 && !math.IsNaN(big) {
 			dfb, dfbTerm = num4(big), r.names[bigAt]
 		}
-		g.add(strconv.Itoa(r.ds.rowNo[i]), strconv.Itoa(r.ds.line[i]), num4(o.Leverage), num4(o.Residual),
+		cells := []string{strconv.Itoa(r.ds.rowNo[i]), strconv.Itoa(r.ds.line[i]), num4(o.Leverage), num4(o.Residual),
 			num4(o.StudentInternal), num4(o.StudentExternal), num4(o.Cook), num4(o.DFFITS), dfb, dfbTerm,
-			num4(o.COVRATIO), pval(o.BonferroniP), shortVerdict(r.Verdicts[i]))
+			num4(o.COVRATIO), pval(o.BonferroniP), shortVerdict(r.Verdicts[i])}
+		if ided {
+			cells = slices.Insert(cells, 1, tableCell(r.ds.labels[i]))
+		}
+		g.add(cells...)
 	}
 	g.write(bw, "  ")
 	bw.WriteByte('\n')
 	bw.WriteString("Caution: " + cautionText + "\n")
 	return bw.Flush()
+}
+
+// missingWords says which columns the missing values were found in
+// (each row counted at its first), and the texts taken as missing.
+func (r *inspectResult) missingWords() string {
+	var parts []string
+	for i, c := range r.ds.missingCols {
+		if c > 0 {
+			parts = append(parts, fmt.Sprintf("%s %d", r.ds.names[i], c))
+		}
+	}
+	toks := make([]string, len(r.missingTokens))
+	for i, t := range r.missingTokens {
+		toks[i] = strconv.Quote(t)
+	}
+	return strings.Join(parts, ", ") + "; missing means " + strings.Join(toks, " or ")
+}
+
+// tableCell keeps a label on one line of the table.
+func tableCell(s string) string {
+	if s == "" {
+		return "-"
+	}
+	return strings.Map(func(r rune) rune {
+		if r < ' ' {
+			return ' '
+		}
+		return r
+	}, s)
 }
 
 // writeLegend says which cutoffs decide, in words.

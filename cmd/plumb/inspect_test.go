@@ -81,6 +81,11 @@ func TestInspectGolden(t *testing.T) {
 			"--unit", "temp_c=°C,emf_mv=mV", "--format", "json"}, "thermo_answers.json.golden"},
 		{"table absolute cutoffs grubbs", []string{"inspect", fixture("stackloss.csv"), "--response", "stack.loss",
 			"--terms", "Air.Flow, Water.Temp, Acid.Conc.", "--cutoffs", "absolute", "--cook-rule", "one", "--outlier-test", "grubbs", "--alpha", "0.1"}, "stackloss_absolute.table.golden"},
+		// R's mtcars and airquality as R writes them (testdata/rdata).
+		{"table id column", []string{"inspect", rdata("mtcars.csv"), "--response", "mpg", "--terms", "wt, hp", "--id-column", "model"}, "mtcars_id.table.golden"},
+		{"csv id column", []string{"inspect", rdata("mtcars.csv"), "--response", "mpg", "--terms", "wt, hp", "--id-column", "model", "--format", "csv"}, "mtcars_id.csv.golden"},
+		{"table missing values decimal comma", []string{"inspect", rdata("airquality_csv2.csv"), "--delimiter", ";", "--decimal-comma", "--missing", "NA",
+			"--response", "Ozone", "--terms", "Solar.R, Wind, Temp", "--cutoffs", "size_adjusted"}, "airquality_csv2.table.golden"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

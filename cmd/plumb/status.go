@@ -53,6 +53,7 @@ type statusModel struct {
 	Reason      string  `json:"reason,omitempty"`
 	Rows        int64   `json:"rows"`
 	Quarantined int64   `json:"quarantined"`
+	Missing     int64   `json:"missing"` // rows left out for a missing value
 	Fits        int     `json:"fits"`
 	LastFit     *fitOut `json:"last_fit,omitempty"`
 	Fragility   *int    `json:"fragility"`
@@ -75,6 +76,7 @@ type statusFile struct {
 	Generation  int    `json:"generation"`
 	Rows        int64  `json:"rows"`
 	Quarantined int64  `json:"quarantined"`
+	Missing     int64  `json:"missing"`
 	Offset      int64  `json:"offset"`
 	Line        int    `json:"line"`
 }
@@ -167,7 +169,8 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 			return err
 		}
 		for _, s := range srcs {
-			out.Files = append(out.Files, statusFile{Model: m.Name, Path: s.Path, Generation: s.Generation, Rows: s.Rows, Quarantined: s.Quarantined, Offset: s.Offset, Line: s.Line})
+			out.Files = append(out.Files, statusFile{Model: m.Name, Path: s.Path, Generation: s.Generation, Rows: s.Rows, Quarantined: s.Quarantined, Missing: s.Missing, Offset: s.Offset, Line: s.Line})
+			out.Models[len(out.Models)-1].Missing += s.Missing
 		}
 	}
 	for _, st := range []store.DeliveryState{store.DeliveryPending, store.DeliveryDead} {
@@ -183,7 +186,7 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 		return writeJSON(e.stdout, out)
 	}
 	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "MODEL\tSTATE\tROWS\tQUARANTINED\tFITS\tLAST FIT\tFRAGILITY")
+	fmt.Fprintln(tw, "MODEL\tSTATE\tROWS\tQUARANTINED\tMISSING\tFITS\tLAST FIT\tFRAGILITY")
 	for _, m := range out.Models {
 		last, frag := "-", "-"
 		if m.LastFit != nil {
@@ -193,15 +196,15 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 				frag = fmt.Sprint(*m.Fragility)
 			}
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%s\t%s\n", m.Name, m.State, m.Rows, m.Quarantined, m.Fits, last, frag)
+		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%d\t%s\t%s\n", m.Name, m.State, m.Rows, m.Quarantined, m.Missing, m.Fits, last, frag)
 		if m.Reason != "" {
 			fmt.Fprintf(tw, "\t  %s\n", m.Reason)
 		}
 	}
 	fmt.Fprintln(tw)
-	fmt.Fprintln(tw, "FILE\tMODEL\tGEN\tROWS\tQUARANTINED\tOFFSET\tLINE")
+	fmt.Fprintln(tw, "FILE\tMODEL\tGEN\tROWS\tQUARANTINED\tMISSING\tOFFSET\tLINE")
 	for _, f := range out.Files {
-		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%d\t%d\n", f.Path, f.Model, f.Generation, f.Rows, f.Quarantined, f.Offset, f.Line)
+		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%d\t%d\t%d\n", f.Path, f.Model, f.Generation, f.Rows, f.Quarantined, f.Missing, f.Offset, f.Line)
 	}
 	if len(out.Deliveries) > 0 {
 		fmt.Fprintln(tw)
@@ -266,10 +269,17 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 			return err
 		}
 		out := map[string]any{"id": o.ID, "file": o.Path, "line": o.Line, "raw": o.Raw, "arrived_at": o.ArrivedAt, "arrival": o.Arrival, "changes": ch}
+		if o.Label != "" {
+			out["label"] = o.Label
+		}
 		if *asJSON {
 			return writeJSON(e.stdout, out)
 		}
-		fmt.Fprintf(e.stdout, "%s:%d  %q  arrived %s\n", o.Path, o.Line, o.Raw, o.ArrivedAt.Local().Format(time.DateTime))
+		where := fmt.Sprintf("%s:%d", o.Path, o.Line)
+		if o.Label != "" {
+			where += " [" + o.Label + "]"
+		}
+		fmt.Fprintf(e.stdout, "%s  %q  arrived %s\n", where, o.Raw, o.ArrivedAt.Local().Format(time.DateTime))
 		if a := o.Arrival; a != nil {
 			fmt.Fprintf(e.stdout, "  at arrival: %s  leverage %.4g  studentized %.4g  Cook's D %.4g  DFFITS %.4g  Bonferroni p %.3g\n",
 				a.Verdict, a.Leverage, a.StudentizedExternal, a.CooksDistance, a.DFFITS, a.OutlierPBonferroni)

@@ -204,10 +204,11 @@ func (s *Store) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 	if ns.UpdatedAt.IsZero() {
 		ns.UpdatedAt = s.now().UTC()
 	}
-	ns.Rows, ns.Quarantined = int64(len(b.Observations)), int64(len(b.Quarantine))
+	ns.Rows, ns.Quarantined, ns.Missing = int64(len(b.Observations)), int64(len(b.Quarantine)), b.Missing
 	if known {
 		ns.Rows += old.Rows
 		ns.Quarantined += old.Quarantined
+		ns.Missing += old.Missing
 	}
 	s.sources[key] = &ns
 	ids := make([]int64, len(b.Observations))

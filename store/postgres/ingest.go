@@ -13,9 +13,9 @@ import (
 
 // obsCols are the columns copied per observation, in value order.
 var obsCols = []string{"id", "model_id", "source_id", "generation", "line", "raw", "vals", "t", "arrived_at",
-	"leverage", "residual", "student_int", "student_ext", "cooks", "dffits", "dfbetas", "covratio", "outlier_p", "verdict", "flags"}
+	"leverage", "residual", "student_int", "student_ext", "cooks", "dffits", "dfbetas", "covratio", "outlier_p", "verdict", "flags", "label"}
 
-const nObsCols = 20
+const nObsCols = 21
 
 var qrnCols = []string{"model_id", "source_id", "generation", "line", "col", "raw", "reason", "at"}
 
@@ -62,6 +62,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		a[3] = int32(src.Generation)
 		a[4] = int64(o.Line)
 		a[5] = []byte(o.Raw)
+		a[20] = []byte(o.Label)
 		a[6] = encFloats(o.Values)
 		if a[7], err = encTime(o.Time); err != nil {
 			return fail(fmt.Errorf("observation line %d time: %w", o.Line, err))
@@ -97,7 +98,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 			return err
 		}
 		var (
-			stored      [5]pgtype.Int8 // NULL when the source is new
+			stored      [6]pgtype.Int8 // NULL when the source is new
 			nObs, nQuar = int64(len(b.Observations)), int64(len(b.Quarantine))
 		)
 		// One round trip: lock the model's row, then read the source's
@@ -106,9 +107,9 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		// to see what the previous holder committed.
 		var bt pgx.Batch
 		bt.Queue("SELECT 1 FROM models WHERE id = $1 FOR NO KEY UPDATE", modelID)
-		bt.Queue(`SELECT id, generation, read_offset, rows_total, quarantined FROM sources
+		bt.Queue(`SELECT id, generation, read_offset, rows_total, quarantined, missing FROM sources
 			WHERE model_id = $1 AND path = $2`, modelID, src.Path).QueryRow(func(r pgx.Row) error {
-			err := r.Scan(&stored[0], &stored[1], &stored[2], &stored[3], &stored[4])
+			err := r.Scan(&stored[0], &stored[1], &stored[2], &stored[3], &stored[4], &stored[5])
 			if errors.Is(err, pgx.ErrNoRows) {
 				return nil
 			}
@@ -117,14 +118,14 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		if err := tx.SendBatch(ctx, &bt).Close(); err != nil {
 			return err
 		}
-		sid, gen, off, nrows, nquar := stored[0].Int64, stored[1].Int64, stored[2].Int64, stored[3].Int64, stored[4].Int64
+		sid, gen, off, nrows, nquar, nmiss := stored[0].Int64, stored[1].Int64, stored[2].Int64, stored[3].Int64, stored[4].Int64, stored[5].Int64
 		state := []any{int32(src.Generation), encInode(src.Inode), src.Size, src.Offset, int64(src.Line),
 			src.Fingerprint, int32(src.FingerprintLen), []byte(src.Header), nonNilBytes(src.Digest)}
 		if sid == 0 {
 			err = tx.QueryRow(ctx, `INSERT INTO sources (generation, inode, size, read_offset, line, fingerprint, fingerprint_len,
-				header, digest, rows_total, quarantined, updated_at, model_id, path)
-				VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14) RETURNING id`,
-				append(state, nObs, nQuar, updated, modelID, src.Path)...).Scan(&sid)
+				header, digest, rows_total, quarantined, missing, updated_at, model_id, path)
+				VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15) RETURNING id`,
+				append(state, nObs, nQuar, b.Missing, updated, modelID, src.Path)...).Scan(&sid)
 			if err != nil {
 				return err
 			}
@@ -136,7 +137,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 			}
 			if _, err := tx.Exec(ctx, `UPDATE sources SET generation = $1, inode = $2, size = $3, read_offset = $4, line = $5,
 				fingerprint = $6, fingerprint_len = $7, header = $8, digest = $9, rows_total = $10, quarantined = $11,
-				updated_at = $12 WHERE id = $13`, append(state, nrows+nObs, nquar+nQuar, updated, sid)...); err != nil {
+				missing = $12, updated_at = $13 WHERE id = $14`, append(state, nrows+nObs, nquar+nQuar, nmiss+b.Missing, updated, sid)...); err != nil {
 				return err
 			}
 		}
@@ -221,7 +222,7 @@ func checkProvenance(src store.Source, model, path string, gen int) error {
 func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error) {
 	fail := func(err error) ([]store.Source, error) { return nil, fmt.Errorf("store: sources %s: %w", model, err) }
 	rows, err := db.pool.Query(ctx, `SELECT s.path, s.generation, s.inode, s.size, s.read_offset, s.line,
-		s.fingerprint, s.fingerprint_len, s.header, s.digest, s.rows_total, s.quarantined, s.updated_at
+		s.fingerprint, s.fingerprint_len, s.header, s.digest, s.rows_total, s.quarantined, s.missing, s.updated_at
 		FROM sources s JOIN models m ON m.id = s.model_id WHERE m.name = $1 ORDER BY s.path`, model)
 	if err != nil {
 		return fail(err)
@@ -234,7 +235,7 @@ func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error)
 		var header []byte
 		var updated pgtype.Int8
 		if err := rows.Scan(&s.Path, &s.Generation, &inode, &s.Size, &s.Offset, &s.Line,
-			&s.Fingerprint, &s.FingerprintLen, &header, &s.Digest, &s.Rows, &s.Quarantined, &updated); err != nil {
+			&s.Fingerprint, &s.FingerprintLen, &header, &s.Digest, &s.Rows, &s.Quarantined, &s.Missing, &updated); err != nil {
 			return fail(err)
 		}
 		s.Inode = decInode(inode)
@@ -253,24 +254,25 @@ func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error)
 
 // obsSelect reads the columns scanObs expects.
 const obsSelect = `SELECT o.id, s.path, o.generation, o.line, o.raw, o.vals, o.t, o.arrived_at,
-	o.leverage, o.residual, o.student_int, o.student_ext, o.cooks, o.dffits, o.dfbetas, o.covratio, o.outlier_p, o.verdict, o.flags
+	o.leverage, o.residual, o.student_int, o.student_ext, o.cooks, o.dffits, o.dfbetas, o.covratio, o.outlier_p, o.verdict, o.flags, o.label
 	FROM observations o JOIN sources s ON s.id = o.source_id `
 
 // scanObs reads one row of obsSelect.
 func scanObs(sc pgx.Row, o *store.Observation) error {
 	var (
-		raw, vals, dfb            []byte
+		raw, vals, dfb, label     []byte
 		t, arrived                pgtype.Int8
 		lev, res, si, se, ck, dff pgtype.Float8
 		cov, outp                 pgtype.Float8
 		verdict, flags            pgtype.Text
 	)
 	if err := sc.Scan(&o.ID, &o.Path, &o.Generation, &o.Line, &raw, &vals, &t, &arrived,
-		&lev, &res, &si, &se, &ck, &dff, &dfb, &cov, &outp, &verdict, &flags); err != nil {
+		&lev, &res, &si, &se, &ck, &dff, &dfb, &cov, &outp, &verdict, &flags, &label); err != nil {
 		return err
 	}
 	var err error
 	o.Raw = string(raw)
+	o.Label = string(label)
 	if o.Values, err = decFloats(vals); err != nil {
 		return fmt.Errorf("observation %d values: %w", o.ID, err)
 	}

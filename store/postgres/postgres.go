@@ -301,8 +301,28 @@ func (db *DB) migrate(ctx context.Context, schema string) error {
 			return fmt.Errorf("migrate: database is at schema version %d, this binary knows up to %d (upgrade plumb): %w",
 				cur, latest, ErrSchemaTooNew)
 		}
+		// Every migration not yet recorded is applied, not only those
+		// above the highest: numbers are handed out to changes made side
+		// by side (0006 may land before 0004), and each step stands alone.
+		applied := map[int]bool{}
+		rows, err := tx.Query(ctx, "SELECT version FROM schema_version")
+		if err != nil {
+			return fmt.Errorf("migrate: %w", err)
+		}
+		for rows.Next() {
+			var v int
+			if err := rows.Scan(&v); err != nil {
+				rows.Close()
+				return fmt.Errorf("migrate: %w", err)
+			}
+			applied[v] = true
+		}
+		rows.Close()
+		if err := rows.Err(); err != nil {
+			return fmt.Errorf("migrate: %w", err)
+		}
 		for _, m := range ms {
-			if m.version <= cur {
+			if applied[m.version] {
 				continue
 			}
 			if _, err := tx.Exec(ctx, m.sql); err != nil {

@@ -16,9 +16,9 @@ import (
 
 // obsCols are the columns written per observation, in bind order.
 const obsCols = "id, model_id, source_id, generation, line, raw, vals, t, arrived_at, " +
-	"leverage, residual, student_int, student_ext, cooks, dffits, dfbetas, covratio, outlier_p, verdict, flags"
+	"leverage, residual, student_int, student_ext, cooks, dffits, dfbetas, covratio, outlier_p, verdict, flags, label"
 
-const nObsCols = 20
+const nObsCols = 21
 
 // obsChunks are the row counts of the prepared multi-row INSERTs; a batch
 // is written greedily with the largest that fits.
@@ -41,11 +41,11 @@ func (s *ingestStmts) close() {
 }
 
 const (
-	selSourceSQL = "SELECT id, generation, read_offset, rows_total, quarantined FROM sources WHERE model_id = ? AND path = ?"
+	selSourceSQL = "SELECT id, generation, read_offset, rows_total, quarantined, missing FROM sources WHERE model_id = ? AND path = ?"
 	insSourceSQL = `INSERT INTO sources (generation, inode, size, read_offset, line, fingerprint, fingerprint_len, header,
-		digest, rows_total, quarantined, updated_at, model_id, path) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
+		digest, rows_total, quarantined, missing, updated_at, model_id, path) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
 	updSourceSQL = `UPDATE sources SET generation = ?, inode = ?, size = ?, read_offset = ?, line = ?,
-		fingerprint = ?, fingerprint_len = ?, header = ?, digest = ?, rows_total = ?, quarantined = ?, updated_at = ?
+		fingerprint = ?, fingerprint_len = ?, header = ?, digest = ?, rows_total = ?, quarantined = ?, missing = ?, updated_at = ?
 		WHERE id = ?`
 	maxObsSQL = "SELECT COALESCE(MAX(id), 0) FROM observations"
 	insQrnSQL = `INSERT INTO quarantine (model_id, source_id, generation, line, col, raw, reason, at)
@@ -128,6 +128,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		a[3] = int64(src.Generation)
 		a[4] = int64(o.Line)
 		a[5] = o.Raw
+		a[20] = o.Label
 		a[6] = encFloats(o.Values)
 		if a[7], err = encTime(o.Time); err != nil {
 			return fail(fmt.Errorf("observation line %d time: %w", o.Line, err))
@@ -182,14 +183,15 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 			sid         int64
 			gen, off    int64
 			rows, quar  int64
+			miss        int64
 			nObs, nQuar = int64(len(b.Observations)), int64(len(b.Quarantine))
 			stateArgs   = []any{int64(src.Generation), encInode(src.Inode), src.Size, src.Offset, int64(src.Line), src.Fingerprint, int64(src.FingerprintLen), src.Header, digestArg(src.Digest)}
 		)
-		err = tx.StmtContext(ctx, stmts.selSource).QueryRowContext(ctx, modelID, src.Path).Scan(&sid, &gen, &off, &rows, &quar)
+		err = tx.StmtContext(ctx, stmts.selSource).QueryRowContext(ctx, modelID, src.Path).Scan(&sid, &gen, &off, &rows, &quar, &miss)
 		switch {
 		case errors.Is(err, sql.ErrNoRows):
 			res, err := tx.StmtContext(ctx, stmts.insSource).ExecContext(ctx,
-				append(stateArgs, nObs, nQuar, updated, modelID, src.Path)...)
+				append(stateArgs, nObs, nQuar, b.Missing, updated, modelID, src.Path)...)
 			if err != nil {
 				return err
 			}
@@ -205,7 +207,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 					src.Generation, src.Offset, gen, off, store.ErrStale)
 			}
 			if _, err := tx.StmtContext(ctx, stmts.updSource).ExecContext(ctx,
-				append(stateArgs, rows+nObs, quar+nQuar, updated, sid)...); err != nil {
+				append(stateArgs, rows+nObs, quar+nQuar, miss+b.Missing, updated, sid)...); err != nil {
 				return err
 			}
 		}
@@ -285,7 +287,7 @@ func isUnique(err error) bool {
 // Sources returns the read state of every file the model has read, by path.
 func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error) {
 	rows, err := db.db.QueryContext(ctx, `SELECT s.path, s.generation, s.inode, s.size, s.read_offset, s.line,
-		s.fingerprint, s.fingerprint_len, s.header, s.digest, s.rows_total, s.quarantined, s.updated_at
+		s.fingerprint, s.fingerprint_len, s.header, s.digest, s.rows_total, s.quarantined, s.missing, s.updated_at
 		FROM sources s JOIN models m ON m.id = s.model_id WHERE m.name = ? ORDER BY s.path`, model)
 	if err != nil {
 		return nil, fmt.Errorf("store: sources %s: %w", model, err)
@@ -297,7 +299,7 @@ func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error)
 		var inode int64
 		var updated sql.NullInt64
 		if err := rows.Scan(&s.Path, &s.Generation, &inode, &s.Size, &s.Offset, &s.Line,
-			&s.Fingerprint, &s.FingerprintLen, &s.Header, &s.Digest, &s.Rows, &s.Quarantined, &updated); err != nil {
+			&s.Fingerprint, &s.FingerprintLen, &s.Header, &s.Digest, &s.Rows, &s.Quarantined, &s.Missing, &updated); err != nil {
 			return nil, fmt.Errorf("store: sources %s: %w", model, err)
 		}
 		s.Inode = decInode(inode)
@@ -315,7 +317,7 @@ func (db *DB) Sources(ctx context.Context, model string) ([]store.Source, error)
 
 // obsSelect reads the columns scanObs expects.
 const obsSelect = `SELECT id, source_id, generation, line, raw, vals, t, arrived_at,
-	leverage, residual, student_int, student_ext, cooks, dffits, dfbetas, covratio, outlier_p, verdict, flags
+	leverage, residual, student_int, student_ext, cooks, dffits, dfbetas, covratio, outlier_p, verdict, flags, label
 	FROM observations `
 
 type scanner interface{ Scan(dest ...any) error }
@@ -331,7 +333,7 @@ func scanObs(sc *sql.Rows, o *store.Observation, sourceID *int64) error {
 		verdict, flags            sql.NullString
 	)
 	if err := sc.Scan(&o.ID, sourceID, &o.Generation, &o.Line, &o.Raw, &vals, &t, &arrived,
-		&lev, &res, &si, &se, &ck, &dff, &dfb, &cov, &outp, &verdict, &flags); err != nil {
+		&lev, &res, &si, &se, &ck, &dff, &dfb, &cov, &outp, &verdict, &flags, &o.Label); err != nil {
 		return err
 	}
 	var err error

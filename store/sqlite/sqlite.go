@@ -254,6 +254,25 @@ func (db *DB) migrate(ctx context.Context) error {
 	if err := tx.QueryRowContext(ctx, "SELECT COALESCE(MAX(version), 0) FROM schema_version").Scan(&cur); err != nil {
 		return fmt.Errorf("migrate: %w", err)
 	}
+	// Every migration not yet recorded is applied, not only those above
+	// the highest: numbers are handed out to changes made side by side
+	// (0006 may land before 0004), and each step stands on its own.
+	applied := map[int]bool{}
+	rows, err := tx.QueryContext(ctx, "SELECT version FROM schema_version")
+	if err != nil {
+		return fmt.Errorf("migrate: %w", err)
+	}
+	for rows.Next() {
+		var v int
+		if err := rows.Scan(&v); err != nil {
+			rows.Close()
+			return fmt.Errorf("migrate: %w", err)
+		}
+		applied[v] = true
+	}
+	if err := rows.Close(); err != nil {
+		return fmt.Errorf("migrate: %w", err)
+	}
 	latest := 0
 	if len(ms) > 0 {
 		latest = ms[len(ms)-1].version
@@ -263,7 +282,7 @@ func (db *DB) migrate(ctx context.Context) error {
 			cur, latest, ErrSchemaTooNew)
 	}
 	for _, m := range ms {
-		if m.version <= cur {
+		if applied[m.version] {
 			continue
 		}
 		if _, err := tx.ExecContext(ctx, m.sql); err != nil {

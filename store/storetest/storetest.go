@@ -113,6 +113,9 @@ func obs(line int, withArrival bool) store.Observation {
 		Time:      t0.Add(time.Duration(line) * time.Second),
 		ArrivedAt: t0.Add(time.Duration(line)*time.Second + 7),
 	}
+	if line%2 == 0 {
+		o.Label = fmt.Sprintf("SN-%04d", line) // the row's id column
+	}
 	if withArrival {
 		o.Arrival = &store.Diagnostics{
 			Leverage: 0.1 + float64(line)/1000, Residual: -0.25, StudentizedInternal: 1.5,
@@ -222,10 +225,10 @@ func sameTime(t *testing.T, what string, got, want time.Time) {
 func checkObs(t *testing.T, got, want store.Observation) {
 	t.Helper()
 	if got.Model != want.Model || got.Path != want.Path || got.Generation != want.Generation ||
-		got.Line != want.Line || got.Raw != want.Raw {
-		t.Errorf("provenance = %s/%s gen %d line %d %q, want %s/%s gen %d line %d %q",
-			got.Model, got.Path, got.Generation, got.Line, got.Raw,
-			want.Model, want.Path, want.Generation, want.Line, want.Raw)
+		got.Line != want.Line || got.Raw != want.Raw || got.Label != want.Label {
+		t.Errorf("provenance = %s/%s gen %d line %d %q label %q, want %s/%s gen %d line %d %q label %q",
+			got.Model, got.Path, got.Generation, got.Line, got.Raw, got.Label,
+			want.Model, want.Path, want.Generation, want.Line, want.Raw, want.Label)
 	}
 	if !sameFloats(got.Values, want.Values) {
 		t.Errorf("line %d: values = %v, want %v", want.Line, got.Values, want.Values)
@@ -282,9 +285,17 @@ func testIngestSources(t *testing.T, s store.Store) {
 	}
 	b1 := batch("cal", "b.csv", 1, 2, 6)
 	b1.Quarantine = []store.QuarantineRow{{Line: 4, Column: 2, Raw: "4,x", Reason: "not a number", At: t0}}
+	b1.Missing = 3
 	ids1 := mustIngest(t, s, b1)
 	ids2 := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 3))
-	ids3 := mustIngest(t, s, batch("cal", "b.csv", 1, 7, 9))
+	b3 := batch("cal", "b.csv", 1, 7, 9)
+	b3.Missing = 2
+	ids3 := mustIngest(t, s, b3)
+	stale := batch("cal", "b.csv", 1, 7, 9)
+	stale.Missing = 40
+	if _, err := s.Ingest(ctx, stale); !errors.Is(err, store.ErrStale) {
+		t.Fatalf("a batch delivered twice: %v, want ErrStale", err)
+	}
 	mustIngest(t, s, batch("other", "a.csv", 1, 2, 2))
 
 	all := slices.Concat(ids1, ids2, ids3)
@@ -312,11 +323,11 @@ func testIngestSources(t *testing.T, s store.Store) {
 		t.Errorf("source b.csv = %+v, want %+v", got, want)
 	}
 	sameTime(t, "UpdatedAt", got.UpdatedAt, want.UpdatedAt)
-	if got.Rows != 8 || got.Quarantined != 1 {
-		t.Errorf("b.csv Rows, Quarantined = %d, %d; want 8, 1 (counted by the store)", got.Rows, got.Quarantined)
+	if got.Rows != 8 || got.Quarantined != 1 || got.Missing != 5 {
+		t.Errorf("b.csv Rows, Quarantined, Missing = %d, %d, %d; want 8, 1, 5 (counted by the store; the stale batch adds nothing)", got.Rows, got.Quarantined, got.Missing)
 	}
-	if a := byPath["a.csv"]; a.Rows != 2 || a.Quarantined != 0 {
-		t.Errorf("a.csv Rows, Quarantined = %d, %d; want 2, 0", a.Rows, a.Quarantined)
+	if a := byPath["a.csv"]; a.Rows != 2 || a.Quarantined != 0 || a.Missing != 0 {
+		t.Errorf("a.csv Rows, Quarantined, Missing = %d, %d, %d; want 2, 0, 0", a.Rows, a.Quarantined, a.Missing)
 	}
 	for model, want := range map[string]int64{"cal": 10, "other": 1, "none": 0} {
 		if n := count(t, s, model); n != want {
@@ -485,6 +496,7 @@ func testObservationRoundTrip(t *testing.T, s store.Store) {
 	inf := math.Inf(1)
 	odd := obs(2, true)
 	odd.Raw = "\"µg/l, 3\",−0,\t \"\"q\"\""
+	odd.Label = "Merc 450SLC \"µ\", 3" // any text a cell holds
 	odd.Values = []float64{math.Copysign(0, -1), nan, inf, math.Inf(-1), math.SmallestNonzeroFloat64, math.MaxFloat64}
 	odd.Arrival.Leverage = 1
 	odd.Arrival.StudentizedInternal = nan

@@ -231,7 +231,13 @@ func copySource(ctx context.Context, src, dst store.Store, s, d store.Source, ha
 		st := s
 		g := b.Source.Generation
 		if final && g == s.Generation {
-			// st is the source's final state as it is.
+			// st is the source's final state as it is; the last batch
+			// carries the rows the file left out for a missing value that
+			// the target does not count yet.
+			b.Missing = s.Missing
+			if has {
+				b.Missing -= d.Missing
+			}
 		} else {
 			st.Generation = g
 			st.Offset = 1
@@ -446,7 +452,7 @@ func verifyModel(ctx context.Context, src, dst store.Store, mc *ModelCount) erro
 		a, b := ss[i], ds[i]
 		if a.Path != b.Path || a.Generation != b.Generation || a.Offset != b.Offset || a.Line != b.Line ||
 			a.Inode != b.Inode || a.Size != b.Size || a.Fingerprint != b.Fingerprint ||
-			a.FingerprintLen != b.FingerprintLen || a.Header != b.Header || a.Rows != b.Rows || a.Quarantined != b.Quarantined {
+			a.FingerprintLen != b.FingerprintLen || a.Header != b.Header || a.Rows != b.Rows || a.Quarantined != b.Quarantined || a.Missing != b.Missing {
 			return fmt.Errorf("%w: read state of %s: %+v in the source, %+v in the target", ErrMismatch, a.Path, a, b)
 		}
 	}

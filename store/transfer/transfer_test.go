@@ -85,6 +85,9 @@ func fill(t *testing.T, s store.Store) {
 		o := store.Observation{Line: line, Raw: fmt.Sprintf("%d,%d.5,caf\xe9", line, line),
 			Values: []float64{float64(line) + 0.5, float64(line % 7), math.NaN()},
 			Time:   t0.Add(time.Duration(line) * time.Second), ArrivedAt: t0.Add(time.Duration(line)*time.Second + 3)}
+		if line%4 == 0 {
+			o.Label = fmt.Sprintf("SN-%d caf\xe9", line) // the id column's text, any bytes
+		}
 		if arrival {
 			o.Arrival = &store.Diagnostics{Leverage: 0.1, Residual: -0.5, StudentizedInternal: 1.25,
 				StudentizedExternal: math.NaN(), CooksDistance: 0.01, DFFITS: math.Inf(1),
@@ -115,10 +118,11 @@ func fill(t *testing.T, s store.Store) {
 		}
 		if k == 1 {
 			b.Quarantine = []store.QuarantineRow{{Line: 15, Column: 2, Raw: "15,x", Reason: "not a number", At: t0}}
+			b.Missing = 4 // rows left out for a missing value
 		}
 		ids = append(ids, ingest(b)...)
 	}
-	b := store.Batch{Source: src("cal", "a.csv", 2, 90, 9),
+	b := store.Batch{Source: src("cal", "a.csv", 2, 90, 9), Missing: 1,
 		Quarantine: []store.QuarantineRow{{Line: 5, Column: 1, Raw: "", Reason: "empty field", At: t0.Add(time.Hour)}}}
 	for l := 2; l <= 9; l++ {
 		b.Observations = append(b.Observations, obs(l, true))
@@ -207,7 +211,7 @@ func dump(t *testing.T, s store.Store) string {
 			if o.Arrival != nil {
 				a = fmt.Sprintf("%+v", *o.Arrival)
 			}
-			out += fmt.Sprintf("obs %s %q %v %v %v %s\n", line[o.ID], o.Raw, o.Values, o.Time, o.ArrivedAt, a)
+			out += fmt.Sprintf("obs %s %q %q %v %v %v %s\n", line[o.ID], o.Raw, o.Label, o.Values, o.Time, o.ArrivedAt, a)
 			cs, err := s.VerdictChanges(ctx, o.ID)
 			if err != nil {
 				t.Fatal(err)

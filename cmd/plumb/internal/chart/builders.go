@@ -203,8 +203,12 @@ func pointTitle(p view.Point) string {
 	if verdict == "" {
 		verdict = "none"
 	}
-	return fmt.Sprintf("%s:%d  %s\ny = %s, fitted %s\nleverage %s, t = %s, Cook's D = %s",
-		p.File, p.Line, verdict, Num(p.Y), Num(p.Fitted), Num(p.Leverage), Num(p.StudentizedExternal), Num(p.Cook))
+	where := fmt.Sprintf("%s:%d", p.File, p.Line)
+	if p.Label != "" {
+		where += " " + p.Label // the row's id column
+	}
+	return fmt.Sprintf("%s  %s\ny = %s, fitted %s\nleverage %s, t = %s, Cook's D = %s",
+		where, verdict, Num(p.Y), Num(p.Fitted), Num(p.Leverage), Num(p.StudentizedExternal), Num(p.Cook))
 }
 
 // Settings lists values by name, sorted: "a = 1, b = 2.5" (the values

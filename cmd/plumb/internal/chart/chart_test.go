@@ -195,3 +195,16 @@ func TestUndefinedCutoffs(t *testing.T) {
 		}
 	}
 }
+
+// TestPointTitleLabel: a point's hover text names its row by the model's
+// id column when it has one.
+func TestPointTitleLabel(t *testing.T) {
+	p := view.Point{File: "run.csv", Line: 18, Label: "SN-0417", Verdict: "suspect", Y: 1, Fitted: 1, Leverage: 0.5}
+	if got := pointTitle(p); !strings.HasPrefix(got, "run.csv:18 SN-0417  suspect\n") {
+		t.Errorf("title %q", got)
+	}
+	p.Label = ""
+	if got := pointTitle(p); !strings.HasPrefix(got, "run.csv:18  suspect\n") {
+		t.Errorf("title without a label %q", got)
+	}
+}

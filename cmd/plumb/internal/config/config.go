@@ -108,6 +108,9 @@ type Model struct {
 
 	// Filter keeps only rows whose column holds one of the values.
 	Filter *Filter `toml:"filter"`
+	// IDColumn names a column whose text labels each row (a serial
+	// number, a sample id) wherever the row is shown. Default none.
+	IDColumn string `toml:"id_column"`
 
 	// TimeColumn names a timestamp column (RFC 3339, or TimeLayout).
 	TimeColumn string `toml:"time_column"`
@@ -598,15 +601,9 @@ func (c *Config) Validate() error {
 		if len(m.Terms) == 0 {
 			v.add(at("terms"), i, ErrMissing, "at least one term is required")
 		}
-		if len(m.Delimiter) != 1 || m.Delimiter == "\"" || m.Delimiter == "\n" || m.Delimiter == "\r" {
-			v.add(at("delimiter"), i, ErrBadValue, "want a single character other than a quote or newline, got %q", m.Delimiter)
-		} else if m.DecimalComma && m.Delimiter == "," {
-			v.add(at("delimiter"), i, ErrBadValue, "with decimal_comma the delimiter cannot be ','; use \";\"")
-		}
-		for _, tok := range m.Missing {
-			if strings.ContainsAny(tok, "\"\r\n") || (len(m.Delimiter) == 1 && strings.Contains(tok, m.Delimiter)) || strings.TrimSpace(tok) != tok {
-				v.add(at("missing"), i, ErrBadValue, "token %q: no delimiter, quote, line break or spaces around it", tok)
-			}
+		var de *DialectError
+		if err := CheckDialect(m.Delimiter, m.DecimalComma, m.Comment, m.Missing); errors.As(err, &de) {
+			v.add(at(de.Key), i, ErrBadValue, "%v", de.Err)
 		}
 		if m.Filter != nil && (m.Filter.Column == "" || len(m.Filter.Values) == 0) {
 			v.add(at("filter"), i, ErrMissing, "a filter needs a column and at least one value")
@@ -626,11 +623,11 @@ func (c *Config) Validate() error {
 		if m.MinRows < 0 {
 			v.add(at("min_rows"), i, ErrBadValue, "must not be negative")
 		}
-		if !oneOf(m.Judge.Cutoffs, "absolute", "size_adjusted") {
-			v.add(at("judge", "cutoffs"), i, ErrBadValue, "want \"absolute\" or \"size_adjusted\", got %q", m.Judge.Cutoffs)
+		if _, old, ok := CutoffWords.Parse(m.Judge.Cutoffs); !ok || old {
+			v.add(at("judge", "cutoffs"), i, ErrBadValue, "want %s, got %q", CutoffWords.Choices(), m.Judge.Cutoffs)
 		}
-		if !oneOf(m.Judge.CookRule, "f_median", "one") {
-			v.add(at("judge", "cook_rule"), i, ErrBadValue, "want \"f_median\" or \"one\", got %q", m.Judge.CookRule)
+		if _, old, ok := CookRuleWords.Parse(m.Judge.CookRule); !ok || old {
+			v.add(at("judge", "cook_rule"), i, ErrBadValue, "want %s, got %q", CookRuleWords.Choices(), m.Judge.CookRule)
 		}
 		if !(m.Judge.Alpha > 0 && m.Judge.Alpha < 1) {
 			v.add(at("judge", "alpha"), i, ErrBadValue, "must lie strictly between 0 and 1, got %v", m.Judge.Alpha)

@@ -21,22 +21,30 @@ type columns struct {
 	vals    [][]float64
 	arrival []engine.Word // verdict at arrival ("" when not judged then)
 	current []engine.Word // latest verdict ("" when never judged)
+	// labels holds each row's id-column text when the model has an id
+	// column (nil otherwise: a model without one keeps no strings).
+	labels  []string
+	labeled bool
 
 	pathNames []string
 	pathIdx   map[string]int32
 }
 
-// newColumns makes the storage for rows of nvals values each.
-func newColumns(nvals int) *columns {
-	return &columns{vals: make([][]float64, nvals), pathIdx: map[string]int32{}}
+// newColumns makes the storage for rows of nvals values each, with a
+// label per row when labeled (the model has an id column).
+func newColumns(nvals int, labeled bool) *columns {
+	return &columns{vals: make([][]float64, nvals), pathIdx: map[string]int32{}, labeled: labeled}
 }
 
 // len is the number of rows.
 func (c *columns) len() int { return len(c.ids) }
 
 // add appends one row.
-func (c *columns) add(id int64, path string, line int, t int64, v []float64, arrival, current engine.Word) {
+func (c *columns) add(id int64, path string, line int, label string, t int64, v []float64, arrival, current engine.Word) {
 	c.ids = append(c.ids, id)
+	if c.labeled {
+		c.labels = append(c.labels, label)
+	}
 	c.paths = append(c.paths, c.pathIndex(path))
 	c.lines = append(c.lines, int32(line))
 	c.times = append(c.times, t)
@@ -61,8 +69,22 @@ func (c *columns) pathIndex(p string) int32 {
 func (c *columns) path(r int) string { return c.pathNames[c.paths[r]] }
 func (c *columns) line(r int) int    { return int(c.lines[r]) }
 
-// label names row r as "file:line".
-func (c *columns) label(r int) string { return fmt.Sprintf("%s:%d", c.path(r), c.lines[r]) }
+// name is row r's id-column text ("" when the model has none).
+func (c *columns) name(r int) string {
+	if !c.labeled {
+		return ""
+	}
+	return c.labels[r]
+}
+
+// label names row r as "file:line", or "file:line [name]" when it has a
+// name.
+func (c *columns) label(r int) string {
+	if n := c.name(r); n != "" {
+		return fmt.Sprintf("%s:%d [%s]", c.path(r), c.lines[r], n)
+	}
+	return fmt.Sprintf("%s:%d", c.path(r), c.lines[r])
+}
 
 // window returns the row indices a fit over the configured window uses:
 // the last w.Rows rows, or the rows within w.Span of the newest time, or

@@ -32,7 +32,6 @@ import (
 	"plumb/store"
 	"plumb/store/sqlite"
 	"plumb/watcher"
-	"plumb/watcher/decode"
 )
 
 // Options are the daemon's knobs beyond the config file.
@@ -348,13 +347,12 @@ func (d *Daemon) runPipeline(ctx context.Context) error {
 			return err
 		}
 		m.sweepRefused(ctx, folder)
-		delim := m.cfg.Delimiter[0]
 		srcs = append(srcs, watcher.Source{
 			Model:     name,
 			Folder:    folder,
 			Pattern:   m.cfg.Pattern,
 			Recursive: m.cfg.Recursive,
-			Dialect:   decode.Dialect{Delimiter: delim, Comment: m.cfg.Comment, DecimalComma: m.cfg.DecimalComma, Missing: m.cfg.Missing},
+			Dialect:   m.cfg.Dialect(),
 			Numeric:   m.numeric(),
 			Text:      m.text(),
 			States:    toFileStates(states),
@@ -614,6 +612,7 @@ func (d *Daemon) Close() error {
 type Summary struct {
 	Rows        int64          `json:"rows"`
 	Quarantined int64          `json:"quarantined"`
+	Missing     int64          `json:"missing"`
 	Fits        int64          `json:"fits"`
 	Alerts      []AlertSummary `json:"alerts"`
 }
@@ -638,6 +637,7 @@ func (d *Daemon) Summary(ctx context.Context) (Summary, error) {
 		m.mu.Lock()
 		s.Rows += m.rowsAccepted
 		s.Quarantined += m.quarantined
+		s.Missing += m.missing
 		s.Fits += m.ref.fits
 		m.mu.Unlock()
 	}

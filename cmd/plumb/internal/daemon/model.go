@@ -59,7 +59,7 @@ type watchedModel struct {
 
 	rowsAccepted int64
 	quarantined  int64
-	missing      int64 // rows left out for a missing value (this run)
+	missing      int64 // rows left out for a missing value (the sources' counts)
 	lastArrival  time.Time
 
 	// ref is the refresh loop's side: what the next refresh must do and
@@ -101,7 +101,7 @@ func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
 		log:           d.log.With("model", mc.Name),
 		state:         stateWaiting,
 		headerBlocked: map[string]string{},
-		rows:          newColumns(1 + len(spec.Columns())),
+		rows:          newColumns(1+len(spec.Columns()), mc.IDColumn != ""),
 		online:        engine.NewOnline(spec.P()),
 		xrow:          make([]float64, spec.P()),
 	}
@@ -112,20 +112,7 @@ func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
 	return m, nil
 }
 
-func cutoffsFor(j config.Judge) engine.Cutoffs {
-	c := engine.DefaultCutoffs()
-	c.Alpha = j.Alpha
-	if j.Cutoffs == "size_adjusted" {
-		c.Family = engine.SizeAdjusted
-	}
-	if j.CookRule == "one" {
-		c.Cook = engine.CookOne
-	}
-	if j.OutlierTest == "grubbs" {
-		c.Test = engine.GrubbsTest
-	}
-	return c
-}
+func cutoffsFor(j config.Judge) engine.Cutoffs { return j.Engine() }
 
 // numeric returns the columns the decoder parses as numbers: the response,
 // then the predictors.
@@ -133,17 +120,29 @@ func (m *watchedModel) numeric() []string {
 	return append([]string{m.spec.Response}, m.cols...)
 }
 
-// text returns the columns the decoder keeps as text: the filter column and
-// the time column, in that order, when configured.
+// text returns the columns the decoder keeps as text: the filter column,
+// the time column and the id column, in that order, when configured (a
+// column named twice is read once).
 func (m *watchedModel) text() []string {
 	var t []string
 	if m.cfg.Filter != nil {
 		t = append(t, m.cfg.Filter.Column)
 	}
-	if m.cfg.TimeColumn != "" {
+	if m.cfg.TimeColumn != "" && !slices.Contains(t, m.cfg.TimeColumn) {
 		t = append(t, m.cfg.TimeColumn)
 	}
+	if m.cfg.IDColumn != "" && !slices.Contains(t, m.cfg.IDColumn) {
+		t = append(t, m.cfg.IDColumn)
+	}
 	return t
+}
+
+// textIndex is the place of column c in text(), or -1.
+func (m *watchedModel) textIndex(c string) int {
+	if c == "" {
+		return -1
+	}
+	return slices.Index(m.text(), c)
 }
 
 // value returns column c of the design values v (response first).
@@ -198,7 +197,7 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 			if !o.Time.IsZero() {
 				t = o.Time.UnixNano()
 			}
-			m.appendRow(o.ID, o.Path, o.Line, t, o.Values, arr, now)
+			m.appendRow(o.ID, o.Path, o.Line, o.Label, t, o.Values, arr, now)
 			after = o.ID
 			if o.ArrivedAt.After(m.lastArrival) {
 				m.lastArrival = o.ArrivedAt
@@ -213,6 +212,14 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 		return err
 	}
 	m.quarantined = q
+	srcs, err := s.Sources(ctx, m.cfg.Name)
+	if err != nil {
+		return err
+	}
+	m.missing = 0
+	for _, src := range srcs {
+		m.missing += src.Missing
+	}
 	// Count the fits and find the last one without reading the history.
 	if m.ref.fits, err = s.CountFits(ctx, m.cfg.Name); err != nil {
 		return err
@@ -226,17 +233,18 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 	return nil
 }
 
-func (m *watchedModel) appendRow(id int64, path string, line int, t int64, v []float64, arrival, current engine.Word) {
-	m.rows.add(id, path, line, t, v, arrival, current)
+func (m *watchedModel) appendRow(id int64, path string, line int, label string, t int64, v []float64, arrival, current engine.Word) {
+	m.rows.add(id, path, line, label, t, v, arrival, current)
 	m.rowsAccepted++
 }
 
 // pending is one decoded row on its way into the store.
 type pending struct {
-	rec  decode.Record
-	vals []float64
-	t    int64
-	diag *store.Diagnostics
+	rec   decode.Record
+	vals  []float64
+	t     int64
+	label string // the id column's text
+	diag  *store.Diagnostics
 }
 
 // ingest turns one watcher batch into observations and quarantined rows,
@@ -258,10 +266,17 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	}
 	mark := m.online.Snapshot()
 	missing := 0
+	fi, ti, idi := -1, m.textIndex(m.cfg.TimeColumn), m.textIndex(m.cfg.IDColumn)
+	if filter != nil {
+		fi = m.textIndex(m.cfg.Filter.Column)
+	}
 	for _, rec := range b.Records {
 		if rec.Err != nil {
 			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, rec.Err.Column, rec.Err.Error()))
 			continue
+		}
+		if filter != nil && !filter[strings.TrimSpace(rec.Text[fi])] {
+			continue // deliberately excluded by the model's filter
 		}
 		if rec.Missing != nil {
 			// A missing value (config "missing") in a column the model
@@ -269,13 +284,6 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 			// quarantined.
 			missing++
 			continue
-		}
-		ti := 0
-		if filter != nil {
-			if !filter[strings.TrimSpace(rec.Text[ti])] {
-				continue // deliberately excluded by the model's filter
-			}
-			ti++
 		}
 		var t int64
 		if m.cfg.TimeColumn != "" {
@@ -285,16 +293,21 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 			}
 			tt, err := time.Parse(layout, strings.TrimSpace(rec.Text[ti]))
 			if err != nil {
-				quar = append(quar, quarantineRow(m.cfg.Name, b, rec, 0, fmt.Sprintf("%s:%d: column %q: not a time in layout %q: %q", b.Path, rec.Line, m.cfg.TimeColumn, layout, rec.Text[ti])))
+				col, why := m.cellError(b, rec, m.cfg.TimeColumn, fmt.Sprintf("not a time in layout %q: %q", layout, rec.Text[ti]))
+				quar = append(quar, quarantineRow(m.cfg.Name, b, rec, col, why))
 				continue
 			}
 			t = tt.UnixNano()
 		}
 		if err := m.designRow(rec.Values); err != nil {
-			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, 0, fmt.Sprintf("%s:%d: %v", b.Path, rec.Line, err)))
+			col, why := m.designError(b, rec, err)
+			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, col, why))
 			continue
 		}
 		p := pending{rec: rec, vals: rec.Values, t: t}
+		if idi >= 0 {
+			p.label = strings.TrimSpace(rec.Text[idi])
+		}
 		o, ok := m.online.Add(m.xrow, rec.Values[0])
 		dfb := m.online.DFBETAS()
 		n := m.online.N()
@@ -310,7 +323,7 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	for _, p := range rows {
 		o := store.Observation{
 			Model: m.cfg.Name, Path: b.Path, Generation: b.Generation, Line: p.rec.Line,
-			Raw: p.rec.Raw, Values: p.vals, ArrivedAt: now, Arrival: p.diag,
+			Raw: p.rec.Raw, Label: p.label, Values: p.vals, ArrivedAt: now, Arrival: p.diag,
 		}
 		if p.t != 0 {
 			o.Time = time.Unix(0, p.t).UTC()
@@ -320,7 +333,7 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	src := sourceOf(m.cfg.Name, b)
 	src.Rows = int64(len(obs))
 	src.Quarantined = int64(len(quar))
-	ids, err := m.d.store.Ingest(ctx, store.Batch{Source: src, Observations: obs, Quarantine: quar})
+	ids, err := m.d.store.Ingest(ctx, store.Batch{Source: src, Observations: obs, Quarantine: quar, Missing: int64(missing)})
 	if err != nil {
 		m.online.Restore(mark)
 		if errors.Is(err, store.ErrStale) {
@@ -334,7 +347,7 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 		if p.diag != nil {
 			arr = p.diag.Verdict
 		}
-		m.appendRow(ids[i], b.Path, p.rec.Line, p.t, p.vals, arr, arr)
+		m.appendRow(ids[i], b.Path, p.rec.Line, p.label, p.t, p.vals, arr, arr)
 		if arr == engine.WordSuspect {
 			m.ref.pendingSuspects = append(m.ref.pendingSuspects, suspect{row: len(m.rows.ids) - 1, flags: p.diag.Flags})
 		}

@@ -51,7 +51,7 @@ func (r *refresher) view() *view.Result {
 	m := r.m
 	return &view.Result{Result: r.res, Cutoffs: m.cut, Row: func(i int) view.RowRef {
 		row := r.window[i]
-		return view.RowRef{ID: m.rows.ids[row], File: m.rows.path(row), Line: m.rows.line(row)}
+		return view.RowRef{ID: m.rows.ids[row], File: m.rows.path(row), Line: m.rows.line(row), Label: m.rows.name(row)}
 	}}
 }
 
@@ -215,10 +215,10 @@ func (r *refresher) refresh(ctx context.Context) error {
 	}
 	for _, row := range resolvedSuspects {
 		m.mu.Lock()
-		path, line := m.rows.path(row), m.rows.line(row)
+		path, line, label := m.rows.path(row), m.rows.line(row), m.rows.name(row)
 		vals := m.valuesOf(row)
 		m.mu.Unlock()
-		if err := m.d.point(ctx, alerts.PointCondition{Model: name, File: path, Line: line, Values: vals}); err != nil {
+		if err := m.d.point(ctx, alerts.PointCondition{Model: name, File: path, Line: line, Label: label, Values: vals}); err != nil {
 			m.log.Error("alert", "err", err)
 		}
 	}
@@ -303,10 +303,10 @@ func (m *watchedModel) valuesOf(r int) alerts.Values {
 func (r *refresher) reportPoint(ctx context.Context, sp suspect, sugg *alerts.Suggestion) {
 	m := r.m
 	m.mu.Lock()
-	path, line := m.rows.path(sp.row), m.rows.line(sp.row)
+	path, line, label := m.rows.path(sp.row), m.rows.line(sp.row), m.rows.name(sp.row)
 	vals := m.valuesOf(sp.row)
 	m.mu.Unlock()
-	c := alerts.PointCondition{Model: m.cfg.Name, File: path, Line: line, Values: vals, Outlier: true, Influential: true, Suggestion: sugg}
+	c := alerts.PointCondition{Model: m.cfg.Name, File: path, Line: line, Label: label, Values: vals, Outlier: true, Influential: true, Suggestion: sugg}
 	// The alert names the outlier test and the cutoffs of the family that
 	// decides "influential"; the other family's flags stay with the
 	// observation's stored diagnostics.

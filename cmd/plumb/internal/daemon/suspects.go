@@ -41,9 +41,9 @@ func (m *watchedModel) restoreHeldSuspects(ctx context.Context) error {
 	var held []suspect
 	for _, r := range cand {
 		m.mu.Lock()
-		path, line := m.rows.path(r), m.rows.line(r)
+		path, line, label := m.rows.path(r), m.rows.line(r), m.rows.name(r)
 		m.mu.Unlock()
-		if alerted[alerts.PointSubject(m.cfg.Name, path, line)] {
+		if alerted[alerts.LabeledPointSubject(m.cfg.Name, path, line, label)] {
 			continue
 		}
 		o, err := m.d.store.ObservationAt(ctx, m.cfg.Name, path, line)

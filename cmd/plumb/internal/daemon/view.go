@@ -84,7 +84,7 @@ func (m *watchedModel) summary(openAlerts int) view.ModelSummary {
 	defer m.mu.Unlock()
 	s := view.ModelSummary{
 		Name: m.cfg.Name, State: m.state, Reason: m.reason, Response: m.spec.Response,
-		Terms: m.spec.Names(), Predictors: m.cols, Rows: m.rowsAccepted, Quarantined: m.quarantined,
+		Terms: m.spec.Names(), Predictors: m.cols, Rows: m.rowsAccepted, Quarantined: m.quarantined, Missing: m.missing,
 		Fits: m.ref.fits, LastFitAt: m.ref.fitAt, OpenAlerts: openAlerts, MaxCook: view.NaN(),
 	}
 	if vr := m.ref.view(); vr != nil {
@@ -231,7 +231,7 @@ func (v viewSource) Observations(ctx context.Context, name string, after int64, 
 	}
 	out := make([]view.ObservationView, len(obs))
 	for i, o := range obs {
-		ov := view.ObservationView{ID: o.ID, File: o.Path, Generation: o.Generation, Line: o.Line, Raw: o.Raw,
+		ov := view.ObservationView{ID: o.ID, File: o.Path, Generation: o.Generation, Line: o.Line, Raw: o.Raw, Label: o.Label,
 			Time: o.Time, ArrivedAt: o.ArrivedAt, Leverage: view.NaN(), Cook: view.NaN(), StudentizedExternal: view.NaN()}
 		for _, x := range o.Values {
 			ov.Values = append(ov.Values, view.Float(x))

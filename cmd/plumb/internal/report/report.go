@@ -269,6 +269,7 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <div class="facts">
 <div><span>rows in fit</span><b>{{.D.N}}</b></div>
 <div><span>rows quarantined</span><b>{{.D.Quarantined}}</b></div>
+{{if .D.Missing}}<div><span>rows missing a value (left out)</span><b data-missing>{{.D.Missing}}</b></div>{{end}}
 <div><span>σ (residual SD)</span><b>{{num .D.Sigma}}{{with index .D.Units .D.Response}} {{.}}{{end}}</b></div>
 <div><span>R² (adjusted)</span><b>{{num6 .D.RSquared}} ({{num6 .D.AdjRSquared}})</b></div>
 <div><span>fragility index</span><b {{if .D.Fragility.Alarming}}class="hot"{{end}}>{{.D.Fragility}}</b></div>
@@ -290,7 +291,7 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <p class="meta">Verdicts under the current fit: {{.Counts}}. Cutoffs: leverage 2p/n = {{num .D.Cutoffs.Leverage}}; Cook's distance 4/n = {{num .D.Cutoffs.CookSizeAdjusted}} and absolute {{num .D.Cutoffs.CookAbsolute}}; Bonferroni critical |t| = {{num .D.Cutoffs.TCritical}}.</p>
 <table>
 <thead><tr><th>file:line</th><th>verdict</th>{{range .D.Predictors}}<th>{{.}}</th>{{end}}<th>{{.D.Response}}</th><th>fitted</th><th>leverage</th><th>t</th><th>Cook's D</th><th>DFFITS</th><th>Bonferroni p</th></tr></thead>
-<tbody>{{range $p := .Notable}}<tr data-row="{{.Row}}"><td class="m">{{.File}}:{{.Line}}</td><td class="verdict v-{{.Verdict}}">{{.Verdict}}</td>{{range $.D.Predictors}}<td class="n">{{num (xval $p .)}}</td>{{end}}<td class="n">{{num .Y}}</td><td class="n">{{num .Fitted}}</td><td class="n">{{num .Leverage}}</td><td class="n">{{num .StudentizedExternal}}</td><td class="n">{{num .Cook}}</td><td class="n">{{num .DFFITS}}</td><td class="n">{{num .BonferroniP}}</td></tr>{{end}}</tbody>
+<tbody>{{range $p := .Notable}}<tr data-row="{{.Row}}"><td class="m">{{.File}}:{{.Line}}{{if .Label}} <b data-label>{{.Label}}</b>{{end}}</td><td class="verdict v-{{.Verdict}}">{{.Verdict}}</td>{{range $.D.Predictors}}<td class="n">{{num (xval $p .)}}</td>{{end}}<td class="n">{{num .Y}}</td><td class="n">{{num .Fitted}}</td><td class="n">{{num .Leverage}}</td><td class="n">{{num .StudentizedExternal}}</td><td class="n">{{num .Cook}}</td><td class="n">{{num .DFFITS}}</td><td class="n">{{num .BonferroniP}}</td></tr>{{end}}</tbody>
 </table>
 {{if .NotableMore}}<p class="meta">… and {{.NotableMore}} more notable rows not listed.</p>{{end}}
 {{else}}<p class="empty">No row crosses a cutoff under the current fit.</p>{{end}}
@@ -313,7 +314,7 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 {{with .D.Fragility}}
 {{if not .Computed}}<p class="empty">Not computed for this fit.</p>
 {{else if not .Found}}<p>No removal of up to {{.K}} rows changes a conclusion of this fit.</p>
-{{else}}<p>Removing <b {{if .Alarming}}class="hot"{{end}}>{{.Index}}</b> row{{if gt .Index 1}}s{{end}} changes a conclusion: {{.Conclusion}}. The rows: {{range $i, $r := .Rows}}{{if $i}}, {{end}}<span class="m">{{$r.File}}:{{$r.Line}}</span>{{end}}.{{if .Fragile}} This is at or below the limit of {{.Limit}}: the fit is fragile.{{end}}</p>{{end}}
+{{else}}<p>Removing <b {{if .Alarming}}class="hot"{{end}}>{{.Index}}</b> row{{if gt .Index 1}}s{{end}} changes a conclusion: {{.Conclusion}}. The rows: {{range $i, $r := .Rows}}{{if $i}}, {{end}}<span class="m">{{$r.File}}:{{$r.Line}}{{if $r.Label}} {{$r.Label}}{{end}}</span>{{end}}.{{if .Fragile}} This is at or below the limit of {{.Limit}}: the fit is fragile.{{end}}</p>{{end}}
 {{if .Searched}}<p class="meta">Search: {{.Searched}}, up to {{.K}} rows removed together.</p>{{end}}
 {{end}}
 

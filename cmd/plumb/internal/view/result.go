@@ -37,7 +37,7 @@ func (r *Result) Point(i int) Point {
 	o := r.Influence.Rows[i]
 	v := r.Verdicts[i]
 	ref := r.Row(i)
-	p := Point{ID: ref.ID, Row: i, File: ref.File, Line: ref.Line,
+	p := Point{ID: ref.ID, Row: i, File: ref.File, Line: ref.Line, Label: ref.Label,
 		X: make(map[string]Float, len(r.Model.Columns())), Y: Float(r.Cols[r.Model.Response][i]), Fitted: Float(r.Fit.Fitted[i]),
 		Residual: Float(o.Residual), Leverage: Float(o.Leverage),
 		StudentizedExternal: Float(o.StudentExternal), Cook: Float(o.Cook),

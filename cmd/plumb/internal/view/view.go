@@ -155,7 +155,10 @@ type ModelSummary struct {
 	Predictors  []string `json:"predictors"`
 	Rows        int64    `json:"rows"`
 	Quarantined int64    `json:"quarantined"`
-	Fits        int64    `json:"fits"`
+	// Missing counts rows left out for a missing value in a column the
+	// model uses (config missing): not quarantined, not in the fit.
+	Missing int64 `json:"missing"`
+	Fits    int64 `json:"fits"`
 	// LastFitAt is zero before the first fit.
 	LastFitAt  time.Time `json:"last_fit_at,omitzero"`
 	Fragility  Fragility `json:"fragility"`
@@ -216,6 +219,9 @@ type RowRef struct {
 	ID   int64  `json:"id"`
 	File string `json:"file"`
 	Line int    `json:"line"`
+	// Label is the row's own name, the text of the model's id column (a
+	// serial number, a sample id); "" when the model has none.
+	Label string `json:"label,omitempty"`
 }
 
 // ModelDetail is the full picture of one model under its current fit.
@@ -275,6 +281,8 @@ type Point struct {
 	Row  int    `json:"row"` // 0-based position in the fit
 	File string `json:"file"`
 	Line int    `json:"line"`
+	// Label is the row's id-column text ("" when the model has none).
+	Label string `json:"label,omitempty"`
 	// X holds the row's predictor values by column name.
 	X                   map[string]Float `json:"x"`
 	Y                   Float            `json:"y"`
@@ -407,6 +415,8 @@ type ObservationView struct {
 	Generation int    `json:"generation"`
 	Line       int    `json:"line"`
 	Raw        string `json:"raw"`
+	// Label is the row's id-column text ("" when the model has none).
+	Label string `json:"label,omitempty"`
 	// Values are the response first, then each predictor column.
 	Values    []Float   `json:"values"`
 	Time      time.Time `json:"time,omitzero"`
