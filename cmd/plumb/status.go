@@ -5,7 +5,6 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
-	"os"
 	"strings"
 	"text/tabwriter"
 	"time"
@@ -13,7 +12,7 @@ import (
 	"plumb/cmd/plumb/internal/config"
 	"plumb/cmd/plumb/internal/view"
 	"plumb/store"
-	"plumb/store/sqlite"
+	"plumb/store/backend"
 )
 
 func init() {
@@ -37,10 +36,10 @@ func openState(ctx context.Context, path string) (*config.Config, store.Store, e
 		return nil, nil, &exitError{code: 1, err: err}
 	}
 	p := cfg.Resolve(cfg.State)
-	if _, err := os.Stat(p); err != nil {
-		return nil, nil, fmt.Errorf("state database %s: %w (has plumb run started yet?)", p, err)
+	if err := stateReady(p); err != nil {
+		return nil, nil, err
 	}
-	db, err := sqlite.Open(ctx, p)
+	db, err := backend.Open(ctx, p)
 	if err != nil {
 		return nil, nil, err
 	}

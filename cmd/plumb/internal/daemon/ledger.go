@@ -8,7 +8,7 @@ import (
 
 	"plumb/alerts"
 	"plumb/store"
-	"plumb/store/sqlite"
+	"plumb/store/backend"
 )
 
 // ledger adapts a store.Store to alerts.Ledger. The two packages never
@@ -70,7 +70,7 @@ func fromStoreDeliveries(ds []store.Delivery) []alerts.Delivery {
 // OpenLedger opens the config's state database and an alert manager over
 // it, for commands that act on alerts while no daemon is running.
 func OpenLedger(ctx context.Context, path string, rules alerts.Config) (*alerts.Manager, store.Store, error) {
-	db, err := sqlite.Open(ctx, path)
+	db, err := backend.Open(ctx, path)
 	if err != nil {
 		return nil, nil, err
 	}
