@@ -55,6 +55,8 @@ type statusModel struct {
 	Fits        int     `json:"fits"`
 	LastFit     *fitOut `json:"last_fit,omitempty"`
 	Fragility   *int    `json:"fragility"`
+	// Owner is the daemon running the model, with a shared store.
+	Owner *ownerOut `json:"owner,omitempty"`
 }
 
 type fitOut struct {
@@ -139,9 +141,14 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 	for _, s := range states {
 		stateOf[s.Model] = s
 	}
+	names, owners, err := fleetNames(ctx, cfg, db)
+	if err != nil {
+		return err
+	}
 	var out statusOut
-	for _, m := range cfg.Models {
-		sm := statusModel{Name: m.Name, State: "waiting"}
+	for _, name := range names {
+		m := struct{ Name string }{name}
+		sm := statusModel{Name: m.Name, State: "waiting", Owner: owners[name]}
 		if s, ok := stateOf[m.Name]; ok {
 			sm.State, sm.Reason = s.State, s.Reason
 		}
@@ -182,7 +189,11 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 		return writeJSON(e.stdout, out)
 	}
 	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "MODEL\tSTATE\tROWS\tQUARANTINED\tFITS\tLAST FIT\tFRAGILITY")
+	head := "MODEL\tSTATE\tROWS\tQUARANTINED\tFITS\tLAST FIT\tFRAGILITY"
+	if owners != nil {
+		head += "\tOWNER"
+	}
+	fmt.Fprintln(tw, head)
 	for _, m := range out.Models {
 		last, frag := "-", "-"
 		if m.LastFit != nil {
@@ -192,7 +203,11 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 				frag = fmt.Sprint(*m.Fragility)
 			}
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%s\t%s\n", m.Name, m.State, m.Rows, m.Quarantined, m.Fits, last, frag)
+		owner := ""
+		if owners != nil {
+			owner = "\t" + m.Owner.String()
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%s\t%s%s\n", m.Name, m.State, m.Rows, m.Quarantined, m.Fits, last, frag, owner)
 		if m.Reason != "" {
 			fmt.Fprintf(tw, "\t  %s\n", m.Reason)
 		}

@@ -28,6 +28,9 @@ var (
 func (d *Daemon) View() view.Source { return viewSource{d} }
 
 func (v viewSource) Ready(ctx context.Context) error {
+	if err := v.d.health.err(); err != nil {
+		return err
+	}
 	v.d.mu.RLock()
 	defer v.d.mu.RUnlock()
 	if !v.d.ready {
