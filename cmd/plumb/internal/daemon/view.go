@@ -65,7 +65,7 @@ func (v viewSource) Models(ctx context.Context) ([]view.ModelSummary, error) {
 		}
 		out = append(out, m.summary(open[name]))
 	}
-	return out, nil
+	return v.addFleet(ctx, out)
 }
 
 func (v viewSource) openAlerts(ctx context.Context) (map[string]int, error) {
@@ -107,6 +107,9 @@ func (m *watchedModel) fragView(vr *view.Result) view.Fragility {
 func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, error) {
 	m, err := v.model(name)
 	if err != nil {
+		if d, ok, ferr := v.remoteDetail(ctx, name); ferr != nil || ok {
+			return d, ferr
+		}
 		return view.ModelDetail{}, err
 	}
 	open, err := v.openAlerts(ctx)
@@ -149,7 +152,7 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 const curveSteps = 60
 
 func (v viewSource) Fits(ctx context.Context, name string, after int64, limit int) ([]view.FitView, error) {
-	if _, err := v.model(name); err != nil {
+	if err := v.exists(ctx, name); err != nil {
 		return nil, err
 	}
 	fs, err := v.d.store.Fits(ctx, name, after, limit)
@@ -164,7 +167,7 @@ func (v viewSource) Fits(ctx context.Context, name string, after int64, limit in
 // as view.RecentFitter says; a model that is not configured is
 // view.ErrNotFound, as for Fits.
 func (v viewSource) RecentFits(ctx context.Context, name string, n int) ([]view.FitView, error) {
-	if _, err := v.model(name); err != nil {
+	if err := v.exists(ctx, name); err != nil {
 		return nil, err
 	}
 	fs, err := v.d.store.LatestFits(ctx, name, n)
@@ -217,7 +220,7 @@ func fitView(f store.FitRecord) view.FitView {
 }
 
 func (v viewSource) Observations(ctx context.Context, name string, after int64, limit int) ([]view.ObservationView, error) {
-	if _, err := v.model(name); err != nil {
+	if err := v.exists(ctx, name); err != nil {
 		return nil, err
 	}
 	obs, err := v.d.store.Observations(ctx, name, store.ObsQuery{AfterID: after, Limit: limit})
