@@ -291,6 +291,27 @@ func TestPostgresFleet(t *testing.T) {
 		}
 	}
 
+	// alerts from B's config lists line-a's alerts too; report from A's
+	// config writes line-b's report.
+	plumbOut := func(args ...string) string {
+		t.Helper()
+		cmd := exec.CommandContext(ctx, plumbBinary(t), args...)
+		cmd.Env = append(os.Environ(), env)
+		out, err := cmd.CombinedOutput()
+		if err != nil {
+			t.Fatalf("plumb %s: %v\n%s", strings.Join(args, " "), err, out)
+		}
+		return string(out)
+	}
+	if out := plumbOut("alerts", "--config", cfgB, "--state", "all"); !strings.Contains(out, "line-a") || !strings.Contains(out, "line-b") {
+		t.Errorf("alerts --config b.toml does not list both lines' alerts:\n%s", out)
+	}
+	reportB := filepath.Join(dir, "line-b.html")
+	plumbOut("report", "--config", cfgA, "-o", reportB, "line-b")
+	if b, err := os.ReadFile(reportB); err != nil || !strings.Contains(string(b), "line-b") || !strings.Contains(string(b), "intercept") {
+		t.Errorf("report of line-b from a.toml: %v; it lacks the model or its coefficients", err)
+	}
+
 	// Each alert event went out once on the route "events".
 	var delivered []store.Delivery
 	waitUntil(t, time.Minute, "every delivery done", func() bool {
