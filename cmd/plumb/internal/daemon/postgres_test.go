@@ -284,3 +284,10 @@ func TestPostgresDaemonServerRestart(t *testing.T) {
 		t.Errorf("%d ingest errors logged besides the outage", n)
 	}
 }
+
+// BenchmarkIngestPostgres is BenchmarkIngest with the state on the test
+// server (PLUMB_TEST_POSTGRES): one model, p = 3, rows judged on arrival
+// and committed with their read position, batch by batch.
+func BenchmarkIngestPostgres(b *testing.B) {
+	benchIngest(b, func(b *testing.B, dir, body string) *config.Config { return pgConfig(b, dir, pgState(b), body) })
+}
