@@ -48,4 +48,3 @@ func fleetSchema(t testing.TB) (schema, url string) {
 	}
 	return schema, u + sep + "search_path=" + schema
 }
-
