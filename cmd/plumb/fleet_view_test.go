@@ -45,7 +45,7 @@ func fleetHistory(tb testing.TB, db *postgres.DB, models, rows, fits, owned int)
 		for i := range fits {
 			f := store.FitRecord{Model: name, At: at.Add(time.Duration(i) * time.Minute), N: rows, P: 2,
 				Terms: []string{"intercept", "x"}, Estimates: []float64{2, 0.5}, StdErrors: []float64{0.1, 0.01},
-				Sigma: 0.1, RSquared: 0.99, Fragility: -1, FragilityK: 3, Detail: `{"max_cooks_distance":0.2}`, LastObsID: last}
+				Sigma: 0.1, RSquared: 0.99, Fragility: -1, FragilityK: 3, Detail: `{"max_cooks_distance":0.2,"response":"y"}`, LastObsID: last}
 			if _, err := db.RecordFit(ctx, f, nil); err != nil {
 				tb.Fatal(err)
 			}
@@ -133,7 +133,7 @@ func TestPostgresFleetOverview(t *testing.T) {
 		t.Errorf("model page of line-02 does not name it")
 	}
 	api := getPage(t, h, "/api/v1/models")
-	for _, want := range []string{`"name":"line-04"`, `"remote":true`, `"host":"line-host-0"`} {
+	for _, want := range []string{`"name":"line-04"`, `"remote":true`, `"host":"line-host-0"`, `"response":"y"`} {
 		if !strings.Contains(api, want) {
 			t.Errorf("/api/v1/models lacks %s", want)
 		}

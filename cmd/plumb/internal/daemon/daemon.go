@@ -117,6 +117,7 @@ func New(ctx context.Context, cfg *config.Config, opts Options) (*Daemon, error)
 		d.health = newHealth(pg, d.log)
 		if !opts.ReadOnly {
 			d.leases = newLeases(pg, postgres.ThisProcess(cfg.Path), d.log)
+			d.leases.outage = func() bool { return d.health.err() != nil }
 		}
 	}
 	if err := d.build(ctx, cfg); err != nil {

@@ -43,6 +43,9 @@ type leases struct {
 
 	// Poll and Check tune Acquire (postgres defaults when zero).
 	poll, check time.Duration
+	// outage, when set, tells whether a failure to connect is explained
+	// by a server outage already logged.
+	outage func() bool
 
 	changed chan struct{} // one pending signal: a lease was won or lost
 
@@ -120,10 +123,10 @@ func (l *leases) keep(ctx context.Context, name string) {
 			if ctx.Err() != nil {
 				return
 			}
-			if !failing {
+			if !failing && (l.outage == nil || !l.outage()) {
 				log.Warn("cannot take the model's lease; retrying with backoff", "err", err)
-				failing = true
 			}
+			failing = true
 			backoff = min(max(2*backoff, 500*time.Millisecond), 30*time.Second)
 			select {
 			case <-ctx.Done():

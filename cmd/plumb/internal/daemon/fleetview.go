@@ -2,6 +2,7 @@ package daemon
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
 	"math"
 
@@ -75,6 +76,12 @@ func remoteSummary(f postgres.FleetModel) view.ModelSummary {
 		s.State = view.StateWaiting
 	}
 	if lf := f.LastFit; lf != nil {
+		var detail struct {
+			Response string `json:"response"`
+		}
+		if json.Unmarshal([]byte(lf.Detail), &detail) == nil {
+			s.Response = detail.Response // the fleet's other daemons record it with each fit
+		}
 		s.LastFitAt = lf.At
 		s.Fragility = fitView(*lf).Fragility
 		s.Terms = lf.Terms

@@ -113,7 +113,7 @@ func startLogged(t testing.TB, c *config.Config, w io.Writer) *running {
 	if err != nil {
 		t.Fatal(err)
 	}
-	d.leases.poll = 50 * time.Millisecond
+	d.leases.poll, d.leases.check = 50*time.Millisecond, 200*time.Millisecond
 	ctx, cancel := context.WithCancel(context.Background())
 	r := &running{d: d, cancel: cancel, done: make(chan error, 1), reload: make(chan *config.Config)}
 	go func() { r.done <- d.Run(ctx, r.reload) }()
@@ -204,7 +204,9 @@ func TestPostgresStandbyTakesOver(t *testing.T) {
 
 // TestPostgresDaemonServerRestart restarts the server while a daemon
 // ingests: /readyz (Ready) reports the outage while it lasts, the daemon
-// logs it once, retries, and in the end every row is stored once. It
+// logs it once, retries, notices its lease went with the server's
+// sessions and takes the model back, and in the end every row is stored
+// once. It
 // restarts the whole test server, so it runs only when asked
 // (PLUMB_TEST_PG_RESTART=1, PLUMB_PG_DIR from testdata/pg/cluster.sh).
 func TestPostgresDaemonServerRestart(t *testing.T) {
@@ -270,7 +272,16 @@ func TestPostgresDaemonServerRestart(t *testing.T) {
 		t.Fatalf("%d rows stored, want %d", n, total)
 	}
 	waitFor(t, "ready again", func() bool { return r.d.View().Ready(context.Background()) == nil })
+	// The restart ended the lease's session: the daemon noticed, gave the
+	// model up and owns it again.
+	waitFor(t, "the model owned again after the restart", func() bool {
+		os, err := r.d.pg.Owners(context.Background())
+		return err == nil && len(os) == 1 && os[0].Alive && r.d.owns("m")
+	})
 	out := logs.String()
+	if !strings.Contains(out, "lease on the model lost") {
+		t.Errorf("the lost lease was not noticed:\n%s", out)
+	}
 	if testing.Verbose() {
 		t.Logf("daemon log:\n%s", out)
 	}
