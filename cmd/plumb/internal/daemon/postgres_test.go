@@ -302,3 +302,32 @@ func TestPostgresDaemonServerRestart(t *testing.T) {
 func BenchmarkIngestPostgres(b *testing.B) {
 	benchIngest(b, func(b *testing.B, dir, body string) *config.Config { return pgConfig(b, dir, pgState(b), body) })
 }
+
+// TestPostgresReloadReleases: a model dropped from the config by a reload
+// is given up (its lease released), so a daemon standing by for it takes
+// it over; a model added by a reload is taken.
+func TestPostgresReloadReleases(t *testing.T) {
+	state := pgState(t)
+	root := t.TempDir()
+	one := fmt.Sprintf(lineModel, "line-a", filepath.Join(root, "line-a"), false)
+	two := fmt.Sprintf(lineModel, "line-b", filepath.Join(root, "line-b"), false)
+	rng := mrand.New(mrand.NewPCG(5, 5))
+	feed(t, filepath.Join(root, "line-a", "a.csv"), rng, 0, 20, true)
+	feed(t, filepath.Join(root, "line-b", "b.csv"), rng, 0, 20, true)
+	a := startLogged(t, pgConfig(t, filepath.Join(root, "a"), state, one+two), io.Discard)
+	waitFor(t, "A to own both lines", func() bool { return a.d.owns("line-a") && a.d.owns("line-b") })
+	b := startLogged(t, pgConfig(t, filepath.Join(root, "b"), state, two), io.Discard)
+	waitFor(t, "A to store both lines", func() bool {
+		return count(t, a.d.store, "line-a") == 20 && count(t, a.d.store, "line-b") == 20
+	})
+	if b.d.owns("line-b") {
+		t.Fatal("B owns line-b while A runs it")
+	}
+	a.reload <- pgConfig(t, filepath.Join(root, "a"), state, one)
+	waitFor(t, "B to take line-b over after A dropped it", func() bool { return b.d.owns("line-b") && !a.d.owns("line-b") })
+	feed(t, filepath.Join(root, "line-b", "b.csv"), rng, 20, 10, false)
+	waitFor(t, "B to store line-b's new rows", func() bool { return count(t, b.d.store, "line-b") == 30 })
+	if !a.d.owns("line-a") {
+		t.Error("A gave up line-a, which it still runs")
+	}
+}
