@@ -129,8 +129,8 @@ func TestPostgresFleetOverview(t *testing.T) {
 		t.Errorf("overview does not name line-01's owner")
 	}
 	detail := getPage(t, h, "/models/line-02")
-	if !strings.Contains(detail, "line-02") {
-		t.Errorf("model page of line-02 does not name it")
+	if !strings.Contains(detail, "line-02") || !strings.Contains(detail, "data-remote") || !strings.Contains(detail, "line-host-2 pid 1002") {
+		t.Errorf("model page of line-02 does not name it, say it is run elsewhere, or name its owner")
 	}
 	api := getPage(t, h, "/api/v1/models")
 	for _, want := range []string{`"name":"line-04"`, `"remote":true`, `"host":"line-host-0"`, `"response":"y"`} {
