@@ -21,6 +21,7 @@ import (
 	"os"
 	"sort"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
@@ -78,6 +79,10 @@ type Daemon struct {
 	pg     *postgres.DB
 	leases *leases
 	health *health
+
+	// running is the dispatcher Run started: a rebuild (reload, lease)
+	// makes a new one, but alerts wake the one that runs.
+	running atomic.Pointer[alerts.Dispatcher]
 }
 
 // New opens the state database and prepares every model.
@@ -197,7 +202,9 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	}
 	var dispatch *alerts.Dispatcher
 	ac.OnEnqueue = func() {
-		if dispatch != nil {
+		if r := d.running.Load(); r != nil {
+			r.Wake()
+		} else if dispatch != nil {
 			dispatch.Wake()
 		}
 	}
@@ -347,6 +354,7 @@ func (d *Daemon) runDispatcher(ctx context.Context) {
 	d.mu.RLock()
 	disp := d.dispatch
 	d.mu.RUnlock()
+	d.running.Store(disp)
 	if err := disp.Run(ctx); err != nil && !errors.Is(err, context.Canceled) {
 		d.log.Error("dispatcher", "err", err)
 	}
