@@ -52,8 +52,7 @@ func runState(ctx context.Context, e *env, args []string) error {
 	}
 	for _, s := range []string{*from, *to} {
 		if err := backend.CheckState(s); err != nil {
-			// A password on the command line shows in the process list.
-			return err
+			return fmt.Errorf("state copy: a password on the command line shows in the process list: %w", err)
 		}
 	}
 	rep, err := backend.Copy(ctx, *from, *to, transfer.Options{})
