@@ -5,9 +5,12 @@
 // its delivery outbox.
 //
 // The Store interface is what the rest of plumb uses. The SQLite
-// implementation lives in the subpackage sqlite; a PostgreSQL backend for
-// shared history across many daemons would be a sibling subpackage that
-// satisfies the same interface.
+// implementation lives in the subpackage sqlite, the PostgreSQL one (a
+// history shared by many daemons, with per-model leases and claimed
+// deliveries) in postgres; backend opens the one a state setting names
+// (a path or a URL), and transfer copies a history from one to the other.
+// Both pass storetest; testdata/pg/cluster.sh starts a throwaway server
+// for the PostgreSQL tests.
 //
 // Exactly-once ingest rests on one rule: the rows read from a file and the
 // read position they advance to are committed in one transaction (Ingest).

@@ -121,8 +121,8 @@ func alertAction(ctx context.Context, e *env, args []string, verb, done string) 
 		}
 	}
 	p := cfg.Resolve(cfg.State)
-	if _, err := os.Stat(p); err != nil {
-		return fmt.Errorf("state database %s: %w", p, err)
+	if err := stateReady(p); err != nil {
+		return err
 	}
 	m, db, err := daemon.OpenLedger(ctx, p, alerts.Config{Rules: alerts.DefaultRules()})
 	if err != nil {

@@ -8,6 +8,7 @@ import (
 	"plumb/cmd/plumb/internal/config"
 	"plumb/cmd/plumb/internal/daemon"
 	"plumb/engine"
+	"plumb/store/backend"
 )
 
 func init() {
@@ -36,7 +37,7 @@ func runConfig(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return &exitError{code: 1, err: err}
 	}
-	fmt.Fprintf(e.stdout, "%s: valid: %d model(s), %d route(s), state %s\n", *path, len(c.Models), len(c.Routes), c.Resolve(c.State))
+	fmt.Fprintf(e.stdout, "%s: valid: %d model(s), %d route(s), state %s\n", *path, len(c.Models), len(c.Routes), backend.Describe(c.Resolve(c.State)))
 	return nil
 }
 

@@ -16,6 +16,7 @@ import (
 	"plumb/cmd/plumb/internal/config"
 	"plumb/cmd/plumb/internal/daemon"
 	"plumb/cmd/plumb/internal/demo"
+	"plumb/store/backend"
 )
 
 func init() {
@@ -154,7 +155,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 	}
 	out.printf("\nplumb flags; it never alters a measurement. Decisions stay with qualified staff under local quality procedures.\n")
 	if *keep != "" {
-		out.printf("kept: %s (config %s, database %s)\n", dir, cfgPath, cfg.Resolve(cfg.State))
+		out.printf("kept: %s (config %s, database %s)\n", dir, cfgPath, backend.Describe(cfg.Resolve(cfg.State)))
 	}
 	if *summaryJSON != "" {
 		b, err := json.MarshalIndent(sum, "", "  ")

@@ -46,8 +46,8 @@ func runReport(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return &exitError{code: 1, err: err}
 	}
-	if _, err := os.Stat(cfg.Resolve(cfg.State)); err != nil {
-		return fmt.Errorf("state database: %w (has plumb run started yet?)", err)
+	if err := stateReady(cfg.Resolve(cfg.State)); err != nil {
+		return err
 	}
 	d, err := daemon.New(ctx, cfg, daemon.Options{ReadOnly: true, Logger: slog.New(slog.NewTextHandler(e.stderr, &slog.HandlerOptions{Level: slog.LevelWarn}))})
 	if err != nil {

@@ -10,6 +10,7 @@ import (
 
 	"plumb/cmd/plumb/internal/config"
 	"plumb/cmd/plumb/internal/daemon"
+	"plumb/store/backend"
 )
 
 func init() {
@@ -66,7 +67,7 @@ func runRun(ctx context.Context, e *env, args []string) error {
 			}
 		}
 	}()
-	log.Info("plumb running", "config", *path, "models", len(cfg.Models), "state", cfg.Resolve(cfg.State))
+	log.Info("plumb running", "config", *path, "models", len(cfg.Models), "state", backend.Describe(cfg.Resolve(cfg.State)))
 	err = d.Run(ctx, reload)
 	log.Info("plumb stopped")
 	return err

@@ -5,7 +5,6 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
-	"os"
 	"strings"
 	"text/tabwriter"
 	"time"
@@ -13,7 +12,7 @@ import (
 	"plumb/cmd/plumb/internal/config"
 	"plumb/cmd/plumb/internal/view"
 	"plumb/store"
-	"plumb/store/sqlite"
+	"plumb/store/backend"
 )
 
 func init() {
@@ -37,10 +36,10 @@ func openState(ctx context.Context, path string) (*config.Config, store.Store, e
 		return nil, nil, &exitError{code: 1, err: err}
 	}
 	p := cfg.Resolve(cfg.State)
-	if _, err := os.Stat(p); err != nil {
-		return nil, nil, fmt.Errorf("state database %s: %w (has plumb run started yet?)", p, err)
+	if err := stateReady(p); err != nil {
+		return nil, nil, err
 	}
-	db, err := sqlite.Open(ctx, p)
+	db, err := backend.Open(ctx, p)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -57,6 +56,8 @@ type statusModel struct {
 	Fits        int     `json:"fits"`
 	LastFit     *fitOut `json:"last_fit,omitempty"`
 	Fragility   *int    `json:"fragility"`
+	// Owner is the daemon running the model, with a shared store.
+	Owner *ownerOut `json:"owner,omitempty"`
 }
 
 type fitOut struct {
@@ -142,9 +143,14 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 	for _, s := range states {
 		stateOf[s.Model] = s
 	}
+	names, owners, err := fleetNames(ctx, cfg, db)
+	if err != nil {
+		return err
+	}
 	var out statusOut
-	for _, m := range cfg.Models {
-		sm := statusModel{Name: m.Name, State: "waiting"}
+	for _, name := range names {
+		m := struct{ Name string }{name}
+		sm := statusModel{Name: m.Name, State: "waiting", Owner: owners[name]}
 		if s, ok := stateOf[m.Name]; ok {
 			sm.State, sm.Reason = s.State, s.Reason
 		}
@@ -186,7 +192,11 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 		return writeJSON(e.stdout, out)
 	}
 	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "MODEL\tSTATE\tROWS\tQUARANTINED\tMISSING\tFITS\tLAST FIT\tFRAGILITY")
+	head := "MODEL\tSTATE\tROWS\tQUARANTINED\tMISSING\tFITS\tLAST FIT\tFRAGILITY"
+	if owners != nil {
+		head += "\tOWNER"
+	}
+	fmt.Fprintln(tw, head)
 	for _, m := range out.Models {
 		last, frag := "-", "-"
 		if m.LastFit != nil {
@@ -196,7 +206,11 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 				frag = fmt.Sprint(*m.Fragility)
 			}
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%d\t%s\t%s\n", m.Name, m.State, m.Rows, m.Quarantined, m.Missing, m.Fits, last, frag)
+		owner := ""
+		if owners != nil {
+			owner = "\t" + m.Owner.String()
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%d\t%d\t%d\t%d\t%s\t%s%s\n", m.Name, m.State, m.Rows, m.Quarantined, m.Missing, m.Fits, last, frag, owner)
 		if m.Reason != "" {
 			fmt.Fprintf(tw, "\t  %s\n", m.Reason)
 		}

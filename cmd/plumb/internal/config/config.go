@@ -25,12 +25,19 @@ import (
 	"time"
 
 	"github.com/BurntSushi/toml"
+
+	"plumb/store/backend"
 )
 
 // Config is the whole configuration file.
 type Config struct {
-	// State is the SQLite history file. Default "plumb.db".
+	// State is where the history lives: a SQLite file (a path, default
+	// "plumb.db") or a PostgreSQL URL ("postgres://host:port/db?...") shared
+	// by several daemons. A URL must not carry a password.
 	State string `toml:"state"`
+	// StateEnv names an environment variable holding the whole state
+	// setting (a URL with its password, say); when set it replaces State.
+	StateEnv string `toml:"state_env"`
 	// Listen is the HTTP address of the status API, metrics and dashboard.
 	// Default "127.0.0.1:8765"; "" turns the server off.
 	Listen string `toml:"listen"`
@@ -485,8 +492,12 @@ func defSev(r *Rule, s string) {
 
 func ptr[T any](v T) *T { return &v }
 
-// Resolve returns p resolved against the config file's directory.
+// Resolve returns p resolved against the config file's directory. A
+// PostgreSQL URL (a state setting) is returned unchanged.
 func (c *Config) Resolve(p string) string {
+	if backend.IsPostgres(p) {
+		return p
+	}
 	if p == "" || filepath.IsAbs(p) || c.Dir == "" {
 		return p
 	}
@@ -505,8 +516,18 @@ func (m *Model) MinRowsFor(p int) int {
 // Validate checks every value and reports all problems at once.
 func (c *Config) Validate() error {
 	v := validator{c: c}
+	if c.StateEnv != "" {
+		// The variable's URL may carry the password: that is its purpose.
+		if s, err := backend.StateFromEnv(c.StateEnv); err != nil {
+			v.add([]string{"state_env"}, -1, ErrBadValue, "%v", err)
+		} else {
+			c.State = s
+		}
+	} else if err := backend.CheckState(c.State); err != nil {
+		v.add([]string{"state"}, -1, ErrBadValue, "%v", err)
+	}
 	if c.State == "" {
-		v.add([]string{"state"}, -1, ErrMissing, "the state database path is required")
+		v.add([]string{"state"}, -1, ErrMissing, "the state path or URL is required")
 	}
 	if !oneOf(c.LogFormat, "text", "json") {
 		v.add([]string{"log_format"}, -1, ErrBadValue, "want \"text\" or \"json\", got %q", c.LogFormat)

@@ -15,6 +15,7 @@ import (
 	"testing"
 	"time"
 
+	"plumb/cmd/plumb/internal/config"
 	"plumb/store"
 	"plumb/watcher"
 	"plumb/watcher/decode"
@@ -64,6 +65,11 @@ func benchBatches(tb testing.TB, model string, batches, size int) []watcher.Batc
 // decoded rows judged on arrival by the online update and committed with
 // their read position to SQLite, in batches as the watcher delivers them.
 func BenchmarkIngest(b *testing.B) {
+	benchIngest(b, func(b *testing.B, dir, body string) *config.Config { return testConfig(b, dir, body) })
+}
+
+// benchIngest runs the ingest benchmark on the state that config makes.
+func benchIngest(b *testing.B, mk func(b *testing.B, dir, body string) *config.Config) {
 	for _, size := range []int{100, 1000, 10000} {
 		b.Run(fmt.Sprintf("batch=%d", size), func(b *testing.B) {
 			const total = 100_000
@@ -74,7 +80,7 @@ func BenchmarkIngest(b *testing.B) {
 			for b.Loop() {
 				b.StopTimer()
 				dir := b.TempDir()
-				c := testConfig(b, dir, `
+				c := mk(b, dir, `
 [[model]]
 name = "m"
 folder = "in"
@@ -84,6 +90,16 @@ terms = ["x", "x^2"]
 				d, err := New(context.Background(), c, Options{Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
 				if err != nil {
 					b.Fatal(err)
+				}
+				if d.leases != nil {
+					// A shared store: own the model as Run would.
+					d.leases.want(context.Background(), c)
+					for !d.owns("m") {
+						time.Sleep(time.Millisecond)
+					}
+					if err := d.build(context.Background(), c); err != nil {
+						b.Fatal(err)
+					}
 				}
 				s := sink{d}
 				b.StartTimer()
@@ -96,6 +112,9 @@ terms = ["x", "x^2"]
 				elapsed += time.Since(t0)
 				rows += total
 				b.StopTimer()
+				if d.leases != nil {
+					d.leases.stop()
+				}
 				d.Close()
 				b.StartTimer()
 			}

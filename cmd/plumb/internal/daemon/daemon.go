@@ -21,6 +21,7 @@ import (
 	"os"
 	"sort"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
@@ -30,6 +31,8 @@ import (
 	"plumb/cmd/plumb/internal/metrics"
 	"plumb/engine"
 	"plumb/store"
+	"plumb/store/backend"
+	"plumb/store/postgres"
 	"plumb/store/sqlite"
 	"plumb/watcher"
 )
@@ -67,7 +70,18 @@ type Daemon struct {
 	ready  bool
 
 	kick chan struct{}
-	lock *sqlite.Lock // nil for a read-only daemon
+	lock *sqlite.Lock // nil for a read-only daemon and for PostgreSQL
+
+	// pg is the store when it is a shared PostgreSQL database; leases
+	// (nil for SQLite and read-only daemons) says which configured
+	// models this daemon owns, and health watches the server.
+	pg     *postgres.DB
+	leases *leases
+	health *health
+
+	// running is the dispatcher Run started: a rebuild (reload, lease)
+	// makes a new one, but alerts wake the one that runs.
+	running atomic.Pointer[alerts.Dispatcher]
 }
 
 // New opens the state database and prepares every model.
@@ -79,25 +93,37 @@ func New(ctx context.Context, cfg *config.Config, opts Options) (*Daemon, error)
 		opts.Now = time.Now
 	}
 	path := cfg.Resolve(cfg.State)
-	if err := os.MkdirAll(dirOf(path), 0o755); err != nil {
-		return nil, fmt.Errorf("state folder: %w", err)
+	shared := backend.IsPostgres(path)
+	if !shared {
+		if err := os.MkdirAll(dirOf(path), 0o755); err != nil {
+			return nil, fmt.Errorf("state folder: %w", err)
+		}
 	}
-	// One writing daemon per state: a second one would store rows twice
-	// and fight over alerts. Read-only users (report) do not lock.
+	// One writing daemon per SQLite state: a second one would store rows
+	// twice and fight over alerts. Read-only users (report) do not lock.
+	// A PostgreSQL state is shared: each model has its own lease instead.
 	var lock *sqlite.Lock
-	if !opts.ReadOnly {
+	if !opts.ReadOnly && !shared {
 		var err error
 		if lock, err = sqlite.AcquireLock(path); err != nil {
 			return nil, err
 		}
 	}
-	db, err := sqlite.Open(ctx, path)
+	db, err := backend.Open(ctx, path)
 	if err != nil {
 		lock.Release()
 		return nil, err
 	}
 	d := &Daemon{cfg: cfg, opts: opts, log: opts.Logger, store: db, kick: make(chan struct{}, 1),
 		metrics: &metricsHook{m: metrics.New()}, lock: lock}
+	if pg, ok := db.(*postgres.DB); ok {
+		d.pg = pg
+		d.health = newHealth(pg, d.log)
+		if !opts.ReadOnly {
+			d.leases = newLeases(pg, postgres.ThisProcess(cfg.Path), d.log)
+			d.leases.outage = func() bool { return d.health.err() != nil }
+		}
+	}
 	if err := d.build(ctx, cfg); err != nil {
 		db.Close()
 		lock.Release()
@@ -132,6 +158,9 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	var order []string
 	var errs []error
 	for _, mc := range cfg.Models {
+		if !d.owns(mc.Name) {
+			continue // another daemon owns it, or its lease is pending
+		}
 		m, err := newWatchedModel(d, mc)
 		if err != nil {
 			errs = append(errs, err)
@@ -162,6 +191,9 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 		ac.Host = h
 	}
 	for _, mc := range cfg.Models {
+		if !d.owns(mc.Name) {
+			continue
+		}
 		ac.ModelRules[mc.Name] = rulesFor(mc)
 		if len(mc.Routes) > 0 {
 			ac.ModelRoutes[mc.Name] = mc.Routes
@@ -169,11 +201,13 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	}
 	var dispatch *alerts.Dispatcher
 	ac.OnEnqueue = func() {
-		if dispatch != nil {
+		if r := d.running.Load(); r != nil {
+			r.Wake()
+		} else if dispatch != nil {
 			dispatch.Wake()
 		}
 	}
-	am, err := alerts.NewManager(ledger{d.store}, ac)
+	am, err := alerts.NewManager(d.ledger(cfg), ac)
 	if err != nil {
 		return err
 	}
@@ -181,7 +215,7 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	if err != nil {
 		return err
 	}
-	dispatch = alerts.NewDispatcher(ledger{d.store}, rs)
+	dispatch = alerts.NewDispatcher(d.ledger(cfg), rs)
 	dispatch.Logger = d.log
 	dispatch.OnAttempt = d.metrics.delivery
 
@@ -276,11 +310,24 @@ func (d *Daemon) Run(ctx context.Context, reload <-chan *config.Config) error {
 		dispWG.Wait()
 	}()
 
+	changed := d.startFleet(ctx)
+	defer d.stopFleet()
+
 	for {
 		runCtx, stop := context.WithCancel(ctx)
 		errc := make(chan error, 1)
 		go func() { errc <- d.runPipeline(runCtx) }()
 		select {
+		case <-changed:
+			// A lease was won or lost: rebuild the owned models from the
+			// store (another daemon may have written them meanwhile).
+			stop()
+			if err := <-errc; err != nil && !errors.Is(err, context.Canceled) {
+				return err
+			}
+			if err := d.rebuildOwned(ctx, changed); err != nil {
+				return err
+			}
 		case err := <-errc:
 			stop()
 			if errors.Is(err, errRestart) {
@@ -295,6 +342,7 @@ func (d *Daemon) Run(ctx context.Context, reload <-chan *config.Config) error {
 			if err := d.Reload(ctx, cfg); err != nil {
 				d.log.Error("reload refused; keeping the running configuration", "err", err)
 			} else {
+				d.leases.want(ctx, cfg)
 				d.log.Info("configuration reloaded", "models", len(cfg.Models), "routes", len(cfg.Routes))
 			}
 		}
@@ -305,6 +353,7 @@ func (d *Daemon) runDispatcher(ctx context.Context) {
 	d.mu.RLock()
 	disp := d.dispatch
 	d.mu.RUnlock()
+	d.running.Store(disp)
 	if err := disp.Run(ctx); err != nil && !errors.Is(err, context.Canceled) {
 		d.log.Error("dispatcher", "err", err)
 	}
@@ -453,7 +502,7 @@ func (d *Daemon) refreshLoop(ctx context.Context, every time.Duration) {
 			if ctx.Err() != nil {
 				return
 			}
-			if err := models[name].ref.refresh(ctx); err != nil && ctx.Err() == nil {
+			if err := models[name].ref.refresh(ctx); err != nil && ctx.Err() == nil && !d.quiet(ctx, err) {
 				models[name].log.Error("refresh", "err", err)
 			}
 		}
@@ -463,7 +512,7 @@ func (d *Daemon) refreshLoop(ctx context.Context, every time.Duration) {
 			d.mu.Unlock()
 			first = false
 		}
-		if err := d.alerts.Tick(ctx, d.opts.Now()); err != nil && ctx.Err() == nil {
+		if err := d.alerts.Tick(ctx, d.opts.Now()); err != nil && ctx.Err() == nil && !d.quiet(ctx, err) {
 			d.log.Error("alert tick", "err", err)
 		}
 		d.metrics.alertsOpen(ctx, d.store)
@@ -489,7 +538,9 @@ func (s sink) Deliver(ctx context.Context, b watcher.Batch) error {
 	// The batch is committed even if ctx is cancelled meanwhile: SIGTERM
 	// finishes the batch in hand.
 	if err := m.ingest(context.WithoutCancel(ctx), b); err != nil {
-		m.log.Error("ingest", "file", b.Path, "err", err)
+		if !s.d.quiet(ctx, err) {
+			m.log.Error("ingest", "file", b.Path, "err", err)
+		}
 		return err
 	}
 	m.fileReadable(ctx, b.Path)

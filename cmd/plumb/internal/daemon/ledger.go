@@ -8,14 +8,19 @@ import (
 
 	"plumb/alerts"
 	"plumb/store"
-	"plumb/store/sqlite"
+	"plumb/store/backend"
 )
 
 // ledger adapts a store.Store to alerts.Ledger. The two packages never
 // import each other; their alert types (AlertRecord, AlertQuery,
 // Delivery) mirror each other field for field, so the adapter is plain
 // type conversions and a field missing on one side does not compile.
-type ledger struct{ s store.Store }
+type ledger struct {
+	s store.Store
+	// claim, when set, replaces DueDeliveries: several daemons share the
+	// outbox and each delivery is claimed by one (PostgreSQL).
+	claim func(ctx context.Context, now time.Time, limit int) ([]store.Delivery, error)
+}
 
 var _ alerts.Ledger = ledger{}
 
@@ -46,6 +51,10 @@ func (l ledger) Alerts(ctx context.Context, q alerts.AlertQuery) ([]alerts.Alert
 }
 
 func (l ledger) DueDeliveries(ctx context.Context, now time.Time, limit int) ([]alerts.Delivery, error) {
+	if l.claim != nil {
+		ds, err := l.claim(ctx, now, limit)
+		return fromStoreDeliveries(ds), err
+	}
 	ds, err := l.s.DueDeliveries(ctx, now, limit)
 	return fromStoreDeliveries(ds), err
 }
@@ -70,11 +79,11 @@ func fromStoreDeliveries(ds []store.Delivery) []alerts.Delivery {
 // OpenLedger opens the config's state database and an alert manager over
 // it, for commands that act on alerts while no daemon is running.
 func OpenLedger(ctx context.Context, path string, rules alerts.Config) (*alerts.Manager, store.Store, error) {
-	db, err := sqlite.Open(ctx, path)
+	db, err := backend.Open(ctx, path)
 	if err != nil {
 		return nil, nil, err
 	}
-	m, err := alerts.NewManager(ledger{db}, rules)
+	m, err := alerts.NewManager(ledger{s: db}, rules)
 	if err != nil {
 		db.Close()
 		return nil, nil, err

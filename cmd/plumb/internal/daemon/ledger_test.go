@@ -22,7 +22,7 @@ func TestLedgerConflict(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer db.Close()
-	l := ledger{db}
+	l := ledger{s: db}
 	now := time.Date(2026, 3, 14, 9, 0, 0, 0, time.UTC)
 	rec := alerts.AlertRecord{ID: "a1", Model: "cal", Kind: "drift", Subject: "cal", Severity: "warning",
 		State: "open", FirstSeen: now, LastSeen: now, Doc: "{}", Revision: 1}

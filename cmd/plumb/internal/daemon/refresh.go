@@ -150,7 +150,8 @@ func (r *refresher) refresh(ctx context.Context) error {
 			maxCook = o.Cook
 		}
 	}
-	detail := map[string]any{"max_cooks_distance": view.Float(maxCook), "adj_r_squared": view.Float(fit.AdjRSquared), "df": fit.DF}
+	detail := map[string]any{"max_cooks_distance": view.Float(maxCook), "adj_r_squared": view.Float(fit.AdjRSquared), "df": fit.DF,
+		"response": m.spec.Response}
 	if frag != nil {
 		rec.FragilityK = m.cfg.Fragility.MaxRemoved
 		rec.Fragility = -1

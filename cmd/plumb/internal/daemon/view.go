@@ -28,6 +28,9 @@ var (
 func (d *Daemon) View() view.Source { return viewSource{d} }
 
 func (v viewSource) Ready(ctx context.Context) error {
+	if err := v.d.health.err(); err != nil {
+		return err
+	}
 	v.d.mu.RLock()
 	defer v.d.mu.RUnlock()
 	if !v.d.ready {
@@ -62,7 +65,7 @@ func (v viewSource) Models(ctx context.Context) ([]view.ModelSummary, error) {
 		}
 		out = append(out, m.summary(open[name]))
 	}
-	return out, nil
+	return v.addFleet(ctx, out)
 }
 
 func (v viewSource) openAlerts(ctx context.Context) (map[string]int, error) {
@@ -104,6 +107,9 @@ func (m *watchedModel) fragView(vr *view.Result) view.Fragility {
 func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, error) {
 	m, err := v.model(name)
 	if err != nil {
+		if d, ok, ferr := v.remoteDetail(ctx, name); ferr != nil || ok {
+			return d, ferr
+		}
 		return view.ModelDetail{}, err
 	}
 	open, err := v.openAlerts(ctx)
@@ -147,7 +153,7 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 const curveSteps = 60
 
 func (v viewSource) Fits(ctx context.Context, name string, after int64, limit int) ([]view.FitView, error) {
-	if _, err := v.model(name); err != nil {
+	if err := v.exists(ctx, name); err != nil {
 		return nil, err
 	}
 	fs, err := v.d.store.Fits(ctx, name, after, limit)
@@ -162,7 +168,7 @@ func (v viewSource) Fits(ctx context.Context, name string, after int64, limit in
 // as view.RecentFitter says; a model that is not configured is
 // view.ErrNotFound, as for Fits.
 func (v viewSource) RecentFits(ctx context.Context, name string, n int) ([]view.FitView, error) {
-	if _, err := v.model(name); err != nil {
+	if err := v.exists(ctx, name); err != nil {
 		return nil, err
 	}
 	fs, err := v.d.store.LatestFits(ctx, name, n)
@@ -218,7 +224,7 @@ func fitView(f store.FitRecord) view.FitView {
 }
 
 func (v viewSource) Observations(ctx context.Context, name string, after int64, limit int) ([]view.ObservationView, error) {
-	if _, err := v.model(name); err != nil {
+	if err := v.exists(ctx, name); err != nil {
 		return nil, err
 	}
 	obs, err := v.d.store.Observations(ctx, name, store.ObsQuery{AfterID: after, Limit: limit})

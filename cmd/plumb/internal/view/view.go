@@ -168,6 +168,31 @@ type ModelSummary struct {
 	// MaxCook is the largest Cook's distance under the current fit (NaN
 	// before the first fit).
 	MaxCook Float `json:"max_cooks_distance"`
+	// Owner is the daemon that runs the model when several share one
+	// store (nil otherwise). Remote is true for a model this daemon does
+	// not run: its summary is read from the shared history.
+	Owner  *Owner `json:"owner,omitempty"`
+	Remote bool   `json:"remote,omitempty"`
+}
+
+// Owner is the daemon running a model of a shared store: its host,
+// process id and label (the config file it runs), and whether it is
+// alive (holds the model now).
+type Owner struct {
+	Host  string `json:"host"`
+	PID   int    `json:"pid"`
+	Label string `json:"label,omitempty"`
+	Alive bool   `json:"alive"`
+}
+
+// String gives "line2.example pid 4711", with " (gone)" when the owner
+// no longer holds the model.
+func (o Owner) String() string {
+	s := o.Host + " pid " + strconv.Itoa(o.PID)
+	if !o.Alive {
+		s += " (gone)"
+	}
+	return s
 }
 
 // Fragility is the fragility index of the current fit: the smallest number
