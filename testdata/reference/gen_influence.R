@@ -238,7 +238,7 @@ write_case("pressure_log_cubic",
   "pressure", c("temperature", "temperature^2", "temperature^3"), transform = "log")
 
 write_case("trees_log",
-  "R datasets::trees; Ryan, Joiner & Ryan (1976), Minitab Student Handbook, Duxbury",
+  "R datasets::trees (the data set R ships, documented in ?trees)",
   trees, log(Volume) ~ log(Girth) + log(Height),
   "Volume", c("log(Girth)", "log(Height)"), transform = "log")
 
@@ -371,7 +371,7 @@ write_predictions("pressure_log_cubic",
   data.frame(temperature = c(0, 125, 250, 333, 380)), transform = "log")
 
 write_predictions("trees_log",
-  "R datasets::trees; Ryan, Joiner & Ryan (1976), Minitab Student Handbook, Duxbury",
+  "R datasets::trees (the data set R ships, documented in ?trees)",
   trees, log(Volume) ~ log(Girth) + log(Height),
   "Volume", c("log(Girth)", "log(Height)"),
   data.frame(Girth = c(8.3, 13, 21), Height = c(70, 76, 90)), transform = "log")
