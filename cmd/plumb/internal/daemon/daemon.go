@@ -69,6 +69,9 @@ type Daemon struct {
 
 	kick chan struct{}
 	lock *sqlite.Lock // nil for a read-only daemon
+
+	qmu   sync.Mutex
+	quiet quietState // decide.go
 }
 
 // New opens the state database and prepares every model.
@@ -158,6 +161,7 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 		Routes:      routes,
 		ModelRoutes: map[string][]string{},
 		Now:         d.opts.Now,
+		Quiet:       d.quietAt,
 	}
 	if h, err := os.Hostname(); err == nil {
 		ac.Host = h
@@ -186,6 +190,9 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	dispatch.Logger = d.log
 	dispatch.OnAttempt = d.metrics.delivery
 
+	if err := d.loadQuiet(ctx); err != nil {
+		return fmt.Errorf("quiet periods: %w", err)
+	}
 	for _, name := range order {
 		m := models[name]
 		if err := m.restore(ctx, d.store); err != nil {
@@ -465,8 +472,14 @@ func (d *Daemon) refreshLoop(ctx context.Context, every time.Duration) {
 			d.mu.Unlock()
 			first = false
 		}
+		if err := d.loadQuiet(ctx); err != nil && ctx.Err() == nil {
+			d.log.Error("quiet periods", "err", err)
+		}
 		if err := d.alerts.Tick(ctx, d.opts.Now()); err != nil && ctx.Err() == nil {
 			d.log.Error("alert tick", "err", err)
+		}
+		if err := d.summariseQuiet(ctx); err != nil && ctx.Err() == nil {
+			d.log.Error("quiet summary", "err", err)
 		}
 		d.metrics.alertsOpen(ctx, d.store)
 		select {

@@ -195,7 +195,7 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 			if !o.Time.IsZero() {
 				t = o.Time.UnixNano()
 			}
-			m.appendRow(o.ID, o.Path, o.Line, t, o.Values, arr, now)
+			m.appendRow(o.ID, o.Path, o.Line, t, o.ArrivedAt.UnixNano(), o.Values, arr, now)
 			after = o.ID
 			if o.ArrivedAt.After(m.lastArrival) {
 				m.lastArrival = o.ArrivedAt
@@ -223,8 +223,8 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 	return nil
 }
 
-func (m *watchedModel) appendRow(id int64, path string, line int, t int64, v []float64, arrival, current engine.Word) {
-	m.rows.add(id, path, line, t, v, arrival, current)
+func (m *watchedModel) appendRow(id int64, path string, line int, t, arrived int64, v []float64, arrival, current engine.Word) {
+	m.rows.add(id, path, line, t, arrived, v, arrival, current)
 	m.rowsAccepted++
 }
 
@@ -331,7 +331,7 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 		if p.diag != nil {
 			arr = p.diag.Verdict
 		}
-		m.appendRow(ids[i], b.Path, p.rec.Line, p.t, p.vals, arr, arr)
+		m.appendRow(ids[i], b.Path, p.rec.Line, p.t, now.UnixNano(), p.vals, arr, arr)
 		if arr == engine.WordSuspect {
 			m.ref.pendingSuspects = append(m.ref.pendingSuspects, suspect{row: len(m.rows.ids) - 1, flags: p.diag.Flags})
 		}
