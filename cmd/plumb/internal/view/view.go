@@ -165,6 +165,11 @@ type ModelSummary struct {
 	// MaxCook is the largest Cook's distance under the current fit (NaN
 	// before the first fit).
 	MaxCook Float `json:"max_cooks_distance"`
+	// QuietUntil is set while a quiet period holds the model's alert
+	// deliveries: when it ends.
+	QuietUntil time.Time `json:"quiet_until,omitzero"`
+	// SetAsideCount counts the readings set aside (left out of the fit).
+	SetAsideCount int `json:"set_aside,omitempty"`
 }
 
 // Fragility is the fragility index of the current fit: the smallest number
@@ -240,6 +245,11 @@ type ModelDetail struct {
 	Suggestions []Suggestion `json:"suggestions"`
 	// Drift holds the drift band of each coefficient (may be empty).
 	Drift []DriftBand `json:"drift"`
+	// SetAside are the readings set aside by a recorded decision: left
+	// out of the fit, shown hollow with who, when and why.
+	SetAside []SetAsidePoint `json:"set_aside_points,omitempty"`
+	// Rebaselines are the model's re-baseline events, oldest first.
+	Rebaselines []RebaselineView `json:"rebaselines,omitempty"`
 }
 
 // Curve returns the curve over predictor, or false.
@@ -405,6 +415,8 @@ type ObservationView struct {
 	Cook           Float  `json:"cooks_distance"`
 	// StudentizedExternal is the externally studentized residual at arrival.
 	StudentizedExternal Float `json:"studentized_external"`
+	// SetAside is set while the reading is set aside (left out of fits).
+	SetAside *SetAside `json:"set_aside,omitempty"`
 }
 
 // QuarantineView is a row that could not be read.

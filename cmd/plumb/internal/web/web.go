@@ -60,6 +60,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/promhttp"
 
+	"plumb/cmd/plumb/internal/access"
 	"plumb/cmd/plumb/internal/view"
 )
 
@@ -83,6 +84,9 @@ type Options struct {
 	Timeout time.Duration
 	// Refresh is how often the dashboard polls for changes (0: 3 s).
 	Refresh time.Duration
+	// Gate identifies callers and checks their roles (named users, the
+	// trusted proxy). nil means a gate over Token alone.
+	Gate *access.Gate
 }
 
 type server struct {
@@ -90,6 +94,7 @@ type server struct {
 	opts Options
 	log  *slog.Logger
 	csrf *http.CrossOriginProtection
+	gate *access.Gate
 }
 
 // New returns the handler serving the API, /metrics and the dashboard.
@@ -100,9 +105,16 @@ func New(src view.Source, opts Options) http.Handler {
 	if opts.Refresh <= 0 {
 		opts.Refresh = 3 * time.Second
 	}
-	s := &server{src: src, opts: opts, log: opts.Logger, csrf: http.NewCrossOriginProtection()}
+	s := &server{src: src, opts: opts, log: opts.Logger, csrf: http.NewCrossOriginProtection(), gate: opts.Gate}
 	if s.log == nil {
 		s.log = slog.New(slog.DiscardHandler)
+	}
+	if s.gate == nil {
+		g, err := access.New(access.Config{SharedToken: opts.Token})
+		if err != nil {
+			panic("web: " + err.Error()) // a shared token alone is always valid
+		}
+		s.gate = g
 	}
 	mux := http.NewServeMux()
 	mux.HandleFunc("GET /healthz", s.healthz)
@@ -129,8 +141,9 @@ func New(src view.Source, opts Options) http.Handler {
 	api("GET", "/api/v1/quarantine", s.apiQuarantine)
 	api("GET", "/api/v1/alerts", s.apiAlerts)
 	api("GET", "/api/v1/alerts/{id}", s.apiAlert)
-	api("POST", "/api/v1/alerts/{id}/ack", s.guard(s.apiAck))
-	api("POST", "/api/v1/alerts/{id}/resolve", s.guard(s.apiResolve))
+	api("POST", "/api/v1/alerts/{id}/ack", s.apiAck)
+	api("POST", "/api/v1/alerts/{id}/resolve", s.apiResolve)
+	s.routeDecisions(mux, api)
 	mux.HandleFunc("/api/", func(w http.ResponseWriter, r *http.Request) {
 		s.fail(w, r, http.StatusNotFound, fmt.Errorf("no such endpoint: %s %s", r.Method, r.URL.Path))
 	})
@@ -462,29 +475,6 @@ func (s *server) apiAlert(w http.ResponseWriter, r *http.Request) {
 
 // ---- actions ----
 
-// guard admits an action: cross-origin browser requests are refused; with
-// a token the bearer must match; without one the peer must be loopback.
-func (s *server) guard(next http.HandlerFunc) http.HandlerFunc {
-	return func(w http.ResponseWriter, r *http.Request) {
-		if err := s.csrf.Check(r); err != nil {
-			s.fail(w, r, http.StatusForbidden, errors.New("cross-origin request refused"))
-			return
-		}
-		if s.opts.Token != "" {
-			got, ok := strings.CutPrefix(r.Header.Get("Authorization"), "Bearer ")
-			if !ok || !tokenEqual(strings.TrimSpace(got), s.opts.Token) {
-				w.Header().Set("WWW-Authenticate", `Bearer realm="plumb"`)
-				s.fail(w, r, http.StatusUnauthorized, errors.New("a valid bearer token is needed to change an alert"))
-				return
-			}
-		} else if !loopback(r.RemoteAddr) || !loopbackHost(r.Host) {
-			s.fail(w, r, http.StatusForbidden, errors.New("no token is configured, so alerts can be changed only from this host (loopback)"))
-			return
-		}
-		next(w, r)
-	}
-}
-
 // tokenEqual compares in constant time, also in the length, by comparing
 // digests.
 func tokenEqual(got, want string) bool {
@@ -543,22 +533,44 @@ func readAction(r *http.Request) (actionBody, error) {
 	return b, nil
 }
 
+// actor names who acts: the named user the gate identified; for the
+// shared token or the loopback rule, the "by" of the body when given.
+func actor(u access.User, by string) string {
+	if (u.Via == "shared token" || u.Via == "local") && strings.TrimSpace(by) != "" {
+		return strings.TrimSpace(by)
+	}
+	return u.Name
+}
+
 func (s *server) apiAck(w http.ResponseWriter, r *http.Request) {
+	u, ok := s.authorize(w, r, access.Acknowledge)
+	if !ok {
+		return
+	}
 	b, err := readAction(r)
 	if err != nil {
 		s.fail(w, r, http.StatusBadRequest, err)
 		return
 	}
-	s.act(w, r, func(ctx context.Context, id string) error { return s.src.Ack(ctx, id, b.Note, b.By) })
+	s.act(w, r, func(ctx context.Context, id string) error { return s.src.Ack(ctx, id, b.Note, actor(u, b.By)) })
 }
 
 func (s *server) apiResolve(w http.ResponseWriter, r *http.Request) {
+	u, ok := s.authorize(w, r, access.Resolve)
+	if !ok {
+		return
+	}
 	b, err := readAction(r)
 	if err != nil {
 		s.fail(w, r, http.StatusBadRequest, err)
 		return
 	}
-	s.act(w, r, func(ctx context.Context, id string) error { return s.src.Resolve(ctx, id, b.Note) })
+	s.act(w, r, func(ctx context.Context, id string) error {
+		if rb, ok := s.src.(view.ResolverBy); ok {
+			return rb.ResolveBy(ctx, id, b.Note, actor(u, b.By))
+		}
+		return s.src.Resolve(ctx, id, b.Note)
+	})
 }
 
 func (s *server) act(w http.ResponseWriter, r *http.Request, do func(ctx context.Context, id string) error) {
