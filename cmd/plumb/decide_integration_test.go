@@ -15,6 +15,7 @@ import (
 	"net"
 	"net/http"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"syscall"
@@ -53,6 +54,7 @@ type decideHarness struct {
 	base string
 	dir  string
 	log  string
+	cmd  *exec.Cmd
 }
 
 func (h *decideHarness) call(method, path, token string, body any) (int, []byte) {
@@ -192,22 +194,62 @@ func sameCoefficients(t *testing.T, what string, got []view.Coefficient, want []
 	}
 }
 
-// TestDecisionsEndToEnd runs the built daemon with two named users and
-// checks issue 18's decisions through the API: a suspect reading set
-// aside by a reviewer leaves the next fit (which equals a fit without
-// that row), its alert resolves with the note and the trail records
-// both; an operator may not exclude (403); reinstating restores the old
-// fit; a quiet period holds deliveries and sends one summary at its end;
-// a re-baseline clears a drift alert.
-func TestDecisionsEndToEnd(t *testing.T) {
+// startBench starts the built daemon on the invented bench with two
+// named users and 30 ordinary readings plus one far off at line 32. It
+// returns the harness and the ordinary readings as the file holds them.
+func startBench(t *testing.T, ctx context.Context) (h *decideHarness, xs, ys []float64) {
 	dir := t.TempDir()
 	if err := os.MkdirAll(filepath.Join(dir, "in"), 0o755); err != nil {
 		t.Fatal(err)
 	}
 	addr := freeAddr(t)
 	cfg := filepath.Join(dir, "plumb.toml")
-	writeFile(t, cfg, `state = "plumb.db"
-listen = "`+addr+`"
+	writeFile(t, cfg, benchConfig(addr))
+	h = &decideHarness{t: t, base: "http://" + addr, dir: dir, log: filepath.Join(dir, "daemon.log")}
+	lines := []string{"load,reading"}
+	for i := 1; i <= 30; i++ {
+		x, y := benchRow(float64(i), 2, i)
+		xs, ys = append(xs, x), append(ys, y)
+		lines = append(lines, fmt.Sprintf("%g,%.6f", x, y))
+	}
+	for i := range ys { // as the file holds them
+		fmt.Sscanf(fmt.Sprintf("%.6f", ys[i]), "%g", &ys[i])
+	}
+	lines = append(lines, "60,131.5") // line 32: expected near 121.5
+	h.appendRows(lines...)
+	h.cmd = startDaemon(t, ctx, cfg, h.log)
+	t.Cleanup(func() {
+		h.stop()
+		if t.Failed() {
+			tail(t, h.log)
+		}
+	})
+	up := time.Now().Add(30 * time.Second)
+	for {
+		resp, err := http.Get(h.base + "/healthz")
+		if err == nil {
+			resp.Body.Close()
+			break
+		}
+		if time.Now().After(up) {
+			t.Fatalf("the daemon does not serve: %v", err)
+		}
+		time.Sleep(100 * time.Millisecond)
+	}
+	return h, xs, ys
+}
+
+// stop ends the daemon with SIGTERM and waits for it.
+func (h *decideHarness) stop() {
+	if h.cmd != nil && h.cmd.ProcessState == nil {
+		_ = h.cmd.Process.Signal(syscall.SIGTERM)
+		_ = h.cmd.Wait()
+	}
+}
+
+func benchConfig(addr string) string {
+	return `state = "plumb.db"
+listen = "` + addr + `"
 quiet_max = "1h"
 
 [watch]
@@ -242,52 +284,28 @@ path = "events.jsonl"
 [[user]]
 name = "r.okafor"
 role = "reviewer"
-token_sha256 = "`+tokenHash(reviewerToken)+`"
+token_sha256 = "` + tokenHash(reviewerToken) + `"
 
 [[user]]
 name = "j.tanaka"
 role = "operator"
-token_sha256 = "`+tokenHash(operatorToken)+`"
-`)
-	h := &decideHarness{t: t, base: "http://" + addr, dir: dir, log: filepath.Join(dir, "daemon.log")}
+token_sha256 = "` + tokenHash(operatorToken) + `"
+`
+}
+
+// TestDecisionsEndToEnd runs the built daemon with two named users and
+// checks issue 18's decisions through the API: a suspect reading set
+// aside by a reviewer leaves the next fit (which equals a fit without
+// that row), its alert resolves with the note and the trail records
+// both; an operator may not exclude (403); reinstating restores the old
+// fit; a quiet period holds deliveries and sends one summary at its end;
+// a re-baseline clears a drift alert.
+func TestDecisionsEndToEnd(t *testing.T) {
 	ctx, cancel := context.WithTimeout(context.Background(), 4*time.Minute)
 	defer cancel()
+	h, xs, ys := startBench(t, ctx)
+	dir := h.dir
 
-	// 30 ordinary readings, then one far off at a load beyond them.
-	var xs, ys []float64
-	lines := []string{"load,reading"}
-	for i := 1; i <= 30; i++ {
-		x, y := benchRow(float64(i), 2, i)
-		xs, ys = append(xs, x), append(ys, y)
-		lines = append(lines, fmt.Sprintf("%g,%.6f", x, y))
-	}
-	for i := range ys { // as the file holds them
-		fmt.Sscanf(fmt.Sprintf("%.6f", ys[i]), "%g", &ys[i])
-	}
-	lines = append(lines, "60,131.5") // line 32: expected near 121.5
-	h.appendRows(lines...)
-	cmd := startDaemon(t, ctx, cfg, h.log)
-	defer func() {
-		_ = cmd.Process.Signal(syscall.SIGTERM)
-		_ = cmd.Wait()
-		if t.Failed() {
-			tail(t, h.log)
-		}
-	}()
-
-	up := time.Now().Add(30 * time.Second)
-	for {
-		resp, err := http.Get(h.base + "/healthz")
-		if err == nil {
-			resp.Body.Close()
-			break
-		}
-		if time.Now().After(up) {
-			tail(t, h.log)
-			t.Fatalf("the daemon does not serve: %v", err)
-		}
-		time.Sleep(100 * time.Millisecond)
-	}
 	var sp view.AlertView
 	h.wait("the suspect-point alert", func() bool {
 		as := h.alertsOf("suspect_point", "open")
@@ -485,8 +503,7 @@ token_sha256 = "`+tokenHash(operatorToken)+`"
 	}
 
 	// The trail records it all, and its chain holds.
-	_ = cmd.Process.Signal(syscall.SIGTERM)
-	_ = cmd.Wait()
+	h.stop()
 	db, err := sqlite.Open(ctx, filepath.Join(dir, "plumb.db"))
 	if err != nil {
 		t.Fatal(err)

@@ -247,3 +247,13 @@ func (s *server) apiQuietList(w http.ResponseWriter, r *http.Request) {
 	}
 	writeJSON(w, http.StatusOK, listBody[view.QuietView]{Items: qs})
 }
+
+// acting is how the dashboard names the caller: "r.okafor (reviewer)",
+// "anonymous (viewer)".
+func acting(u access.User) string {
+	name := u.Name
+	if name == "" {
+		name = "anonymous"
+	}
+	return name + " (" + u.Role.String() + ")"
+}

@@ -60,6 +60,9 @@ var pages = template.Must(template.New("").Funcs(template.FuncMap{
 		return out
 	},
 	"xval":  func(p view.Point, col string) view.Float { return p.X[col] },
+	"sxval": func(p view.SetAsidePoint, col string) view.Float { return p.X[col] },
+	// rowOf is the file:line of a suspect-point alert's subject.
+	"rowOf": func(a view.AlertView) string { return strings.TrimPrefix(a.Subject, a.Model+"/") },
 	"atval": func(s view.Suggestion) string { return chart.Settings(s.At) },
 }).ParseFS(assets, "assets/*.html"))
 
@@ -88,6 +91,9 @@ type pageData struct {
 	Title     string
 	Caution   string
 	NeedToken bool
+	// Acting says who the server takes the caller for ("r.okafor
+	// (reviewer)"); the page's script refines it with the token typed in.
+	Acting    string
 	RefreshMS int64
 	Version   string
 	Now       time.Time
@@ -131,12 +137,15 @@ func (s *server) base(ctx context.Context, page, title string) pageData {
 	v, _ := s.version(ctx)
 	return pageData{
 		Page: page, Title: title, Caution: view.Caution,
-		NeedToken: s.opts.Token != "", RefreshMS: s.opts.Refresh.Milliseconds(),
+		NeedToken: s.opts.Token != "" || !s.gate.Open(), RefreshMS: s.opts.Refresh.Milliseconds(),
 		Version: v, Now: time.Now().UTC(),
 	}
 }
 
 func (s *server) render(w http.ResponseWriter, r *http.Request, status int, d pageData) {
+	if u, err := s.gate.Identify(r); err == nil {
+		d.Acting = acting(u)
+	}
 	var buf bytes.Buffer
 	if err := pages.ExecuteTemplate(&buf, "layout", d); err != nil {
 		s.log.Error("render page", "page", d.Page, "err", err)

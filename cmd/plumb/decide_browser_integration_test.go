@@ -1,0 +1,99 @@
+//go:build integration
+
+package main
+
+import (
+	"context"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/chromedp/chromedp"
+
+	"plumb/cmd/plumb/internal/browsertest"
+	"plumb/cmd/plumb/internal/view"
+)
+
+// TestDecisionsBrowser sets a suspect reading aside from the model page
+// of the running daemon in a real chromium, as the reviewer, and sees it
+// drawn hollow on the fit chart and listed with who set it aside and why.
+func TestDecisionsBrowser(t *testing.T) {
+	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
+	defer cancel()
+	h, _, _ := startBench(t, ctx)
+	h.wait("the suspect-point alert", func() bool { return len(h.alertsOf("suspect_point", "open")) == 1 })
+	h.wait("the fit", func() bool { return h.model().N == 31 })
+
+	bctx, problems := browsertest.Start(t, 1360, 1000, true)
+	run := func(what string, as ...chromedp.Action[chromedp.Void]) {
+		t.Helper()
+		if err := chromedp.Do(bctx, as...); err != nil {
+			t.Fatalf("%s: %v", what, err)
+		}
+	}
+	until := func(js string) chromedp.Action[chromedp.Void] {
+		p := chromedp.Poll[bool](js, chromedp.WithPollingTimeout(20*time.Second))
+		return func(ctx context.Context, tg *chromedp.Target) (chromedp.Void, error) {
+			_, err := p(ctx, tg)
+			return chromedp.Void{}, err
+		}
+	}
+	eval := func(js string) chromedp.Action[chromedp.Void] {
+		e := chromedp.Evaluate[any](js)
+		return func(ctx context.Context, tg *chromedp.Target) (chromedp.Void, error) {
+			_, err := e(ctx, tg)
+			return chromedp.Void{}, err
+		}
+	}
+	page := h.base + "/models/bench-c"
+	run("open the model page", chromedp.Navigate(page),
+		eval(fmt.Sprintf(`sessionStorage.setItem("plumb.token", %q)`, reviewerToken)),
+		chromedp.Navigate(page),
+		until(`document.getElementById("acting").textContent.includes("r.okafor (reviewer)")`))
+	if n, err := chromedp.Run(bctx, chromedp.Evaluate[int](`document.querySelectorAll("g.set-aside .hollow").length`)); err != nil || n != 0 {
+		t.Fatalf("hollow points before the decision: %d (%v)", n, err)
+	}
+	row := `Array.from(document.querySelectorAll("table.points tr[data-obs]")).find(r => r.querySelector(".prov").textContent.endsWith("feed-1.csv:32"))`
+	run("set the reading aside",
+		until(row+` !== undefined`),
+		eval(row+`.querySelector("input[name=note]").value = "valve left open during the run"`),
+		eval(row+`.querySelector("button[data-decide=exclude]").click()`),
+		until(`document.querySelectorAll("g.set-aside .hollow").length === 1`),
+		until(`document.querySelector("section[data-set-aside]") !== null`))
+	note, err := chromedp.Run(bctx, chromedp.Text(chromedp.CSS("section[data-set-aside] td.note")))
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := "set aside by r.okafor on " + time.Now().UTC().Format(time.DateOnly) + ": valve left open during the run"
+	if strings.TrimSpace(note) != want {
+		t.Errorf("set-aside note %q, want %q", note, want)
+	}
+	title, err := chromedp.Run(bctx, chromedp.Evaluate[string](`document.querySelector("g.set-aside .hollow title").textContent`))
+	if err != nil || !strings.Contains(title, want) {
+		t.Errorf("hollow point's tooltip %q (%v), want it to carry %q", title, err, want)
+	}
+	if d := h.model(); d.N != 30 || len(d.SetAside) != 1 {
+		t.Errorf("after the page's decision: fit of %d rows, %d set aside; want 30 and 1", d.N, len(d.SetAside))
+	}
+	var a view.AlertView
+	for _, x := range h.alertsOf("suspect_point", "") {
+		a = x
+	}
+	if a.State != view.AlertResolved || a.Note != want {
+		t.Errorf("alert %s %q, want resolved with %q", a.State, a.Note, want)
+	}
+	buf, err := chromedp.Run(bctx, chromedp.FullScreenshot(100))
+	if err == nil {
+		p := filepath.Join(browsertest.ArtifactDir(t), "decisions-model-page.png")
+		if err := os.WriteFile(p, buf, 0o644); err != nil {
+			t.Error(err)
+		}
+		t.Logf("screenshot: %s", p)
+	}
+	for _, p := range problems() {
+		t.Errorf("browser: %s", p)
+	}
+}
