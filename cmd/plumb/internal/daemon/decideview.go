@@ -12,7 +12,35 @@ import (
 	"plumb/store"
 )
 
-var _ view.Decider = viewSource{}
+var (
+	_ view.Decider        = viewSource{}
+	_ view.DecisionLister = viewSource{}
+)
+
+// Decisions lists the model's exclusions and reinstatements, oldest first.
+func (v viewSource) Decisions(ctx context.Context, model string) ([]view.DecisionView, error) {
+	if _, err := v.model(model); err != nil {
+		return nil, err
+	}
+	ds := v.d.decisionStore()
+	if ds == nil {
+		return nil, nil
+	}
+	dec, err := ds.Decisions(ctx, model)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]view.DecisionView, len(dec))
+	for i, d := range dec {
+		out[i] = decisionView(d)
+	}
+	return out, nil
+}
+
+func decisionView(d store.Decision) view.DecisionView {
+	return view.DecisionView{ID: d.ID, Model: d.Model, ObsID: d.ObsID, Action: d.Action, By: d.Actor, Reason: d.Reason,
+		At: d.At, Note: d.Note(), AuditSeq: d.AuditSeq}
+}
 
 // decisions returns the store's decisions or an error saying the backend
 // keeps none.
@@ -82,8 +110,7 @@ func (v viewSource) decide(ctx context.Context, model string, k view.RowKey, act
 		return view.DecisionView{}, decisionErr(err)
 	}
 	v.d.changed(m)
-	return view.DecisionView{ID: d.ID, Model: d.Model, ObsID: d.ObsID, Action: d.Action, By: d.Actor, Reason: d.Reason,
-		At: d.At, Note: d.Note(), AuditSeq: d.AuditSeq}, nil
+	return decisionView(d), nil
 }
 
 // changed marks the model for a refresh now: a decision applies from the

@@ -112,3 +112,10 @@ type QuietView struct {
 type ResolverBy interface {
 	ResolveBy(ctx context.Context, id, note, who string) error
 }
+
+// DecisionLister is an optional interface of a Source that lists every
+// exclusion and reinstatement recorded on a model's readings, oldest
+// first (the report's decisions section).
+type DecisionLister interface {
+	Decisions(ctx context.Context, model string) ([]DecisionView, error)
+}
