@@ -50,6 +50,7 @@ type inspectData struct {
 	starts   []int  // byte offset of each line's start, built on first use
 	total    int    // data rows in the file, good and bad
 	rejected []rejectedRow
+	leftOut  []leftOutRow // rows the --leave-out list names
 }
 
 func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData, error) {
