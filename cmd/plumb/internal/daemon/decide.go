@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"plumb/alerts"
+	"plumb/engine"
 	"plumb/store"
 )
 
@@ -49,6 +50,9 @@ type decisionState struct {
 	// whose alerts this run has resolved already.
 	resolvedEx map[int64]bool
 	resolvedRB map[int64]bool
+	// reseed is set when the readings set aside changed: the online fit
+	// that judges arrivals is rebuilt without them at the next refresh.
+	reseed bool
 }
 
 // readDecisions reads the model's decisions and re-baselines and reports
@@ -77,7 +81,9 @@ func (r *refresher) readDecisions(ctx context.Context) error {
 	}
 	first := !st.read
 	st.read, st.nDecisions, st.nRebase = true, len(dec), len(rbs)
+	before := len(st.excluded)
 	st.excluded = store.ExcludedAt(dec, time.Time{})
+	st.reseed = st.reseed || len(st.excluded) > 0 || before > 0
 	st.rebase, st.rebaseOK = store.BaselineFrom(rbs, time.Time{})
 	if st.resolvedEx == nil {
 		st.resolvedEx, st.resolvedRB = map[int64]bool{}, map[int64]bool{}
@@ -87,6 +93,33 @@ func (r *refresher) readDecisions(ctx context.Context) error {
 		r.baseline = nil
 	}
 	return nil
+}
+
+// reseedOnline rebuilds the online fit that judges arriving rows of a
+// model without a window after the readings set aside changed: the rows
+// of the refresh's fit (all rows not set aside when the refresh copied
+// them), then those that arrived since (rows from index since on), not
+// set aside. A windowed model refits its window per arrival and leaves
+// the rows set aside out there (windowArrival). Caller holds mu.
+func (r *refresher) reseedOnline(fit *engine.Fit, since int) {
+	m := r.m
+	if !r.dec.reseed || m.windowed() {
+		return
+	}
+	r.dec.reseed = false
+	m.online.Seed(fit)
+	v := make([]float64, len(m.rows.vals))
+	for i := since; i < m.rows.len(); i++ {
+		if r.excludedRow(i) {
+			continue
+		}
+		for j := range v {
+			v[j] = m.rows.vals[j][i]
+		}
+		if m.designRow(v) == nil {
+			m.online.Add(m.xrow, v[0])
+		}
+	}
 }
 
 // keepIncluded returns win without the rows set aside. Caller holds mu.

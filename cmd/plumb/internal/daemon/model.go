@@ -435,6 +435,8 @@ func (m *watchedModel) windowArrival(batch []pending, p pending) (engine.Obs, []
 		}
 		all = all[:k]
 	}
+	// Readings set aside are not in the window's fit (as at refresh).
+	stored = m.ref.keepIncluded(stored)
 	n := len(stored) + len(all)
 	if n <= m.spec.P()+1 {
 		return engine.Obs{}, nil, n, false

@@ -78,6 +78,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 	r.dirty = false
 	// Readings set aside are left out of everything computed below.
 	win := r.keepIncluded(m.rows.window(m.cfg.Window))
+	nAtCopy := m.rows.len()
 	cols := m.rows.copyRows(win, m.numeric())
 	lastID := int64(0)
 	if len(m.rows.ids) > 0 {
@@ -198,6 +199,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 	m.mu.Lock()
 	r.res, r.window = res, win
 	r.fitAt, r.fitID, r.lastFitN = now, fitID, fit.N
+	r.reseedOnline(fit, nAtCopy)
 	r.fits++
 	r.refreshNs = time.Since(start).Nanoseconds()
 	if r.baseline == nil {

@@ -321,6 +321,9 @@ func alertView(a store.AlertRecord) view.AlertView {
 		if doc.Resolution != nil && doc.Resolution.Note != "" {
 			av.Note = doc.Resolution.Note
 		}
+		if doc.Resolution != nil && doc.Resolution.By != "" {
+			av.By = doc.Resolution.By
+		}
 	}
 	return av
 }
