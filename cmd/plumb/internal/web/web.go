@@ -20,6 +20,13 @@
 //	GET  /api/v1/alerts/{id}                    one alert
 //	POST /api/v1/alerts/{id}/ack                {"note","by"} -> the alert
 //	POST /api/v1/alerts/{id}/resolve            {"note"} -> the alert
+//	GET  /api/v1/whoami                         the caller as the gate sees it
+//	POST /api/v1/models/{name}/exclude          {"obs"|"row","reason","alert"} (reviewer) -> the decision
+//	POST /api/v1/models/{name}/reinstate        {"obs"|"row","reason"} (reviewer) -> the decision
+//	POST /api/v1/models/{name}/rebaseline       {"from","reason"} (reviewer) -> the event
+//	GET  /api/v1/quiet                          quiet periods
+//	POST /api/v1/quiet                          {"model","start","end","reason"} (operator) -> the period
+//	POST /api/v1/quiet/{id}/end                 {"reason"} (operator) -> the period
 //	GET  /                                      dashboard: all models
 //	GET  /models/{name}                         one model's charts   ?x=predictor
 //	GET  /alerts                                alert list with actions ?state=
@@ -30,13 +37,18 @@
 //
 // # Who may act
 //
-// Acknowledging and resolving change the alert ledger. With Options.Token
-// set, they need "Authorization: Bearer <token>" (compared in constant
-// time); without a token they are refused (403) unless the request comes
-// from a loopback address and names a loopback host (localhost, 127.0.0.1,
-// [::1]). Either way they are refused when a browser says the request is
-// cross-origin, and a body must be JSON. Behind a reverse proxy on the
-// same machine every request looks local: configure a token there.
+// Every action goes through Options.Gate (package access): named users
+// with their own bearer tokens and roles, a trusted proxy's header, or the
+// shared token (Options.Token, an operator). Acknowledging, resolving and
+// quiet periods need an operator; setting a reading aside, reinstating it
+// and re-baselining need a reviewer (an operator gets 403, a caller
+// without credentials 401). With nothing configured, actions are refused
+// (403) unless the request comes from a loopback address and names a
+// loopback host (localhost, 127.0.0.1, [::1]). Either way they are refused
+// when a browser says the request is cross-origin, and a body must be
+// JSON. Behind a reverse proxy on the same machine every request looks
+// local: configure users or a token there. The answer to a decision is
+// sent only after it and its audit record are committed.
 //
 // Every page carries view.Caution.
 package web
