@@ -19,7 +19,8 @@ import (
 
 // TestDecisionsBrowser sets a suspect reading aside from the model page
 // of the running daemon in a real chromium, as the reviewer, and sees it
-// drawn hollow on the fit chart and listed with who set it aside and why.
+// drawn hollow on the fit chart and listed with who set it aside and why;
+// then sets a second one aside from its alert on the alert list.
 func TestDecisionsBrowser(t *testing.T) {
 	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Minute)
 	defer cancel()
@@ -80,11 +81,42 @@ func TestDecisionsBrowser(t *testing.T) {
 	}
 	var a view.AlertView
 	for _, x := range h.alertsOf("suspect_point", "") {
-		a = x
+		if strings.HasSuffix(x.Subject, ":32") {
+			a = x
+		}
 	}
 	if a.State != view.AlertResolved || a.Note != want {
 		t.Errorf("alert %s %q, want resolved with %q", a.State, a.Note, want)
 	}
+
+	// From the alert list: a second suspect reading, set aside from its
+	// alert's row (the note box gives the reason).
+	h.appendRows("70,153.5") // line 33
+	var second view.AlertView
+	h.wait("the second suspect alert", func() bool {
+		for _, a := range h.alertsOf("suspect_point", "open") {
+			if strings.HasSuffix(a.Subject, ":33") {
+				second = a
+				return true
+			}
+		}
+		return false
+	})
+	alertRow := fmt.Sprintf(`document.querySelector('tr[data-alert="%s"]')`, second.ID)
+	run("set aside from the alert list",
+		chromedp.Navigate(h.base+"/alerts"),
+		until(alertRow+` !== null`),
+		eval(alertRow+`.querySelector("input[name=note]").value = "sensor cable loose"`),
+		eval(alertRow+`.querySelector("button[data-decide=exclude]").click()`),
+		until(`document.getElementById("status").textContent.includes("set aside by r.okafor")`),
+		chromedp.Navigate(page),
+		until(`document.querySelectorAll("g.set-aside .hollow").length === 2`))
+	h.wait("the second alert resolved by the decision", func() bool {
+		var a view.AlertView
+		h.get("/api/v1/alerts/"+second.ID, &a)
+		return a.State == view.AlertResolved && strings.HasSuffix(a.Note, ": sensor cable loose") && a.By == "r.okafor"
+	})
+
 	buf, err := chromedp.Run(bctx, chromedp.FullScreenshot(100))
 	if err == nil {
 		p := filepath.Join(browsertest.ArtifactDir(t), "decisions-model-page.png")
