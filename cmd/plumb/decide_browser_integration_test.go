@@ -117,6 +117,27 @@ func TestDecisionsBrowser(t *testing.T) {
 		return a.State == view.AlertResolved && strings.HasSuffix(a.Note, ": sensor cable loose") && a.By == "r.okafor"
 	})
 
+	// A quiet period set from the model page, as the reviewer, then
+	// ended early from the same page.
+	until10 := time.Now().UTC().Add(10 * time.Minute).Format("2006-01-02T15:04")
+	quietForm := `document.querySelector("button[data-decide=quiet]").closest("form")`
+	run("set a quiet period",
+		eval(fmt.Sprintf(`%s.elements.end.value = %q`, quietForm, until10)),
+		eval(quietForm+`.elements.note.value = "pump service"`),
+		eval(`document.querySelector("button[data-decide=quiet]").click()`),
+		until(`document.querySelector("tr[data-quiet-period]") !== null`),
+		until(`document.querySelector("h1 .quiet-mark") !== null`))
+	if q := h.model().QuietUntil; q.IsZero() {
+		t.Errorf("the model is not quiet after the page set a period")
+	}
+	run("end it early",
+		eval(`document.querySelector("tr[data-quiet-period] input[name=note]").value = "service done early"`),
+		eval(`document.querySelector("button[data-decide=end-quiet]").click()`),
+		until(`document.querySelector("tr[data-quiet-period]") === null`))
+	if q := h.model().QuietUntil; !q.IsZero() {
+		t.Errorf("the model is still quiet until %s after the page ended the period", q)
+	}
+
 	buf, err := chromedp.Run(bctx, chromedp.FullScreenshot(100))
 	if err == nil {
 		p := filepath.Join(browsertest.ArtifactDir(t), "decisions-model-page.png")

@@ -125,6 +125,14 @@ type modelPage struct {
 	Alerts     []view.AlertView
 	Quarantine []view.QuarantineView // the latest, newest first
 	Counts     map[string]int
+	// Quiet are the quiet periods of the model (and of all models) not
+	// yet over, with whether each is in force now.
+	Quiet []quietRow
+}
+
+type quietRow struct {
+	view.QuietView
+	Now bool
 }
 
 type historyPanel struct {
@@ -220,6 +228,19 @@ func (s *server) pageModel(w http.ResponseWriter, r *http.Request) {
 	}
 	mp := buildModelPage(md, fits, r.URL.Query().Get("x"))
 	mp.Alerts = als
+	if dc, ok := s.src.(view.Decider); ok {
+		qs, err := dc.QuietPeriods(ctx)
+		if err != nil {
+			s.pageError(w, r, err)
+			return
+		}
+		now := time.Now()
+		for _, q := range qs {
+			if (q.Model == "" || q.Model == name) && q.End.After(now) {
+				mp.Quiet = append(mp.Quiet, quietRow{q, !q.Start.After(now)})
+			}
+		}
+	}
 	slices.Reverse(quar) // newest first
 	mp.Quarantine = quar
 	d := s.base(ctx, "model", name)

@@ -118,7 +118,9 @@
       url = "/api/v1/quiet";
       body.model = model;
       body.end = form.elements.end ? utc(form.elements.end.value) : "";
+      if (form.elements.start && form.elements.start.value) body.start = utc(form.elements.start.value);
     }
+    if (act === "end-quiet") url = "/api/v1/quiet/" + encodeURIComponent(btn.dataset.id) + "/end";
     if (!reason) {
       say("A reason is required: type it in the box beside the button.", true);
       if (form && form.elements.note) form.elements.note.focus();
