@@ -421,6 +421,9 @@ func TestDecisionsEndToEnd(t *testing.T) {
 		}
 		return false
 	})
+	if !held.Held {
+		t.Errorf("the alert raised under quiet is not marked held")
+	}
 	time.Sleep(time.Second) // a delivery pass
 	if n := len(h.fileEvents()); n != before {
 		t.Fatalf("%d events delivered during the quiet period", n-before)

@@ -315,6 +315,7 @@ func alertView(a store.AlertRecord) view.AlertView {
 		State: a.State, FirstSeen: a.FirstSeen, LastSeen: a.LastSeen, Doc: json.RawMessage(a.Doc)}
 	if doc, err := alerts.DecodeAlert([]byte(a.Doc)); err == nil {
 		av.Summary = doc.Summary
+		av.Held = doc.Held
 		if doc.Ack != nil {
 			av.Note, av.By = doc.Ack.Note, doc.Ack.By
 		}

@@ -455,6 +455,9 @@ type AlertView struct {
 	// Note and By are the last acknowledgement's or resolution's note and person.
 	Note string `json:"note,omitempty"`
 	By   string `json:"by,omitempty"`
+	// Held is true when the alert's latest event was held by a quiet
+	// period (stored, not delivered; the period's summary names it).
+	Held bool `json:"held,omitempty"`
 	// Doc is the alert's full JSON document as the alerts package made it.
 	Doc json.RawMessage `json:"doc,omitempty"`
 }
