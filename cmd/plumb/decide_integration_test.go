@@ -549,3 +549,32 @@ func TestDecisionsEndToEnd(t *testing.T) {
 	}
 	_ = qp
 }
+
+// TestDecideCommandBesideDaemon: "plumb decide exclude" on the state
+// database while the daemon runs takes effect at the daemon's next
+// refresh: the fit leaves the reading out and its alert resolves with the
+// note, under the operating-system user.
+func TestDecideCommandBesideDaemon(t *testing.T) {
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+	defer cancel()
+	h, _, _ := startBench(t, ctx)
+	var sp view.AlertView
+	h.wait("the suspect-point alert", func() bool {
+		as := h.alertsOf("suspect_point", "open")
+		if len(as) == 1 {
+			sp = as[0]
+		}
+		return len(as) == 1
+	})
+	out, err := exec.CommandContext(ctx, plumbBinary(t), "decide", "exclude", "--config", filepath.Join(h.dir, "plumb.toml"),
+		"--model", "bench-c", "--row", "feed-1.csv:32", "--reason", "valve left open", "--alert", sp.ID).CombinedOutput()
+	if err != nil {
+		t.Fatalf("plumb decide exclude: %v\n%s", err, out)
+	}
+	h.wait("the fit without the reading", func() bool { return h.model().N == 30 })
+	h.wait("the alert resolved with the note", func() bool {
+		var a view.AlertView
+		h.get("/api/v1/alerts/"+sp.ID, &a)
+		return a.State == view.AlertResolved && strings.HasPrefix(a.Note, "set aside by os:") && strings.HasSuffix(a.Note, ": valve left open")
+	})
+}
