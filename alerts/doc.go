@@ -59,6 +59,17 @@
 // in an Idempotency-Key header and, when a secret is configured, signs the
 // body (see Sign and VerifySignature).
 //
+// # Quiet periods
+//
+// Config.Quiet tells the Manager when a quiet period holds a model's
+// deliveries: alerts are still raised, updated and stored, but their
+// events are not enqueued (the alert document says Held). When the
+// period ends, QuietSummary enqueues one event of type SummaryType per
+// route that takes any alert still open, its data a QuietSummaryDoc that
+// lists them. Its id, SummaryEventID(key), is derived from the period, so
+// the Ledger's rule (one event id per route) sends it once however often
+// it is asked, across crashes and restarts.
+//
 // # Wiring
 //
 // The daemon builds the routes, the Manager and the Dispatcher from the

@@ -20,7 +20,8 @@ import (
 type Ledger interface {
 	// PutAlert inserts or updates the alert with a.ID and, in the same
 	// transaction, enqueues the deliveries (their ID is assigned by the
-	// ledger). With a.Revision n >= 1 it writes only when the stored
+	// ledger); a delivery whose non-empty EventID is already enqueued for
+	// the same Route is skipped (the store's rule). With a.Revision n >= 1 it writes only when the stored
 	// alert is at revision n-1 (n = 1: none stored, or one at revision 0)
 	// and otherwise writes nothing and returns an error wrapping
 	// ErrChanged; 0 writes unconditionally. The stored revision becomes

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"log/slog"
 	"math"
+	"slices"
 	"sort"
 	"sync"
 	"testing"
@@ -41,6 +42,10 @@ func (l *memLedger) PutAlert(ctx context.Context, a AlertRecord, ds []Delivery) 
 	a.Revision = old.Revision + 1
 	l.alerts[a.ID] = a
 	for _, d := range ds {
+		// As the store: an event is enqueued once per route.
+		if d.EventID != "" && slices.ContainsFunc(l.ds, func(x Delivery) bool { return x.Route == d.Route && x.EventID == d.EventID }) {
+			continue
+		}
 		l.nextID++
 		d.ID = l.nextID
 		d.Payload = append([]byte(nil), d.Payload...)

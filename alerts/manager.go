@@ -44,6 +44,12 @@ type Config struct {
 	// OnEnqueue, when set, is called after events were stored (for
 	// instance Dispatcher.Wake). It must not block.
 	OnEnqueue func()
+	// Quiet, when set, reports whether a quiet period holds the model's
+	// deliveries at now. While it does, alerts are raised, updated and
+	// stored as ever, but their events are not enqueued (the alert is
+	// marked Held); QuietSummary sends one summary when the period ends.
+	// It must not call the Manager.
+	Quiet func(model string, now time.Time) bool
 }
 
 // Manager applies the rules to reported conditions and keeps the alerts'
@@ -283,7 +289,13 @@ func (m *Manager) put(ctx context.Context, now time.Time, a *Alert, t Transition
 			return fmt.Errorf("alerts: alert %s: encode event: %w", a.ID, err)
 		}
 		eid := EventID(a.ID, a.Sequence)
+		// Under a quiet period the event is stored with the alert but not
+		// enqueued: the period's summary (QuietSummary) names the alert.
+		a.Held = m.cfg.Quiet != nil && m.cfg.Quiet(a.Model, now)
 		for _, r := range m.routesFor(a) {
+			if a.Held {
+				break
+			}
 			ds = append(ds, Delivery{AlertID: a.ID, Route: r, EventID: eid, Payload: payload,
 				State: DeliveryPending, NextAttempt: now, CreatedAt: now, UpdatedAt: now})
 		}
@@ -540,6 +552,13 @@ func (m *Manager) Ack(ctx context.Context, id, note, who string) (*Alert, error)
 // condition is reported again later, the alert reopens under the same id.
 // A resolved alert gives ErrNotOpen.
 func (m *Manager) Resolve(ctx context.Context, id, note string) (*Alert, error) {
+	return m.ResolveBy(ctx, id, note, "")
+}
+
+// ResolveBy is Resolve naming who resolved the alert (a user, or the
+// author of the recorded decision that answers it); the name goes into
+// the resolution (ResolutionInfo.By) and from there into the audit trail.
+func (m *Manager) ResolveBy(ctx context.Context, id, note, who string) (*Alert, error) {
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	now := m.cfg.Now()
@@ -552,7 +571,7 @@ func (m *Manager) Resolve(ctx context.Context, id, note string) (*Alert, error) 
 			return a, fmt.Errorf("alerts: resolve %s: %w", id, ErrNotOpen)
 		}
 		a.State = StateResolved
-		a.Resolution = &ResolutionInfo{At: now, Note: note}
+		a.Resolution = &ResolutionInfo{At: now, Note: note, By: who}
 		a.Summary = "Resolved: " + a.Summary
 		return a, m.put(ctx, now, a, Resolved, rev)
 	})

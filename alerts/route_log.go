@@ -18,6 +18,15 @@ func (s *logSender) Send(ctx context.Context, d Delivery) error {
 	if err != nil {
 		return Permanent(fmt.Errorf("decode event %s: %w", d.EventID, err))
 	}
+	if e.Type == SummaryType {
+		var q QuietSummaryDoc
+		if err := json.Unmarshal(e.Data, &q); err != nil {
+			return Permanent(fmt.Errorf("decode summary of event %s: %w", d.EventID, err))
+		}
+		s.log.LogAttrs(ctx, slog.LevelWarn, q.Summary, slog.String("route", s.name), slog.String("event_id", e.ID),
+			slog.String("event_type", e.Type), slog.Int("open", len(q.Open)), slog.String("caution", q.Caution))
+		return nil
+	}
 	var a Alert
 	if err := json.Unmarshal(e.Data, &a); err != nil {
 		return Permanent(fmt.Errorf("decode alert of event %s: %w", d.EventID, err))

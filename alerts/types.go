@@ -255,6 +255,9 @@ type Alert struct {
 	// Event is the transition of the latest event ("opened", ...).
 	Event      Transition `json:"event"`
 	NotifiedAt time.Time  `json:"notified_at"`
+	// Held is true when the latest event was not delivered because a
+	// quiet period covered the model (Config.Quiet).
+	Held bool `json:"held,omitempty"`
 
 	// Summary is one line: what happened. Explanation says what happened
 	// and why it matters, in plain words.
@@ -324,6 +327,9 @@ type ResolutionInfo struct {
 	// Auto is true when the condition cleared, false for a Resolve call.
 	Auto bool   `json:"auto"`
 	Note string `json:"note,omitempty"`
+	// By names who resolved it by hand (ResolveBy), or whose recorded
+	// decision resolved it (a reading set aside, a re-baseline).
+	By string `json:"by,omitempty"`
 }
 
 // fmtNum formats a number for explanations: 4 significant digits,

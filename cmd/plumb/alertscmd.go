@@ -132,7 +132,7 @@ func alertAction(ctx context.Context, e *env, args []string, verb, done string) 
 	if verb == "ack" {
 		_, err = m.Ack(ctx, id, *note, *who)
 	} else {
-		_, err = m.Resolve(ctx, id, *note)
+		_, err = m.ResolveBy(ctx, id, *note, *who)
 	}
 	if err != nil {
 		return fmt.Errorf("%s %s: %w", verb, id, err)

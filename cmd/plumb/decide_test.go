@@ -217,3 +217,21 @@ func TestUserToken(t *testing.T) {
 		t.Errorf("unknown role: exit %d, want 2", code)
 	}
 }
+
+// history --line shows the decisions recorded on the reading.
+func TestHistoryShowsDecisions(t *testing.T) {
+	cfg, _ := decideFixture(t)
+	actor, err := osActor()
+	if err != nil {
+		t.Skip(err)
+	}
+	mustRun(t, "decide", "exclude", "--config", cfg, "--model", "bench", "--row", "runs/a.csv:5", "--reason", "range switch left on")
+	out := mustRun(t, "history", "--config", cfg, "bench", "--line", "runs/a.csv:5")
+	if !strings.Contains(out, "decision: set aside by "+actor+" on ") || !strings.Contains(out, ": range switch left on") {
+		t.Errorf("history --line printed %q", out)
+	}
+	out = mustRun(t, "history", "--config", cfg, "bench", "--line", "runs/a.csv:6")
+	if strings.Contains(out, "decision:") {
+		t.Errorf("history of another reading shows a decision: %q", out)
+	}
+}

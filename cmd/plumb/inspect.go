@@ -87,6 +87,12 @@ go to standard error in words.
 Exit status: 0 when the report was written, 1 when the file cannot be
 read or fitted (or a row is bad under --strict), 2 for a bad command line.
 
+--leave-out LIST leaves out of the fit the rows a list names (rows that
+qualified staff have set aside), one a line: a data row number or
+FILE:LINE, then an optional note; "#" starts a comment. They are listed as
+left out: in a "left_out" array for json, on standard error otherwise, and
+counted in the table's heading. The file is not changed.
+
 plumb flags rows; it never alters a measurement. Decisions stay with
 qualified staff under local quality procedures.`
 
@@ -110,6 +116,7 @@ type inspectOptions struct {
 	suggest     bool
 	region      engine.Region // columns given with --region
 	replicates  int
+	leaveOut    string // --leave-out list
 
 	calibOptions // --at, --reading, --unit (inspect_calib.go)
 }
@@ -130,6 +137,16 @@ func runInspect(ctx context.Context, e *env, args []string) error {
 	if len(ds.rejected) > 0 && (opt.strict || opt.format != "json") {
 		for _, r := range ds.rejected {
 			fmt.Fprintf(e.stderr, "%s: row left out: %s\n", r.where(), r.why())
+		}
+	}
+	if opt.leaveOut != "" {
+		if err := leaveOut(ds, opt.leaveOut); err != nil {
+			return &exitError{code: 1, err: err}
+		}
+		if opt.format != "json" {
+			for _, r := range ds.leftOut {
+				fmt.Fprintf(e.stderr, "%s: row %d left out (%s)%s\n", r.where(), r.Row, r.Entry, noteSuffix(r.Note))
+			}
 		}
 	}
 	if opt.strict && len(ds.rejected) > 0 {
@@ -217,6 +234,7 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 	})
 	fs.IntVar(&opt.replicates, "replicates", engine.DefaultReplicates, "with --suggest: readings proposed at each point")
 	calib := addCalibFlags(fs)
+	fs.StringVar(&opt.leaveOut, "leave-out", "", "leave out the rows a `LIST` file names, one a line: a data row number or FILE:LINE, then an optional note; they are listed in the output")
 	pos, err := parseFlags(fs, args)
 	if err != nil {
 		return nil, err

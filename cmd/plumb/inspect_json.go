@@ -209,6 +209,7 @@ type jsonReport struct {
 	VIF          *jmap             `json:"vif"`
 	Cutoffs      jsonCutoffs       `json:"cutoffs"`
 	Rejected     []rejectedRow     `json:"rejected"`
+	LeftOut      []leftOutRow      `json:"left_out,omitempty"`
 	Fragility    *jsonFragility    `json:"fragility,omitempty"`
 	Suggestions  *[]jsonSuggestion `json:"suggestions,omitempty"`
 	Units        map[string]string `json:"units,omitempty"`
@@ -255,6 +256,7 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 			COVRATIO:                  view.Float(r.Limits.COVRATIO),
 		},
 		Rejected:    r.ds.rejected,
+		LeftOut:     r.ds.leftOut,
 		Fragility:   r.jsonFragility(),
 		Suggestions: r.jsonSuggestions(),
 		Units:       r.units,

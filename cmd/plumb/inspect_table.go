@@ -182,6 +182,9 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 	if k := len(r.ds.rejected); k > 0 {
 		fmt.Fprintf(bw, "; %d set aside as unreadable (listed on standard error)", k)
 	}
+	if k := len(r.ds.leftOut); k > 0 {
+		fmt.Fprintf(bw, "; %d left out as the --leave-out list asks (listed on standard error)", k)
+	}
 	bw.WriteString("\n\n")
 
 	// Worth a look.

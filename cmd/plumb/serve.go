@@ -11,6 +11,7 @@ import (
 	"sync"
 	"time"
 
+	"plumb/cmd/plumb/internal/access"
 	"plumb/cmd/plumb/internal/config"
 	"plumb/cmd/plumb/internal/daemon"
 	"plumb/cmd/plumb/internal/web"
@@ -40,7 +41,12 @@ func serve(d *daemon.Daemon, cfg *config.Config, log *slog.Logger) (*server, err
 	if cfg.TokenEnv != "" {
 		token = os.Getenv(cfg.TokenEnv)
 	}
-	h := web.New(d.View(), web.Options{Token: token, Registry: d.Registry(), Logger: log})
+	gate, err := access.New(cfg.AccessConfig(os.Getenv))
+	if err != nil {
+		ln.Close()
+		return nil, err
+	}
+	h := web.New(d.View(), web.Options{Token: token, Registry: d.Registry(), Logger: log, Gate: gate})
 	srv := &http.Server{Handler: h, ReadHeaderTimeout: 10 * time.Second}
 	s.addr = ln.Addr().String()
 	log.Info("serving", "addr", "http://"+s.addr+"/")

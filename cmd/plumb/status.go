@@ -282,7 +282,20 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 		if err != nil {
 			return err
 		}
-		out := map[string]any{"id": o.ID, "file": o.Path, "line": o.Line, "raw": o.Raw, "arrived_at": o.ArrivedAt, "arrival": o.Arrival, "changes": ch}
+		// The decisions recorded on the reading (set aside, reinstated).
+		var notes []string
+		if ds, ok := db.(store.Decisions); ok {
+			all, err := ds.Decisions(ctx, model)
+			if err != nil {
+				return err
+			}
+			for _, d := range all {
+				if d.ObsID == o.ID {
+					notes = append(notes, d.Note())
+				}
+			}
+		}
+		out := map[string]any{"id": o.ID, "file": o.Path, "line": o.Line, "raw": o.Raw, "arrived_at": o.ArrivedAt, "arrival": o.Arrival, "changes": ch, "decisions": notes}
 		if o.Label != "" {
 			out["label"] = o.Label
 		}
@@ -306,6 +319,9 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 				from = "not judged"
 			}
 			fmt.Fprintf(e.stdout, "  %s  fit %d: %s -> %s\n", c.At.Local().Format(time.DateTime), c.FitID, from, c.To)
+		}
+		for _, n := range notes {
+			fmt.Fprintf(e.stdout, "  decision: %s\n", n)
 		}
 		return nil
 	}

@@ -18,7 +18,10 @@
 // every quarantined row; each file's read state (so a daemon pointed at
 // the target resumes where the source's stopped); every fit in order with
 // the verdict changes it caused; the model's state. Then every alert with
-// its outbox entries and their delivery state. Observation and fit ids
+// its outbox entries and their delivery state, then the audit trail
+// record for record (each sealed with the source's hash). A source with
+// recorded decisions is refused before anything is written
+// (ErrDecisions), and so is a trail the target cannot keep (ErrTrail). Observation and fit ids
 // are the target's own: a fit's LastObsID and a verdict change's
 // observation are mapped to the copied observations' ids. Ids quoted
 // inside a fit's Detail document are copied as they are.
@@ -75,6 +78,9 @@ type Report struct {
 	Deliveries int64
 	// CopiedAlerts and CopiedDeliveries count what this run wrote.
 	CopiedAlerts, CopiedDeliveries int64
+	// Audit counts the source's audit records, all in the target with
+	// the same hashes; CopiedAudit those this run appended.
+	Audit, CopiedAudit int64
 }
 
 // ErrMismatch is returned (wrapped) when the target holds a different
@@ -103,6 +109,10 @@ func Copy(ctx context.Context, src, dst store.Store, opt Options) (Report, error
 	if err != nil {
 		return rep, err
 	}
+	trail, err := checkDecisions(ctx, src, dst, models)
+	if err != nil {
+		return rep, err
+	}
 	for _, m := range models {
 		mc, err := copyModel(ctx, src, dst, m, opt)
 		if err != nil {
@@ -122,6 +132,9 @@ func Copy(ctx context.Context, src, dst store.Store, opt Options) (Report, error
 	}
 	if err := copyAlerts(ctx, src, dst, &rep); err != nil {
 		return rep, fmt.Errorf("transfer: alerts: %w", err)
+	}
+	if err := copyTrail(ctx, dst, trail, &rep); err != nil {
+		return rep, fmt.Errorf("transfer: audit trail: %w", err)
 	}
 	return rep, nil
 }

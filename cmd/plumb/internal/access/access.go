@@ -372,3 +372,7 @@ func LoopbackHost(host string) bool {
 	ip := net.ParseIP(h)
 	return ip != nil && ip.IsLoopback()
 }
+
+// Open reports whether nothing is configured (no account, no shared
+// token): only the loopback rule admits actions then.
+func (g *Gate) Open() bool { return g.open() }

@@ -29,7 +29,7 @@ func stateOf(r *store.AlertRecord) (alertState, *alerts.Alert) {
 	case a.State == alerts.StateAcknowledged && a.Ack != nil:
 		s.By, s.Note = a.Ack.By, a.Ack.Note
 	case a.State == alerts.StateResolved && a.Resolution != nil:
-		s.Note, s.Auto = a.Resolution.Note, a.Resolution.Auto
+		s.By, s.Note, s.Auto = a.Resolution.By, a.Resolution.Note, a.Resolution.Auto
 	}
 	return s, a
 }
@@ -43,8 +43,9 @@ func stateOf(r *store.AlertRecord) (alertState, *alerts.Alert) {
 // naming a decision when one caused it). A write that only moves
 // LastSeen or the count gives no record.
 //
-// A resolution by hand names no user yet (alerts.ResolutionInfo has no
-// By): its actor is "unnamed" until the Manager's Resolve takes one.
+// A resolution names its user when the Manager's ResolveBy was given one
+// (the API's caller, or the author of the decision that resolved it);
+// otherwise its actor is "unnamed".
 func AlertAudit(before *store.AlertRecord, after store.AlertRecord) (store.AuditRecord, bool) {
 	to, a := stateOf(&after)
 	rec := store.AuditRecord{Model: after.Model, Subject: after.ID}
@@ -73,9 +74,13 @@ func AlertAudit(before *store.AlertRecord, after store.AlertRecord) (store.Audit
 		}
 	case after.State == string(alerts.StateResolved):
 		rec.Action, rec.Reason = store.ActionResolve, to.Note
-		rec.Actor = "unnamed"
-		if to.Auto {
+		switch {
+		case to.By != "":
+			rec.Actor = to.By
+		case to.Auto:
 			rec.Actor = AlertActor
+		default:
+			rec.Actor = "unnamed"
 		}
 	default:
 		rec.Action, rec.Actor = after.State, AlertActor

@@ -17,6 +17,9 @@ type columns struct {
 	paths []int32 // index into pathNames
 	lines []int32
 	times []int64 // unix nanoseconds; 0 when the model has no time column
+	// arrived is when each row was stored (unix nanoseconds): a
+	// re-baseline without a time column counts rows from it.
+	arrived []int64
 	// vals[0] is the response, vals[1+j] the model's j-th predictor column.
 	vals    [][]float64
 	arrival []engine.Word // verdict at arrival ("" when not judged then)
@@ -40,11 +43,12 @@ func newColumns(nvals int, labeled bool) *columns {
 func (c *columns) len() int { return len(c.ids) }
 
 // add appends one row.
-func (c *columns) add(id int64, path string, line int, label string, t int64, v []float64, arrival, current engine.Word) {
+func (c *columns) add(id int64, path string, line int, label string, t, arrived int64, v []float64, arrival, current engine.Word) {
 	c.ids = append(c.ids, id)
 	if c.labeled {
 		c.labels = append(c.labels, label)
 	}
+	c.arrived = append(c.arrived, arrived)
 	c.paths = append(c.paths, c.pathIndex(path))
 	c.lines = append(c.lines, int32(line))
 	c.times = append(c.times, t)

@@ -82,6 +82,9 @@ type Daemon struct {
 	// running is the dispatcher Run started: a rebuild (reload, lease)
 	// makes a new one, but alerts wake the one that runs.
 	running atomic.Pointer[alerts.Dispatcher]
+
+	qmu   sync.Mutex
+	quiet quietState // decide.go
 }
 
 // New opens the state database and prepares every model.
@@ -186,6 +189,7 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 		Routes:      routes,
 		ModelRoutes: map[string][]string{},
 		Now:         d.opts.Now,
+		Quiet:       d.quietAt,
 	}
 	if h, err := os.Hostname(); err == nil {
 		ac.Host = h
@@ -219,6 +223,9 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	dispatch.Logger = d.log
 	dispatch.OnAttempt = d.metrics.delivery
 
+	if err := d.loadQuiet(ctx); err != nil {
+		return fmt.Errorf("quiet periods: %w", err)
+	}
 	for _, name := range order {
 		m := models[name]
 		if err := m.restore(ctx, d.store); err != nil {
@@ -502,7 +509,7 @@ func (d *Daemon) refreshLoop(ctx context.Context, every time.Duration) {
 			if ctx.Err() != nil {
 				return
 			}
-			if err := models[name].ref.refresh(ctx); err != nil && ctx.Err() == nil && !d.quiet(ctx, err) {
+			if err := models[name].ref.refresh(ctx); err != nil && ctx.Err() == nil && !d.outageLogged(ctx, err) {
 				models[name].log.Error("refresh", "err", err)
 			}
 		}
@@ -512,8 +519,14 @@ func (d *Daemon) refreshLoop(ctx context.Context, every time.Duration) {
 			d.mu.Unlock()
 			first = false
 		}
-		if err := d.alerts.Tick(ctx, d.opts.Now()); err != nil && ctx.Err() == nil && !d.quiet(ctx, err) {
+		if err := d.loadQuiet(ctx); err != nil && ctx.Err() == nil {
+			d.log.Error("quiet periods", "err", err)
+		}
+		if err := d.alerts.Tick(ctx, d.opts.Now()); err != nil && ctx.Err() == nil && !d.outageLogged(ctx, err) {
 			d.log.Error("alert tick", "err", err)
+		}
+		if err := d.summariseQuiet(ctx); err != nil && ctx.Err() == nil {
+			d.log.Error("quiet summary", "err", err)
 		}
 		d.metrics.alertsOpen(ctx, d.store)
 		select {
@@ -538,7 +551,7 @@ func (s sink) Deliver(ctx context.Context, b watcher.Batch) error {
 	// The batch is committed even if ctx is cancelled meanwhile: SIGTERM
 	// finishes the batch in hand.
 	if err := m.ingest(context.WithoutCancel(ctx), b); err != nil {
-		if !s.d.quiet(ctx, err) {
+		if !s.d.outageLogged(ctx, err) {
 			m.log.Error("ingest", "file", b.Path, "err", err)
 		}
 		return err

@@ -343,10 +343,10 @@ func (h *health) err() error {
 	return nil
 }
 
-// quiet reports whether err (from the store) is explained by an outage
+// outageLogged reports whether err (from the store) is explained by an outage
 // already logged, checking the server at once if none is known yet. The
-// pipeline logs store errors only when quiet is false.
-func (d *Daemon) quiet(ctx context.Context, err error) bool {
+// pipeline logs store errors only when outageLogged is false.
+func (d *Daemon) outageLogged(ctx context.Context, err error) bool {
 	if d.health == nil || err == nil || errors.Is(err, context.Canceled) {
 		return false
 	}

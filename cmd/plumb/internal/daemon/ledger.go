@@ -29,7 +29,14 @@ func (l ledger) PutAlert(ctx context.Context, a alerts.AlertRecord, ds []alerts.
 	for i, d := range ds {
 		out[i] = store.Delivery(d)
 	}
-	err := l.s.PutAlert(ctx, store.AlertRecord(a), out)
+	var err error
+	if ds, ok := l.s.(store.Decisions); ok {
+		// Every change of an alert's state goes into the audit trail in
+		// the same transaction (AlertAudit).
+		err = ds.PutAlertAudited(ctx, store.AlertRecord(a), out, AlertAudit)
+	} else {
+		err = l.s.PutAlert(ctx, store.AlertRecord(a), out)
+	}
 	if errors.Is(err, store.ErrChanged) {
 		return fmt.Errorf("%w: %w", alerts.ErrChanged, err)
 	}

@@ -197,7 +197,7 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 			if !o.Time.IsZero() {
 				t = o.Time.UnixNano()
 			}
-			m.appendRow(o.ID, o.Path, o.Line, o.Label, t, o.Values, arr, now)
+			m.appendRow(o.ID, o.Path, o.Line, o.Label, t, o.ArrivedAt.UnixNano(), o.Values, arr, now)
 			after = o.ID
 			if o.ArrivedAt.After(m.lastArrival) {
 				m.lastArrival = o.ArrivedAt
@@ -233,8 +233,8 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 	return nil
 }
 
-func (m *watchedModel) appendRow(id int64, path string, line int, label string, t int64, v []float64, arrival, current engine.Word) {
-	m.rows.add(id, path, line, label, t, v, arrival, current)
+func (m *watchedModel) appendRow(id int64, path string, line int, label string, t, arrived int64, v []float64, arrival, current engine.Word) {
+	m.rows.add(id, path, line, label, t, arrived, v, arrival, current)
 	m.rowsAccepted++
 }
 
@@ -347,7 +347,7 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 		if p.diag != nil {
 			arr = p.diag.Verdict
 		}
-		m.appendRow(ids[i], b.Path, p.rec.Line, p.label, p.t, p.vals, arr, arr)
+		m.appendRow(ids[i], b.Path, p.rec.Line, p.label, p.t, now.UnixNano(), p.vals, arr, arr)
 		if arr == engine.WordSuspect {
 			m.ref.pendingSuspects = append(m.ref.pendingSuspects, suspect{row: len(m.rows.ids) - 1, flags: p.diag.Flags})
 		}
@@ -451,6 +451,8 @@ func (m *watchedModel) windowArrival(batch []pending, p pending) (engine.Obs, []
 		}
 		all = all[:k]
 	}
+	// Readings set aside are not in the window's fit (as at refresh).
+	stored = m.ref.keepIncluded(stored)
 	n := len(stored) + len(all)
 	if n <= m.spec.P()+1 {
 		return engine.Obs{}, nil, n, false

@@ -31,6 +31,9 @@ type refresher struct {
 	pendingSuspects []suspect
 	baseline        *baseline
 	fits            int64 // fits recorded, this run and before
+	// dec is what the last refresh read of the model's recorded
+	// decisions (decide.go).
+	dec decisionState
 
 	// The latest refresh: the analysis of the window and the data
 	// indices it used, in fit order.
@@ -64,13 +67,18 @@ func (r *refresher) view() *view.Result {
 func (r *refresher) refresh(ctx context.Context) error {
 	m := r.m
 	start := time.Now()
+	if err := r.readDecisions(ctx); err != nil {
+		return err
+	}
 	m.mu.Lock()
 	if !r.dirty {
 		m.mu.Unlock()
 		return nil
 	}
 	r.dirty = false
-	win := m.rows.window(m.cfg.Window)
+	// Readings set aside are left out of everything computed below.
+	win := r.keepIncluded(m.rows.window(m.cfg.Window))
+	nAtCopy := m.rows.len()
 	cols := m.rows.copyRows(win, m.numeric())
 	lastID := int64(0)
 	if len(m.rows.ids) > 0 {
@@ -119,7 +127,12 @@ func (r *refresher) refresh(ctx context.Context) error {
 	// Suspects judged at arrival are reported only now that a fit stands:
 	// those that arrived while the model was blocked or not fittable
 	// waited for it, and are alerted as if judging had never stopped.
-	pendingSuspects := r.pendingSuspects
+	pendingSuspects := r.pendingSuspects[:0:0]
+	for _, sp := range r.pendingSuspects {
+		if !r.excludedRow(sp.row) { // set aside before its alert was sent
+			pendingSuspects = append(pendingSuspects, sp)
+		}
+	}
 	r.pendingSuspects = nil
 	var changes []store.VerdictChange
 	now := m.d.now()
@@ -188,6 +201,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 	m.mu.Lock()
 	r.res, r.window = res, win
 	r.fitAt, r.fitID, r.lastFitN = now, fitID, fit.N
+	r.reseedOnline(fit, nAtCopy)
 	r.fits++
 	r.refreshNs = time.Since(start).Nanoseconds()
 	if r.baseline == nil {
@@ -214,6 +228,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 	for _, sp := range pendingSuspects {
 		r.reportPoint(ctx, sp, top)
 	}
+	r.resolveByDecisions(ctx)
 	for _, row := range resolvedSuspects {
 		m.mu.Lock()
 		path, line, label := m.rows.path(row), m.rows.line(row), m.rows.name(row)
@@ -399,13 +414,11 @@ func (r *refresher) makeBaseline() *baseline {
 		}
 		return b
 	}
-	if len(m.rows.ids) < d.BaselineRows {
+	rows := r.baselineRows(d.BaselineRows)
+	if len(rows) < d.BaselineRows {
 		return nil
 	}
-	cols := make(map[string][]float64, len(m.rows.vals))
-	for j, c := range m.numeric() {
-		cols[c] = m.rows.vals[j][:d.BaselineRows]
-	}
+	cols := m.rows.copyRows(rows, m.numeric())
 	X, y, err := m.spec.Design(cols)
 	if err != nil {
 		return nil
@@ -414,7 +427,7 @@ func (r *refresher) makeBaseline() *baseline {
 	if err != nil {
 		return nil
 	}
-	b := &baseline{label: fmt.Sprintf("fit after the first %d rows", d.BaselineRows), terms: names, fit: f}
+	b := &baseline{label: r.baselineLabel(d.BaselineRows), terms: names, fit: f}
 	for _, c := range f.Coef {
 		b.est = append(b.est, c.Estimate)
 		b.se = append(b.se, c.StdError)

@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"time"
 
 	"plumb/alerts"
 	"plumb/cmd/plumb/internal/view"
@@ -90,6 +91,10 @@ func (m *watchedModel) summary(openAlerts int) view.ModelSummary {
 		Terms: m.spec.Names(), Predictors: m.cols, Rows: m.rowsAccepted, Quarantined: m.quarantined, Missing: m.missing,
 		Fits: m.ref.fits, LastFitAt: m.ref.fitAt, OpenAlerts: openAlerts, MaxCook: view.NaN(),
 	}
+	if until, ok := m.d.QuietUntil(m.cfg.Name); ok {
+		s.QuietUntil = until
+	}
+	s.SetAsideCount = len(m.ref.setAside())
 	if vr := m.ref.view(); vr != nil {
 		s.Fragility = m.fragView(vr)
 		s.MaxCook = vr.MaxCook()
@@ -117,8 +122,18 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 		return view.ModelDetail{}, err
 	}
 	d := view.ModelDetail{ModelSummary: m.summary(open[name]), Units: m.cfg.Units}
+	if ds := v.d.decisionStore(); ds != nil {
+		rbs, err := ds.Rebaselines(ctx, name)
+		if err != nil {
+			return view.ModelDetail{}, err
+		}
+		for _, r := range rbs {
+			d.Rebaselines = append(d.Rebaselines, rebaselineView(r))
+		}
+	}
 	m.mu.Lock()
 	defer m.mu.Unlock()
+	d.SetAside = m.setAsidePoints()
 	vr := m.ref.view()
 	if vr == nil {
 		return d, nil
@@ -235,6 +250,14 @@ func (v viewSource) Observations(ctx context.Context, name string, after int64, 
 	if err != nil {
 		return nil, err
 	}
+	var aside map[int64]store.Decision
+	if ds := v.d.decisionStore(); ds != nil {
+		dec, err := ds.Decisions(ctx, name)
+		if err != nil {
+			return nil, err
+		}
+		aside = store.ExcludedAt(dec, time.Time{})
+	}
 	out := make([]view.ObservationView, len(obs))
 	for i, o := range obs {
 		ov := view.ObservationView{ID: o.ID, File: o.Path, Generation: o.Generation, Line: o.Line, Raw: o.Raw, Label: o.Label,
@@ -248,6 +271,9 @@ func (v viewSource) Observations(ctx context.Context, name string, after int64, 
 		}
 		if w, ok := cur[o.ID]; ok {
 			ov.Verdict = string(w)
+		}
+		if d, ok := aside[o.ID]; ok {
+			ov.SetAside = setAsideOf(d)
 		}
 		out[i] = ov
 	}
@@ -299,11 +325,15 @@ func alertView(a store.AlertRecord) view.AlertView {
 		State: a.State, FirstSeen: a.FirstSeen, LastSeen: a.LastSeen, Doc: json.RawMessage(a.Doc)}
 	if doc, err := alerts.DecodeAlert([]byte(a.Doc)); err == nil {
 		av.Summary = doc.Summary
+		av.Held = doc.Held
 		if doc.Ack != nil {
 			av.Note, av.By = doc.Ack.Note, doc.Ack.By
 		}
 		if doc.Resolution != nil && doc.Resolution.Note != "" {
 			av.Note = doc.Resolution.Note
+		}
+		if doc.Resolution != nil && doc.Resolution.By != "" {
+			av.By = doc.Resolution.By
 		}
 	}
 	return av
@@ -327,6 +357,12 @@ func (v viewSource) Ack(ctx context.Context, id, note, who string) error {
 
 func (v viewSource) Resolve(ctx context.Context, id, note string) error {
 	_, err := v.d.alerts.Resolve(ctx, id, note)
+	return v.actionErr(id, err)
+}
+
+// ResolveBy resolves an alert naming who did (view.ResolverBy).
+func (v viewSource) ResolveBy(ctx context.Context, id, note, who string) error {
+	_, err := v.d.alerts.ResolveBy(ctx, id, note, who)
 	return v.actionErr(id, err)
 }
 

@@ -22,6 +22,10 @@ type Contents struct {
 	// newest Options.MaxQuarantine of them are listed, newest first, and
 	// the rest of Detail.Quarantined are counted.
 	Quarantine []view.QuarantineView
+	// Decisions are the exclusions and reinstatements recorded on the
+	// model's readings, oldest first (from a view.DecisionLister; none
+	// when the Source keeps no decisions).
+	Decisions []view.DecisionView
 }
 
 // collectAlerts is the most alerts Collect reads from a Source.
@@ -49,6 +53,11 @@ func Collect(ctx context.Context, src view.Source, model string, opts Options) (
 	}
 	if c.Quarantine, err = view.LatestQuarantine(ctx, src, model, opts.MaxQuarantine); err != nil {
 		return Contents{}, fmt.Errorf("report: quarantine of %s: %w", model, err)
+	}
+	if dl, ok := src.(view.DecisionLister); ok {
+		if c.Decisions, err = dl.Decisions(ctx, model); err != nil {
+			return Contents{}, fmt.Errorf("report: decisions of %s: %w", model, err)
+		}
 	}
 	return c, nil
 }

@@ -101,6 +101,7 @@ type pageData struct {
 	Alerts      []view.AlertView
 	FitCount    int
 	Quarantine  quarSection
+	Decisions   []view.DecisionView
 }
 
 // Write writes the model's report as one self-contained HTML document.
@@ -140,7 +141,7 @@ func Render(w io.Writer, c Contents, opts Options) error {
 			if _, thinned := view.ThinPoints(d.Points, MaxDrawn); thinned > 0 {
 				caption += fmt.Sprintf(" %d ordinary rows are not drawn (evenly thinned); every flagged row is.", thinned)
 			}
-			pd.Figures = append(pd.Figures, figure{ChartFit, caption, chart.Fit(d, predictor).HTML()})
+			pd.Figures = append(pd.Figures, figure{ChartFit, caption, chart.FitWithSetAside(d, predictor).HTML()})
 			pd.Figures = append(pd.Figures, deviationFigure(d, predictor))
 		}
 		pd.Figures = append(pd.Figures, figure{ChartInfluence, fmt.Sprintf(
@@ -152,6 +153,7 @@ func Render(w io.Writer, c Contents, opts Options) error {
 	}
 	for _, term := range d.Terms {
 		if s, ok := chart.History(fits, term, driftOf(d, term)); ok {
+			chart.RebaselineEvents(&s, fits, d.Rebaselines)
 			pd.History = append(pd.History, figure{chart.NameHistory, term, s.HTML()})
 		} // else the term is new or the history is empty
 	}
@@ -180,6 +182,7 @@ func Render(w io.Writer, c Contents, opts Options) error {
 	}
 	pd.Counts = strings.Join(parts, ", ")
 	pd.Quarantine = quarantineSection(d.Name, d.Quarantined, c.Quarantine, opts.MaxQuarantine)
+	pd.Decisions = c.Decisions
 	pd.Alerts = slices.Clone(alerts)
 	slices.SortStableFunc(pd.Alerts, func(a, b view.AlertView) int { return b.LastSeen.Compare(a.LastSeen) })
 	if err := page.Execute(w, pd); err != nil {
@@ -206,10 +209,11 @@ var page = template.Must(template.New("report").Funcs(template.FuncMap{
 		}
 		return strconv.FormatFloat(float64(v), 'g', 6, 64)
 	},
-	"when": when,
-	"join": strings.Join,
-	"xval": func(p view.Point, col string) view.Float { return p.X[col] },
-	"at":   func(s view.Suggestion) string { return chart.Settings(s.At) },
+	"when":  when,
+	"join":  strings.Join,
+	"xval":  func(p view.Point, col string) view.Float { return p.X[col] },
+	"sxval": func(p view.SetAsidePoint, col string) view.Float { return p.X[col] },
+	"at":    func(s view.Suggestion) string { return chart.Settings(s.At) },
 }).Parse(pageTemplate))
 
 const pageTemplate = `<!doctype html>
@@ -309,6 +313,23 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <p class="meta" data-quarantine-total="{{.Total}}" data-quarantine-more="{{.More}}">{{.Total}} row{{if ne .Total 1}}s{{end}} of this model could not be read; plumb keeps them aside, unchanged, and they are not in the fit. They are not listed in this report. The daemon's API lists every one, oldest first: <span class="m">GET {{.API}}</span>, then add <span class="m">&amp;after=</span> the last id of a page for the next.</p>
 {{else}}<p class="empty">No row of this model has been quarantined.</p>{{end}}
 {{end}}
+
+<h2 id="decisions">Decisions</h2>
+<p class="meta" data-decisions-caution>Decisions recorded by named staff after an alert. A reading set aside stays stored with its values and provenance, is drawn hollow and is left out of the fit, the drift check, fragility and suggestions from the refresh after the decision; plumb never deleted or altered a measurement. Decisions stay with qualified staff under local quality procedures and codes; the audit trail (<span class="m">plumb audit export</span>) holds who, when, why, before and after.</p>
+{{if .D.SetAside}}
+<table data-set-aside>
+<thead><tr><th>file:line</th>{{range .D.Predictors}}<th>{{.}}</th>{{end}}<th>{{.D.Response}}</th><th>set aside</th></tr></thead>
+<tbody>{{range $p := .D.SetAside}}<tr data-obs="{{.ID}}"><td class="m">{{.File}}:{{.Line}}</td>{{range $.D.Predictors}}<td class="n">{{num (sxval $p .)}}</td>{{end}}<td class="n">{{num .Y}}</td><td>{{.Note}}</td></tr>{{end}}</tbody>
+</table>
+{{else}}<p class="empty">No reading of this model is set aside.</p>{{end}}
+{{if .Decisions}}
+<table data-decisions>
+<thead><tr><th>when</th><th>decision</th><th>reading (obs id)</th><th>audit record</th></tr></thead>
+<tbody>{{range .Decisions}}<tr data-decision="{{.ID}}"><td>{{when .At}}</td><td>{{.Note}}</td><td class="m">{{.ObsID}}</td><td class="m">{{.AuditSeq}}</td></tr>{{end}}</tbody>
+</table>
+{{end}}
+{{if .D.Rebaselines}}<ul data-rebaselines>{{range .D.Rebaselines}}<li>{{.Note}} (recorded {{when .Recorded}}, audit record {{.AuditSeq}})</li>{{end}}</ul>
+{{else}}<p class="empty">No re-baseline recorded: the drift baseline is the model's first rows{{if .D.SetAside}} not set aside{{end}}.</p>{{end}}
 
 <h2>Fragility</h2>
 {{with .D.Fragility}}

@@ -168,6 +168,11 @@ type ModelSummary struct {
 	// MaxCook is the largest Cook's distance under the current fit (NaN
 	// before the first fit).
 	MaxCook Float `json:"max_cooks_distance"`
+	// QuietUntil is set while a quiet period holds the model's alert
+	// deliveries: when it ends.
+	QuietUntil time.Time `json:"quiet_until,omitzero"`
+	// SetAsideCount counts the readings set aside (left out of the fit).
+	SetAsideCount int `json:"set_aside,omitempty"`
 	// Owner is the daemon that runs the model when several share one
 	// store (nil otherwise). Remote is true for a model this daemon does
 	// not run: its summary is read from the shared history.
@@ -277,6 +282,11 @@ type ModelDetail struct {
 	// from the current fit (none when none are configured).
 	Predictions []Prediction `json:"predictions,omitempty"`
 	Inverse     []Inverse    `json:"inverse,omitempty"`
+	// SetAside are the readings set aside by a recorded decision: left
+	// out of the fit, shown hollow with who, when and why.
+	SetAside []SetAsidePoint `json:"set_aside_points,omitempty"`
+	// Rebaselines are the model's re-baseline events, oldest first.
+	Rebaselines []RebaselineView `json:"rebaselines,omitempty"`
 }
 
 // Curve returns the curve over predictor, or false.
@@ -454,6 +464,8 @@ type ObservationView struct {
 	Cook           Float  `json:"cooks_distance"`
 	// StudentizedExternal is the externally studentized residual at arrival.
 	StudentizedExternal Float `json:"studentized_external"`
+	// SetAside is set while the reading is set aside (left out of fits).
+	SetAside *SetAside `json:"set_aside,omitempty"`
 }
 
 // QuarantineView is a row that could not be read.
@@ -492,6 +504,9 @@ type AlertView struct {
 	// Note and By are the last acknowledgement's or resolution's note and person.
 	Note string `json:"note,omitempty"`
 	By   string `json:"by,omitempty"`
+	// Held is true when the alert's latest event was held by a quiet
+	// period (stored, not delivered; the period's summary names it).
+	Held bool `json:"held,omitempty"`
 	// Doc is the alert's full JSON document as the alerts package made it.
 	Doc json.RawMessage `json:"doc,omitempty"`
 }

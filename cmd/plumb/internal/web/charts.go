@@ -27,7 +27,7 @@ func verdictOr(v string) string {
 func modelCharts(mp *modelPage, md view.ModelDetail, fits []view.FitView, x string) {
 	if len(md.Points) > 0 {
 		if x != "" {
-			mp.FitSVG = chart.Fit(md, x).HTML()
+			mp.FitSVG = chart.FitWithSetAside(md, x).HTML()
 			mp.DevSVG = chart.Deviation(md, x).HTML()
 		}
 		mp.InflSVG = chart.Influence(md).HTML()
@@ -41,6 +41,7 @@ func modelCharts(mp *modelPage, md view.ModelDetail, fits []view.FitView, x stri
 			}
 		}
 		if s, ok := chart.History(fits, term, band); ok {
+			chart.RebaselineEvents(&s, fits, md.Rebaselines)
 			mp.History = append(mp.History, historyPanel{Term: term, SVG: s.HTML(), Drift: band})
 		}
 	}

@@ -60,6 +60,9 @@ var pages = template.Must(template.New("").Funcs(template.FuncMap{
 		return out
 	},
 	"xval":  func(p view.Point, col string) view.Float { return p.X[col] },
+	"sxval": func(p view.SetAsidePoint, col string) view.Float { return p.X[col] },
+	// rowOf is the file:line of a suspect-point alert's subject.
+	"rowOf": func(a view.AlertView) string { return strings.TrimPrefix(a.Subject, a.Model+"/") },
 	"atval": func(s view.Suggestion) string { return chart.Settings(s.At) },
 }).ParseFS(assets, "assets/*.html"))
 
@@ -88,6 +91,9 @@ type pageData struct {
 	Title     string
 	Caution   string
 	NeedToken bool
+	// Acting says who the server takes the caller for ("r.okafor
+	// (reviewer)"); the page's script refines it with the token typed in.
+	Acting    string
 	RefreshMS int64
 	Version   string
 	Now       time.Time
@@ -120,6 +126,14 @@ type modelPage struct {
 	Alerts     []view.AlertView
 	Quarantine []view.QuarantineView // the latest, newest first
 	Counts     map[string]int
+	// Quiet are the quiet periods of the model (and of all models) not
+	// yet over, with whether each is in force now.
+	Quiet []quietRow
+}
+
+type quietRow struct {
+	view.QuietView
+	Now bool
 }
 
 type historyPanel struct {
@@ -132,12 +146,15 @@ func (s *server) base(ctx context.Context, page, title string) pageData {
 	v, _ := s.version(ctx)
 	return pageData{
 		Page: page, Title: title, Caution: view.Caution,
-		NeedToken: s.opts.Token != "", RefreshMS: s.opts.Refresh.Milliseconds(),
+		NeedToken: s.opts.Token != "" || !s.gate.Open(), RefreshMS: s.opts.Refresh.Milliseconds(),
 		Version: v, Now: time.Now().UTC(),
 	}
 }
 
 func (s *server) render(w http.ResponseWriter, r *http.Request, status int, d pageData) {
+	if u, err := s.gate.Identify(r); err == nil {
+		d.Acting = acting(u)
+	}
 	var buf bytes.Buffer
 	if err := pages.ExecuteTemplate(&buf, "layout", d); err != nil {
 		s.log.Error("render page", "page", d.Page, "err", err)
@@ -212,6 +229,19 @@ func (s *server) pageModel(w http.ResponseWriter, r *http.Request) {
 	}
 	mp := buildModelPage(md, fits, r.URL.Query().Get("x"))
 	mp.Alerts = als
+	if dc, ok := s.src.(view.Decider); ok {
+		qs, err := dc.QuietPeriods(ctx)
+		if err != nil {
+			s.pageError(w, r, err)
+			return
+		}
+		now := time.Now()
+		for _, q := range qs {
+			if (q.Model == "" || q.Model == name) && q.End.After(now) {
+				mp.Quiet = append(mp.Quiet, quietRow{q, !q.Start.After(now)})
+			}
+		}
+	}
 	slices.Reverse(quar) // newest first
 	mp.Quarantine = quar
 	d := s.base(ctx, "model", name)

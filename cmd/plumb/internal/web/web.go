@@ -22,6 +22,13 @@
 //	GET  /api/v1/alerts/{id}                    one alert
 //	POST /api/v1/alerts/{id}/ack                {"note","by"} -> the alert
 //	POST /api/v1/alerts/{id}/resolve            {"note"} -> the alert
+//	GET  /api/v1/whoami                         the caller as the gate sees it
+//	POST /api/v1/models/{name}/exclude          {"obs"|"row","reason","alert"} (reviewer) -> the decision
+//	POST /api/v1/models/{name}/reinstate        {"obs"|"row","reason"} (reviewer) -> the decision
+//	POST /api/v1/models/{name}/rebaseline       {"from","reason"} (reviewer) -> the event
+//	GET  /api/v1/quiet                          quiet periods
+//	POST /api/v1/quiet                          {"model","start","end","reason"} (operator) -> the period
+//	POST /api/v1/quiet/{id}/end                 {"reason"} (operator) -> the period
 //	GET  /                                      dashboard: all models
 //	GET  /models/{name}                         one model's charts   ?x=predictor
 //	GET  /alerts                                alert list with actions ?state=
@@ -32,13 +39,18 @@
 //
 // # Who may act
 //
-// Acknowledging and resolving change the alert ledger. With Options.Token
-// set, they need "Authorization: Bearer <token>" (compared in constant
-// time); without a token they are refused (403) unless the request comes
-// from a loopback address and names a loopback host (localhost, 127.0.0.1,
-// [::1]). Either way they are refused when a browser says the request is
-// cross-origin, and a body must be JSON. Behind a reverse proxy on the
-// same machine every request looks local: configure a token there.
+// Every action goes through Options.Gate (package access): named users
+// with their own bearer tokens and roles, a trusted proxy's header, or the
+// shared token (Options.Token, an operator). Acknowledging, resolving and
+// quiet periods need an operator; setting a reading aside, reinstating it
+// and re-baselining need a reviewer (an operator gets 403, a caller
+// without credentials 401). With nothing configured, actions are refused
+// (403) unless the request comes from a loopback address and names a
+// loopback host (localhost, 127.0.0.1, [::1]). Either way they are refused
+// when a browser says the request is cross-origin, and a body must be
+// JSON. Behind a reverse proxy on the same machine every request looks
+// local: configure users or a token there. The answer to a decision is
+// sent only after it and its audit record are committed.
 //
 // Every page carries view.Caution.
 package web
@@ -62,6 +74,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/promhttp"
 
+	"plumb/cmd/plumb/internal/access"
 	"plumb/cmd/plumb/internal/view"
 )
 
@@ -85,6 +98,9 @@ type Options struct {
 	Timeout time.Duration
 	// Refresh is how often the dashboard polls for changes (0: 3 s).
 	Refresh time.Duration
+	// Gate identifies callers and checks their roles (named users, the
+	// trusted proxy). nil means a gate over Token alone.
+	Gate *access.Gate
 }
 
 type server struct {
@@ -92,6 +108,7 @@ type server struct {
 	opts Options
 	log  *slog.Logger
 	csrf *http.CrossOriginProtection
+	gate *access.Gate
 }
 
 // New returns the handler serving the API, /metrics and the dashboard.
@@ -102,9 +119,16 @@ func New(src view.Source, opts Options) http.Handler {
 	if opts.Refresh <= 0 {
 		opts.Refresh = 3 * time.Second
 	}
-	s := &server{src: src, opts: opts, log: opts.Logger, csrf: http.NewCrossOriginProtection()}
+	s := &server{src: src, opts: opts, log: opts.Logger, csrf: http.NewCrossOriginProtection(), gate: opts.Gate}
 	if s.log == nil {
 		s.log = slog.New(slog.DiscardHandler)
+	}
+	if s.gate == nil {
+		g, err := access.New(access.Config{SharedToken: opts.Token})
+		if err != nil {
+			panic("web: " + err.Error()) // a shared token alone is always valid
+		}
+		s.gate = g
 	}
 	mux := http.NewServeMux()
 	mux.HandleFunc("GET /healthz", s.healthz)
@@ -133,8 +157,9 @@ func New(src view.Source, opts Options) http.Handler {
 	api("GET", "/api/v1/quarantine", s.apiQuarantine)
 	api("GET", "/api/v1/alerts", s.apiAlerts)
 	api("GET", "/api/v1/alerts/{id}", s.apiAlert)
-	api("POST", "/api/v1/alerts/{id}/ack", s.guard(s.apiAck))
-	api("POST", "/api/v1/alerts/{id}/resolve", s.guard(s.apiResolve))
+	api("POST", "/api/v1/alerts/{id}/ack", s.apiAck)
+	api("POST", "/api/v1/alerts/{id}/resolve", s.apiResolve)
+	s.routeDecisions(mux, api)
 	mux.HandleFunc("/api/", func(w http.ResponseWriter, r *http.Request) {
 		s.fail(w, r, http.StatusNotFound, fmt.Errorf("no such endpoint: %s %s", r.Method, r.URL.Path))
 	})
@@ -466,29 +491,6 @@ func (s *server) apiAlert(w http.ResponseWriter, r *http.Request) {
 
 // ---- actions ----
 
-// guard admits an action: cross-origin browser requests are refused; with
-// a token the bearer must match; without one the peer must be loopback.
-func (s *server) guard(next http.HandlerFunc) http.HandlerFunc {
-	return func(w http.ResponseWriter, r *http.Request) {
-		if err := s.csrf.Check(r); err != nil {
-			s.fail(w, r, http.StatusForbidden, errors.New("cross-origin request refused"))
-			return
-		}
-		if s.opts.Token != "" {
-			got, ok := strings.CutPrefix(r.Header.Get("Authorization"), "Bearer ")
-			if !ok || !tokenEqual(strings.TrimSpace(got), s.opts.Token) {
-				w.Header().Set("WWW-Authenticate", `Bearer realm="plumb"`)
-				s.fail(w, r, http.StatusUnauthorized, errors.New("a valid bearer token is needed to change an alert"))
-				return
-			}
-		} else if !loopback(r.RemoteAddr) || !loopbackHost(r.Host) {
-			s.fail(w, r, http.StatusForbidden, errors.New("no token is configured, so alerts can be changed only from this host (loopback)"))
-			return
-		}
-		next(w, r)
-	}
-}
-
 // tokenEqual compares in constant time, also in the length, by comparing
 // digests.
 func tokenEqual(got, want string) bool {
@@ -547,22 +549,44 @@ func readAction(r *http.Request) (actionBody, error) {
 	return b, nil
 }
 
+// actor names who acts: the named user the gate identified; for the
+// shared token or the loopback rule, the "by" of the body when given.
+func actor(u access.User, by string) string {
+	if (u.Via == "shared token" || u.Via == "local") && strings.TrimSpace(by) != "" {
+		return strings.TrimSpace(by)
+	}
+	return u.Name
+}
+
 func (s *server) apiAck(w http.ResponseWriter, r *http.Request) {
+	u, ok := s.authorize(w, r, access.Acknowledge)
+	if !ok {
+		return
+	}
 	b, err := readAction(r)
 	if err != nil {
 		s.fail(w, r, http.StatusBadRequest, err)
 		return
 	}
-	s.act(w, r, func(ctx context.Context, id string) error { return s.src.Ack(ctx, id, b.Note, b.By) })
+	s.act(w, r, func(ctx context.Context, id string) error { return s.src.Ack(ctx, id, b.Note, actor(u, b.By)) })
 }
 
 func (s *server) apiResolve(w http.ResponseWriter, r *http.Request) {
+	u, ok := s.authorize(w, r, access.Resolve)
+	if !ok {
+		return
+	}
 	b, err := readAction(r)
 	if err != nil {
 		s.fail(w, r, http.StatusBadRequest, err)
 		return
 	}
-	s.act(w, r, func(ctx context.Context, id string) error { return s.src.Resolve(ctx, id, b.Note) })
+	s.act(w, r, func(ctx context.Context, id string) error {
+		if rb, ok := s.src.(view.ResolverBy); ok {
+			return rb.ResolveBy(ctx, id, b.Note, actor(u, b.By))
+		}
+		return s.src.Resolve(ctx, id, b.Note)
+	})
 }
 
 func (s *server) act(w http.ResponseWriter, r *http.Request, do func(ctx context.Context, id string) error) {

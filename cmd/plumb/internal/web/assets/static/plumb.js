@@ -73,6 +73,86 @@
   }
   setTimeout(poll, refresh);
 
+  function authHeaders() {
+    var headers = { "Content-Type": "application/json" };
+    var token = tokenEl ? tokenEl.value.trim() : "";
+    if (token) headers["Authorization"] = "Bearer " + token;
+    return headers;
+  }
+
+  // acting shows who plumb takes the caller for, with the token typed in.
+  var actingEl = document.getElementById("acting");
+  function whoami() {
+    if (!actingEl) return;
+    fetch("/api/v1/whoami", { headers: authHeaders(), cache: "no-store" })
+      .then(function (r) { return r.ok ? r.json() : null; })
+      .then(function (u) {
+        if (u) actingEl.textContent = "acting as " + (u.name || "anonymous") + " (" + u.role + ")";
+      })
+      .catch(function () { /* keep the server's word */ });
+  }
+  whoami();
+  if (tokenEl) tokenEl.addEventListener("change", whoami);
+
+  // utc reads a datetime-local input as UTC ("" when empty).
+  function utc(v) { return v ? v + (v.length === 16 ? ":00Z" : "Z") : ""; }
+
+  // Decisions: set aside, reinstate, re-baseline, quiet period. The
+  // answer comes once the decision is committed.
+  document.addEventListener("click", function (ev) {
+    var btn = ev.target.closest && ev.target.closest("button[data-decide]");
+    if (!btn) return;
+    ev.preventDefault();
+    ev.stopPropagation();
+    var act = btn.dataset.decide;
+    var model = btn.dataset.model;
+    var form = btn.closest("form");
+    var reason = form && form.elements.note ? form.elements.note.value.trim() : "";
+    var body = { reason: reason };
+    var url = "/api/v1/models/" + encodeURIComponent(model) + "/" + act;
+    if (btn.dataset.obs) body.obs = parseInt(btn.dataset.obs, 10);
+    if (btn.dataset.row) body.row = btn.dataset.row;
+    if (btn.dataset.alert) body.alert = btn.dataset.alert;
+    if (act === "rebaseline" && form.elements.from && form.elements.from.value) body.from = utc(form.elements.from.value);
+    if (act === "quiet") {
+      url = "/api/v1/quiet";
+      body.model = model;
+      body.end = form.elements.end ? utc(form.elements.end.value) : "";
+      if (form.elements.start && form.elements.start.value) body.start = utc(form.elements.start.value);
+    }
+    if (act === "end-quiet") url = "/api/v1/quiet/" + encodeURIComponent(btn.dataset.id) + "/end";
+    if (!reason) {
+      say("A reason is required: type it in the box beside the button.", true);
+      if (form && form.elements.note) form.elements.note.focus();
+      return;
+    }
+    busy = true;
+    btn.disabled = true;
+    fetch(url, { method: "POST", headers: authHeaders(), body: JSON.stringify(body) })
+      .then(function (r) {
+        return r.json().then(function (j) { return { ok: r.ok, status: r.status, body: j }; });
+      })
+      .then(function (res) {
+        if (!res.ok) {
+          if (res.status === 401) {
+            document.querySelector(".tok").classList.remove("hidden");
+            tokenEl.focus();
+          }
+          say(btn.textContent + " refused: " + (res.body.error || res.status), true);
+          btn.disabled = false;
+          return;
+        }
+        say(res.body.note || (btn.textContent + " recorded."), false);
+        if (document.activeElement) document.activeElement.blur();
+        return reload();
+      })
+      .catch(function (e) {
+        say("Could not reach plumb: " + e.message, true);
+        btn.disabled = false;
+      })
+      .finally(function () { busy = false; });
+  });
+
   document.addEventListener("click", function (ev) {
     var btn = ev.target.closest && ev.target.closest("button[data-act]");
     if (!btn) return;
