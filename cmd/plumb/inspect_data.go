@@ -90,7 +90,7 @@ type inspectData struct {
 	// missingCols counts the missing rows by the first column found
 	// missing in them, in the order of names.
 	missingCols []int
-	leftOut  []leftOutRow // rows the --leave-out list names
+	leftOut     []leftOutRow // rows the --leave-out list names
 }
 
 // readSpec is what every part's decoder reads: the numeric columns, the
