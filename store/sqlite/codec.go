@@ -26,10 +26,18 @@ func encTime(t time.Time) (any, error) {
 	if t.IsZero() {
 		return nil, nil
 	}
-	if t.Before(minTime) || t.After(maxTime) {
-		return nil, fmt.Errorf("time %s outside the storable range %d..%d", t.Format(time.RFC3339Nano), minTime.Year(), maxTime.Year())
+	if err := checkTime(t); err != nil {
+		return nil, err
 	}
 	return t.UnixNano(), nil
+}
+
+// checkTime returns an error for a time that int64 nanoseconds cannot hold.
+func checkTime(t time.Time) error {
+	if t.Before(minTime) || t.After(maxTime) {
+		return fmt.Errorf("time %s outside the storable range %d..%d", t.Format(time.RFC3339Nano), minTime.Year(), maxTime.Year())
+	}
+	return nil
 }
 
 // decTime is the inverse of encTime; times come back in UTC.
