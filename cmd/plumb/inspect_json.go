@@ -281,15 +281,18 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 	for j, n := range r.names {
 		qnames[j], _ = json.Marshal(n)
 	}
-	var buf []byte
-	for i := range r.Influence.Rows {
-		buf = buf[:0]
-		if i > 0 {
-			buf = append(buf, ',')
+	rows := func(dst []byte, lo, hi int) []byte {
+		for i := lo; i < hi; i++ {
+			if i > 0 {
+				dst = append(dst, ',')
+			}
+			dst = append(dst, "\n    "...)
+			dst = r.appendJSONRow(dst, i, qnames)
 		}
-		buf = append(buf, "\n    "...)
-		buf = r.appendJSONRow(buf, i, qnames)
-		bw.Write(buf)
+		return dst
+	}
+	if err := writeRowBlocks(bw, len(r.Influence.Rows), 40*(len(r.names)+12), rows); err != nil {
+		return err
 	}
 	if len(r.Influence.Rows) > 0 {
 		bw.WriteString("\n  ")

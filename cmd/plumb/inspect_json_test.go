@@ -1,11 +1,14 @@
 package main
 
 import (
+	"bufio"
+	"bytes"
 	"encoding/csv"
 	"encoding/json"
 	"math"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"testing"
 )
@@ -268,5 +271,48 @@ func TestInspectLeverageOne(t *testing.T) {
 	}
 	if !strings.Contains(out, "undefined") {
 		t.Errorf("table does not say the measures of row 5 are undefined:\n%s", out)
+	}
+}
+
+// TestInspectJSONRowBlocks checks that the json rows, formatted in blocks
+// on every core, come out as one worker writes them, over several blocks,
+// and make one valid document with every row in order.
+func TestInspectJSONRowBlocks(t *testing.T) {
+	var big bytes.Buffer
+	bw := bufio.NewWriter(&big)
+	const rows = 3*csvChunk + 17
+	writeBenchCSV(bw, rows, 5)
+	bw.Flush()
+	file := filepath.Join(t.TempDir(), "big.csv")
+	if err := os.WriteFile(file, big.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	args := append([]string{"inspect", file}, benchArgs...)
+	args[len(args)-1] = "json"
+	par, _, code := runPlumb(t, "", args...)
+	if code != 0 {
+		t.Fatalf("exit code %d", code)
+	}
+	prev := runtime.GOMAXPROCS(1)
+	seq, _, _ := runPlumb(t, "", args...)
+	runtime.GOMAXPROCS(prev)
+	if par != seq {
+		t.Errorf("parallel json output differs from single-worker output:\n%s", firstDiff(par, seq))
+	}
+	var doc struct {
+		Rows []struct {
+			Row int `json:"row"`
+		} `json:"rows"`
+	}
+	if err := json.Unmarshal([]byte(par), &doc); err != nil {
+		t.Fatal(err)
+	}
+	if len(doc.Rows) != rows {
+		t.Fatalf("%d rows, want %d", len(doc.Rows), rows)
+	}
+	for i, r := range doc.Rows {
+		if r.Row != i+1 {
+			t.Fatalf("row %d: row field %d", i, r.Row)
+		}
 	}
 }
