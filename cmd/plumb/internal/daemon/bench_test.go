@@ -336,3 +336,50 @@ func processCPU() time.Duration {
 	}
 	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
+
+// TestIngestAllocsPerRow bounds the garbage of the whole ingest path (one
+// model, p = 3, batches of 1,000 judged rows committed with their read
+// position): the goal is at most 5 allocations a row; what is left is per
+// batch and per statement.
+func TestIngestAllocsPerRow(t *testing.T) {
+	if testing.Short() {
+		t.Skip("ingests 16,000 rows")
+	}
+	const size = 1000
+	batches := benchBatches(t, "m", 16, size)
+	dir := t.TempDir()
+	c := testConfig(t, dir, `
+[[model]]
+name = "m"
+folder = "in"
+response = "y"
+terms = ["x", "x^2"]
+`)
+	d, err := New(context.Background(), c, Options{Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer d.Close()
+	s := sink{d}
+	ctx := context.Background()
+	for _, bt := range batches[:5] { // past min_rows: every later row is judged
+		if err := s.Deliver(ctx, bt); err != nil {
+			t.Fatal(err)
+		}
+	}
+	next := 5
+	allocs := testing.AllocsPerRun(10, func() {
+		if err := s.Deliver(ctx, batches[next]); err != nil {
+			t.Fatal(err)
+		}
+		next++
+	})
+	if got := count(t, d.store, "m"); got != int64(next*size) {
+		t.Fatalf("%d rows stored, want %d", got, next*size)
+	}
+	perRow := allocs / size
+	t.Logf("%.0f allocations per batch of %d rows, %.2f per row", allocs, size, perRow)
+	if perRow > 5 {
+		t.Errorf("%.2f allocations per row, want at most 5", perRow)
+	}
+}
