@@ -39,21 +39,21 @@ func (r rejectedRow) where() string {
 // inspectData is the usable part of the file: one slice per column the
 // model reads, with each kept row's data-row number, line and raw text.
 type inspectData struct {
-	file     string
-	header   []string
-	names    []string // selected columns: response first, then predictors
-	cols     map[string][]float64
-	vals     [][]float64 // the same columns, in the order of names
-	rowNo    []int
-	line     []int
-	buf      []byte // the whole file, to find a field of a rejected row
-	starts   []int  // byte offset of each line's start, built on first use
+	file   string
+	header []string
+	names  []string // selected columns: response first, then predictors
+	cols   map[string][]float64
+	vals   [][]float64 // the same columns, in the order of names
+	rowNo  []int
+	line   []int
+	buf    []byte // the whole file, to find a field of a rejected row
+	starts []int  // byte offset of each line's start, built on first use
 	// reread is the regular file buf came from, and size its length:
 	// once loaded, buf is let go (on 1e7 rows it is a sixth of the peak
 	// memory) and read again only if a row is set aside later.
-	reread string
-	size   int
-	total    int    // data rows in the file, good and bad
+	reread   string
+	size     int
+	total    int // data rows in the file, good and bad
 	rejected []rejectedRow
 }
 

@@ -11,6 +11,8 @@ import (
 	"runtime"
 	"strings"
 	"testing"
+
+	"plumb/engine"
 )
 
 // inspectJSON is the part of the JSON report the tests read.
@@ -315,4 +317,55 @@ func TestInspectJSONRowBlocks(t *testing.T) {
 			t.Fatalf("row %d: row field %d", i, r.Row)
 		}
 	}
+}
+
+// jsonStringCases are strings encoding/json writes as they are and
+// strings it escapes or repairs.
+var jsonStringCases = []string{
+	"", "leverage", "size_adjusted", "x^2", "log(x)*z", `"flow rate (l/min)"`, "a<b", "a>b", "a&b",
+	"tab\there", "nl\n", "a\\b", "é", "DFBETAS for x is 2.042, beyond ±0.3651 (size-adjusted cutoff)",
+	"\u2028", "x\u2029y", "bad\xffutf8", "\x7f", "日本",
+}
+
+// TestAppendJSONString checks the hand-written string writer, and the
+// flag words built in place, against encoding/json.
+func TestAppendJSONString(t *testing.T) {
+	for _, s := range jsonStringCases {
+		want, _ := json.Marshal(s)
+		if got := appendJSONString([]byte("x"), s); string(got) != "x"+string(want) {
+			t.Errorf("appendJSONString(%q) = %s, want %s", s, got[1:], want)
+		}
+		fl := engine.Flag{Measure: engine.MeasureDFBETAS, Family: engine.FamilySizeAdjusted, Term: s, Value: 2.5, Cutoff: 0.3}
+		want, _ = json.Marshal(flagWords(fl))
+		if got := appendJSONFlagWords([]byte("x"), fl); string(got) != "x"+string(want) {
+			t.Errorf("flag words for term %q: %s, want %s", s, got[1:], want)
+		}
+	}
+}
+
+// BenchmarkJSONString compares the hand-written string writer with
+// json.Marshal on the strings of the json rows (measure, family and flag
+// words).
+func BenchmarkJSONString(b *testing.B) {
+	strs := []string{engine.MeasureDFBETAS, engine.FamilySizeAdjusted, "emf_mv^2",
+		"DFBETAS for emf_mv is 2.042, beyond ±0.3651 (size-adjusted cutoff)"}
+	b.Run("append", func(b *testing.B) {
+		b.ReportAllocs()
+		var dst []byte
+		for b.Loop() {
+			for _, s := range strs {
+				dst = appendJSONString(dst[:0], s)
+			}
+		}
+	})
+	b.Run("marshal", func(b *testing.B) {
+		b.ReportAllocs()
+		var dst []byte
+		for b.Loop() {
+			for _, s := range strs {
+				m, _ := json.Marshal(s)
+				dst = append(dst[:0], m...)
+			}
+		}
+	})
 }
