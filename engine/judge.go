@@ -208,7 +208,20 @@ func Judge(inf *Influence, c Cutoffs) []Verdict {
 // floor (the quantile's inverse incomplete beta dominates the cost of
 // judging one arriving row).
 func newJudge(f *Fit, c Cutoffs, rows []Obs) *judge {
-	n, p := f.N, f.P
+	j := &judge{}
+	j.init(c, f.N, f.P, f.Model.Names(), rows)
+	if c.Test == GrubbsTest {
+		j.gr = Grubbs(f.WeightedResiduals(), c.Alpha)
+		if j.gr.Outlier {
+			j.grubbsRow = j.gr.Index
+		}
+	}
+	return j
+}
+
+// init sets the cutoffs for a fit of n rows and p coefficients named
+// names, skipping the F quantile as newJudge says when rows are given.
+func (j *judge) init(c Cutoffs, n, p int, names []string, rows []Obs) {
 	var lim Limits
 	if c.Cook == CookFMedian && rows != nil && !anyCookAbove(rows, fMedianFloor) {
 		c1 := c
@@ -218,17 +231,10 @@ func newJudge(f *Fit, c Cutoffs, rows []Obs) *judge {
 	} else {
 		lim = CutoffLimits(c, n, p)
 	}
-	j := &judge{lim: lim, names: f.Model.Names(), c: c, grubbsRow: -1, p: p}
+	*j = judge{lim: lim, names: names, c: c, grubbsRow: -1, p: p}
 	j.minCook = math.Min(j.lim.CookAbsolute, j.lim.CookSize)
 	j.minDFFITS = math.Min(j.lim.DFFITSAbsolute, j.lim.DFFITSSize)
 	j.minDFBETAS = math.Min(j.lim.DFBETASAbsolute, j.lim.DFBETASSize)
-	if c.Test == GrubbsTest {
-		j.gr = Grubbs(f.WeightedResiduals(), c.Alpha)
-		if j.gr.Outlier {
-			j.grubbsRow = j.gr.Index
-		}
-	}
-	return j
 }
 
 // chunk judges rows [lo, hi) of inf into out.

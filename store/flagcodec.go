@@ -25,16 +25,7 @@ type flagJSON struct {
 type flagValue float64
 
 func (v flagValue) MarshalJSON() ([]byte, error) {
-	x := float64(v)
-	switch {
-	case math.IsNaN(x):
-		return []byte("null"), nil
-	case math.IsInf(x, 1):
-		return []byte(`"+Inf"`), nil
-	case math.IsInf(x, -1):
-		return []byte(`"-Inf"`), nil
-	}
-	return strconv.AppendFloat(nil, x, 'g', -1, 64), nil
+	return appendFlagValue(nil, float64(v)), nil
 }
 
 func (v *flagValue) UnmarshalJSON(b []byte) error {
@@ -85,4 +76,67 @@ func DecodeFlags(s string) ([]engine.Flag, error) {
 		out[i] = engine.Flag{Measure: f.Measure, Family: f.Family, Term: f.Term, Value: float64(f.Value), Cutoff: float64(f.Cutoff)}
 	}
 	return out, nil
+}
+
+// AppendFlags appends the text EncodeFlags returns for fs to dst, byte for
+// byte the same, without building the JSON through reflection: the ingest
+// path writes it for every judged row.
+func AppendFlags(dst []byte, fs []engine.Flag) []byte {
+	for _, f := range fs {
+		if !plainJSON(f.Measure) || !plainJSON(f.Family) || !plainJSON(f.Term) {
+			// A name that needs escaping: let encoding/json escape it.
+			s, err := EncodeFlags(fs)
+			if err != nil {
+				panic(err) // flagJSON always encodes
+			}
+			return append(dst, s...)
+		}
+	}
+	dst = append(dst, '[')
+	for i, f := range fs {
+		if i > 0 {
+			dst = append(dst, ',')
+		}
+		dst = append(dst, `{"measure":"`...)
+		dst = append(dst, f.Measure...)
+		dst = append(dst, `","family":"`...)
+		dst = append(dst, f.Family...)
+		dst = append(dst, '"')
+		if f.Term != "" {
+			dst = append(dst, `,"term":"`...)
+			dst = append(dst, f.Term...)
+			dst = append(dst, '"')
+		}
+		dst = append(dst, `,"value":`...)
+		dst = appendFlagValue(dst, f.Value)
+		dst = append(dst, `,"cutoff":`...)
+		dst = appendFlagValue(dst, f.Cutoff)
+		dst = append(dst, '}')
+	}
+	return append(dst, ']')
+}
+
+// plainJSON reports whether encoding/json writes s between quotes as it
+// is: printable ASCII without the characters it escapes.
+func plainJSON(s string) bool {
+	for i := 0; i < len(s); i++ {
+		c := s[i]
+		if c < 0x20 || c > 0x7e || c == '"' || c == '\\' || c == '<' || c == '>' || c == '&' {
+			return false
+		}
+	}
+	return true
+}
+
+// appendFlagValue appends what flagValue.MarshalJSON returns.
+func appendFlagValue(dst []byte, x float64) []byte {
+	switch {
+	case math.IsNaN(x):
+		return append(dst, "null"...)
+	case math.IsInf(x, 1):
+		return append(dst, `"+Inf"`...)
+	case math.IsInf(x, -1):
+		return append(dst, `"-Inf"`...)
+	}
+	return strconv.AppendFloat(dst, x, 'g', -1, 64)
 }

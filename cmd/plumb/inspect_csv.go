@@ -136,22 +136,34 @@ func (r *inspectResult) appendFlagList(dst []byte, flags []engine.Flag) []byte {
 	return appendCSVField(dst[:start], s)
 }
 
-// writeInspectCSV writes the csv format. Rows are formatted in chunks by
-// GOMAXPROCS workers and written in order through one bufio.Writer; no
+// writeInspectCSV writes the csv format through writeRowBlocks; no
 // allocation happens per field.
 func writeInspectCSV(w io.Writer, r *inspectResult) error {
 	bw := bufio.NewWriterSize(w, 1<<16)
 	bw.Write(r.csvHeader())
-	n := len(r.Influence.Rows)
+	if err := writeRowBlocks(bw, len(r.Influence.Rows), 20*(len(r.names)+12), r.appendCSVRows); err != nil {
+		return err
+	}
+	return bw.Flush()
+}
+
+// writeRowBlocks writes the text of rows [0, n) to bw in order. The rows
+// are formatted in blocks of csvChunk rows by GOMAXPROCS workers, each
+// block by format(dst, lo, hi), which appends rows [lo, hi) to dst;
+// rowBytes is a guess of one row's length. Only a few blocks are held at
+// a time, so the output is streamed whatever the number of rows.
+func writeRowBlocks(bw *bufio.Writer, n, rowBytes int, format func(dst []byte, lo, hi int) []byte) error {
 	chunks := (n + csvChunk - 1) / csvChunk
 	workers := min(runtime.GOMAXPROCS(0), chunks)
 	if workers <= 1 {
 		buf := make([]byte, 0, 64*1024)
 		for lo := 0; lo < n; lo += csvChunk {
-			buf = r.appendCSVRows(buf[:0], lo, min(lo+csvChunk, n))
-			bw.Write(buf)
+			buf = format(buf[:0], lo, min(lo+csvChunk, n))
+			if _, err := bw.Write(buf); err != nil {
+				return err
+			}
 		}
-		return bw.Flush()
+		return nil
 	}
 	// At most inFlight chunks are formatted but not yet written; chunks are
 	// claimed in order, so the one the writer waits for is always being
@@ -163,7 +175,7 @@ func writeInspectCSV(w io.Writer, r *inspectResult) error {
 	}
 	free := make(chan []byte, inFlight)
 	for i := 0; i < inFlight; i++ {
-		free <- make([]byte, 0, csvChunk*(20*(len(r.names)+12)))
+		free <- make([]byte, 0, csvChunk*rowBytes)
 	}
 	var next atomic.Int64
 	var wg sync.WaitGroup
@@ -181,7 +193,7 @@ func writeInspectCSV(w io.Writer, r *inspectResult) error {
 					return
 				}
 				lo := c * csvChunk
-				done[c] <- r.appendCSVRows(buf[:0], lo, min(lo+csvChunk, n))
+				done[c] <- format(buf[:0], lo, min(lo+csvChunk, n))
 			}
 		}()
 	}
@@ -195,8 +207,5 @@ func writeInspectCSV(w io.Writer, r *inspectResult) error {
 	}
 	close(free)
 	wg.Wait()
-	if werr != nil {
-		return werr
-	}
-	return bw.Flush()
+	return werr
 }

@@ -3,6 +3,8 @@ package main
 import (
 	"encoding/json"
 	"math/rand/v2"
+	"os"
+	"path/filepath"
 	"runtime"
 	"strconv"
 	"strings"
@@ -174,4 +176,43 @@ func inspectStdinJSON(t *testing.T, csvText string, args ...string) inspectJSON 
 		t.Fatal(err)
 	}
 	return got
+}
+
+// TestInspectDesignRejectAfterLoad sets aside a row whose value the design
+// cannot take (x^2 overflows), found after loading, when the file's bytes
+// have been let go: the row is still named by line and byte column, read
+// again from the file, as from standard input, where they are kept.
+func TestInspectDesignRejectAfterLoad(t *testing.T) {
+	data := "id,x,y\n1,1,2\n2,2,4.1\n3,1e200,5\n4,3,6.2\n5,4,7.9\n6,5,10.1\n7,6,12.2\n"
+	file := filepath.Join(t.TempDir(), "f.csv")
+	if err := os.WriteFile(file, []byte(data), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	args := []string{"--response", "y", "--terms", "x, x^2", "--format", "json"}
+	for _, src := range []struct{ name, stdin, arg string }{{"file", "", file}, {"stdin", data, "-"}} {
+		out, stderr, code := runPlumb(t, src.stdin, append([]string{"inspect", src.arg}, args...)...)
+		if code != 0 {
+			t.Fatalf("%s: exit code %d: %s", src.name, code, stderr)
+		}
+		var rep struct {
+			N        int           `json:"n"`
+			Rejected []rejectedRow `json:"rejected"`
+		}
+		if err := json.Unmarshal([]byte(out), &rep); err != nil {
+			t.Fatal(err)
+		}
+		if rep.N != 6 || len(rep.Rejected) != 1 {
+			t.Fatalf("%s: n = %d, rejected %+v; want 6 rows and one set aside", src.name, rep.N, rep.Rejected)
+		}
+		if r := rep.Rejected[0]; r.Row != 3 || r.Line != 4 || r.Column != 3 || r.Field != "x" {
+			t.Errorf("%s: set aside %+v, want row 3 at line 4, column 3, field x", src.name, r)
+		}
+	}
+
+	// A file changed after loading keeps the row's line, without a column.
+	ds := &inspectData{reread: file, size: len(data) + 1, line: []int{4}, rowNo: []int{3}, header: []string{"id", "x", "y"}, file: file}
+	ds.reject(0, "x", "changed", ',')
+	if r := ds.rejected[0]; r.Line != 4 || r.Column != 0 {
+		t.Errorf("changed file: line %d column %d, want 4 and 0", r.Line, r.Column)
+	}
 }

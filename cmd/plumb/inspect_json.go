@@ -8,8 +8,10 @@ import (
 	"math"
 	"strconv"
 	"strings"
+	"unicode/utf8"
 
 	"plumb/cmd/plumb/internal/view"
+	"plumb/engine"
 )
 
 // ---------------------------------------------------------------- JSON
@@ -302,15 +304,18 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 	for j, n := range r.names {
 		qnames[j], _ = json.Marshal(n)
 	}
-	var buf []byte
-	for i := range r.Influence.Rows {
-		buf = buf[:0]
-		if i > 0 {
-			buf = append(buf, ',')
+	rows := func(dst []byte, lo, hi int) []byte {
+		for i := lo; i < hi; i++ {
+			if i > 0 {
+				dst = append(dst, ',')
+			}
+			dst = append(dst, "\n    "...)
+			dst = r.appendJSONRow(dst, i, qnames)
 		}
-		buf = append(buf, "\n    "...)
-		buf = r.appendJSONRow(buf, i, qnames)
-		bw.Write(buf)
+		return dst
+	}
+	if err := writeRowBlocks(bw, len(r.Influence.Rows), 40*(len(r.names)+12), rows); err != nil {
+		return err
 	}
 	if len(r.Influence.Rows) > 0 {
 		bw.WriteString("\n  ")
@@ -319,9 +324,63 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 	return bw.Flush()
 }
 
+// appendJSONString appends s as a JSON string, byte for byte as
+// encoding/json writes it (which escapes <, > and &, and U+2028 and
+// U+2029, and writes invalid UTF-8 as U+FFFD); a string that needs none
+// of that is copied between quotes without json.Marshal.
 func appendJSONString(dst []byte, s string) []byte {
-	b, _ := json.Marshal(s)
-	return append(dst, b...)
+	if !jsonPlain(s) {
+		b, _ := json.Marshal(s)
+		return append(dst, b...)
+	}
+	dst = append(dst, '"')
+	dst = append(dst, s...)
+	return append(dst, '"')
+}
+
+// appendJSONFlagWords appends flagWords(fl) as a JSON string, built in
+// place in dst.
+func appendJSONFlagWords(dst []byte, fl engine.Flag) []byte {
+	start := len(dst)
+	dst = append(dst, '"')
+	dst = appendFlagWords(dst, fl)
+	if words := dst[start+1:]; !jsonPlainBytes(words) {
+		return appendJSONString(dst[:start], string(words))
+	}
+	return append(dst, '"')
+}
+
+// jsonPlain reports whether encoding/json writes s between quotes as it
+// is: valid UTF-8 without control characters, '"', '\\', '<', '>', '&',
+// U+2028 or U+2029.
+func jsonPlain(s string) bool {
+	ascii := true
+	for i := 0; i < len(s); i++ {
+		if c := s[i]; c >= 0x80 {
+			ascii = false
+		} else if jsonEscapes(c) {
+			return false
+		}
+	}
+	return ascii || utf8.ValidString(s) && !strings.Contains(s, "\u2028") && !strings.Contains(s, "\u2029")
+}
+
+// jsonPlainBytes is jsonPlain for bytes.
+func jsonPlainBytes(b []byte) bool {
+	ascii := true
+	for _, c := range b {
+		if c >= 0x80 {
+			ascii = false
+		} else if jsonEscapes(c) {
+			return false
+		}
+	}
+	return ascii || utf8.Valid(b) && !bytes.Contains(b, []byte("\u2028")) && !bytes.Contains(b, []byte("\u2029"))
+}
+
+// jsonEscapes reports whether encoding/json escapes the ASCII byte c.
+func jsonEscapes(c byte) bool {
+	return c < 0x20 || c == '"' || c == '\\' || c == '<' || c == '>' || c == '&'
 }
 
 // appendJSONRow writes row i as one JSON object: row, line, fitted, the
@@ -395,7 +454,7 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 			dst = appendJSONString(dst, fl.Term)
 		}
 		dst = append(dst, `,"words":`...)
-		dst = appendJSONString(dst, flagWords(fl))
+		dst = appendJSONFlagWords(dst, fl)
 		dst = append(dst, '}')
 	}
 	dst = append(dst, "]}"...)

@@ -1,13 +1,18 @@
 package main
 
 import (
+	"bufio"
+	"bytes"
 	"encoding/csv"
 	"encoding/json"
 	"math"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"testing"
+
+	"plumb/engine"
 )
 
 // inspectJSON is the part of the JSON report the tests read.
@@ -276,4 +281,98 @@ func TestInspectLeverageOne(t *testing.T) {
 	if !strings.Contains(out, "undefined") {
 		t.Errorf("table does not say the measures of row 5 are undefined:\n%s", out)
 	}
+}
+
+// TestInspectJSONRowBlocks checks that the json rows, formatted in blocks
+// on every core, come out as one worker writes them, over several blocks,
+// and make one valid document with every row in order.
+func TestInspectJSONRowBlocks(t *testing.T) {
+	var big bytes.Buffer
+	bw := bufio.NewWriter(&big)
+	const rows = 3*csvChunk + 17
+	writeBenchCSV(bw, rows, 5)
+	bw.Flush()
+	file := filepath.Join(t.TempDir(), "big.csv")
+	if err := os.WriteFile(file, big.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	args := append([]string{"inspect", file}, benchArgs...)
+	args[len(args)-1] = "json"
+	par, _, code := runPlumb(t, "", args...)
+	if code != 0 {
+		t.Fatalf("exit code %d", code)
+	}
+	prev := runtime.GOMAXPROCS(1)
+	seq, _, _ := runPlumb(t, "", args...)
+	runtime.GOMAXPROCS(prev)
+	if par != seq {
+		t.Errorf("parallel json output differs from single-worker output:\n%s", firstDiff(par, seq))
+	}
+	var doc struct {
+		Rows []struct {
+			Row int `json:"row"`
+		} `json:"rows"`
+	}
+	if err := json.Unmarshal([]byte(par), &doc); err != nil {
+		t.Fatal(err)
+	}
+	if len(doc.Rows) != rows {
+		t.Fatalf("%d rows, want %d", len(doc.Rows), rows)
+	}
+	for i, r := range doc.Rows {
+		if r.Row != i+1 {
+			t.Fatalf("row %d: row field %d", i, r.Row)
+		}
+	}
+}
+
+// jsonStringCases are strings encoding/json writes as they are and
+// strings it escapes or repairs.
+var jsonStringCases = []string{
+	"", "leverage", "size_adjusted", "x^2", "log(x)*z", `"flow rate (l/min)"`, "a<b", "a>b", "a&b",
+	"tab\there", "nl\n", "a\\b", "é", "DFBETAS for x is 2.042, beyond ±0.3651 (size-adjusted cutoff)",
+	"\u2028", "x\u2029y", "bad\xffutf8", "\x7f", "日本",
+}
+
+// TestAppendJSONString checks the hand-written string writer, and the
+// flag words built in place, against encoding/json.
+func TestAppendJSONString(t *testing.T) {
+	for _, s := range jsonStringCases {
+		want, _ := json.Marshal(s)
+		if got := appendJSONString([]byte("x"), s); string(got) != "x"+string(want) {
+			t.Errorf("appendJSONString(%q) = %s, want %s", s, got[1:], want)
+		}
+		fl := engine.Flag{Measure: engine.MeasureDFBETAS, Family: engine.FamilySizeAdjusted, Term: s, Value: 2.5, Cutoff: 0.3}
+		want, _ = json.Marshal(flagWords(fl))
+		if got := appendJSONFlagWords([]byte("x"), fl); string(got) != "x"+string(want) {
+			t.Errorf("flag words for term %q: %s, want %s", s, got[1:], want)
+		}
+	}
+}
+
+// BenchmarkJSONString compares the hand-written string writer with
+// json.Marshal on the strings of the json rows (measure, family and flag
+// words).
+func BenchmarkJSONString(b *testing.B) {
+	strs := []string{engine.MeasureDFBETAS, engine.FamilySizeAdjusted, "emf_mv^2",
+		"DFBETAS for emf_mv is 2.042, beyond ±0.3651 (size-adjusted cutoff)"}
+	b.Run("append", func(b *testing.B) {
+		b.ReportAllocs()
+		var dst []byte
+		for b.Loop() {
+			for _, s := range strs {
+				dst = appendJSONString(dst[:0], s)
+			}
+		}
+	})
+	b.Run("marshal", func(b *testing.B) {
+		b.ReportAllocs()
+		var dst []byte
+		for b.Loop() {
+			for _, s := range strs {
+				m, _ := json.Marshal(s)
+				dst = append(dst[:0], m...)
+			}
+		}
+	})
 }

@@ -29,39 +29,68 @@ var measureWords = map[string]string{
 }
 
 // flagWords says in plain words which cutoff a flag crosses.
-func flagWords(fl engine.Flag) string {
+func flagWords(fl engine.Flag) string { return string(appendFlagWords(nil, fl)) }
+
+// appendFlagWords appends flagWords(fl) to dst: the json format writes it
+// for every flag of every row.
+func appendFlagWords(dst []byte, fl engine.Flag) []byte {
 	name := measureWords[fl.Measure]
 	if name == "" {
 		name = fl.Measure
 	}
+	dst = append(dst, name...)
 	if fl.Term != "" {
-		name += " for " + fl.Term
+		dst = append(dst, " for "...)
+		dst = append(dst, fl.Term...)
 	}
-	family := strings.ReplaceAll(fl.Family, "_", "-")
-	v, c := num4(fl.Value), num4(fl.Cutoff)
+	family := func(dst []byte) []byte {
+		dst = append(dst, " ("...)
+		for i := 0; i < len(fl.Family); i++ {
+			c := fl.Family[i]
+			if c == '_' {
+				c = '-'
+			}
+			dst = append(dst, c)
+		}
+		return append(dst, " cutoff)"...)
+	}
+	dst = append(dst, " is "...)
+	dst = appendNum4(dst, fl.Value)
 	switch fl.Measure {
 	case engine.MeasureBonferroni:
-		return fmt.Sprintf("%s is %s, below the significance level %s", name, v, c)
+		dst = append(dst, ", below the significance level "...)
+		return appendNum4(dst, fl.Cutoff)
 	case engine.MeasureCOVRATIO:
-		return fmt.Sprintf("%s is %s, more than %s away from 1 (%s cutoff)", name, v, c, family)
+		dst = append(dst, ", more than "...)
+		dst = appendNum4(dst, fl.Cutoff)
+		dst = append(dst, " away from 1"...)
+		return family(dst)
 	case engine.MeasureDFFITS, engine.MeasureDFBETAS:
-		return fmt.Sprintf("%s is %s, beyond ±%s (%s cutoff)", name, v, c, family)
+		dst = append(dst, ", beyond ±"...)
+		dst = appendNum4(dst, fl.Cutoff)
+		return family(dst)
 	case engine.MeasureGrubbs:
-		return fmt.Sprintf("%s is %s, above the critical value %s", name, v, c)
+		dst = append(dst, ", above the critical value "...)
+		return appendNum4(dst, fl.Cutoff)
 	default:
-		return fmt.Sprintf("%s is %s, above %s (%s cutoff)", name, v, c, family)
+		dst = append(dst, ", above "...)
+		dst = appendNum4(dst, fl.Cutoff)
+		return family(dst)
 	}
 }
 
 // num4 formats a number to 4 significant digits for people.
-func num4(x float64) string {
+func num4(x float64) string { return string(appendNum4(nil, x)) }
+
+// appendNum4 appends num4(x) to dst.
+func appendNum4(dst []byte, x float64) []byte {
 	switch {
 	case math.IsNaN(x):
-		return "undefined"
+		return append(dst, "undefined"...)
 	case math.IsInf(x, 0):
-		return "infinite"
+		return append(dst, "infinite"...)
 	}
-	return strconv.FormatFloat(x, 'g', 4, 64)
+	return strconv.AppendFloat(dst, x, 'g', 4, 64)
 }
 
 // pval formats a p-value.

@@ -18,6 +18,9 @@ func decTime(v sql.NullInt64) time.Time     { return column.FromTime(v.Int64, v.
 func encFloats(v []float64) []byte          { return column.Floats(v) }
 func decFloats(b []byte) ([]float64, error) { return column.FromFloats(b) }
 
+// checkTime returns an error for a time that int64 nanoseconds cannot hold.
+func checkTime(t time.Time) error { return column.CheckTime(t) }
+
 // encReal returns the column value of a scalar: nil (NULL) for NaN, which
 // SQLite cannot store, the number otherwise (infinities are kept).
 func encReal(x float64) any {

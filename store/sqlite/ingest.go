@@ -117,41 +117,46 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		return fail(fmt.Errorf("source updated at: %w", err))
 	}
 
-	// Encode outside the write lock; ids are filled in inside.
-	args := make([]any, len(b.Observations)*nObsCols)
+	// Encode outside the write lock; ids, model and source are filled in
+	// inside. The binder holds the values without one allocation each.
+	bd := getBinder(len(b.Observations))
+	defer bd.release()
 	for i := range b.Observations {
 		o := &b.Observations[i]
 		if err := store.CheckProvenance(src, o.Model, o.Path, o.Generation); err != nil {
 			return fail(fmt.Errorf("observation line %d: %w", o.Line, err))
 		}
-		a := args[i*nObsCols : (i+1)*nObsCols]
-		a[3] = int64(src.Generation)
-		a[4] = int64(o.Line)
-		a[5] = o.Raw
-		a[20] = o.Label
-		a[6] = encFloats(o.Values)
-		if a[7], err = encTime(o.Time); err != nil {
+		bd.args = append(bd.args, nil, nil, nil) // id, model_id, source_id
+		bd.int64(int64(src.Generation))
+		bd.int64(int64(o.Line))
+		bd.str(o.Raw)
+		bd.floats(o.Values)
+		if err := bd.time(o.Time); err != nil {
 			return fail(fmt.Errorf("observation line %d time: %w", o.Line, err))
 		}
-		if a[8], err = encTime(o.ArrivedAt); err != nil {
+		if err := bd.time(o.ArrivedAt); err != nil {
 			return fail(fmt.Errorf("observation line %d arrived at: %w", o.Line, err))
 		}
 		if d := o.Arrival; d != nil {
-			a[9] = encReal(d.Leverage)
-			a[10] = encReal(d.Residual)
-			a[11] = encReal(d.StudentizedInternal)
-			a[12] = encReal(d.StudentizedExternal)
-			a[13] = encReal(d.CooksDistance)
-			a[14] = encReal(d.DFFITS)
-			a[15] = encFloats(d.DFBETAS)
-			a[16] = encReal(d.COVRATIO)
-			a[17] = encReal(d.OutlierPBonferroni)
-			a[18] = string(d.Verdict)
-			if a[19], err = encFlags(d.Flags); err != nil {
-				return fail(fmt.Errorf("observation line %d flags: %w", o.Line, err))
+			bd.real(d.Leverage)
+			bd.real(d.Residual)
+			bd.real(d.StudentizedInternal)
+			bd.real(d.StudentizedExternal)
+			bd.real(d.CooksDistance)
+			bd.real(d.DFFITS)
+			bd.floats(d.DFBETAS)
+			bd.real(d.COVRATIO)
+			bd.real(d.OutlierPBonferroni)
+			bd.str(string(d.Verdict))
+			bd.flags(d)
+		} else {
+			for range nObsCols - 10 { // the arrival columns, leverage .. flags
+				bd.args = append(bd.args, nil)
 			}
 		}
+		bd.str(o.Label)
 	}
+	args := bd.args
 	qargs := make([][]any, len(b.Quarantine))
 	for i := range b.Quarantine {
 		q := &b.Quarantine[i]
@@ -217,10 +222,13 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 			if err := tx.StmtContext(ctx, stmts.maxObs).QueryRowContext(ctx).Scan(&base); err != nil {
 				return err
 			}
+			// The ids are bound from ids itself, model and source from
+			// their variables, none of which change until the inserts ran.
+			mid, src := ref64(&modelID), ref64(&sid)
 			for i := range ids {
 				ids[i] = base + 1 + int64(i)
 				a := args[i*nObsCols:]
-				a[0], a[1], a[2] = ids[i], modelID, sid
+				a[0], a[1], a[2] = ref64(&ids[i]), mid, src
 			}
 			if err := insertChunks(ctx, tx, stmts, args); err != nil {
 				return err

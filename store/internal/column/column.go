@@ -24,10 +24,18 @@ func Time(t time.Time) (any, error) {
 	if t.IsZero() {
 		return nil, nil
 	}
-	if t.Before(minTime) || t.After(maxTime) {
-		return nil, fmt.Errorf("time %s outside the storable range %d..%d", t.Format(time.RFC3339Nano), minTime.Year(), maxTime.Year())
+	if err := CheckTime(t); err != nil {
+		return nil, err
 	}
 	return t.UnixNano(), nil
+}
+
+// CheckTime returns an error for a time that int64 nanoseconds cannot hold.
+func CheckTime(t time.Time) error {
+	if t.Before(minTime) || t.After(maxTime) {
+		return fmt.Errorf("time %s outside the storable range %d..%d", t.Format(time.RFC3339Nano), minTime.Year(), maxTime.Year())
+	}
+	return nil
 }
 
 // FromTime is the inverse of Time for a value read back; valid false

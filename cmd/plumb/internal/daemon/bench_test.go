@@ -12,6 +12,7 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+	"syscall"
 	"testing"
 	"time"
 
@@ -64,6 +65,7 @@ func benchBatches(tb testing.TB, model string, batches, size int) []watcher.Batc
 // BenchmarkIngest measures sustained ingest for one model with p = 3:
 // decoded rows judged on arrival by the online update and committed with
 // their read position to SQLite, in batches as the watcher delivers them.
+// It reports rows per wall-clock second and per CPU second.
 func BenchmarkIngest(b *testing.B) {
 	benchIngest(b, func(b *testing.B, dir, body string) *config.Config { return testConfig(b, dir, body) })
 }
@@ -76,7 +78,7 @@ func benchIngest(b *testing.B, mk func(b *testing.B, dir, body string) *config.C
 			batches := benchBatches(b, "m", total/size, size)
 			b.ReportAllocs()
 			var rows int
-			var elapsed time.Duration
+			var elapsed, cpu time.Duration
 			for b.Loop() {
 				b.StopTimer()
 				dir := b.TempDir()
@@ -103,13 +105,14 @@ terms = ["x", "x^2"]
 				}
 				s := sink{d}
 				b.StartTimer()
-				t0 := time.Now()
+				t0, c0 := time.Now(), processCPU()
 				for _, bt := range batches {
 					if err := s.Deliver(context.Background(), bt); err != nil {
 						b.Fatal(err)
 					}
 				}
 				elapsed += time.Since(t0)
+				cpu += processCPU() - c0
 				rows += total
 				b.StopTimer()
 				if d.leases != nil {
@@ -119,6 +122,9 @@ terms = ["x", "x^2"]
 				b.StartTimer()
 			}
 			b.ReportMetric(float64(rows)/elapsed.Seconds(), "rows/s")
+			// CPU seconds of the whole process (both cores): on a loaded
+			// machine this shows the cost per row apart from waiting.
+			b.ReportMetric(float64(rows)/cpu.Seconds(), "rows/cpu-s")
 		})
 	}
 }
@@ -271,4 +277,128 @@ func BenchmarkManyModels(b *testing.B) {
 	b.ReportMetric(total[len(total)/2], "s-all-done")
 	b.ReportMetric(spread[len(spread)/2], "s-spread")
 	b.ReportMetric(float64(models*rows)/total[len(total)/2], "rows/s")
+}
+
+// BenchmarkRefresh measures one refresh of a model holding 1,000,000 rows
+// (p = 3, y ~ x + x^2, default fragility and suggestions): copying the
+// window out of the columns, the analysis, the fit record with the
+// verdicts that changed, and the alerts. Each iteration first marks one
+// new row, as an ingest would. It reports the process's CPU time per
+// refresh (both cores) beside the wall time, and with -benchmem the
+// garbage per refresh. The rows are ingested once, outside the timer.
+func BenchmarkRefresh(b *testing.B) {
+	const total, size = 1_000_000, 10_000
+	batches := benchBatches(b, "m", total/size+1, size)
+	dir := b.TempDir()
+	c := testConfig(b, dir, `
+[[model]]
+name = "m"
+folder = "in"
+response = "y"
+terms = ["x", "x^2"]
+`)
+	d, err := New(context.Background(), c, Options{Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer d.Close()
+	s := sink{d}
+	ctx := context.Background()
+	for _, bt := range batches[:total/size] {
+		if err := s.Deliver(ctx, bt); err != nil {
+			b.Fatal(err)
+		}
+	}
+	m := d.models["m"]
+	if err := m.ref.refresh(ctx); err != nil { // the first fit stores every verdict
+		b.Fatal(err)
+	}
+	// One more row per iteration: the last batch's rows, one at a time.
+	extra := batches[total/size]
+	next := func(k int) watcher.Batch {
+		bt := extra
+		bt.Records = extra.Records[k : k+1]
+		if k > 0 {
+			bt.StartOffset, bt.StartLine = extra.Records[k-1].EndOffset, extra.Records[k-1].Line
+		}
+		bt.EndOffset, bt.EndLine, bt.Size = extra.Records[k].EndOffset, extra.Records[k].Line, extra.Records[k].EndOffset
+		return bt
+	}
+	b.ReportAllocs()
+	var cpu time.Duration
+	k := 0
+	for b.Loop() {
+		b.StopTimer()
+		if err := s.Deliver(ctx, next(k)); err != nil {
+			b.Fatal(err)
+		}
+		k++
+		runtime.GC()
+		b.StartTimer()
+		c0 := processCPU()
+		if err := m.ref.refresh(ctx); err != nil {
+			b.Fatal(err)
+		}
+		cpu += processCPU() - c0
+	}
+	if got := m.ref.lastFitN; got != total+k {
+		b.Fatalf("last fit of %d rows, want %d", got, total+k)
+	}
+	b.ReportMetric(cpu.Seconds()*1e3/float64(k), "cpu-ms/refresh")
+}
+
+// processCPU returns the user and system CPU time the process has used.
+func processCPU() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
+}
+
+// TestIngestAllocsPerRow bounds the garbage of the whole ingest path (one
+// model, p = 3, batches of 1,000 judged rows committed with their read
+// position): the goal is at most 5 allocations a row; what is left is per
+// batch and per statement.
+func TestIngestAllocsPerRow(t *testing.T) {
+	if testing.Short() {
+		t.Skip("ingests 16,000 rows")
+	}
+	const size = 1000
+	batches := benchBatches(t, "m", 16, size)
+	dir := t.TempDir()
+	c := testConfig(t, dir, `
+[[model]]
+name = "m"
+folder = "in"
+response = "y"
+terms = ["x", "x^2"]
+`)
+	d, err := New(context.Background(), c, Options{Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer d.Close()
+	s := sink{d}
+	ctx := context.Background()
+	for _, bt := range batches[:5] { // past min_rows: every later row is judged
+		if err := s.Deliver(ctx, bt); err != nil {
+			t.Fatal(err)
+		}
+	}
+	next := 5
+	allocs := testing.AllocsPerRun(10, func() {
+		if err := s.Deliver(ctx, batches[next]); err != nil {
+			t.Fatal(err)
+		}
+		next++
+	})
+	if got := count(t, d.store, "m"); got != int64(next*size) {
+		t.Fatalf("%d rows stored, want %d", got, next*size)
+	}
+	perRow := allocs / size
+	t.Logf("%.0f allocations per batch of %d rows, %.2f per row", allocs, size, perRow)
+	if perRow > 5 {
+		t.Errorf("%.2f allocations per row, want at most 5", perRow)
+	}
 }

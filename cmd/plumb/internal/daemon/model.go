@@ -56,6 +56,8 @@ type watchedModel struct {
 
 	online *engine.Online
 	xrow   []float64
+	// arrive judges each arriving row (Bonferroni outlier test).
+	arrive *engine.ArrivalJudge
 
 	rowsAccepted int64
 	quarantined  int64
@@ -105,6 +107,7 @@ func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
 		online:        engine.NewOnline(spec.P()),
 		xrow:          make([]float64, spec.P()),
 	}
+	m.arrive = engine.NewArrivalJudge(spec, m.cut)
 	m.ref.m = m
 	if m.minRows <= spec.P()+1 {
 		m.minRows = spec.P() + 2
@@ -247,6 +250,37 @@ type pending struct {
 	diag  *store.Diagnostics
 }
 
+// arrivals holds the judgements of one batch's rows in blocks allocated
+// once per batch (not per row): the stored diagnostics, their DFBETAS and
+// their flags. A batch's blocks are never reused, since the store and the
+// pending suspects may keep what points into them.
+type arrivals struct {
+	diags []store.Diagnostics
+	dfb   []float64
+	flags []engine.Flag
+}
+
+func newArrivals(rows, p int) *arrivals {
+	return &arrivals{diags: make([]store.Diagnostics, 0, rows), dfb: make([]float64, 0, rows*p)}
+}
+
+// add judges one row with the model's arrival judge and returns its stored
+// diagnostics.
+func (a *arrivals) add(j *engine.ArrivalJudge, o engine.Obs, dfb []float64, n int) *store.Diagnostics {
+	var v engine.Verdict
+	v, a.flags = j.Judge(a.flags, o, dfb, n)
+	start := len(a.dfb)
+	a.dfb = append(a.dfb, dfb...)
+	a.diags = append(a.diags, store.Diagnostics{
+		Leverage: o.Leverage, Residual: o.Residual,
+		StudentizedInternal: o.StudentInternal, StudentizedExternal: o.StudentExternal,
+		CooksDistance: o.Cook, DFFITS: o.DFFITS, DFBETAS: a.dfb[start:len(a.dfb):len(a.dfb)],
+		COVRATIO: o.COVRATIO, OutlierPBonferroni: o.BonferroniP,
+		Verdict: v.Word(), Flags: v.Flags,
+	})
+	return &a.diags[len(a.diags)-1]
+}
+
 // ingest turns one watcher batch into observations and quarantined rows,
 // judges each new row against the online fit that includes it, and commits
 // rows and read position in one transaction.
@@ -254,9 +288,11 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	now := m.d.now()
-	var obs []store.Observation
 	var quar []store.QuarantineRow
-	var rows []pending
+	rows := make([]pending, 0, len(b.Records))
+	// diags is sized for every record, so the pointers it hands out stay
+	// valid (append never moves it).
+	judged := newArrivals(len(b.Records), m.spec.P())
 	var filter map[string]bool
 	if m.cfg.Filter != nil {
 		filter = make(map[string]bool, len(m.cfg.Filter.Values))
@@ -315,11 +351,11 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 			o, dfb, n, ok = m.windowArrival(rows, p)
 		}
 		if ok && n >= m.minRows {
-			v := m.judgeArrival(o, dfb, n)
-			p.diag = diagnostics(o, dfb, v)
+			p.diag = judged.add(m.arrive, o, dfb, n)
 		}
 		rows = append(rows, p)
 	}
+	obs := make([]store.Observation, 0, len(rows))
 	for _, p := range rows {
 		o := store.Observation{
 			Model: m.cfg.Name, Path: b.Path, Generation: b.Generation, Line: p.rec.Line,
@@ -378,29 +414,6 @@ func quarantineRow(model string, b watcher.Batch, rec decode.Record, col int, re
 		Model: model, Path: b.Path, Generation: b.Generation, Line: rec.Line, Column: col,
 		Raw: rec.Raw, Reason: reason,
 	}
-}
-
-// diagnostics converts the engine's measures of one row, with its DFBETAS,
-// into the stored form.
-func diagnostics(o engine.Obs, dfb []float64, v engine.Verdict) *store.Diagnostics {
-	return &store.Diagnostics{
-		Leverage: o.Leverage, Residual: o.Residual,
-		StudentizedInternal: o.StudentInternal, StudentizedExternal: o.StudentExternal,
-		CooksDistance: o.Cook, DFFITS: o.DFFITS, DFBETAS: slices.Clone(dfb),
-		COVRATIO: o.COVRATIO, OutlierPBonferroni: o.BonferroniP,
-		Verdict: v.Word(), Flags: slices.Clone(v.Flags),
-	}
-}
-
-// judgeArrival judges one arriving row against the online fit that
-// includes it, with the model's cutoffs for n = the rows so far. The
-// outlier test at arrival is the Bonferroni test; a model configured for
-// the Grubbs test gets it at each refresh, which sees all residuals.
-func (m *watchedModel) judgeArrival(o engine.Obs, dfb []float64, n int) engine.Verdict {
-	c := m.cut
-	c.Test = engine.BonferroniTest
-	one := &engine.Influence{Fit: &engine.Fit{Model: m.spec, N: n, P: m.spec.P()}, Rows: []engine.Obs{o}, DFBETAS: dfb}
-	return engine.Judge(one, c)[0]
 }
 
 // windowed reports whether the model fits a window of its rows rather
