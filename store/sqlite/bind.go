@@ -37,7 +37,7 @@ func getBinder(rows int) *binder {
 	bd := binders.Get().(*binder)
 	bd.args = grow(bd.args, rows*nObsCols)
 	bd.nums = grow(bd.nums, rows*nObsCols)
-	bd.strs = grow(bd.strs, rows*3)
+	bd.strs = grow(bd.strs, rows*4) // raw, verdict, flags, label
 	bd.blobs = grow(bd.blobs, rows*2)
 	return bd
 }
