@@ -28,6 +28,12 @@ func validState(s store.DeliveryState) bool {
 // non-empty EventID is already enqueued for the same Route is skipped, and
 // a.Revision makes the write conditional.
 func (db *DB) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery) error {
+	return db.putAlert(ctx, a, deliveries, nil)
+}
+
+// putAlert is PutAlert that runs before(tx), when set, first in the
+// transaction (PutAlertAudited appends the alert's audit record there).
+func (db *DB) putAlert(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery, before func(tx pgx.Tx) error) error {
 	fail := func(err error) error { return fmt.Errorf("store: put alert %s: %w", a.ID, err) }
 	if a.ID == "" {
 		return fail(errors.New("alert needs an id"))
@@ -77,6 +83,11 @@ func (db *DB) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []st
 		dargs[i] = []any{d.AlertID, d.Route, d.EventID, payload, string(d.State), d.Attempts, ts[0], d.LastError, ts[1], ts[2]}
 	}
 	err = pgx.BeginFunc(ctx, db.pool, func(tx pgx.Tx) error {
+		if before != nil {
+			if err := before(tx); err != nil {
+				return err
+			}
+		}
 		if err := putAlertRow(ctx, tx, a, first, last); err != nil {
 			return err
 		}

@@ -71,3 +71,10 @@ func TestPostgresConformance(t *testing.T) {
 		return db
 	})
 }
+
+func TestPostgresDecisionsConformance(t *testing.T) {
+	storetest.RunDecisions(t, func(t *testing.T) storetest.DecisionStore {
+		db, _ := openTemp(t)
+		return db
+	})
+}

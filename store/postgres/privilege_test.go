@@ -59,7 +59,8 @@ func grant(t *testing.T, owner *postgres.DB, schema string) {
 // TestPostgresLeastPrivilege: with a schema migrated by its owner, a role
 // holding only USAGE on the schema, SELECT, INSERT, UPDATE on its tables
 // and USAGE on its sequences runs everything a daemon does: the whole
-// conformance suite, ownership, outbox claims and the fleet view. It
+// conformance suite, decisions and the audit trail, ownership, outbox
+// claims and the fleet view. It
 // cannot migrate a new schema, and says so.
 func TestPostgresLeastPrivilege(t *testing.T) {
 	rw := daemonURL(t)
@@ -74,6 +75,11 @@ func TestPostgresLeastPrivilege(t *testing.T) {
 		return db
 	}
 	storetest.Run(t, func(t *testing.T) store.Store { return openRW(t) })
+	// Decisions and the audit trail need no DELETE: the trail and the
+	// decisions are only inserted, a quiet period ended early is updated.
+	t.Run("decisions", func(t *testing.T) {
+		storetest.RunDecisions(t, func(t *testing.T) storetest.DecisionStore { return openRW(t) })
+	})
 
 	t.Run("ownership, claims, fleet", func(t *testing.T) {
 		db := openRW(t)
