@@ -63,7 +63,8 @@
 // transaction that appends to the trail first takes the schema's
 // transaction-level advisory lock, so the daemons and command lines that
 // share the database append one after the other and no two records get
-// the same number. None of this needs DELETE.
+// the same number. None of this needs DELETE. ExportDecisions and
+// ImportDecisions let store/transfer copy the trail verbatim.
 //
 // # Encoding
 //
