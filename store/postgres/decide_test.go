@@ -345,3 +345,32 @@ func TestPostgresAuditPlainText(t *testing.T) {
 		t.Errorf("trail after refusals: %d records, %v", len(recs), err)
 	}
 }
+
+// TestPostgresDecisionsMigrateOnto: a database migrated before 0004
+// existed (0001-0003 and 0006, with rows) gets the decision tables on the
+// next start, and decisions work on its rows.
+func TestPostgresDecisionsMigrateOnto(t *testing.T) {
+	ctx := context.Background()
+	db, schema := openTemp(t)
+	ids := ingestRows(t, db, "cal", "a.csv", 3)
+	for _, q := range []string{
+		"DROP TABLE quiet_periods, rebaselines, decisions, audit",
+		"DROP FUNCTION plumb_refuse_change()",
+		"DELETE FROM schema_version WHERE version = 4",
+	} {
+		if _, err := db.Pool().Exec(ctx, q); err != nil {
+			t.Fatalf("%s: %v", q, err)
+		}
+	}
+	again := openSame(t, schema)
+	if v, err := again.SchemaVersion(ctx); err != nil || v != postgres.LatestSchemaVersion() {
+		t.Errorf("schema version %d (%v), want %d", v, err, postgres.LatestSchemaVersion())
+	}
+	d, err := again.Decide(ctx, store.Decision{Model: "cal", ObsID: ids[1], Action: store.ActionExclude, Actor: "a", Reason: "r"})
+	if err != nil || d.AuditSeq != 1 {
+		t.Fatalf("Decide after the upgrade: %+v, %v", d, err)
+	}
+	if _, err := again.Pool().Exec(ctx, "DELETE FROM audit"); err == nil || !strings.Contains(err.Error(), "append-only") {
+		t.Errorf("DELETE FROM audit after the upgrade: %v, want a refusal", err)
+	}
+}
