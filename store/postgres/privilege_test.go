@@ -102,6 +102,50 @@ func TestPostgresLeastPrivilege(t *testing.T) {
 		}
 	})
 
+	// plumb state copy as the daemon's role: the trail is imported with
+	// INSERT (and an ended quiet period with UPDATE), ids kept without
+	// touching a sequence.
+	t.Run("import decisions", func(t *testing.T) {
+		ctx := context.Background()
+		src, _ := openTemp(t)
+		dst := openRW(t)
+		var ids []int64
+		for _, db := range []*postgres.DB{src, dst} {
+			ids = ingestRows(t, db, "cal", "a.csv", 4)
+		}
+		if _, err := src.Decide(ctx, store.Decision{Model: "cal", ObsID: ids[2], Action: store.ActionExclude, Actor: "a", Reason: "r"}); err != nil {
+			t.Fatal(err)
+		}
+		q, err := src.SetQuiet(ctx, store.QuietPeriod{Start: t0(), End: t0().Add(time.Hour), Owner: "o", Reason: "r"})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i := range 2 {
+			h, err := src.ExportDecisions(ctx)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if _, err := dst.ImportDecisions(ctx, h); err != nil {
+				t.Fatalf("import %d as the daemon's role: %v", i+1, err)
+			}
+			if i == 0 { // the source goes on: the second import ends the period
+				if _, err := src.EndQuiet(ctx, q.ID, t0().Add(time.Minute), "o", "done"); err != nil {
+					t.Fatal(err)
+				}
+			}
+		}
+		rep, err := store.VerifyAudit(ctx, dst)
+		if err != nil || rep.Break != nil || rep.Records != 3 {
+			t.Errorf("VerifyAudit after the import = %+v, %v; want 3 intact records", rep, err)
+		}
+		if qs, err := dst.QuietPeriods(ctx, "", time.Time{}); err != nil || len(qs) != 1 || qs[0].EndedBy != "o" {
+			t.Errorf("quiet periods after the import: %+v, %v", qs, err)
+		}
+		if d, err := dst.Decide(ctx, store.Decision{Model: "cal", ObsID: ids[1], Action: store.ActionExclude, Actor: "a", Reason: "r"}); err != nil || d.ID != 2 || d.AuditSeq != 4 {
+			t.Errorf("next decision as the daemon's role: %+v, %v", d, err)
+		}
+	})
+
 	t.Run("cannot migrate", func(t *testing.T) {
 		schema := newSchema(t)
 		_, err := postgres.Open(context.Background(), rw, postgres.WithSchema(schema))
