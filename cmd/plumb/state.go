@@ -32,10 +32,12 @@ func stateReady(state string) error {
 func runState(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "state", "copy --from STATE --to STATE",
 		"state copy copies every model's history (observations, quarantined rows, fits,\n"+
-			"verdict changes, read positions, model states, alerts and their outbox) from one\n"+
-			"state database to another: a SQLite file or a PostgreSQL URL on either side. It is\n"+
-			"safe to run again: what is already there is checked, not copied twice. It prints\n"+
-			"the counts it verified. Stop the daemon writing the source first.")
+			"verdict changes, read positions, model states, alerts and their outbox, decisions\n"+
+			"and the audit trail, record for record) from one state database to another: a\n"+
+			"SQLite file or a PostgreSQL URL on either side. It is safe to run again: what is\n"+
+			"already there is checked, not copied twice. A target holding a different audit\n"+
+			"trail is refused. It prints the counts it verified and the trail's head. Stop the\n"+
+			"daemon writing the source first.")
 	from := fs.String("from", "", "the state to copy from (SQLite path or PostgreSQL URL)")
 	to := fs.String("to", "", "the state to copy to (SQLite path or PostgreSQL URL)")
 	pos, err := parseFlags(fs, args)

@@ -31,9 +31,8 @@ func (db *DB) PutAlert(ctx context.Context, a store.AlertRecord, deliveries []st
 	return db.putAlert(ctx, a, deliveries, nil)
 }
 
-// putAlert is PutAlert running before (when not nil) first in the
-// transaction, before the alert row is written (PutAlertAudited reads the
-// stored alert there).
+// putAlert is PutAlert that runs before(tx), when set, first in the
+// transaction (PutAlertAudited appends the alert's audit record there).
 func (db *DB) putAlert(ctx context.Context, a store.AlertRecord, deliveries []store.Delivery, before func(tx pgx.Tx) error) error {
 	fail := func(err error) error { return fmt.Errorf("store: put alert %s: %w", a.ID, err) }
 	if a.ID == "" {

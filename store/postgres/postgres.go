@@ -54,6 +54,18 @@
 // lists every model, and Ping tells a readiness probe whether the server
 // answers.
 //
+// # Decisions and the audit trail
+//
+// A DB is also a store.Decisions (decide.go, migration 0004): the same
+// tables, refusals and hash chain as the SQLite backend's (store.Seal
+// seals every record), the trail, decisions and re-baselines refusing
+// UPDATE, DELETE and TRUNCATE and quiet periods DELETE by trigger. Every
+// transaction that appends to the trail first takes the schema's
+// transaction-level advisory lock, so the daemons and command lines that
+// share the database append one after the other and no two records get
+// the same number. None of this needs DELETE. ExportDecisions and
+// ImportDecisions let store/transfer copy the trail verbatim.
+//
 // # Encoding
 //
 // A verdict word and the crossed cutoffs are encoded in codec.go only

@@ -72,7 +72,7 @@ func TestPostgresConformance(t *testing.T) {
 	})
 }
 
-func TestPostgresDecisions(t *testing.T) {
+func TestPostgresDecisionsConformance(t *testing.T) {
 	storetest.RunDecisions(t, func(t *testing.T) storetest.DecisionStore {
 		db, _ := openTemp(t)
 		return db

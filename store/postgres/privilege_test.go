@@ -59,7 +59,7 @@ func grant(t *testing.T, owner *postgres.DB, schema string) {
 // TestPostgresLeastPrivilege: with a schema migrated by its owner, a role
 // holding only USAGE on the schema, SELECT, INSERT, UPDATE on its tables
 // and USAGE on its sequences runs everything a daemon does: the whole
-// conformance suite, the decisions and the audit trail, ownership, outbox
+// conformance suite, decisions and the audit trail, ownership, outbox
 // claims and the fleet view. It
 // cannot migrate a new schema, and says so.
 func TestPostgresLeastPrivilege(t *testing.T) {
@@ -75,6 +75,8 @@ func TestPostgresLeastPrivilege(t *testing.T) {
 		return db
 	}
 	storetest.Run(t, func(t *testing.T) store.Store { return openRW(t) })
+	// Decisions and the audit trail need no DELETE: the trail and the
+	// decisions are only inserted, a quiet period ended early is updated.
 	t.Run("decisions", func(t *testing.T) {
 		storetest.RunDecisions(t, func(t *testing.T) storetest.DecisionStore { return openRW(t) })
 	})
@@ -97,6 +99,50 @@ func TestPostgresLeastPrivilege(t *testing.T) {
 		fl, err := db.Fleet(ctx)
 		if err != nil || len(fl) != 1 || fl[0].Owner == nil || !fl[0].Owner.Alive {
 			t.Errorf("Fleet = %+v, %v", fl, err)
+		}
+	})
+
+	// plumb state copy as the daemon's role: the trail is imported with
+	// INSERT (and an ended quiet period with UPDATE), ids kept without
+	// touching a sequence.
+	t.Run("import decisions", func(t *testing.T) {
+		ctx := context.Background()
+		src, _ := openTemp(t)
+		dst := openRW(t)
+		var ids []int64
+		for _, db := range []*postgres.DB{src, dst} {
+			ids = ingestRows(t, db, "cal", "a.csv", 4)
+		}
+		if _, err := src.Decide(ctx, store.Decision{Model: "cal", ObsID: ids[2], Action: store.ActionExclude, Actor: "a", Reason: "r"}); err != nil {
+			t.Fatal(err)
+		}
+		q, err := src.SetQuiet(ctx, store.QuietPeriod{Start: t0(), End: t0().Add(time.Hour), Owner: "o", Reason: "r"})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for i := range 2 {
+			h, err := src.ExportDecisions(ctx)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if _, err := dst.ImportDecisions(ctx, h); err != nil {
+				t.Fatalf("import %d as the daemon's role: %v", i+1, err)
+			}
+			if i == 0 { // the source goes on: the second import ends the period
+				if _, err := src.EndQuiet(ctx, q.ID, t0().Add(time.Minute), "o", "done"); err != nil {
+					t.Fatal(err)
+				}
+			}
+		}
+		rep, err := store.VerifyAudit(ctx, dst)
+		if err != nil || rep.Break != nil || rep.Records != 3 {
+			t.Errorf("VerifyAudit after the import = %+v, %v; want 3 intact records", rep, err)
+		}
+		if qs, err := dst.QuietPeriods(ctx, "", time.Time{}); err != nil || len(qs) != 1 || qs[0].EndedBy != "o" {
+			t.Errorf("quiet periods after the import: %+v, %v", qs, err)
+		}
+		if d, err := dst.Decide(ctx, store.Decision{Model: "cal", ObsID: ids[1], Action: store.ActionExclude, Actor: "a", Reason: "r"}); err != nil || d.ID != 2 || d.AuditSeq != 4 {
+			t.Errorf("next decision as the daemon's role: %+v, %v", d, err)
 		}
 	})
 

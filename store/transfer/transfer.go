@@ -18,13 +18,25 @@
 // every quarantined row; each file's read state (so a daemon pointed at
 // the target resumes where the source's stopped); every fit in order with
 // the verdict changes it caused; the model's state. Then every alert with
-// its outbox entries and their delivery state, then the audit trail
-// record for record (each sealed with the source's hash). A source with
-// recorded decisions is refused before anything is written
-// (ErrDecisions), and so is a trail the target cannot keep (ErrTrail). Observation and fit ids
+// its outbox entries and their delivery state. Observation and fit ids
 // are the target's own: a fit's LastObsID and a verdict change's
 // observation are mapped to the copied observations' ids. Ids quoted
 // inside a fit's Detail document are copied as they are.
+//
+// Last, the decisions people recorded (readings set aside and
+// reinstated, re-baselines, quiet periods) and the audit trail, when the
+// source keeps them: the trail is copied verbatim, every record with its
+// sequence number, previous hash and hash, its text byte for byte, so
+// that store.VerifyAudit gives the same answer on the target (same
+// records, same head) as on the source. Decisions, re-baselines and
+// quiet periods keep their ids; a decision's observation is mapped to the
+// copied observation's id in the table only (the audit record's JSON still
+// names the source's id, since the hash covers it). A target that already
+// holds a different trail (records of its own, or another history's) is
+// refused before anything is copied, and so is a target that cannot keep
+// a trail: a history's decisions are never silently left behind. A
+// target holding the start of the source's trail (an earlier copy) gets
+// the rest.
 package transfer
 
 import (
@@ -49,6 +61,18 @@ type ModelLister interface {
 // changes in turn.
 type ChangeLister interface {
 	ModelVerdictChanges(ctx context.Context, model string) ([]store.VerdictChange, error)
+}
+
+// DecisionCopier is implemented by stores that keep decisions and an
+// audit trail and can hand them over whole (both of plumb's backends do):
+// Copy reads the source's with ExportDecisions and writes them into the
+// target with ImportDecisions, which appends the records verbatim and
+// refuses (store.ErrConflict) a target whose trail is not a start of the
+// source's.
+type DecisionCopier interface {
+	store.AuditSource
+	ExportDecisions(ctx context.Context) (store.DecisionHistory, error)
+	ImportDecisions(ctx context.Context, h store.DecisionHistory) (store.ImportPlan, error)
 }
 
 // Options tunes Copy.
@@ -78,9 +102,15 @@ type Report struct {
 	Deliveries int64
 	// CopiedAlerts and CopiedDeliveries count what this run wrote.
 	CopiedAlerts, CopiedDeliveries int64
-	// Audit counts the source's audit records, all in the target with
-	// the same hashes; CopiedAudit those this run appended.
-	Audit, CopiedAudit int64
+
+	// The decisions and the audit trail, all present in the target.
+	Decisions, Rebaselines, QuietPeriods, AuditRecords int64
+	// What this run wrote of them (quiet periods: added or ended).
+	CopiedDecisions, CopiedRebaselines, CopiedQuietPeriods, CopiedAuditRecords int64
+	// Audit is store.VerifyAudit's report on the target's trail after the
+	// copy, the same as on the source's (a trail already broken in the
+	// source is copied as it is, and reported broken at the same record).
+	Audit store.AuditReport
 }
 
 // ErrMismatch is returned (wrapped) when the target holds a different
@@ -109,12 +139,20 @@ func Copy(ctx context.Context, src, dst store.Store, opt Options) (Report, error
 	if err != nil {
 		return rep, err
 	}
-	trail, err := checkDecisions(ctx, src, dst, models)
+	// The decisions are checked before anything is copied: a target that
+	// cannot take them, or holds another trail, is refused at once.
+	hist, dc, err := decisionsToCopy(ctx, src, dst)
 	if err != nil {
 		return rep, err
 	}
+	// need maps the observations decisions refer to (source ids) to
+	// their copies' ids, filled in as the models are copied.
+	need := map[int64]int64{}
+	for _, d := range hist.Decisions {
+		need[d.ObsID] = 0
+	}
 	for _, m := range models {
-		mc, err := copyModel(ctx, src, dst, m, opt)
+		mc, err := copyModel(ctx, src, dst, m, opt, need)
 		if err != nil {
 			return rep, fmt.Errorf("transfer: model %s: %w", m, err)
 		}
@@ -133,17 +171,124 @@ func Copy(ctx context.Context, src, dst store.Store, opt Options) (Report, error
 	if err := copyAlerts(ctx, src, dst, &rep); err != nil {
 		return rep, fmt.Errorf("transfer: alerts: %w", err)
 	}
-	if err := copyTrail(ctx, dst, trail, &rep); err != nil {
-		return rep, fmt.Errorf("transfer: audit trail: %w", err)
+	if dc != nil {
+		if err := copyDecisions(ctx, src.(DecisionCopier), dc, hist, need, &rep); err != nil {
+			return rep, fmt.Errorf("transfer: decisions and audit trail: %w", err)
+		}
 	}
 	return rep, nil
+}
+
+// decisionsToCopy reads the source's decisions and audit trail and checks
+// that the target can take them: it keeps decisions, and its trail is
+// empty or a start of the source's. dc is nil when there is nothing to
+// copy (the source keeps no decisions, or none were recorded).
+func decisionsToCopy(ctx context.Context, src, dst store.Store) (store.DecisionHistory, DecisionCopier, error) {
+	var hist store.DecisionHistory
+	sc, ok := src.(DecisionCopier)
+	if !ok {
+		// A store that records decisions but cannot hand them over
+		// whole is refused if it holds any: they would be lost.
+		if d, ok := src.(store.Decisions); ok {
+			recs, err := d.Audit(ctx, store.AuditQuery{Limit: 1})
+			if err != nil {
+				return hist, nil, err
+			}
+			if len(recs) > 0 {
+				return hist, nil, fmt.Errorf("transfer: the source (%T) keeps an audit trail that this copy cannot read; nothing was copied", src)
+			}
+		}
+		return hist, nil, nil
+	}
+	hist, err := sc.ExportDecisions(ctx)
+	if err != nil {
+		return hist, nil, fmt.Errorf("transfer: %w", err)
+	}
+	if hist.Empty() {
+		return hist, nil, nil
+	}
+	dc, ok := dst.(DecisionCopier)
+	if !ok {
+		return hist, nil, fmt.Errorf("%w: the source holds an audit trail of %d records and %d decisions on readings, which the target (%T) cannot keep; nothing was copied",
+			ErrMismatch, len(hist.Audit), len(hist.Decisions), dst)
+	}
+	have, err := dc.ExportDecisions(ctx)
+	if err != nil {
+		return hist, nil, fmt.Errorf("transfer: %w", err)
+	}
+	if err := store.CheckTrailPrefix(have.Audit, hist.Audit); err != nil {
+		return hist, nil, fmt.Errorf("%w: %w; nothing was copied", ErrMismatch, err)
+	}
+	return hist, dc, nil
+}
+
+// copyDecisions maps the decisions' observations to the copies' ids,
+// writes what the target lacks in one transaction (ImportDecisions), and
+// verifies: the target's decisions are now the source's, row for row,
+// and its trail verifies as the source's does.
+func copyDecisions(ctx context.Context, src, dst DecisionCopier, hist store.DecisionHistory, need map[int64]int64, rep *Report) error {
+	want := hist
+	want.Decisions = slices.Clone(hist.Decisions)
+	for i, d := range want.Decisions {
+		n := need[d.ObsID]
+		if n == 0 {
+			return fmt.Errorf("decision %d (%s of %s) refers to observation %d, which was not copied", d.ID, d.Action, d.Model, d.ObsID)
+		}
+		want.Decisions[i].ObsID = n
+	}
+	plan, err := dst.ImportDecisions(ctx, want)
+	if err != nil {
+		if errors.Is(err, store.ErrConflict) {
+			return fmt.Errorf("%w: %w", ErrMismatch, err)
+		}
+		return err
+	}
+	rep.CopiedAuditRecords, rep.CopiedDecisions = int64(len(plan.Audit)), int64(len(plan.Decisions))
+	rep.CopiedRebaselines, rep.CopiedQuietPeriods = int64(len(plan.Rebaselines)), int64(len(plan.Quiet)+len(plan.QuietEnded))
+
+	// Verify: nothing is left to write, and the chain checks the same.
+	got, err := dst.ExportDecisions(ctx)
+	if err != nil {
+		return err
+	}
+	if rest, err := store.PlanImport(got, want); err != nil || !rest.Empty() {
+		return fmt.Errorf("%w: after the copy the target's decisions or trail differ from the source's (%v)", ErrMismatch, err)
+	}
+	rep.AuditRecords, rep.Decisions = int64(len(got.Audit)), int64(len(got.Decisions))
+	rep.Rebaselines, rep.QuietPeriods = int64(len(got.Rebaselines)), int64(len(got.Quiet))
+	a, err := store.VerifyAudit(ctx, src)
+	if err != nil {
+		return err
+	}
+	b, err := store.VerifyAudit(ctx, dst)
+	if err != nil {
+		return err
+	}
+	if a.Records != b.Records || a.Head.Seq != b.Head.Seq || a.Head.Hash != b.Head.Hash || (a.Break == nil) != (b.Break == nil) ||
+		(a.Break != nil && *a.Break != *b.Break) {
+		return fmt.Errorf("%w: the target's audit trail verifies differently from the source's (%s; source: %s)",
+			ErrMismatch, describeAudit(b), describeAudit(a))
+	}
+	rep.Audit = b
+	return nil
+}
+
+// describeAudit says what store.VerifyAudit found.
+func describeAudit(r store.AuditReport) string {
+	if r.Break != nil {
+		return fmt.Sprintf("%d records intact, then %v", r.Records, r.Break)
+	}
+	if r.Records == 0 {
+		return "no records"
+	}
+	return fmt.Sprintf("%d records, chain intact, head %d %s", r.Records, r.Head.Seq, r.Head.Hash)
 }
 
 // key identifies a row of a file: its generation and line.
 type key struct{ gen, line int }
 
 // copyModel copies one model's files, then its fits, and verifies.
-func copyModel(ctx context.Context, src, dst store.Store, model string, opt Options) (ModelCount, error) {
+func copyModel(ctx context.Context, src, dst store.Store, model string, opt Options, need map[int64]int64) (ModelCount, error) {
 	mc := ModelCount{Model: model}
 	sources, err := src.Sources(ctx, model)
 	if err != nil {
@@ -180,6 +325,11 @@ func copyModel(ctx context.Context, src, dst store.Store, model string, opt Opti
 	}
 	if err := copyFits(ctx, src, dst, model, idmap, &mc); err != nil {
 		return mc, err
+	}
+	for old := range need {
+		if n, ok := idmap[old]; ok {
+			need[old] = n
+		}
 	}
 	return mc, verifyModel(ctx, src, dst, &mc)
 }
@@ -574,5 +724,14 @@ func (r Report) String() string {
 	}
 	fmt.Fprintf(&b, "alerts: %d verified (copied now: %d); outbox entries: %d verified (copied now: %d)\n",
 		r.Alerts, r.CopiedAlerts, r.Deliveries, r.CopiedDeliveries)
+	if r.AuditRecords > 0 || r.Decisions+r.Rebaselines+r.QuietPeriods > 0 {
+		fmt.Fprintf(&b, "decisions: %d on readings, %d re-baselines, %d quiet periods verified (copied now: %d, %d, %d)\n",
+			r.Decisions, r.Rebaselines, r.QuietPeriods, r.CopiedDecisions, r.CopiedRebaselines, r.CopiedQuietPeriods)
+		fmt.Fprintf(&b, "audit trail: %d records copied as they are (copied now: %d); verified in the target: %s\n",
+			r.AuditRecords, r.CopiedAuditRecords, describeAudit(r.Audit))
+		if r.Audit.Break != nil {
+			fmt.Fprintln(&b, "the trail was already broken in the source: it is copied as it stands, as evidence; report it under your quality procedures")
+		}
+	}
 	return b.String()
 }
