@@ -5,42 +5,18 @@ import (
 	"math"
 	"strings"
 	"time"
+
+	"plumb/engine"
 )
 
 // Caution is carried by every alert document.
 const Caution = "plumb flags; it alters no data. Whether to keep, correct, re-measure or exclude a value " +
 	"is a decision for qualified staff under your local quality procedures."
 
-var measureWords = map[string]string{
-	"leverage":             "leverage",
-	"cooks_distance":       "Cook's distance",
-	"dffits":               "DFFITS",
-	"dfbetas":              "DFBETAS",
-	"covratio":             "COVRATIO",
-	"outlier_p_bonferroni": "Bonferroni outlier p-value",
-	"grubbs":               "Grubbs statistic",
-}
-
-// describe renders one crossed measure, e.g. "Cook's distance 3.42, above 1".
-func describe(m Measure) string {
-	name := measureWords[m.Measure]
-	if name == "" {
-		name = m.Measure
-	}
-	if m.Term != "" {
-		name += " for " + m.Term
-	}
-	v := m.Value
-	switch m.Measure {
-	case "outlier_p_bonferroni":
-		return fmt.Sprintf("%s %s, at most %s", name, fmtNum(v), fmtNum(m.Cutoff))
-	case "covratio":
-		return fmt.Sprintf("%s %s, cutoff %s", name, fmtNum(v), fmtNum(m.Cutoff))
-	case "dffits", "dfbetas":
-		name, v = "|"+name+"|", math.Abs(v)
-	}
-	return fmt.Sprintf("%s %s, above %s", name, fmtNum(v), fmtNum(m.Cutoff))
-}
+// describe renders one crossed measure: an engine measure as the engine
+// words its flags (engine.Flag.Text), e.g. "Cook's distance 3.42, above 1
+// (absolute cutoff)".
+func describe(m Measure) string { return engine.Flag(m).Text() }
 
 func describeAll(ms []Measure, keep func(Measure) bool) string {
 	var parts []string

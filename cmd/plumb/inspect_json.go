@@ -370,7 +370,7 @@ func (r *inspectResult) appendJSONRow(dst []byte, i int, qnames [][]byte) []byte
 			dst = appendJSONString(dst, fl.Term)
 		}
 		dst = append(dst, `,"words":`...)
-		dst = appendJSONString(dst, flagWords(fl))
+		dst = appendJSONString(dst, fl.Text())
 		dst = append(dst, '}')
 	}
 	dst = append(dst, "]}"...)

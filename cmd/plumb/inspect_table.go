@@ -16,42 +16,6 @@ import (
 
 // ---------------------------------------------------------------- table
 
-// measureWords names each measure in the table.
-var measureWords = map[string]string{
-	"leverage":             "leverage",
-	"cooks_distance":       "Cook's distance",
-	"dffits":               "DFFITS",
-	"dfbetas":              "DFBETAS",
-	"covratio":             "COVRATIO",
-	"outlier_p_bonferroni": "Bonferroni outlier p",
-	"grubbs":               "Grubbs statistic",
-}
-
-// flagWords says in plain words which cutoff a flag crosses.
-func flagWords(fl engine.Flag) string {
-	name := measureWords[fl.Measure]
-	if name == "" {
-		name = fl.Measure
-	}
-	if fl.Term != "" {
-		name += " for " + fl.Term
-	}
-	family := strings.ReplaceAll(fl.Family, "_", "-")
-	v, c := num4(fl.Value), num4(fl.Cutoff)
-	switch fl.Measure {
-	case "outlier_p_bonferroni":
-		return fmt.Sprintf("%s is %s, below the significance level %s", name, v, c)
-	case "covratio":
-		return fmt.Sprintf("%s is %s, more than %s away from 1 (%s cutoff)", name, v, c, family)
-	case "dffits", "dfbetas":
-		return fmt.Sprintf("%s is %s, beyond ±%s (%s cutoff)", name, v, c, family)
-	case "grubbs":
-		return fmt.Sprintf("%s is %s, above the critical value %s", name, v, c)
-	default:
-		return fmt.Sprintf("%s is %s, above %s (%s cutoff)", name, v, c, family)
-	}
-}
-
 // num4 formats a number to 4 significant digits for people.
 func num4(x float64) string {
 	switch {
@@ -206,7 +170,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 			v := r.Verdicts[i]
 			fmt.Fprintf(bw, "  row %d (line %d): %s\n", r.ds.rowNo[i], r.ds.line[i], verdictWords(v))
 			for _, fl := range v.Flags {
-				fmt.Fprintf(bw, "      - %s\n", flagWords(fl))
+				fmt.Fprintf(bw, "      - %s\n", fl.Text())
 			}
 		}
 		if rest := look[len(shown):]; len(rest) > 0 {

@@ -297,6 +297,10 @@ type flagJSON struct {
 	Cutoff  Float  `json:"cutoff"`
 }
 
+// Text says the flag in words (engine.Flag.Text): the one rendering of
+// a crossed cutoff on every page, report and alert.
+func (f Flag) Text() string { return engine.Flag(f).Text() }
+
 // MarshalJSON implements json.Marshaler.
 func (f Flag) MarshalJSON() ([]byte, error) {
 	return json.Marshal(flagJSON{f.Measure, f.Family, f.Term, Float(f.Value), Float(f.Cutoff)})
