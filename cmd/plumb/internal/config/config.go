@@ -16,6 +16,7 @@ import (
 	"fmt"
 	"io"
 	"net"
+	"net/url"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -44,6 +45,11 @@ type Config struct {
 	// pages of other sites from reading the API through DNS rebinding.
 	// Names only: no scheme, port, path or wildcard. Default none.
 	PublicNames []string `toml:"public_names"`
+	// PublicURL is the dashboard's address as people reach it, e.g.
+	// "https://plumb.lab.example" (http or https, no query). When set,
+	// every alert carries the URL of its page there ("url" in the event
+	// data), and its host is served like a public name. Default none.
+	PublicURL string `toml:"public_url"`
 	// LogFormat is "text" (default) or "json".
 	LogFormat string `toml:"log_format"`
 	// LogLevel is "debug", "info" (default), "warn" or "error".
@@ -500,6 +506,11 @@ func (c *Config) Validate() error {
 			v.add([]string{"public_names"}, -1, ErrBadValue, "%q: %s", n, msg)
 		}
 	}
+	if c.PublicURL != "" {
+		if msg := checkPublicURL(c.PublicURL); msg != "" {
+			v.add([]string{"public_url"}, -1, ErrBadValue, "%q: %s", c.PublicURL, msg)
+		}
+	}
 	for _, d := range []struct {
 		key string
 		val time.Duration
@@ -712,6 +723,32 @@ func oneOf(s string, set ...string) bool {
 
 // checkPublicName returns why n is not a host name or IP address that a
 // Host header can carry ("" when it is one).
+// checkPublicURL says what is wrong with a public_url ("" when nothing).
+func checkPublicURL(s string) string {
+	u, err := url.Parse(s)
+	switch {
+	case err != nil:
+		return "not a URL: " + err.Error()
+	case u.Scheme != "http" && u.Scheme != "https":
+		return "want an http:// or https:// address"
+	case u.Host == "" || u.Hostname() == "":
+		return "the address names no host"
+	case u.RawQuery != "" || u.Fragment != "" || u.User != nil:
+		return "no query, fragment or user name: the address of the dashboard only"
+	}
+	return ""
+}
+
+// PublicHosts are the host names the HTTP server answers to besides its
+// listen address and localhost: PublicNames and the host of PublicURL.
+func (c *Config) PublicHosts() []string {
+	hosts := append([]string(nil), c.PublicNames...)
+	if u, err := url.Parse(c.PublicURL); err == nil && c.PublicURL != "" && u.Hostname() != "" {
+		hosts = append(hosts, u.Hostname())
+	}
+	return hosts
+}
+
 func checkPublicName(n string) string {
 	switch {
 	case n == "":

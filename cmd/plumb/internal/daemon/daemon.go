@@ -158,6 +158,8 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 		Routes:      routes,
 		ModelRoutes: map[string][]string{},
 		Now:         d.opts.Now,
+		// The alert page's address goes into every alert (its "url").
+		DashboardURL: cfg.PublicURL,
 	}
 	if h, err := os.Hostname(); err == nil {
 		ac.Host = h

@@ -228,7 +228,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 	}
 	if base != nil && base.fit != fit {
 		if df := r.driftFit(cols, verdicts, fit); df != nil {
-			if err := m.d.drift(ctx, r.driftCondition(base, df, top)); err != nil {
+			if err := m.d.drift(ctx, r.driftCondition(base, df, res.Region)); err != nil {
 				m.log.Error("alert", "err", err)
 			}
 		}
@@ -408,9 +408,13 @@ func (r *refresher) makeBaseline() *baseline {
 	return b
 }
 
-func (r *refresher) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Suggestion) alerts.DriftCondition {
+// driftCondition compares f with the baseline b. Its suggestion is not
+// where the data are thin (more readings do nothing for a calibration
+// that moves) but a check against reference standards at the model's
+// checkpoints, or across region when it names none (alerts.DriftSuggestion).
+func (r *refresher) driftCondition(b *baseline, f *engine.Fit, region engine.Region) alerts.DriftCondition {
 	m := r.m
-	c := alerts.DriftCondition{Model: m.cfg.Name, Baseline: b.label, Suggestion: sugg}
+	c := alerts.DriftCondition{Model: m.cfg.Name, Baseline: b.label}
 	for i, c0 := range f.Coef {
 		if i >= len(b.est) || math.IsNaN(b.est[i]) {
 			continue
@@ -441,6 +445,7 @@ func (r *refresher) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Sugg
 			c.Measures = append(c.Measures, alerts.DriftMeasure{Name: name, Kind: alerts.DriftPrediction, At: alerts.Values(cp.At), Baseline: y0, Current: y1, StdError: se0})
 		}
 	}
+	c.Suggestion = alerts.DriftSuggestion(c.Measures, region)
 	return c
 }
 
