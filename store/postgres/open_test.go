@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"net/url"
+	"path/filepath"
 	"strings"
 	"sync"
 	"testing"
@@ -38,8 +39,8 @@ func TestPostgresMigrateConcurrent(t *testing.T) {
 	if err := dbs[0].Pool().QueryRow(ctx, "SELECT COUNT(*) FROM schema_version").Scan(&applied); err != nil {
 		t.Fatal(err)
 	}
-	if applied != postgres.LatestSchemaVersion() {
-		t.Errorf("%d migrations recorded, want %d (each once)", applied, postgres.LatestSchemaVersion())
+	if want := migrationFiles(t); applied != want {
+		t.Errorf("%d migrations recorded, want %d (each once)", applied, want)
 	}
 	for i, db := range dbs {
 		v, err := db.SchemaVersion(ctx)
@@ -61,7 +62,7 @@ func TestPostgresMigrateConcurrent(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer again.Close()
-	if err := again.Pool().QueryRow(ctx, "SELECT COUNT(*) FROM schema_version").Scan(&applied); err != nil || applied != postgres.LatestSchemaVersion() {
+	if err := again.Pool().QueryRow(ctx, "SELECT COUNT(*) FROM schema_version").Scan(&applied); err != nil || applied != migrationFiles(t) {
 		t.Errorf("after a reopen %d migrations recorded (%v)", applied, err)
 	}
 }
@@ -147,4 +148,17 @@ func TestPostgresErrorsHidePassword(t *testing.T) {
 			t.Logf("error: %v", err)
 		})
 	}
+}
+
+// migrationFiles counts the migrations of the package (migrations/*.sql):
+// one record each once applied. Versions may leave gaps (a number kept
+// for a migration still on another branch), so the count is not the
+// latest version.
+func migrationFiles(t *testing.T) int {
+	t.Helper()
+	m, err := filepath.Glob(filepath.Join("migrations", "*.sql"))
+	if err != nil || len(m) == 0 {
+		t.Fatalf("migrations: %v (%d files)", err, len(m))
+	}
+	return len(m)
 }

@@ -111,8 +111,8 @@ func TestReopenKeepsData(t *testing.T) {
 		if err := db.DB().QueryRowContext(ctx, "SELECT count(*) FROM schema_version").Scan(&migrations); err != nil {
 			t.Fatal(err)
 		}
-		if migrations != sqlite.LatestSchemaVersion() {
-			t.Errorf("reopen %d: %d migration records, want %d (applying must be idempotent)", round, migrations, sqlite.LatestSchemaVersion())
+		if want := migrationFiles(t); migrations != want {
+			t.Errorf("reopen %d: %d migration records, want %d (applying must be idempotent)", round, migrations, want)
 		}
 		if n, err := db.CountObservations(ctx, "bench"); err != nil || n != 50 {
 			t.Errorf("reopen %d: CountObservations = %d, %v; want 50", round, n, err)
@@ -415,4 +415,17 @@ func TestMigrateSourceDigest(t *testing.T) {
 	if src, _ := db.Sources(ctx, "cal"); string(src[0].Digest) != "state" {
 		t.Errorf("digest after a batch %q", src[0].Digest)
 	}
+}
+
+// migrationFiles counts the migrations of the package (migrations/*.sql):
+// one record each once applied. Versions may leave gaps (a number kept
+// for a migration still on another branch), so the count is not the
+// latest version.
+func migrationFiles(t *testing.T) int {
+	t.Helper()
+	m, err := filepath.Glob(filepath.Join("migrations", "*.sql"))
+	if err != nil || len(m) == 0 {
+		t.Fatalf("migrations: %v (%d files)", err, len(m))
+	}
+	return len(m)
 }

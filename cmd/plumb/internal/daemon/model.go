@@ -257,7 +257,9 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	missing := 0
 	for _, rec := range b.Records {
 		if rec.Err != nil {
-			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, rec.Err.Column, rec.Err.Error()))
+			q := quarantineRow(m.cfg.Name, b, rec, now, rec.Err.Error())
+			q.Column, q.ColumnName, q.Field = rec.Err.Column, rec.Err.Name, rec.Err.Field
+			quar = append(quar, q)
 			continue
 		}
 		if rec.Missing != nil {
@@ -282,13 +284,32 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 			}
 			tt, err := time.Parse(layout, strings.TrimSpace(rec.Text[ti]))
 			if err != nil {
-				quar = append(quar, quarantineRow(m.cfg.Name, b, rec, 0, fmt.Sprintf("%s:%d: column %q: not a time in layout %q: %q", b.Path, rec.Line, m.cfg.TimeColumn, layout, rec.Text[ti])))
+				q := quarantineRow(m.cfg.Name, b, rec, now, "")
+				m.placeColumn(&q, b, rec, m.cfg.TimeColumn)
+				q.Reason = fmt.Sprintf("%s:%d:%d: column %q (field %d): not a time in layout %q: %q",
+					b.Path, rec.Line, q.Column, m.cfg.TimeColumn, q.Field, layout, rec.Text[ti])
+				quar = append(quar, q)
 				continue
 			}
 			t = tt.UnixNano()
 		}
 		if err := m.designRow(rec.Values); err != nil {
-			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, 0, fmt.Sprintf("%s:%d: %v", b.Path, rec.Line, err)))
+			q := quarantineRow(m.cfg.Name, b, rec, now, "")
+			var de *engine.DataError
+			if errors.As(err, &de) && de.Column != "" {
+				m.placeColumn(&q, b, rec, de.Column)
+				why := de.Err.Error()
+				switch {
+				case errors.Is(de.Err, engine.ErrLogDomain):
+					why = "the log of a value that is not positive"
+				case errors.Is(de.Err, engine.ErrNonFinite):
+					why = "not a finite number"
+				}
+				q.Reason = fmt.Sprintf("%s:%d:%d: column %q (field %d): %s: %q", b.Path, rec.Line, q.Column, de.Column, q.Field, why, fieldText(rec.Raw, m.cfg.Delimiter[0], q.Field))
+			} else {
+				q.Reason = fmt.Sprintf("%s:%d: %v", b.Path, rec.Line, err)
+			}
+			quar = append(quar, q)
 			continue
 		}
 		p := pending{rec: rec, vals: rec.Values, t: t}
@@ -357,11 +378,60 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	return nil
 }
 
-func quarantineRow(model string, b watcher.Batch, rec decode.Record, col int, reason string) store.QuarantineRow {
+// quarantineRow keeps rec aside: where it is, its text, the reason, and
+// when it arrived.
+func quarantineRow(model string, b watcher.Batch, rec decode.Record, at time.Time, reason string) store.QuarantineRow {
 	return store.QuarantineRow{
-		Model: model, Path: b.Path, Generation: b.Generation, Line: rec.Line, Column: col,
-		Raw: rec.Raw, Reason: reason,
+		Model: model, Path: b.Path, Generation: b.Generation, Line: rec.Line,
+		Raw: rec.Raw, Reason: reason, At: at,
 	}
+}
+
+// placeColumn sets the column name, its 1-based field in the header and
+// the byte column where that field starts in rec's text (1-based; 0 when
+// the header lacks the column).
+func (m *watchedModel) placeColumn(q *store.QuarantineRow, b watcher.Batch, rec decode.Record, name string) {
+	q.ColumnName = name
+	q.Field = slices.Index(b.Header, name) + 1
+	if q.Field > 0 {
+		q.Column = fieldStart(rec.Raw, m.cfg.Delimiter[0], q.Field)
+	}
+}
+
+// fieldText is the text of field k (1-based) of the CSV record raw, as
+// written (quotes kept); "" when the record has fewer fields.
+func fieldText(raw string, delim byte, k int) string {
+	start := fieldStart(raw, delim, k)
+	if start == 0 {
+		return ""
+	}
+	rest := raw[start-1:]
+	if end := fieldStart(rest, delim, 2); end > 0 {
+		return rest[:end-2]
+	}
+	return strings.TrimRight(rest, "\r\n")
+}
+
+// fieldStart is the 1-based byte column where field k (1-based) of the
+// CSV record raw starts, delimiters inside double quotes skipped; 0 when
+// the record has fewer fields.
+func fieldStart(raw string, delim byte, k int) int {
+	field, quoted := 1, false
+	if k == 1 {
+		return 1
+	}
+	for i := 0; i < len(raw); i++ {
+		switch c := raw[i]; {
+		case c == '"':
+			quoted = !quoted
+		case c == delim && !quoted:
+			field++
+			if field == k {
+				return i + 2
+			}
+		}
+	}
+	return 0
 }
 
 // diagnostics converts the engine's measures of one row, with its DFBETAS,

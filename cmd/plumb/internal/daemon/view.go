@@ -267,7 +267,8 @@ func (v viewSource) RecentQuarantine(ctx context.Context, model string, n int) (
 func quarantineViews(qs []store.QuarantineRow) []view.QuarantineView {
 	out := make([]view.QuarantineView, len(qs))
 	for i, q := range qs {
-		out[i] = view.QuarantineView{ID: q.ID, Model: q.Model, File: q.Path, Line: q.Line, Column: q.Column, Raw: q.Raw, Reason: q.Reason, At: q.At}
+		out[i] = view.QuarantineView{ID: q.ID, Model: q.Model, File: q.Path, Line: q.Line, Column: q.Column,
+			ColumnName: q.ColumnName, Field: q.Field, Raw: q.Raw, Reason: q.Reason, At: q.At}
 	}
 	return out
 }

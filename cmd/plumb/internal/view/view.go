@@ -413,14 +413,18 @@ type ObservationView struct {
 
 // QuarantineView is a row that could not be read.
 type QuarantineView struct {
-	ID     int64     `json:"id"`
-	Model  string    `json:"model"`
-	File   string    `json:"file"`
-	Line   int       `json:"line"`
-	Column int       `json:"column"`
-	Raw    string    `json:"raw"`
-	Reason string    `json:"reason"`
-	At     time.Time `json:"at"`
+	ID     int64  `json:"id"`
+	Model  string `json:"model"`
+	File   string `json:"file"`
+	Line   int    `json:"line"`
+	Column int    `json:"column"`
+	// ColumnName and Field name the column that could not be read and
+	// its 1-based position ("" and 0: not one column, or not known).
+	ColumnName string    `json:"column_name,omitempty"`
+	Field      int       `json:"field,omitempty"`
+	Raw        string    `json:"raw"`
+	Reason     string    `json:"reason"`
+	At         time.Time `json:"at,omitzero"`
 }
 
 // AlertFilter selects alerts. Empty strings match all.

@@ -50,9 +50,9 @@ func Demo() *Fake {
 			Leverage: p.Leverage, Cook: p.Cook, StudentizedExternal: p.StudentizedExternal,
 		})
 	}
-	f.AddQuarantine(view.QuarantineView{Model: "bench-b", File: "run-0314.csv", Line: 9, Column: 2,
+	f.AddQuarantine(view.QuarantineView{Model: "bench-b", File: "run-0314.csv", Line: 9, Column: 6, ColumnName: "ref_kpa", Field: 2,
 		Raw: "71.4,4O", Reason: `column 2 "ref_kpa": not a number`, At: at.Add(-12 * time.Minute)})
-	f.AddQuarantine(view.QuarantineView{Model: "bench-b", File: "run-0314.csv", Line: 23, Column: 1,
+	f.AddQuarantine(view.QuarantineView{Model: "bench-b", File: "run-0314.csv", Line: 23, Column: 1, ColumnName: "output_mv", Field: 1,
 		Raw: ",105", Reason: `column 1 "output_mv": empty field`, At: at.Add(-2 * time.Minute)})
 
 	f.SetModel(view.ModelDetail{ModelSummary: view.ModelSummary{
