@@ -180,7 +180,13 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	if err != nil {
 		return err
 	}
-	rs, err := alerts.NewRoutes(routes, alerts.RouteOptions{Logger: d.log})
+	// Only a daemon that sends builds the routes: that reads their
+	// secrets, which a read-only reader (plumb report) need not have.
+	sending := routes
+	if d.opts.ReadOnly {
+		sending = nil
+	}
+	rs, err := alerts.NewRoutes(sending, alerts.RouteOptions{Logger: d.log})
 	if err != nil {
 		return err
 	}
