@@ -42,7 +42,7 @@ func runAlerts(ctx context.Context, e *env, args []string) error {
 	case "all":
 		*state = ""
 	default:
-		return fmt.Errorf("alerts: %w: --state wants open, acknowledged, resolved or all, got %q", errUsage, *state)
+		return usageErr("alerts", fmt.Sprintf("--state wants open, acknowledged, resolved or all, got %q", *state))
 	}
 	_, db, err := openState(ctx, *path)
 	if err != nil {

@@ -28,8 +28,7 @@ func runConfig(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	if len(pos) != 1 || pos[0] != "check" {
-		fs.Usage()
-		return fmt.Errorf("config: %w: want \"plumb config check --config FILE\"", errUsage)
+		return usageErr("config", `want "plumb config check --config FILE"`)
 	}
 	c, err := loadConfig(*path)
 	if err != nil {

@@ -44,7 +44,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	if *duration <= 0 {
-		return fmt.Errorf("demo: %w: --duration must be positive", errUsage)
+		return usageErr("demo", "--duration must be positive")
 	}
 	readings := demo.Scenario()
 	if *speed == 0 {
@@ -52,7 +52,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 		*speed = total.Seconds() / (0.8 * duration.Seconds())
 	}
 	if *speed < 0 {
-		return fmt.Errorf("demo: %w: --speed must be positive", errUsage)
+		return usageErr("demo", "--speed must be positive")
 	}
 
 	dir := *keep

@@ -232,8 +232,7 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	if len(pos) != 1 {
-		fs.Usage()
-		return fmt.Errorf("history: %w: name one model", errUsage)
+		return usageErr("history", "name one model")
 	}
 	model := pos[0]
 	cfg, db, err := openState(ctx, *path)
@@ -252,10 +251,10 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 		i := strings.LastIndexByte(*line, ':')
 		var ln int
 		if i < 0 {
-			return fmt.Errorf("history: %w: --line wants FILE:LINE, got %q", errUsage, *line)
+			return usageErr("history", fmt.Sprintf("--line wants FILE:LINE, got %q", *line))
 		}
 		if _, err := fmt.Sscan((*line)[i+1:], &ln); err != nil {
-			return fmt.Errorf("history: %w: --line wants FILE:LINE, got %q", errUsage, *line)
+			return usageErr("history", fmt.Sprintf("--line wants FILE:LINE, got %q", *line))
 		}
 		o, err := db.ObservationAt(ctx, model, (*line)[:i], ln)
 		if err != nil {
