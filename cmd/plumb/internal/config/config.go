@@ -481,16 +481,58 @@ func (c *Config) Resolve(p string) string {
 }
 
 // MinRowsFor returns the model's effective minimum row count given its
-// number of coefficients p.
+// number of coefficients p: min_rows (default p + 5), raised to p + 2 when
+// below, the fewest rows whose fit leaves a residual degree of freedom
+// once one row is set aside (the externally studentized residual needs
+// it).
 func (m *Model) MinRowsFor(p int) int {
-	if m.MinRows > 0 {
-		return m.MinRows
+	n := m.MinRows
+	if n <= 0 {
+		n = p + 5
 	}
-	return p + 5
+	return max(n, p+2)
+}
+
+// ModelCheck checks what only another package can: a model's terms (the
+// engine parses them). It returns the model's number of coefficients, or
+// the error (an engine.TermError, for instance).
+type ModelCheck func(m *Model) (coefficients int, err error)
+
+// LoadChecked is Load with every model also checked by check: a bad term
+// is reported at its line with every other problem of the file, in one
+// error. Notes says what plumb will do other than the file says (a
+// min_rows raised to what the model needs); they come with the error too.
+func LoadChecked(path string, check ModelCheck) (c *Config, notes []string, err error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	defer f.Close()
+	abs, err := filepath.Abs(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	c, err = Parse(f, path)
+	if err != nil {
+		return nil, nil, err
+	}
+	c.Dir = filepath.Dir(abs)
+	c.Path = path
+	notes, err = c.validate(check)
+	if err != nil {
+		return nil, notes, err
+	}
+	return c, notes, nil
 }
 
 // Validate checks every value and reports all problems at once.
 func (c *Config) Validate() error {
+	_, err := c.validate(nil)
+	return err
+}
+
+// validate is Validate, each model also checked by check when not nil.
+func (c *Config) validate(check ModelCheck) (notes []string, err error) {
 	v := validator{c: c}
 	if c.State == "" {
 		v.add([]string{"state"}, -1, ErrMissing, "the state database path is required")
@@ -683,11 +725,30 @@ func (c *Config) Validate() error {
 			}
 		}
 	}
+	if check != nil {
+		for i := range c.Models {
+			m := &c.Models[i]
+			p, err := check(m)
+			if err != nil {
+				v.add([]string{"model", "terms"}, i, ErrBadValue, "%v", err)
+				continue
+			}
+			if m.MinRows > 0 && m.MinRowsFor(p) > m.MinRows {
+				line := 0
+				if c.lines != nil {
+					line = c.lines.findIndexed([]string{"model", "min_rows"}, i)
+				}
+				notes = append(notes, fmt.Sprintf("%s:%d: model[%d].min_rows (model %q): %d is too few for %d coefficients; "+
+					"plumb waits for %d rows before judging (a fit needs one row more than its coefficients, and one more "+
+					"to judge a row without it)", c.Path, line, i+1, m.Name, m.MinRows, p, m.MinRowsFor(p)))
+			}
+		}
+	}
 	if len(v.errs) > 0 {
 		sort.SliceStable(v.errs, func(a, b int) bool { return v.errs[a].Line < v.errs[b].Line })
-		return v.errs
+		return notes, v.errs
 	}
-	return nil
+	return notes, nil
 }
 
 // AlertKinds lists the alert kinds a route may filter on.

@@ -103,8 +103,8 @@ func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
 		xrow:          make([]float64, spec.P()),
 	}
 	m.ref.m = m
-	if m.minRows <= spec.P()+1 {
-		m.minRows = spec.P() + 2
+	if mc.MinRows > 0 && m.minRows > mc.MinRows {
+		m.log.Warn("min_rows raised to what the model needs", "min_rows", mc.MinRows, "coefficients", spec.P(), "waits_for", m.minRows)
 	}
 	return m, nil
 }
