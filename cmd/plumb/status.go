@@ -184,11 +184,11 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 	}
 	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
 	fmt.Fprintln(tw, "MODEL\tSTATE\tROWS\tQUARANTINED\tFITS\tLAST FIT\tFRAGILITY")
-	for _, m := range out.Models {
+	for i, m := range out.Models {
 		last, frag := "-", "-"
 		if m.LastFit != nil {
 			last = fmt.Sprintf("n=%d sigma=%.4g R²=%.4f at %s", m.LastFit.N, m.LastFit.Sigma, m.LastFit.RSquared, m.LastFit.At.Local().Format(time.DateTime))
-			frag = "none within limit"
+			frag = fmt.Sprintf("no set of up to %d rows changes a conclusion", cfg.Models[i].Fragility.MaxRemoved)
 			if m.Fragility != nil {
 				frag = fmt.Sprint(*m.Fragility)
 			}

@@ -192,13 +192,14 @@ type Fragility struct {
 	Searched string `json:"searched,omitempty"`
 }
 
-// String gives "3 (of up to 5)", "none within 5" or "not computed".
+// String gives "3", "no set of up to 5 rows changes a conclusion" or
+// "not computed".
 func (f Fragility) String() string {
 	switch {
 	case !f.Computed:
 		return "not computed"
 	case !f.Found:
-		return "none within " + strconv.Itoa(f.K)
+		return "no set of up to " + strconv.Itoa(f.K) + " rows changes a conclusion"
 	default:
 		return strconv.Itoa(f.Index)
 	}
