@@ -329,8 +329,8 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <h2>Alert history</h2>
 {{if .Alerts}}
 <table>
-<thead><tr><th>state</th><th>kind</th><th>severity</th><th>what</th><th>first seen</th><th>last seen</th><th>note</th></tr></thead>
-<tbody>{{range .Alerts}}<tr data-alert="{{.ID}}"><td class="state">{{.State}}</td><td class="m">{{.Kind}}</td><td>{{.Severity}}</td><td>{{.Summary}}</td><td>{{when .FirstSeen}}</td><td>{{when .LastSeen}}</td><td>{{.Note}}{{if .By}} ({{.By}}){{end}}</td></tr>{{end}}</tbody>
+<thead><tr><th>alert id</th><th>state</th><th>kind</th><th>severity</th><th>what</th><th>first seen</th><th>last seen</th><th>note</th></tr></thead>
+<tbody>{{range .Alerts}}<tr data-alert="{{.ID}}"><td class="m">{{.ID}}</td><td class="state">{{.State}}</td><td class="m">{{.Kind}}</td><td>{{.Severity}}</td><td>{{.Summary}}</td><td>{{when .FirstSeen}}</td><td>{{when .LastSeen}}</td><td>{{.Note}}{{if .By}} ({{.By}}){{end}}</td></tr>{{end}}</tbody>
 </table>
 {{else}}<p class="empty">No alerts.</p>{{end}}
 
