@@ -272,6 +272,9 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 		if a := o.Arrival; a != nil {
 			fmt.Fprintf(e.stdout, "  at arrival: %s  leverage %.4g  studentized %.4g  Cook's D %.4g  DFFITS %.4g  Bonferroni p %.3g\n",
 				a.Verdict, a.Leverage, a.StudentizedExternal, a.CooksDistance, a.DFFITS, a.OutlierPBonferroni)
+			for _, f := range a.Flags {
+				fmt.Fprintf(e.stdout, "    - %s\n", f.Text())
+			}
 		} else {
 			fmt.Fprintln(e.stdout, "  at arrival: not judged (the model had too few rows)")
 		}
@@ -281,6 +284,9 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 				from = "not judged"
 			}
 			fmt.Fprintf(e.stdout, "  %s  fit %d: %s -> %s\n", c.At.Local().Format(time.DateTime), c.FitID, from, c.To)
+			for _, f := range c.Flags {
+				fmt.Fprintf(e.stdout, "    - %s\n", f.Text())
+			}
 		}
 		return nil
 	}
