@@ -301,8 +301,23 @@ func (db *DB) migrate(ctx context.Context, schema string) error {
 			return fmt.Errorf("migrate: database is at schema version %d, this binary knows up to %d (upgrade plumb): %w",
 				cur, latest, ErrSchemaTooNew)
 		}
+		// Every migration not recorded is applied, in version order, also
+		// one below the latest recorded: branches merge in any order, so a
+		// database may hold 0006 from one before 0005 of another arrives.
+		rows, err := tx.Query(ctx, "SELECT version FROM schema_version")
+		if err != nil {
+			return fmt.Errorf("migrate: %w", err)
+		}
+		vs, err := pgx.CollectRows(rows, pgx.RowTo[int32])
+		if err != nil {
+			return fmt.Errorf("migrate: %w", err)
+		}
+		applied := map[int]bool{}
+		for _, v := range vs {
+			applied[int(v)] = true
+		}
 		for _, m := range ms {
-			if m.version <= cur {
+			if applied[m.version] {
 				continue
 			}
 			if _, err := tx.Exec(ctx, m.sql); err != nil {

@@ -262,8 +262,28 @@ func (db *DB) migrate(ctx context.Context) error {
 		return fmt.Errorf("migrate: database is at schema version %d, this binary knows up to %d (upgrade plumb or open a backup): %w",
 			cur, latest, ErrSchemaTooNew)
 	}
+	// Every migration not recorded is applied, in version order, also one
+	// below the latest recorded: branches merge in any order, so a
+	// database may hold 0006 from one before 0005 of another arrives.
+	applied := map[int]bool{}
+	rows, err := tx.QueryContext(ctx, "SELECT version FROM schema_version")
+	if err != nil {
+		return fmt.Errorf("migrate: %w", err)
+	}
+	for rows.Next() {
+		var v int
+		if err := rows.Scan(&v); err != nil {
+			rows.Close()
+			return fmt.Errorf("migrate: %w", err)
+		}
+		applied[v] = true
+	}
+	rows.Close()
+	if err := rows.Err(); err != nil {
+		return fmt.Errorf("migrate: %w", err)
+	}
 	for _, m := range ms {
-		if m.version <= cur {
+		if applied[m.version] {
 			continue
 		}
 		if _, err := tx.ExecContext(ctx, m.sql); err != nil {
