@@ -17,42 +17,6 @@ import (
 
 // ---------------------------------------------------------------- table
 
-// measureWords names each measure in the table.
-var measureWords = map[string]string{
-	engine.MeasureLeverage:   "leverage",
-	engine.MeasureCook:       "Cook's distance",
-	engine.MeasureDFFITS:     "DFFITS",
-	engine.MeasureDFBETAS:    "DFBETAS",
-	engine.MeasureCOVRATIO:   "COVRATIO",
-	engine.MeasureBonferroni: "Bonferroni outlier p",
-	engine.MeasureGrubbs:     "Grubbs statistic",
-}
-
-// flagWords says in plain words which cutoff a flag crosses.
-func flagWords(fl engine.Flag) string {
-	name := measureWords[fl.Measure]
-	if name == "" {
-		name = fl.Measure
-	}
-	if fl.Term != "" {
-		name += " for " + fl.Term
-	}
-	family := strings.ReplaceAll(fl.Family, "_", "-")
-	v, c := num4(fl.Value), num4(fl.Cutoff)
-	switch fl.Measure {
-	case engine.MeasureBonferroni:
-		return fmt.Sprintf("%s is %s, below the significance level %s", name, v, c)
-	case engine.MeasureCOVRATIO:
-		return fmt.Sprintf("%s is %s, more than %s away from 1 (%s cutoff)", name, v, c, family)
-	case engine.MeasureDFFITS, engine.MeasureDFBETAS:
-		return fmt.Sprintf("%s is %s, beyond ±%s (%s cutoff)", name, v, c, family)
-	case engine.MeasureGrubbs:
-		return fmt.Sprintf("%s is %s, above the critical value %s", name, v, c)
-	default:
-		return fmt.Sprintf("%s is %s, above %s (%s cutoff)", name, v, c, family)
-	}
-}
-
 // num4 formats a number to 4 significant digits for people.
 func num4(x float64) string {
 	switch {
@@ -213,7 +177,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 			v := r.Verdicts[i]
 			fmt.Fprintf(bw, "  %s: %s\n", rowWords(r.ds.rowNo[i], r.ds.line[i], r.ds.label(i)), verdictWords(v))
 			for _, fl := range v.Flags {
-				fmt.Fprintf(bw, "      - %s\n", flagWords(fl))
+				fmt.Fprintf(bw, "      - %s\n", fl.Text())
 			}
 		}
 		if rest := look[len(shown):]; len(rest) > 0 {

@@ -61,6 +61,7 @@ var pages = template.Must(template.New("").Funcs(template.FuncMap{
 	},
 	"xval":  func(p view.Point, col string) view.Float { return p.X[col] },
 	"atval": func(s view.Suggestion) string { return chart.Settings(s.At) },
+	"mtext": view.MeasureText,
 }).ParseFS(assets, "assets/*.html"))
 
 func when(t time.Time) string {
@@ -84,7 +85,7 @@ func staticHandler() http.Handler {
 
 // pageData is what the layout and every page template get.
 type pageData struct {
-	Page      string // overview, model, alerts, error
+	Page      string // overview, model, alerts, alert, error
 	Title     string
 	Caution   string
 	NeedToken bool
@@ -95,6 +96,7 @@ type pageData struct {
 	Models     []view.ModelSummary
 	OpenAlerts []view.AlertView
 	Model      *modelPage
+	Alert      *alertPage
 	Alerts     []view.AlertView
 	State      string
 	States     []string
