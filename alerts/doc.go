@@ -40,6 +40,11 @@
 // when its rule's Renotify interval has passed since the last notification.
 // Acknowledged alerts are not re-notified.
 //
+// The document keeps that life in History: each event with its time,
+// who acknowledged and their note, how it was resolved; reminders in a
+// row are one entry with their count (at most 50 entries, the first
+// kept). With Config.DashboardURL set, URL is the alert's dashboard page.
+//
 // # Delivery
 //
 // Every notification becomes one outbound event per selected route. The

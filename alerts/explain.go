@@ -14,36 +14,10 @@ import (
 const Caution = "plumb flags; it alters no data. Whether to keep, correct, re-measure or exclude a value " +
 	"is a decision for qualified staff under your local quality procedures."
 
-var measureWords = map[string]string{
-	engine.MeasureLeverage:   "leverage",
-	engine.MeasureCook:       "Cook's distance",
-	engine.MeasureDFFITS:     "DFFITS",
-	engine.MeasureDFBETAS:    "DFBETAS",
-	engine.MeasureCOVRATIO:   "COVRATIO",
-	engine.MeasureBonferroni: "Bonferroni outlier p-value",
-	engine.MeasureGrubbs:     "Grubbs statistic",
-}
-
-// describe renders one crossed measure, e.g. "Cook's distance 3.42, above 1".
-func describe(m Measure) string {
-	name := measureWords[m.Measure]
-	if name == "" {
-		name = m.Measure
-	}
-	if m.Term != "" {
-		name += " for " + m.Term
-	}
-	v := m.Value
-	switch m.Measure {
-	case engine.MeasureBonferroni:
-		return fmt.Sprintf("%s %s, at most %s", name, fmtNum(v), fmtNum(m.Cutoff))
-	case engine.MeasureCOVRATIO:
-		return fmt.Sprintf("%s %s, cutoff %s", name, fmtNum(v), fmtNum(m.Cutoff))
-	case engine.MeasureDFFITS, engine.MeasureDFBETAS:
-		name, v = "|"+name+"|", math.Abs(v)
-	}
-	return fmt.Sprintf("%s %s, above %s", name, fmtNum(v), fmtNum(m.Cutoff))
-}
+// describe renders one crossed measure: an engine measure as the engine
+// words its flags (engine.Flag.Text), e.g. "Cook's distance 3.42, above 1
+// (absolute cutoff)".
+func describe(m Measure) string { return engine.Flag(m).Text() }
 
 func describeAll(ms []Measure, keep func(Measure) bool) string {
 	var parts []string

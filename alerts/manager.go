@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"sort"
+	"strings"
 	"sync"
 	"time"
 )
@@ -13,6 +14,14 @@ import (
 // ErrNotOpen is returned (wrapped) by Ack and Resolve for an alert that is
 // already resolved.
 var ErrNotOpen = errors.New("alerts: alert is resolved")
+
+// notOpenError says once that an alert is resolved (it matches ErrNotOpen).
+type notOpenError struct{ id, verb string }
+
+func (e *notOpenError) Error() string {
+	return "alerts: alert " + e.id + " is resolved and cannot be " + e.verb
+}
+func (e *notOpenError) Is(target error) bool { return target == ErrNotOpen }
 
 // ErrChanged is what a Ledger's conditional PutAlert returns (wrapped)
 // when the stored alert is not at the expected revision: another writer
@@ -39,6 +48,10 @@ type Config struct {
 	Host string
 	// DataSchema is the dataschema attribute; "" means SchemaID.
 	DataSchema string
+	// DashboardURL, when set, is the dashboard's public address (e.g.
+	// "https://plumb.example.org"); every alert document then carries
+	// its page's URL, DashboardURL + "/alerts/" + id.
+	DashboardURL string
 	// Now is the clock; nil means time.Now.
 	Now func() time.Time
 	// OnEnqueue, when set, is called after events were stored (for
@@ -284,6 +297,12 @@ func (m *Manager) put(ctx context.Context, now time.Time, a *Alert, t Transition
 		a.Sequence++
 		a.Event = t
 		a.NotifiedAt = now
+		a.record(t, now)
+	}
+	if m.cfg.DashboardURL != "" {
+		a.URL = strings.TrimRight(m.cfg.DashboardURL, "/") + "/alerts/" + a.ID
+	}
+	if t != "" {
 		payload, err := newEvent(a, m.cfg.Host, m.cfg.DataSchema)
 		if err != nil {
 			return fmt.Errorf("alerts: alert %s: encode event: %w", a.ID, err)
@@ -537,7 +556,7 @@ func (m *Manager) Ack(ctx context.Context, id, note, who string) (*Alert, error)
 		}
 		switch a.State {
 		case StateResolved:
-			return a, fmt.Errorf("alerts: acknowledge %s: %w", id, ErrNotOpen)
+			return a, &notOpenError{id, "acknowledged"}
 		case StateAcknowledged:
 			a.Ack = &AckInfo{By: who, Note: note, At: now}
 			return a, m.put(ctx, now, a, "", rev)
@@ -568,7 +587,7 @@ func (m *Manager) ResolveBy(ctx context.Context, id, note, who string) (*Alert, 
 			return nil, err
 		}
 		if a.State == StateResolved {
-			return a, fmt.Errorf("alerts: resolve %s: %w", id, ErrNotOpen)
+			return a, &notOpenError{id, "resolved again"}
 		}
 		a.State = StateResolved
 		a.Resolution = &ResolutionInfo{At: now, Note: note, By: who}

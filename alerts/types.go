@@ -276,6 +276,63 @@ type Alert struct {
 
 	Ack        *AckInfo        `json:"acknowledgement,omitempty"`
 	Resolution *ResolutionInfo `json:"resolution,omitempty"`
+
+	// History lists the alert's events, oldest first: opened, reopened,
+	// acknowledged (by whom, with the note), resolved (by hand with the
+	// note, or because the condition cleared). Consecutive reminders are
+	// one entry with their Count and the time of the Last.
+	History []HistoryEntry `json:"history,omitempty"`
+	// URL is the alert's page on the dashboard, when the config names the
+	// dashboard's public address (Config.DashboardURL).
+	URL string `json:"url,omitempty"`
+}
+
+// HistoryEntry is one step of an alert's life.
+type HistoryEntry struct {
+	Event Transition `json:"event"`
+	At    time.Time  `json:"at"`
+	// By and Note: who acknowledged or resolved, and their note (for an
+	// automatic resolution, Note says why the condition cleared).
+	By   string `json:"by,omitempty"`
+	Note string `json:"note,omitempty"`
+	// Auto marks a resolution because the condition cleared.
+	Auto bool `json:"auto,omitempty"`
+	// Count and Last: reminders sent in a row (Count >= 1) and the last
+	// one's time; zero for other events.
+	Count int        `json:"count,omitempty"`
+	Last  *time.Time `json:"last,omitempty"`
+}
+
+// maxHistory bounds History: beyond it the oldest entries after the
+// first are dropped.
+const maxHistory = 50
+
+// record appends the event t at now to a's history.
+func (a *Alert) record(t Transition, now time.Time) {
+	if n := len(a.History); t == Reminder && n > 0 && a.History[n-1].Event == Reminder {
+		h := &a.History[n-1]
+		h.Count++
+		last := now
+		h.Last = &last
+		return
+	}
+	e := HistoryEntry{Event: t, At: now}
+	switch t {
+	case Reminder:
+		e.Count = 1
+	case Acknowledged:
+		if a.Ack != nil {
+			e.By, e.Note = a.Ack.By, a.Ack.Note
+		}
+	case Resolved:
+		if a.Resolution != nil {
+			e.Note, e.Auto = a.Resolution.Note, a.Resolution.Auto
+		}
+	}
+	a.History = append(a.History, e)
+	if len(a.History) > maxHistory {
+		a.History = append(a.History[:1], a.History[len(a.History)-maxHistory+1:]...)
+	}
 }
 
 // PointDetail is the row behind a suspect-point alert.

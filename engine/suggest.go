@@ -950,7 +950,12 @@ func sgText(cols []string, sg Suggestion, fopt FragilityOptions, opt SuggestOpti
 		fmt.Fprintf(&b, ", where %s %s judged suspect", strings.Join(rows, " and "), verbS)
 	}
 	ef := sg.Effect
-	fmt.Fprintf(&b, " (det(X'X) x %s)", sgNum(ef.DetRatio, 3))
+	// The joint confidence region of the coefficients has a volume
+	// proportional to det(X'X)^(-1/2): the readings shrink it by
+	// 1 - 1/sqrt(DetRatio).
+	if shrink := 1 - 1/math.Sqrt(ef.DetRatio); shrink > 0 && !math.IsInf(ef.DetRatio, 0) {
+		fmt.Fprintf(&b, " (the coefficients' joint uncertainty shrinks by %s %%)", sgNum(100*shrink, 2))
+	}
 	var parts []string
 	rows := append([]RowEffect(nil), ef.Rows...)
 	sort.SliceStable(rows, func(a, c int) bool {
@@ -968,7 +973,7 @@ func sgText(cols []string, sg Suggestion, fopt FragilityOptions, opt SuggestOpti
 	}
 	idx := func(i int) string {
 		if i == 0 {
-			return fmt.Sprintf("none up to %d", fopt.MaxRemoved)
+			return fmt.Sprintf("more than %d", fopt.MaxRemoved)
 		}
 		return strconv.Itoa(i)
 	}
@@ -976,7 +981,7 @@ func sgText(cols []string, sg Suggestion, fopt FragilityOptions, opt SuggestOpti
 	case ef.FragilityBefore == 0 && ef.FragilityAfter == 0:
 		parts = append(parts, fmt.Sprintf("no set of up to %d rows changes a conclusion, before or after", fopt.MaxRemoved))
 	case ef.FragilityAfter == 0:
-		parts = append(parts, fmt.Sprintf("fragility index rises %d -> %s", ef.FragilityBefore, idx(0)))
+		parts = append(parts, fmt.Sprintf("fragility index rises %d -> %s (no set of up to %d rows changes a conclusion)", ef.FragilityBefore, idx(0), fopt.MaxRemoved))
 	case ef.FragilityBefore == 0 || ef.FragilityAfter < ef.FragilityBefore:
 		parts = append(parts, fmt.Sprintf("fragility index falls %s -> %d", idx(ef.FragilityBefore), ef.FragilityAfter))
 	case ef.FragilityAfter > ef.FragilityBefore:

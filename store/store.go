@@ -300,10 +300,16 @@ type QuarantineRow struct {
 	Path       string
 	Generation int
 	Line       int
+	// Column is the byte column (1-based; 0 when the row as a whole is
+	// refused), ColumnName and Field the name and 1-based position of
+	// the column that could not be read ("" and 0 when not one column).
 	Column     int
+	ColumnName string
+	Field      int
 	Raw        string
 	Reason     string
-	At         time.Time
+	// At is when the row arrived (was read and kept aside).
+	At time.Time
 }
 
 // ModelState is a model's current state.

@@ -96,7 +96,10 @@ func TestAlertsEndToEnd(t *testing.T) {
 	srv := &http.Server{Handler: rc}
 	go srv.Serve(ln)
 
-	cfgText := demo.ConfigText("")
+	// The dashboard's public address: every event's data carries the
+	// alert's page there.
+	const publicURL = "https://plumb.lab.example"
+	cfgText := "public_url = \"" + publicURL + "\"\n" + demo.ConfigText("")
 	cfgText = strings.Replace(cfgText, `routes = ["log", "alerts-file"]`, `routes = ["log", "alerts-file", "hook"]`, 1)
 	if !strings.Contains(cfgText, `"hook"`) {
 		t.Fatal("the demo config no longer names its routes as this test expects")
@@ -231,6 +234,15 @@ rate_per_minute = 600
 		a, err := alerts.DecodeAlert(e.Data)
 		if err != nil {
 			t.Fatal(err)
+		}
+		if want := publicURL + "/alerts/" + a.ID; a.URL != want {
+			t.Errorf("event %s: url %q, want %q", e.ID, a.URL, want)
+		}
+		if len(a.History) == 0 || a.History[len(a.History)-1].Event != a.Event {
+			t.Errorf("event %s (%s): history %+v does not end with it", e.ID, a.Event, a.History)
+		}
+		if a.Kind == alerts.KindSuspectPoint && !strings.Contains(a.Explanation, "below the 0.05 level") {
+			t.Errorf("suspect point %s: explanation %q does not word the test as the engine does", e.Subject, a.Explanation)
 		}
 		switch a.Kind {
 		case alerts.KindSuspectPoint:

@@ -42,7 +42,7 @@ func runAlerts(ctx context.Context, e *env, args []string) error {
 	case "all":
 		*state = ""
 	default:
-		return fmt.Errorf("alerts: %w: --state wants open, acknowledged, resolved or all, got %q", errUsage, *state)
+		return usageErr("alerts", fmt.Sprintf("--state wants open, acknowledged, resolved or all, got %q", *state))
 	}
 	_, db, err := openState(ctx, *path)
 	if err != nil {
@@ -98,8 +98,7 @@ func alertAction(ctx context.Context, e *env, args []string, verb, done string) 
 		return err
 	}
 	if len(pos) != 1 {
-		fs.Usage()
-		return fmt.Errorf("%s: %w: name one alert id", verb, errUsage)
+		return usageErr(verb, "name one alert id (the ID column of plumb alerts)")
 	}
 	id := pos[0]
 	cfg, err := loadConfig(*path)
@@ -135,7 +134,7 @@ func alertAction(ctx context.Context, e *env, args []string, verb, done string) 
 		_, err = m.ResolveBy(ctx, id, *note, *who)
 	}
 	if err != nil {
-		return fmt.Errorf("%s %s: %w", verb, id, err)
+		return actionError(id, err)
 	}
 	fmt.Fprintf(e.stdout, "%s %s\n", id, done)
 	return nil
@@ -166,8 +165,35 @@ func postAction(ctx context.Context, addr, id, verb, note, who, token string) er
 	}
 	defer resp.Body.Close()
 	msg, _ := io.ReadAll(io.LimitReader(resp.Body, 4096))
-	if resp.StatusCode/100 != 2 {
-		return fmt.Errorf("%s %s: the daemon answered %s: %s", verb, id, resp.Status, strings.TrimSpace(string(msg)))
+	if resp.StatusCode/100 == 2 {
+		return nil
 	}
-	return nil
+	var answer struct {
+		Error string `json:"error"`
+	}
+	text := strings.TrimSpace(string(msg))
+	if json.Unmarshal(msg, &answer) == nil && answer.Error != "" {
+		text = answer.Error
+	}
+	switch resp.StatusCode {
+	case http.StatusNotFound:
+		return actionError(id, store.ErrNotFound)
+	case http.StatusConflict:
+		return actionError(id, alerts.ErrNotOpen)
+	case http.StatusUnauthorized, http.StatusForbidden:
+		return fmt.Errorf("the daemon refused to change alert %s: %s", id, text)
+	}
+	return fmt.Errorf("the daemon could not change alert %s (%s): %s", id, resp.Status, text)
+}
+
+// actionError says in one line why an alert could not be acknowledged or
+// resolved.
+func actionError(id string, err error) error {
+	switch {
+	case errors.Is(err, store.ErrNotFound):
+		return fmt.Errorf("no alert has the id %q; plumb alerts --state all lists them", id)
+	case errors.Is(err, alerts.ErrNotOpen):
+		return fmt.Errorf("alert %s is already resolved; nothing was changed", id)
+	}
+	return err
 }

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"strings"
 
 	"plumb/cmd/plumb/internal/config"
 	"plumb/cmd/plumb/internal/daemon"
@@ -30,10 +31,12 @@ func runConfig(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	if len(pos) != 1 || pos[0] != "check" {
-		fs.Usage()
-		return fmt.Errorf("config: %w: want \"plumb config check --config FILE\"", errUsage)
+		return usageErr("config", `want "plumb config check --config FILE"`)
 	}
-	c, err := loadConfig(*path)
+	c, notes, err := config.LoadChecked(*path, checkTerms)
+	for _, n := range notes {
+		fmt.Fprintln(e.stdout, "note:", n)
+	}
 	if err != nil {
 		return &exitError{code: 1, err: err}
 	}
@@ -41,26 +44,38 @@ func runConfig(ctx context.Context, e *env, args []string) error {
 	return nil
 }
 
-// loadConfig loads and validates a config file, including each model's
-// terms, which only the engine can parse.
-func loadConfig(path string) (*config.Config, error) {
-	c, err := config.Load(path)
-	if err != nil {
-		return nil, err
+// checkTerms parses a model's terms with the engine, for the config's
+// own checks (config cannot import the engine).
+func checkTerms(m *config.Model) (int, error) {
+	spec, err := engine.NewModel(m.Response, m.Terms, *m.Intercept)
+	if err == nil {
+		// Calibration answers and units are checked against the terms.
+		if cerr := daemon.CheckCalibration(spec, *m); cerr != nil {
+			key := "calibration"
+			if strings.HasPrefix(cerr.Error(), "units:") {
+				key = "units"
+			}
+			return spec.P(), &config.ModelKeyError{Key: []string{key}, Err: cerr}
+		}
+		return spec.P(), nil
 	}
+	// The engine stops at the first bad term; try each alone so that
+	// every bad term is reported.
 	var errs []error
-	for i, m := range c.Models {
-		spec, err := engine.NewModel(m.Response, m.Terms, *m.Intercept)
-		if err != nil {
-			errs = append(errs, fmt.Errorf("%s: model[%d].terms (model %q): %w", path, i+1, m.Name, err))
-			continue
-		}
-		if err := daemon.CheckCalibration(spec, m); err != nil {
-			errs = append(errs, fmt.Errorf("%s: model[%d] (model %q): %w", path, i+1, m.Name, err))
+	for _, t := range m.Terms {
+		if _, terr := engine.NewModel(m.Response, []string{t}, *m.Intercept); terr != nil {
+			errs = append(errs, terr)
 		}
 	}
-	if len(errs) > 0 {
-		return nil, errors.Join(errs...)
+	if len(errs) == 0 {
+		return 0, err // the terms are fine alone, not together (e.g. a repeated term)
 	}
-	return c, nil
+	return 0, errors.Join(errs...)
+}
+
+// loadConfig loads and validates a config file, including each model's
+// terms, which only the engine can parse: every problem in one error.
+func loadConfig(path string) (*config.Config, error) {
+	c, _, err := config.LoadChecked(path, checkTerms)
+	return c, err
 }

@@ -16,6 +16,7 @@ import (
 	"plumb/cmd/plumb/internal/config"
 	"plumb/cmd/plumb/internal/daemon"
 	"plumb/cmd/plumb/internal/demo"
+	"plumb/cmd/plumb/internal/view"
 	"plumb/store/backend"
 )
 
@@ -45,7 +46,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	if *duration <= 0 {
-		return fmt.Errorf("demo: %w: --duration must be positive", errUsage)
+		return usageErr("demo", "--duration must be positive")
 	}
 	readings := demo.Scenario()
 	if *speed == 0 {
@@ -53,7 +54,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 		*speed = total.Seconds() / (0.8 * duration.Seconds())
 	}
 	if *speed < 0 {
-		return fmt.Errorf("demo: %w: --speed must be positive", errUsage)
+		return usageErr("demo", "--speed must be positive")
 	}
 
 	dir := *keep
@@ -151,7 +152,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 	}
 	out.printf("\nsummary: %d rows accepted, %d quarantined, %d fits, %d alerts raised, %d resolved\n", sum.Rows, sum.Quarantined, sum.Fits, raised, resolved)
 	for _, a := range sum.Alerts {
-		out.printf("  %-13s %-8s %-13s %s\n", a.State, a.Severity, a.Kind, a.Subject)
+		out.printf("  %-20s %-13s %-8s %-13s %s\n", a.ID, a.State, a.Severity, a.Kind, a.Subject)
 	}
 	out.printf("\nplumb flags; it never alters a measurement. Decisions stay with qualified staff under local quality procedures.\n")
 	if *keep != "" {
@@ -200,11 +201,7 @@ func (o *demoOut) alert(a *alerts.Alert) {
 	}
 	o.printf("\n  >> ALERT %s: %s [%s, %s] %s\n", verb, a.Kind, a.Severity, a.Subject, a.Summary)
 	for _, m := range a.Measures {
-		what := m.Measure
-		if m.Term != "" {
-			what += "[" + m.Term + "]"
-		}
-		o.printf("       %-22s %-13s %10.4g  cutoff %.4g\n", what, m.Family, m.Value, m.Cutoff)
+		o.printf("       - %s\n", view.MeasureText(view.Flag(m)))
 	}
 	if a.Suggestion != nil && (a.State != alerts.StateResolved) {
 		o.printf("       next: %s\n", a.Suggestion.Text)

@@ -79,11 +79,70 @@ func TestDemoSummary(t *testing.T) {
 	if strings.Join(got, "\n") != strings.Join(want, "\n") {
 		t.Errorf("alerts:\n%s\nwant:\n%s\n\ndemo output:\n%s", strings.Join(got, "\n"), strings.Join(want, "\n"), out.String())
 	}
+	checkDemoAlertTexts(t, filepath.Join(dir, "run", demo.AlertsFile))
 	for _, a := range sum.Alerts {
 		for _, l := range append(exp.OutlierOnly, exp.Leverage) {
 			if strings.HasSuffix(a.Subject, ":"+strconv.Itoa(l)) {
 				t.Errorf("an alert on benign line %d: %+v", l, a)
 			}
 		}
+	}
+}
+
+// checkDemoAlertTexts reads the file route's events of the demo and
+// checks the words people act on: a suspect reading's flags as the engine
+// words them (the p-value "below the 0.05 level", each cutoff's family),
+// and the drift alert's suggestion, which names the checkpoints to check
+// with reference standards rather than where to add readings.
+func checkDemoAlertTexts(t *testing.T, path string) {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	seen := map[string]bool{}
+	for _, line := range strings.Split(strings.TrimSpace(string(b)), "\n") {
+		var ev struct {
+			Data struct {
+				Kind        string `json:"kind"`
+				Explanation string `json:"explanation"`
+				Suggestion  *struct {
+					Text string `json:"text"`
+				} `json:"suggestion"`
+				History []struct {
+					Event string `json:"event"`
+				} `json:"history"`
+			} `json:"data"`
+		}
+		if err := json.Unmarshal([]byte(line), &ev); err != nil {
+			t.Fatalf("%s: %v", path, err)
+		}
+		d := ev.Data
+		if len(d.History) == 0 || d.History[0].Event != "opened" {
+			t.Errorf("%s alert: history %+v, want it to start with opened", d.Kind, d.History)
+		}
+		switch d.Kind {
+		case "suspect_point":
+			seen[d.Kind] = true
+			for _, w := range []string{"Bonferroni outlier test: p ", ", below the 0.05 level", "cutoff"} {
+				if !strings.Contains(d.Explanation, w) {
+					t.Errorf("suspect_point explanation lacks %q:\n%s", w, d.Explanation)
+				}
+			}
+		case "drift":
+			seen[d.Kind] = true
+			if d.Suggestion == nil || !strings.HasPrefix(d.Suggestion.Text, "check the calibration with reference standards at the checkpoint") {
+				t.Errorf("drift suggestion %+v, want the checkpoints to check", d.Suggestion)
+				continue
+			}
+			for _, c := range demo.Checkpoints {
+				if !strings.Contains(d.Suggestion.Text, c.Name) {
+					t.Errorf("drift suggestion %q does not name checkpoint %q", d.Suggestion.Text, c.Name)
+				}
+			}
+		}
+	}
+	if !seen["suspect_point"] || !seen["drift"] {
+		t.Errorf("file route %s: events of kinds %v, want suspect_point and drift", path, seen)
 	}
 }

@@ -240,7 +240,7 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 		return nil, err
 	}
 	bad := func(format string, a ...any) error {
-		return fmt.Errorf("inspect: %w: %s", errUsage, fmt.Sprintf(format, a...))
+		return usageErr("inspect", fmt.Sprintf(format, a...))
 	}
 	switch len(pos) {
 	case 0:

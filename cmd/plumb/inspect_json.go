@@ -71,6 +71,11 @@ type jsonFragility struct {
 	Skipped      int        `json:"skipped"`
 }
 
+type jsonRowLine struct {
+	Row  int `json:"row"`
+	Line int `json:"line"`
+}
+
 type jsonRowEffect struct {
 	Row            int        `json:"row"`
 	ID             string     `json:"id,omitempty"`
@@ -93,12 +98,17 @@ type jsonEffect struct {
 }
 
 type jsonSuggestion struct {
-	At         jmap       `json:"at"`
-	Replicates int        `json:"replicates"`
-	D          view.Float `json:"d"`
-	DGain      view.Float `json:"d_gain"`
-	Effect     jsonEffect `json:"effect"`
-	Text       string     `json:"text"`
+	// Kind is "coverage" (readings where the data are thin) or
+	// "remeasure" (at the setting of a reading judged suspect, listed
+	// in Suspect by file row and line, to check it).
+	Kind       string        `json:"kind"`
+	Suspect    []jsonRowLine `json:"suspect"`
+	At         jmap          `json:"at"`
+	Replicates int           `json:"replicates"`
+	D          view.Float    `json:"d"`
+	DGain      view.Float    `json:"d_gain"`
+	Effect     jsonEffect    `json:"effect"`
+	Text       string        `json:"text"`
 }
 
 // indexOrNull maps the engine's 0 ("none found") to JSON null.
@@ -167,7 +177,12 @@ func (r *inspectResult) jsonSuggestions() *[]jsonSuggestion {
 				CookBefore: view.Float(re.CookBefore), CookAfter: view.Float(re.CookAfter),
 			})
 		}
-		out = append(out, jsonSuggestion{At: at, Replicates: sg.Replicates, D: view.Float(sg.D), DGain: view.Float(sg.DGain), Effect: je, Text: sg.Text})
+		js := jsonSuggestion{Kind: sg.Kind, Suspect: []jsonRowLine{}, At: at, Replicates: sg.Replicates, D: view.Float(sg.D), DGain: view.Float(sg.DGain), Effect: je, Text: sg.Text}
+		for _, row := range sg.Suspect {
+			fr, line := r.fileRow(row)
+			js.Suspect = append(js.Suspect, jsonRowLine{Row: fr, Line: line})
+		}
+		out = append(out, js)
 	}
 	return &out
 }

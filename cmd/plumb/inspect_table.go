@@ -17,67 +17,12 @@ import (
 
 // ---------------------------------------------------------------- table
 
-// measureWords names each measure in the table.
-var measureWords = map[string]string{
-	engine.MeasureLeverage:   "leverage",
-	engine.MeasureCook:       "Cook's distance",
-	engine.MeasureDFFITS:     "DFFITS",
-	engine.MeasureDFBETAS:    "DFBETAS",
-	engine.MeasureCOVRATIO:   "COVRATIO",
-	engine.MeasureBonferroni: "Bonferroni outlier p",
-	engine.MeasureGrubbs:     "Grubbs statistic",
-}
-
-// flagWords says in plain words which cutoff a flag crosses.
-func flagWords(fl engine.Flag) string { return string(appendFlagWords(nil, fl)) }
+// flagWords says in plain words which cutoff a flag crosses (engine.Flag.Text).
+func flagWords(fl engine.Flag) string { return fl.Text() }
 
 // appendFlagWords appends flagWords(fl) to dst: the json format writes it
 // for every flag of every row.
-func appendFlagWords(dst []byte, fl engine.Flag) []byte {
-	name := measureWords[fl.Measure]
-	if name == "" {
-		name = fl.Measure
-	}
-	dst = append(dst, name...)
-	if fl.Term != "" {
-		dst = append(dst, " for "...)
-		dst = append(dst, fl.Term...)
-	}
-	family := func(dst []byte) []byte {
-		dst = append(dst, " ("...)
-		for i := 0; i < len(fl.Family); i++ {
-			c := fl.Family[i]
-			if c == '_' {
-				c = '-'
-			}
-			dst = append(dst, c)
-		}
-		return append(dst, " cutoff)"...)
-	}
-	dst = append(dst, " is "...)
-	dst = appendNum4(dst, fl.Value)
-	switch fl.Measure {
-	case engine.MeasureBonferroni:
-		dst = append(dst, ", below the significance level "...)
-		return appendNum4(dst, fl.Cutoff)
-	case engine.MeasureCOVRATIO:
-		dst = append(dst, ", more than "...)
-		dst = appendNum4(dst, fl.Cutoff)
-		dst = append(dst, " away from 1"...)
-		return family(dst)
-	case engine.MeasureDFFITS, engine.MeasureDFBETAS:
-		dst = append(dst, ", beyond ±"...)
-		dst = appendNum4(dst, fl.Cutoff)
-		return family(dst)
-	case engine.MeasureGrubbs:
-		dst = append(dst, ", above the critical value "...)
-		return appendNum4(dst, fl.Cutoff)
-	default:
-		dst = append(dst, ", above "...)
-		dst = appendNum4(dst, fl.Cutoff)
-		return family(dst)
-	}
-}
+func appendFlagWords(dst []byte, fl engine.Flag) []byte { return fl.AppendText(dst) }
 
 // num4 formats a number to 4 significant digits for people.
 func num4(x float64) string { return string(appendNum4(nil, x)) }
@@ -245,7 +190,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 			v := r.Verdicts[i]
 			fmt.Fprintf(bw, "  %s: %s\n", rowWords(r.ds.rowNo[i], r.ds.line[i], r.ds.label(i)), verdictWords(v))
 			for _, fl := range v.Flags {
-				fmt.Fprintf(bw, "      - %s\n", flagWords(fl))
+				fmt.Fprintf(bw, "      - %s\n", fl.Text())
 			}
 		}
 		if rest := look[len(shown):]; len(rest) > 0 {

@@ -50,6 +50,19 @@ func register(c command) {
 // errUsage marks an error in the command line; main exits 2 for it.
 var errUsage = errors.New("usage")
 
+// usageError is a command-line error in one line, pointing at the help.
+// It matches errUsage.
+type usageError struct{ msg string }
+
+func (e *usageError) Error() string        { return e.msg }
+func (e *usageError) Is(target error) bool { return target == errUsage }
+
+// usageErr says what is wrong with the command line of cmd, and where to
+// read how it goes: `ack: name one alert id (see "plumb ack --help")`.
+func usageErr(cmd, msg string) error {
+	return &usageError{fmt.Sprintf("%s: %s (see \"plumb %s --help\")", cmd, msg, cmd)}
+}
+
 // exitError carries a specific exit code (for instance 1 from "config
 // check" when the file is invalid).
 type exitError struct {
@@ -145,12 +158,23 @@ func newFlags(e *env, name, synopsis, description string) *flag.FlagSet {
 // errors.
 func parseFlags(fs *flag.FlagSet, args []string) ([]string, error) {
 	var pos []string
+	usage, out := fs.Usage, fs.Output()
+	defer func() { fs.Usage = usage; fs.SetOutput(out) }()
 	for {
-		if err := fs.Parse(args); err != nil {
+		// The flag package prints the error and the whole help; plumb
+		// prints one line naming the problem, and the help only when
+		// asked for.
+		fs.Usage = func() {}
+		fs.SetOutput(io.Discard)
+		err := fs.Parse(args)
+		fs.Usage = usage
+		fs.SetOutput(out)
+		if err != nil {
 			if errors.Is(err, flag.ErrHelp) {
+				usage()
 				return nil, err
 			}
-			return nil, fmt.Errorf("%s: %w: %v", fs.Name(), errUsage, err)
+			return nil, usageErr(fs.Name(), err.Error())
 		}
 		args = fs.Args()
 		if len(args) == 0 {

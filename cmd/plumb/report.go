@@ -35,11 +35,10 @@ func runReport(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	if len(pos) != 1 {
-		fs.Usage()
-		return fmt.Errorf("report: %w: name one model", errUsage)
+		return usageErr("report", "name one model")
 	}
 	if *format != "html" && *format != "svg" && *format != "png" {
-		return fmt.Errorf("report: %w: --format wants html, svg or png, got %q", errUsage, *format)
+		return usageErr("report", fmt.Sprintf("--format wants html, svg or png, got %q", *format))
 	}
 	name := pos[0]
 	cfg, err := loadConfig(*path)

@@ -47,7 +47,9 @@ func serve(d *daemon.Daemon, cfg *config.Config, log *slog.Logger) (*server, err
 		return nil, err
 	}
 	h := web.New(d.View(), web.Options{Token: token, Registry: d.Registry(), Logger: log, Gate: gate})
-	srv := &http.Server{Handler: h, ReadHeaderTimeout: 10 * time.Second}
+	// Only requests naming this server are served (DNS rebinding), and
+	// slow or idle clients are cut off (web.Limits' defaults).
+	srv := web.NewServer(web.CheckHost(h, cfg.Listen, cfg.PublicHosts()), web.Limits{})
 	s.addr = ln.Addr().String()
 	log.Info("serving", "addr", "http://"+s.addr+"/")
 	ctx, stop := context.WithCancel(context.Background())

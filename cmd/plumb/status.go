@@ -197,11 +197,20 @@ func runStatus(ctx context.Context, e *env, args []string) error {
 		head += "\tOWNER"
 	}
 	fmt.Fprintln(tw, head)
+	// The fleet may list models this config does not have: their search
+	// depth is not known here.
+	maxRemoved := map[string]int{}
+	for _, mc := range cfg.Models {
+		maxRemoved[mc.Name] = mc.Fragility.MaxRemoved
+	}
 	for _, m := range out.Models {
 		last, frag := "-", "-"
 		if m.LastFit != nil {
 			last = fmt.Sprintf("n=%d sigma=%.4g R²=%.4f at %s", m.LastFit.N, m.LastFit.Sigma, m.LastFit.RSquared, m.LastFit.At.Local().Format(time.DateTime))
-			frag = "none within limit"
+			frag = "no set of rows searched changes a conclusion"
+			if k, ok := maxRemoved[m.Name]; ok {
+				frag = fmt.Sprintf("no set of up to %d rows changes a conclusion", k)
+			}
 			if m.Fragility != nil {
 				frag = fmt.Sprint(*m.Fragility)
 			}
@@ -249,8 +258,7 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	if len(pos) != 1 {
-		fs.Usage()
-		return fmt.Errorf("history: %w: name one model", errUsage)
+		return usageErr("history", "name one model")
 	}
 	model := pos[0]
 	cfg, db, err := openState(ctx, *path)
@@ -269,10 +277,10 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 		i := strings.LastIndexByte(*line, ':')
 		var ln int
 		if i < 0 {
-			return fmt.Errorf("history: %w: --line wants FILE:LINE, got %q", errUsage, *line)
+			return usageErr("history", fmt.Sprintf("--line wants FILE:LINE, got %q", *line))
 		}
 		if _, err := fmt.Sscan((*line)[i+1:], &ln); err != nil {
-			return fmt.Errorf("history: %w: --line wants FILE:LINE, got %q", errUsage, *line)
+			return usageErr("history", fmt.Sprintf("--line wants FILE:LINE, got %q", *line))
 		}
 		o, err := db.ObservationAt(ctx, model, (*line)[:i], ln)
 		if err != nil {
@@ -310,6 +318,9 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 		if a := o.Arrival; a != nil {
 			fmt.Fprintf(e.stdout, "  at arrival: %s  leverage %.4g  studentized %.4g  Cook's D %.4g  DFFITS %.4g  Bonferroni p %.3g\n",
 				a.Verdict, a.Leverage, a.StudentizedExternal, a.CooksDistance, a.DFFITS, a.OutlierPBonferroni)
+			for _, f := range a.Flags {
+				fmt.Fprintf(e.stdout, "    - %s\n", f.Text())
+			}
 		} else {
 			fmt.Fprintln(e.stdout, "  at arrival: not judged (the model had too few rows)")
 		}
@@ -319,6 +330,9 @@ func runHistory(ctx context.Context, e *env, args []string) error {
 				from = "not judged"
 			}
 			fmt.Fprintf(e.stdout, "  %s  fit %d: %s -> %s\n", c.At.Local().Format(time.DateTime), c.FitID, from, c.To)
+			for _, f := range c.Flags {
+				fmt.Fprintf(e.stdout, "    - %s\n", f.Text())
+			}
 		}
 		for _, n := range notes {
 			fmt.Fprintf(e.stdout, "  decision: %s\n", n)

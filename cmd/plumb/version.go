@@ -105,8 +105,7 @@ func runVersion(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	if len(pos) > 0 {
-		fs.Usage()
-		return fmt.Errorf("version: %w: no arguments expected, got %q", errUsage, pos)
+		return usageErr("version", fmt.Sprintf("no arguments expected, got %q", pos))
 	}
 	b := collectBuildInfo(readBuildInfo())
 	if *asJSON {

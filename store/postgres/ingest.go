@@ -17,7 +17,7 @@ var obsCols = []string{"id", "model_id", "source_id", "generation", "line", "raw
 
 const nObsCols = 21
 
-var qrnCols = []string{"model_id", "source_id", "generation", "line", "col", "raw", "reason", "at"}
+var qrnCols = []string{"model_id", "source_id", "generation", "line", "col", "raw", "reason", "at", "col_name", "field"}
 
 // Ingest commits the batch's observations, its quarantined rows and the
 // source's new read state in one transaction.
@@ -85,7 +85,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		if err != nil {
 			return fail(fmt.Errorf("quarantined line %d time: %w", q.Line, err))
 		}
-		qrows[i] = []any{nil, nil, int32(src.Generation), int64(q.Line), int32(q.Column), []byte(q.Raw), q.Reason, at}
+		qrows[i] = []any{nil, nil, int32(src.Generation), int64(q.Line), int32(q.Column), []byte(q.Raw), q.Reason, at, q.ColumnName, int32(q.Field)}
 	}
 
 	ids := make([]int64, len(b.Observations))

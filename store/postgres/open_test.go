@@ -178,3 +178,44 @@ func TestPostgresMigrateFillsGaps(t *testing.T) {
 		t.Errorf("0003 not applied again: %v", err)
 	}
 }
+
+// TestPostgresMigrationBelowTheLatestIsApplied: a database that records
+// later migrations but not 0003 (made by a build that lacked it: branches
+// merge in any order) gets 0003 when opened.
+func TestPostgresMigrationBelowTheLatestIsApplied(t *testing.T) {
+	u := testURL(t)
+	schema := newSchema(t)
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	db, err := postgres.Open(ctx, u, postgres.WithSchema(schema))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, q := range []string{
+		"DELETE FROM schema_version WHERE version = 3",
+		"ALTER TABLE sources DROP COLUMN digest",
+	} {
+		if _, err := db.Pool().Exec(ctx, q); err != nil {
+			t.Fatalf("%s: %v", q, err)
+		}
+	}
+	db.Close()
+	db, err = postgres.Open(ctx, u, postgres.WithSchema(schema))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	var n int
+	if err := db.Pool().QueryRow(ctx, "SELECT count(*) FROM schema_version WHERE version = 3").Scan(&n); err != nil || n != 1 {
+		t.Errorf("migration 0003 recorded %d times (%v), want once", n, err)
+	}
+	b := store.Batch{Source: store.Source{Model: "m", Path: "p.csv", Generation: 1, Offset: 10, Digest: []byte("state")}}
+	b.Observations = []store.Observation{{Line: 2, Raw: "1,2", Values: []float64{1, 2}}}
+	if _, err := db.Ingest(ctx, b); err != nil {
+		t.Fatal(err)
+	}
+	src, err := db.Sources(ctx, "m")
+	if err != nil || len(src) != 1 || string(src[0].Digest) != "state" {
+		t.Errorf("sources after the late migration: %+v, %v", src, err)
+	}
+}

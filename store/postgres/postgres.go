@@ -313,25 +313,21 @@ func (db *DB) migrate(ctx context.Context, schema string) error {
 			return fmt.Errorf("migrate: database is at schema version %d, this binary knows up to %d (upgrade plumb): %w",
 				cur, latest, ErrSchemaTooNew)
 		}
-		// Every migration not yet recorded is applied, not only those
-		// above the highest: numbers are handed out to changes made side
-		// by side (0006 may land before 0004), and each step stands alone.
-		applied := map[int]bool{}
+		// Every migration not yet recorded is applied, in version order,
+		// also one below the highest recorded: numbers are handed out to
+		// changes made side by side and branches merge in any order, so a
+		// database may hold 0006 before 0005 arrives; each step stands alone.
 		rows, err := tx.Query(ctx, "SELECT version FROM schema_version")
 		if err != nil {
 			return fmt.Errorf("migrate: %w", err)
 		}
-		for rows.Next() {
-			var v int
-			if err := rows.Scan(&v); err != nil {
-				rows.Close()
-				return fmt.Errorf("migrate: %w", err)
-			}
-			applied[v] = true
-		}
-		rows.Close()
-		if err := rows.Err(); err != nil {
+		vs, err := pgx.CollectRows(rows, pgx.RowTo[int32])
+		if err != nil {
 			return fmt.Errorf("migrate: %w", err)
+		}
+		applied := map[int]bool{}
+		for _, v := range vs {
+			applied[int(v)] = true
 		}
 		for _, m := range ms {
 			if applied[m.version] {

@@ -12,7 +12,7 @@ import (
 	"plumb/store"
 )
 
-const quarantineSelect = `SELECT q.id, m.name, s.path, q.generation, q.line, q.col, q.raw, q.reason, q.at
+const quarantineSelect = `SELECT q.id, m.name, s.path, q.generation, q.line, q.col, q.raw, q.reason, q.at, q.col_name, q.field
 	FROM quarantine q JOIN models m ON m.id = q.model_id JOIN sources s ON s.id = q.source_id`
 
 // The quarantine queries: one model's rows walk quarantine_model, all
@@ -67,7 +67,7 @@ func (db *DB) queryQuarantine(ctx context.Context, model, all, one string, args 
 		var q store.QuarantineRow
 		var at pgtype.Int8
 		var raw []byte
-		if err := rows.Scan(&q.ID, &q.Model, &q.Path, &q.Generation, &q.Line, &q.Column, &raw, &q.Reason, &at); err != nil {
+		if err := rows.Scan(&q.ID, &q.Model, &q.Path, &q.Generation, &q.Line, &q.Column, &raw, &q.Reason, &at, &q.ColumnName, &q.Field); err != nil {
 			return nil, err
 		}
 		q.Raw = string(raw)

@@ -48,8 +48,8 @@ const (
 		fingerprint = ?, fingerprint_len = ?, header = ?, digest = ?, rows_total = ?, quarantined = ?, missing = ?, updated_at = ?
 		WHERE id = ?`
 	maxObsSQL = "SELECT COALESCE(MAX(id), 0) FROM observations"
-	insQrnSQL = `INSERT INTO quarantine (model_id, source_id, generation, line, col, raw, reason, at)
-		VALUES (?, ?, ?, ?, ?, ?, ?, ?)`
+	insQrnSQL = `INSERT INTO quarantine (model_id, source_id, generation, line, col, raw, reason, at, col_name, field)
+		VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
 )
 
 // ingestStatements prepares the ingest statements on first use. A failure
@@ -167,7 +167,7 @@ func (db *DB) Ingest(ctx context.Context, b store.Batch) ([]int64, error) {
 		if err != nil {
 			return fail(fmt.Errorf("quarantined line %d time: %w", q.Line, err))
 		}
-		qargs[i] = []any{int64(src.Generation), int64(q.Line), int64(q.Column), q.Raw, q.Reason, at}
+		qargs[i] = []any{int64(src.Generation), int64(q.Line), int64(q.Column), q.Raw, q.Reason, at, q.ColumnName, int64(q.Field)}
 	}
 
 	stmts, err := db.ingestStatements()

@@ -452,3 +452,48 @@ func TestMigrateFillsGaps(t *testing.T) {
 		t.Errorf("0003 not applied again: %v", err)
 	}
 }
+
+// TestMigrationBelowTheLatestIsApplied: branches merge in any order, so a
+// database may record a later migration before an earlier one exists;
+// opening it applies the missing one. Here migration 0003 (the source's
+// digest) is taken out of a database that records later ones, as if it
+// had been made by a build that lacked 0003.
+func TestMigrationBelowTheLatestIsApplied(t *testing.T) {
+	ctx := context.Background()
+	path := filepath.Join(t.TempDir(), "gap.db")
+	db, err := sqlite.Open(ctx, path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, q := range []string{
+		"DELETE FROM schema_version WHERE version = 3",
+		"ALTER TABLE sources DROP COLUMN digest",
+	} {
+		if _, err := db.DB().ExecContext(ctx, q); err != nil {
+			t.Fatalf("%s: %v", q, err)
+		}
+	}
+	var latest int
+	if err := db.DB().QueryRowContext(ctx, "SELECT MAX(version) FROM schema_version").Scan(&latest); err != nil || latest <= 3 {
+		t.Fatalf("latest recorded version %d (%v): the test needs one above 3", latest, err)
+	}
+	db.Close()
+	db, err = sqlite.Open(ctx, path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	var n int
+	if err := db.DB().QueryRowContext(ctx, "SELECT count(*) FROM schema_version WHERE version = 3").Scan(&n); err != nil || n != 1 {
+		t.Errorf("migration 0003 recorded %d times (%v), want once", n, err)
+	}
+	b := store.Batch{Source: store.Source{Model: "m", Path: "p.csv", Generation: 1, Offset: 10, Digest: []byte("state")}}
+	b.Observations = []store.Observation{{Line: 2, Raw: "1,2", Values: []float64{1, 2}}}
+	if _, err := db.Ingest(ctx, b); err != nil {
+		t.Fatal(err)
+	}
+	src, err := db.Sources(ctx, "m")
+	if err != nil || len(src) != 1 || string(src[0].Digest) != "state" {
+		t.Errorf("sources after the late migration: %+v, %v", src, err)
+	}
+}

@@ -254,9 +254,18 @@ func (db *DB) migrate(ctx context.Context) error {
 	if err := tx.QueryRowContext(ctx, "SELECT COALESCE(MAX(version), 0) FROM schema_version").Scan(&cur); err != nil {
 		return fmt.Errorf("migrate: %w", err)
 	}
-	// Every migration not yet recorded is applied, not only those above
-	// the highest: numbers are handed out to changes made side by side
-	// (0006 may land before 0004), and each step stands on its own.
+	latest := 0
+	if len(ms) > 0 {
+		latest = ms[len(ms)-1].version
+	}
+	if cur > latest {
+		return fmt.Errorf("migrate: database is at schema version %d, this binary knows up to %d (upgrade plumb or open a backup): %w",
+			cur, latest, ErrSchemaTooNew)
+	}
+	// Every migration not yet recorded is applied, in version order, also
+	// one below the highest recorded: numbers are handed out to changes
+	// made side by side and branches merge in any order, so a database may
+	// hold 0006 before 0005 arrives; each step stands on its own.
 	applied := map[int]bool{}
 	rows, err := tx.QueryContext(ctx, "SELECT version FROM schema_version")
 	if err != nil {
@@ -270,16 +279,9 @@ func (db *DB) migrate(ctx context.Context) error {
 		}
 		applied[v] = true
 	}
-	if err := rows.Close(); err != nil {
+	rows.Close()
+	if err := rows.Err(); err != nil {
 		return fmt.Errorf("migrate: %w", err)
-	}
-	latest := 0
-	if len(ms) > 0 {
-		latest = ms[len(ms)-1].version
-	}
-	if cur > latest {
-		return fmt.Errorf("migrate: database is at schema version %d, this binary knows up to %d (upgrade plumb or open a backup): %w",
-			cur, latest, ErrSchemaTooNew)
 	}
 	for _, m := range ms {
 		if applied[m.version] {

@@ -23,7 +23,7 @@ func (db *DB) Quarantined(ctx context.Context, model string, afterID int64, limi
 	return out, nil
 }
 
-const quarantineSelect = `SELECT q.id, m.name, s.path, q.generation, q.line, q.col, q.raw, q.reason, q.at
+const quarantineSelect = `SELECT q.id, m.name, s.path, q.generation, q.line, q.col, q.raw, q.reason, q.at, q.col_name, q.field
 	FROM quarantine q JOIN models m ON m.id = q.model_id JOIN sources s ON s.id = q.source_id`
 
 // The queries of LatestQuarantined, kept as constants so that a test can
@@ -87,7 +87,7 @@ func scanQuarantine(rows *sql.Rows) ([]store.QuarantineRow, error) {
 	for rows.Next() {
 		var q store.QuarantineRow
 		var at sql.NullInt64
-		if err := rows.Scan(&q.ID, &q.Model, &q.Path, &q.Generation, &q.Line, &q.Column, &q.Raw, &q.Reason, &at); err != nil {
+		if err := rows.Scan(&q.ID, &q.Model, &q.Path, &q.Generation, &q.Line, &q.Column, &q.Raw, &q.Reason, &at, &q.ColumnName, &q.Field); err != nil {
 			return nil, err
 		}
 		q.At = decTime(at)

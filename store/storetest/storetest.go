@@ -284,7 +284,7 @@ func testIngestSources(t *testing.T, s store.Store) {
 		t.Fatalf("Sources of an empty store = %v, %v; want none", src, err)
 	}
 	b1 := batch("cal", "b.csv", 1, 2, 6)
-	b1.Quarantine = []store.QuarantineRow{{Line: 4, Column: 2, Raw: "4,x", Reason: "not a number", At: t0}}
+	b1.Quarantine = []store.QuarantineRow{{Line: 4, Column: 3, ColumnName: "dose", Field: 2, Raw: "4,x", Reason: "not a number", At: t0}}
 	b1.Missing = 3
 	ids1 := mustIngest(t, s, b1)
 	ids2 := mustIngest(t, s, batch("cal", "a.csv", 1, 2, 3))
@@ -654,7 +654,7 @@ func testQuarantine(t *testing.T, s store.Store) {
 	var want []store.QuarantineRow
 	for i, m := range []string{"cal", "other", "cal", "cal"} {
 		b := store.Batch{Source: source(m, "q.csv", 1, int64(10*(i+1)), i+1)}
-		q := store.QuarantineRow{Line: i + 2, Column: i + 1, Raw: fmt.Sprintf("row %d,,", i), Reason: "field count", At: t0.Add(time.Duration(i))}
+		q := store.QuarantineRow{Line: i + 2, Column: i + 1, ColumnName: fmt.Sprintf("c%d", i), Field: i + 1, Raw: fmt.Sprintf("row %d,,", i), Reason: "field count", At: t0.Add(time.Duration(i))}
 		b.Quarantine = []store.QuarantineRow{q}
 		mustIngest(t, s, b)
 		q.Model, q.Path, q.Generation = m, "q.csv", 1

@@ -10,7 +10,9 @@
 //	refit     the least-squares fit (engine.Refit)
 //	assess    influence measures and verdicts in one pass (engine.Assess)
 //	fragility the fragility index, when asked (engine.Fragility)
-//	suggest   where to measure next, when asked (engine.Suggest)
+//	suggest   where to measure next, when asked (engine.Suggest), in the
+//	          range of the rows not judged suspect unless Options.Region
+//	          says otherwise
 //	answers   predictions at points and inverse predictions of
 //	          readings, when asked (Answer: engine.PredictAt, Invert)
 //
@@ -49,8 +51,9 @@ type Options struct {
 	// Fragility and Label are filled from the fields above.
 	Suggest        bool
 	SuggestOptions engine.SuggestOptions
-	// Region replaces the observed range of the named predictor columns
-	// in the operating region the suggestions search.
+	// Region replaces, for the named predictor columns, the default
+	// operating region the suggestions search: the range of the rows not
+	// judged suspect.
 	Region engine.Region
 
 	// Answers asks for predictions and inverse predictions (none when
@@ -195,10 +198,15 @@ func (a *Analysis) fragility(r *Result) error {
 	return nil
 }
 
-// suggest searches the operating region: the observed range of each
-// predictor column, with the columns of Options.Region replaced.
+// suggest searches the operating region: the range of each predictor
+// column over the rows not judged suspect (engine.RegionExcludingSuspect,
+// so one wrong reading far outside does not pull the suggestions out to
+// it), with the columns of Options.Region replaced. The engine gets the
+// columns (to word a suggestion at a suspect reading's setting as a
+// re-measurement) and the fragility already found (so it does not search
+// the current fit again).
 func (a *Analysis) suggest(r *Result) error {
-	region, err := engine.RegionOf(a.Model, r.Cols)
+	region, err := engine.RegionExcludingSuspect(a.Model, r.Cols, r.Verdicts)
 	if err != nil {
 		return &StepError{Step: StepRegion, Err: err}
 	}
@@ -210,6 +218,7 @@ func (a *Analysis) suggest(r *Result) error {
 	r.Region = region
 	o := a.SuggestOptions
 	o.Conclusions, o.Fragility, o.Label = a.Conclusions, a.FragilityOptions, a.Label
+	o.Data, o.Before = r.Cols, r.Fragility
 	sg, err := engine.Suggest(r.Fit, r.Influence, r.Verdicts, region, o)
 	if err != nil {
 		return err

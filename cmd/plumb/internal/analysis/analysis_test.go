@@ -129,3 +129,39 @@ func TestRunErrors(t *testing.T) {
 		t.Errorf("cancelled: err = %v", err)
 	}
 }
+
+// TestSuggestRegionLeavesSuspectOut: one wrong reading at 150 on a line
+// read from 5 to 95 (invented data) is judged suspect; the default
+// operating region is the range of the other readings, so no suggestion
+// lies beyond 95.
+func TestSuggestRegionLeavesSuspectOut(t *testing.T) {
+	var x, y []float64
+	for v := 5.0; v <= 95; v += 5 {
+		x = append(x, v)
+		y = append(y, 1+0.2*v+0.05*math.Sin(v))
+	}
+	x, y = append(x, 150), append(y, 1+0.2*150+12)
+	a := Analysis{Model: model(t), Options: Options{
+		Cutoffs: engine.DefaultCutoffs(), Conclusions: engine.DefaultConclusions(),
+		Fragility: true, FragilityOptions: engine.FragilityOptions{MaxRemoved: 2},
+		Suggest: true,
+	}}
+	r, err := a.Run(context.Background(), map[string][]float64{"x": x, "y": y})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if w := r.Verdicts[len(x)-1].Word(); w != engine.WordSuspect {
+		t.Fatalf("the reading at 150 is %s, want suspect", w)
+	}
+	if got := r.Region["x"]; got != [2]float64{5, 95} {
+		t.Errorf("region %v, want [5 95]", got)
+	}
+	if len(r.Suggestions) == 0 {
+		t.Fatalf("no suggestion (problems %v)", r.Problems)
+	}
+	for _, s := range r.Suggestions {
+		if at := s.At["x"]; at < 5 || at > 95 {
+			t.Errorf("suggestion at x = %v outside [5, 95]: %s", at, s.Text)
+		}
+	}
+}

@@ -16,6 +16,7 @@ import (
 	"fmt"
 	"io"
 	"net"
+	"net/url"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -51,6 +52,11 @@ type Config struct {
 	// pages of other sites from reading the API through DNS rebinding.
 	// Names only: no scheme, port, path or wildcard. Default none.
 	PublicNames []string `toml:"public_names"`
+	// PublicURL is the dashboard's address as people reach it, e.g.
+	// "https://plumb.lab.example" (http or https, no query). When set,
+	// every alert carries the URL of its page there ("url" in the event
+	// data), and its host is served like a public name. Default none.
+	PublicURL string `toml:"public_url"`
 	// LogFormat is "text" (default) or "json".
 	LogFormat string `toml:"log_format"`
 	// LogLevel is "debug", "info" (default), "warn" or "error".
@@ -505,16 +511,69 @@ func (c *Config) Resolve(p string) string {
 }
 
 // MinRowsFor returns the model's effective minimum row count given its
-// number of coefficients p.
+// number of coefficients p: min_rows (default p + 5), raised to p + 2 when
+// below, the fewest rows whose fit leaves a residual degree of freedom
+// once one row is set aside (the externally studentized residual needs
+// it).
 func (m *Model) MinRowsFor(p int) int {
-	if m.MinRows > 0 {
-		return m.MinRows
+	n := m.MinRows
+	if n <= 0 {
+		n = p + 5
 	}
-	return p + 5
+	return max(n, p+2)
+}
+
+// ModelCheck checks what only another package can: a model's terms (the
+// engine parses them). It returns the model's number of coefficients, or
+// the error (an engine.TermError, for instance).
+type ModelCheck func(m *Model) (coefficients int, err error)
+
+// ModelKeyError is a ModelCheck error about a key of the model other than
+// its terms (e.g. Key ["calibration"]): it is reported at that key's line,
+// as the model's error; Err's text names the key.
+type ModelKeyError struct {
+	Key []string
+	Err error
+}
+
+func (e *ModelKeyError) Error() string { return e.Err.Error() }
+func (e *ModelKeyError) Unwrap() error { return e.Err }
+
+// LoadChecked is Load with every model also checked by check: a bad term
+// is reported at its line with every other problem of the file, in one
+// error. Notes says what plumb will do other than the file says (a
+// min_rows raised to what the model needs); they come with the error too.
+func LoadChecked(path string, check ModelCheck) (c *Config, notes []string, err error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	defer f.Close()
+	abs, err := filepath.Abs(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	c, err = Parse(f, path)
+	if err != nil {
+		return nil, nil, err
+	}
+	c.Dir = filepath.Dir(abs)
+	c.Path = path
+	notes, err = c.validate(check)
+	if err != nil {
+		return nil, notes, err
+	}
+	return c, notes, nil
 }
 
 // Validate checks every value and reports all problems at once.
 func (c *Config) Validate() error {
+	_, err := c.validate(nil)
+	return err
+}
+
+// validate is Validate, each model also checked by check when not nil.
+func (c *Config) validate(check ModelCheck) (notes []string, err error) {
 	v := validator{c: c}
 	if c.StateEnv != "" {
 		// The variable's URL may carry the password: that is its purpose.
@@ -538,6 +597,11 @@ func (c *Config) Validate() error {
 	for _, n := range c.PublicNames {
 		if msg := checkPublicName(n); msg != "" {
 			v.add([]string{"public_names"}, -1, ErrBadValue, "%q: %s", n, msg)
+		}
+	}
+	if c.PublicURL != "" {
+		if msg := checkPublicURL(c.PublicURL); msg != "" {
+			v.add([]string{"public_url"}, -1, ErrBadValue, "%q: %s", c.PublicURL, msg)
 		}
 	}
 	for _, d := range []struct {
@@ -713,11 +777,40 @@ func (c *Config) Validate() error {
 		}
 	}
 	c.validateAccess(&v)
+	if check != nil {
+		for i := range c.Models {
+			m := &c.Models[i]
+			p, err := check(m)
+			if err != nil {
+				var ke *ModelKeyError
+				if errors.As(err, &ke) {
+					// Placed at the key's line; the error names the key.
+					line := 0
+					if c.lines != nil {
+						line = c.lines.findIndexed(append([]string{"model"}, ke.Key...), i)
+					}
+					v.errs = append(v.errs, &Error{File: c.Path, Line: line, Key: fmt.Sprintf("model[%d] (model %q)", i+1, m.Name), Err: ke.Err})
+					continue
+				}
+				v.add([]string{"model", "terms"}, i, ErrBadValue, "%v", err)
+				continue
+			}
+			if m.MinRows > 0 && m.MinRowsFor(p) > m.MinRows {
+				line := 0
+				if c.lines != nil {
+					line = c.lines.findIndexed([]string{"model", "min_rows"}, i)
+				}
+				notes = append(notes, fmt.Sprintf("%s:%d: model[%d].min_rows (model %q): %d is too few for %d coefficients; "+
+					"plumb waits for %d rows before judging (a fit needs one row more than its coefficients, and one more "+
+					"to judge a row without it)", c.Path, line, i+1, m.Name, m.MinRows, p, m.MinRowsFor(p)))
+			}
+		}
+	}
 	if len(v.errs) > 0 {
 		sort.SliceStable(v.errs, func(a, b int) bool { return v.errs[a].Line < v.errs[b].Line })
-		return v.errs
+		return notes, v.errs
 	}
-	return nil
+	return notes, nil
 }
 
 // AlertKinds lists the alert kinds a route may filter on.
@@ -753,6 +846,32 @@ func oneOf(s string, set ...string) bool {
 
 // checkPublicName returns why n is not a host name or IP address that a
 // Host header can carry ("" when it is one).
+// checkPublicURL says what is wrong with a public_url ("" when nothing).
+func checkPublicURL(s string) string {
+	u, err := url.Parse(s)
+	switch {
+	case err != nil:
+		return "not a URL: " + err.Error()
+	case u.Scheme != "http" && u.Scheme != "https":
+		return "want an http:// or https:// address"
+	case u.Host == "" || u.Hostname() == "":
+		return "the address names no host"
+	case u.RawQuery != "" || u.Fragment != "" || u.User != nil:
+		return "no query, fragment or user name: the address of the dashboard only"
+	}
+	return ""
+}
+
+// PublicHosts are the host names the HTTP server answers to besides its
+// listen address and localhost: PublicNames and the host of PublicURL.
+func (c *Config) PublicHosts() []string {
+	hosts := append([]string(nil), c.PublicNames...)
+	if u, err := url.Parse(c.PublicURL); err == nil && c.PublicURL != "" && u.Hostname() != "" {
+		hosts = append(hosts, u.Hostname())
+	}
+	return hosts
+}
+
 func checkPublicName(n string) string {
 	switch {
 	case n == "":

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -147,5 +148,31 @@ func TestPublicNames(t *testing.T) {
 				t.Errorf("err = %v (key %q, line %d), want key public_names, line 3, %q", err, ce.Key, ce.Line, bad.want)
 			}
 		})
+	}
+}
+
+// TestPublicURL: public_url takes an http or https address; its host is
+// served like a public name; a bad one is an error at its line.
+func TestPublicURL(t *testing.T) {
+	c, err := Parse(strings.NewReader("state = \"a.db\"\npublic_names = [\"proxy.lab.example\"]\npublic_url = \"https://plumb.lab.example:8443/\"\n"), "p.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := c.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	if got := c.PublicHosts(); !slices.Equal(got, []string{"proxy.lab.example", "plumb.lab.example"}) {
+		t.Errorf("PublicHosts = %v", got)
+	}
+	for _, bad := range []string{"plumb.lab.example", "ftp://plumb.lab.example", "https://", "https://plumb.lab.example/?a=1", "https://u@plumb.lab.example"} {
+		c, err := Parse(strings.NewReader("state = \"a.db\"\n\npublic_url = \""+bad+"\"\n"), "p.toml")
+		if err != nil {
+			t.Fatal(err)
+		}
+		err = c.Validate()
+		var es Errors
+		if !errors.As(err, &es) || len(es) != 1 || es[0].Line != 3 || es[0].Key != "public_url" || !errors.Is(err, ErrBadValue) {
+			t.Errorf("public_url %q: %v, want one bad value at line 3", bad, err)
+		}
 	}
 }

@@ -190,6 +190,8 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 		ModelRoutes: map[string][]string{},
 		Now:         d.opts.Now,
 		Quiet:       d.quietAt,
+		// The alert page's address goes into every alert (its "url").
+		DashboardURL: cfg.PublicURL,
 	}
 	if h, err := os.Hostname(); err == nil {
 		ac.Host = h
@@ -215,7 +217,13 @@ func (d *Daemon) build(ctx context.Context, cfg *config.Config) error {
 	if err != nil {
 		return err
 	}
-	rs, err := alerts.NewRoutes(routes, alerts.RouteOptions{Logger: d.log})
+	// Only a daemon that sends builds the routes: that reads their
+	// secrets, which a read-only reader (plumb report) need not have.
+	sending := routes
+	if d.opts.ReadOnly {
+		sending = nil
+	}
+	rs, err := alerts.NewRoutes(sending, alerts.RouteOptions{Logger: d.log})
 	if err != nil {
 		return err
 	}

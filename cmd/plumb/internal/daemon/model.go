@@ -109,8 +109,8 @@ func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
 	}
 	m.arrive = engine.NewArrivalJudge(spec, m.cut)
 	m.ref.m = m
-	if m.minRows <= spec.P()+1 {
-		m.minRows = spec.P() + 2
+	if mc.MinRows > 0 && m.minRows > mc.MinRows {
+		m.log.Warn("min_rows raised to what the model needs", "min_rows", mc.MinRows, "coefficients", spec.P(), "waits_for", m.minRows)
 	}
 	return m, nil
 }
@@ -308,7 +308,9 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	}
 	for _, rec := range b.Records {
 		if rec.Err != nil {
-			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, rec.Err.Column, rec.Err.Error()))
+			q := quarantineRow(m.cfg.Name, b, rec, now, rec.Err.Error())
+			q.Column, q.ColumnName, q.Field = rec.Err.Column, rec.Err.Name, rec.Err.Field
+			quar = append(quar, q)
 			continue
 		}
 		if filter != nil && !filter[strings.TrimSpace(rec.Text[fi])] {
@@ -329,15 +331,15 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 			}
 			tt, err := time.Parse(layout, strings.TrimSpace(rec.Text[ti]))
 			if err != nil {
-				col, why := m.cellError(b, rec, m.cfg.TimeColumn, fmt.Sprintf("not a time in layout %q: %q", layout, rec.Text[ti]))
-				quar = append(quar, quarantineRow(m.cfg.Name, b, rec, col, why))
+				at, why := m.cellError(b, rec, m.cfg.TimeColumn, fmt.Sprintf("not a time in layout %q: %q", layout, rec.Text[ti]))
+				quar = append(quar, at.row(quarantineRow(m.cfg.Name, b, rec, now, why)))
 				continue
 			}
 			t = tt.UnixNano()
 		}
 		if err := m.designRow(rec.Values); err != nil {
-			col, why := m.designError(b, rec, err)
-			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, col, why))
+			at, why := m.designError(b, rec, err)
+			quar = append(quar, at.row(quarantineRow(m.cfg.Name, b, rec, now, why)))
 			continue
 		}
 		p := pending{rec: rec, vals: rec.Values, t: t}
@@ -409,10 +411,12 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	return nil
 }
 
-func quarantineRow(model string, b watcher.Batch, rec decode.Record, col int, reason string) store.QuarantineRow {
+// quarantineRow keeps rec aside: where it is, its text, the reason, and
+// when it arrived.
+func quarantineRow(model string, b watcher.Batch, rec decode.Record, at time.Time, reason string) store.QuarantineRow {
 	return store.QuarantineRow{
-		Model: model, Path: b.Path, Generation: b.Generation, Line: rec.Line, Column: col,
-		Raw: rec.Raw, Reason: reason,
+		Model: model, Path: b.Path, Generation: b.Generation, Line: rec.Line,
+		Raw: rec.Raw, Reason: reason, At: at,
 	}
 }
 

@@ -256,7 +256,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 			// The baseline's rows are all in the drift fit when the
 			// window starts at the first row and no suspect was left out.
 			nested := len(win) > 0 && win[0] == 0 && len(engine.Flagged(verdicts, engine.WordSuspect)) == 0
-			if err := m.d.drift(ctx, r.driftCondition(base, df, top, nested)); err != nil {
+			if err := m.d.drift(ctx, r.driftCondition(base, df, res.Region, nested)); err != nil {
 				m.log.Error("alert", "err", err)
 			}
 		}
@@ -435,9 +435,14 @@ func (r *refresher) makeBaseline() *baseline {
 	return b
 }
 
-func (r *refresher) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Suggestion, nested bool) alerts.DriftCondition {
+// driftCondition compares f with the baseline b; nested says the
+// baseline's rows are all in f (see shiftOf). Its suggestion is not
+// where the data are thin (more readings do nothing for a calibration
+// that moves) but a check against reference standards at the model's
+// checkpoints, or across region when it names none (alerts.DriftSuggestion).
+func (r *refresher) driftCondition(b *baseline, f *engine.Fit, region engine.Region, nested bool) alerts.DriftCondition {
 	m := r.m
-	c := alerts.DriftCondition{Model: m.cfg.Name, Baseline: b.label, Suggestion: sugg}
+	c := alerts.DriftCondition{Model: m.cfg.Name, Baseline: b.label}
 	for i, c0 := range f.Coef {
 		if i >= len(b.est) || math.IsNaN(b.est[i]) {
 			continue
@@ -470,6 +475,7 @@ func (r *refresher) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Sugg
 			c.Measures = append(c.Measures, dm)
 		}
 	}
+	c.Suggestion = alerts.DriftSuggestion(c.Measures, region)
 	return c
 }
 

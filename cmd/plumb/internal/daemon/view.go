@@ -45,7 +45,7 @@ func (v viewSource) model(name string) (*watchedModel, error) {
 	defer v.d.mu.RUnlock()
 	m := v.d.models[name]
 	if m == nil {
-		return nil, fmt.Errorf("model %q: %w", name, view.ErrNotFound)
+		return nil, &plainError{fmt.Sprintf("no model is named %q", name), view.ErrNotFound}
 	}
 	return m, nil
 }
@@ -303,7 +303,8 @@ func (v viewSource) RecentQuarantine(ctx context.Context, model string, n int) (
 func quarantineViews(qs []store.QuarantineRow) []view.QuarantineView {
 	out := make([]view.QuarantineView, len(qs))
 	for i, q := range qs {
-		out[i] = view.QuarantineView{ID: q.ID, Model: q.Model, File: q.Path, Line: q.Line, Column: q.Column, Raw: q.Raw, Reason: q.Reason, At: q.At}
+		out[i] = view.QuarantineView{ID: q.ID, Model: q.Model, File: q.Path, Line: q.Line, Column: q.Column,
+			ColumnName: q.ColumnName, Field: q.Field, Raw: q.Raw, Reason: q.Reason, At: q.At}
 	}
 	return out
 }
@@ -342,7 +343,7 @@ func alertView(a store.AlertRecord) view.AlertView {
 func (v viewSource) Alert(ctx context.Context, id string) (view.AlertView, error) {
 	a, err := v.d.store.Alert(ctx, id)
 	if errors.Is(err, store.ErrNotFound) {
-		return view.AlertView{}, fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+		return view.AlertView{}, noAlert(id)
 	}
 	if err != nil {
 		return view.AlertView{}, err
@@ -371,9 +372,23 @@ func (v viewSource) actionErr(id string, err error) error {
 	case err == nil:
 		return nil
 	case errors.Is(err, store.ErrNotFound):
-		return fmt.Errorf("alert %q: %w", id, view.ErrNotFound)
+		return noAlert(id)
 	case errors.Is(err, alerts.ErrNotOpen):
-		return fmt.Errorf("alert %q: %w: %v", id, view.ErrState, err)
+		return &plainError{fmt.Sprintf("alert %s is already resolved; nothing was changed", id), view.ErrState}
 	}
 	return err
+}
+
+// plainError is an error for people, in one line, that matches a view
+// sentinel (errors.Is) without repeating its text.
+type plainError struct {
+	msg string
+	is  error
+}
+
+func (e *plainError) Error() string        { return e.msg }
+func (e *plainError) Is(target error) bool { return target == e.is }
+
+func noAlert(id string) error {
+	return &plainError{fmt.Sprintf("no alert has the id %q", id), view.ErrNotFound}
 }

@@ -75,12 +75,7 @@ func quarantineSection(model string, total int64, qs []view.QuarantineView, limi
 
 // where gives a row's position as file:line:column (file:line when the
 // column is not known).
-func where(q view.QuarantineView) string {
-	if q.Column > 0 {
-		return fmt.Sprintf("%s:%d:%d", q.File, q.Line, q.Column)
-	}
-	return fmt.Sprintf("%s:%d", q.File, q.Line)
-}
+func where(q view.QuarantineView) string { return q.Where() }
 
 // reasonText is the reason without its leading position when that repeats
 // the row's own (the decoder's and the daemon's reasons start with it);

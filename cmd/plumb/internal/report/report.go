@@ -294,8 +294,8 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 {{if .Notable}}
 <p class="meta">Verdicts under the current fit: {{.Counts}}. Cutoffs: leverage 2p/n = {{num .D.Cutoffs.Leverage}}; Cook's distance 4/n = {{num .D.Cutoffs.CookSizeAdjusted}} and absolute {{num .D.Cutoffs.CookAbsolute}}; Bonferroni critical |t| = {{num .D.Cutoffs.TCritical}}.</p>
 <table>
-<thead><tr><th>file:line</th><th>verdict</th>{{range .D.Predictors}}<th>{{.}}</th>{{end}}<th>{{.D.Response}}</th><th>fitted</th><th>leverage</th><th>t</th><th>Cook's D</th><th>DFFITS</th><th>Bonferroni p</th></tr></thead>
-<tbody>{{range $p := .Notable}}<tr data-row="{{.Row}}"><td class="m">{{.File}}:{{.Line}}{{if .Label}} <b data-label>{{.Label}}</b>{{end}}</td><td class="verdict v-{{.Verdict}}">{{.Verdict}}</td>{{range $.D.Predictors}}<td class="n">{{num (xval $p .)}}</td>{{end}}<td class="n">{{num .Y}}</td><td class="n">{{num .Fitted}}</td><td class="n">{{num .Leverage}}</td><td class="n">{{num .StudentizedExternal}}</td><td class="n">{{num .Cook}}</td><td class="n">{{num .DFFITS}}</td><td class="n">{{num .BonferroniP}}</td></tr>{{end}}</tbody>
+<thead><tr><th>file:line</th><th>verdict</th>{{range .D.Predictors}}<th>{{.}}</th>{{end}}<th>{{.D.Response}}</th><th>fitted</th><th>leverage</th><th>t</th><th>Cook's D</th><th>DFFITS</th><th>Bonferroni p</th><th>cutoffs crossed</th></tr></thead>
+<tbody>{{range $p := .Notable}}<tr data-row="{{.Row}}"><td class="m">{{.File}}:{{.Line}}{{if .Label}} <b data-label>{{.Label}}</b>{{end}}</td><td class="verdict v-{{.Verdict}}">{{.Verdict}}</td>{{range $.D.Predictors}}<td class="n">{{num (xval $p .)}}</td>{{end}}<td class="n">{{num .Y}}</td><td class="n">{{num .Fitted}}</td><td class="n">{{num .Leverage}}</td><td class="n">{{num .StudentizedExternal}}</td><td class="n">{{num .Cook}}</td><td class="n">{{num .DFFITS}}</td><td class="n">{{num .BonferroniP}}</td><td class="flags">{{range $i, $f := .Flags}}{{if $i}}; {{end}}<span data-flag="{{$f.Measure}}">{{$f.Text}}</span>{{end}}</td></tr>{{end}}</tbody>
 </table>
 {{if .NotableMore}}<p class="meta">… and {{.NotableMore}} more notable rows not listed.</p>{{end}}
 {{else}}<p class="empty">No row crosses a cutoff under the current fit.</p>{{end}}
@@ -365,8 +365,8 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 <h2>Alert history</h2>
 {{if .Alerts}}
 <table>
-<thead><tr><th>state</th><th>kind</th><th>severity</th><th>what</th><th>first seen</th><th>last seen</th><th>note</th></tr></thead>
-<tbody>{{range .Alerts}}<tr data-alert="{{.ID}}"><td class="state">{{.State}}</td><td class="m">{{.Kind}}</td><td>{{.Severity}}</td><td>{{.Summary}}</td><td>{{when .FirstSeen}}</td><td>{{when .LastSeen}}</td><td>{{.Note}}{{if .By}} ({{.By}}){{end}}</td></tr>{{end}}</tbody>
+<thead><tr><th>alert id</th><th>state</th><th>kind</th><th>severity</th><th>what</th><th>first seen</th><th>last seen</th><th>note</th></tr></thead>
+<tbody>{{range .Alerts}}<tr data-alert="{{.ID}}"><td class="m">{{.ID}}</td><td class="state">{{.State}}</td><td class="m">{{.Kind}}</td><td>{{.Severity}}</td><td>{{.Summary}}</td><td>{{when .FirstSeen}}</td><td>{{when .LastSeen}}</td><td>{{.Note}}{{if .By}} ({{.By}}){{end}}</td></tr>{{end}}</tbody>
 </table>
 {{else}}<p class="empty">No alerts.</p>{{end}}
 

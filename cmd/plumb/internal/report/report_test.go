@@ -64,8 +64,8 @@ func TestWriteContents(t *testing.T) {
 		"Generated 2026-03-14 10:00:00Z",
 		// The demo's two quarantined rows, newest first, with position,
 		// reason and text as read.
-		`<tr data-quarantine="2"><td class="m where">run-0314.csv:23:1</td><td>column 1 &#34;output_mv&#34;: empty field</td><td class="m raw">,105</td>`,
-		`<tr data-quarantine="1"><td class="m where">run-0314.csv:9:2</td>`,
+		`<tr data-quarantine="2"><td class="m where">run-0314.csv:23:1, column &#34;output_mv&#34; (field 1)</td><td>column 1 &#34;output_mv&#34;: empty field</td><td class="m raw">,105</td>`,
+		`<tr data-quarantine="1"><td class="m where">run-0314.csv:9:6, column &#34;ref_kpa&#34; (field 2)</td>`,
 	} {
 		if !strings.Contains(html, want) {
 			t.Errorf("report lacks %q", want)

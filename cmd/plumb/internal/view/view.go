@@ -225,13 +225,14 @@ type Fragility struct {
 	Searched string `json:"searched,omitempty"`
 }
 
-// String gives "3 (of up to 5)", "none within 5" or "not computed".
+// String gives "3", "no set of up to 5 rows changes a conclusion" or
+// "not computed".
 func (f Fragility) String() string {
 	switch {
 	case !f.Computed:
 		return "not computed"
 	case !f.Found:
-		return "none within " + strconv.Itoa(f.K)
+		return "no set of up to " + strconv.Itoa(f.K) + " rows changes a conclusion"
 	default:
 		return strconv.Itoa(f.Index)
 	}
@@ -345,6 +346,10 @@ type flagJSON struct {
 	Value   Float  `json:"value"`
 	Cutoff  Float  `json:"cutoff"`
 }
+
+// Text says the flag in words (engine.Flag.Text): the one rendering of
+// a crossed cutoff on every page, report and alert.
+func (f Flag) Text() string { return engine.Flag(f).Text() }
 
 // MarshalJSON implements json.Marshaler.
 func (f Flag) MarshalJSON() ([]byte, error) {
@@ -470,14 +475,18 @@ type ObservationView struct {
 
 // QuarantineView is a row that could not be read.
 type QuarantineView struct {
-	ID     int64     `json:"id"`
-	Model  string    `json:"model"`
-	File   string    `json:"file"`
-	Line   int       `json:"line"`
-	Column int       `json:"column"`
-	Raw    string    `json:"raw"`
-	Reason string    `json:"reason"`
-	At     time.Time `json:"at"`
+	ID     int64  `json:"id"`
+	Model  string `json:"model"`
+	File   string `json:"file"`
+	Line   int    `json:"line"`
+	Column int    `json:"column"`
+	// ColumnName and Field name the column that could not be read and
+	// its 1-based position ("" and 0: not one column, or not known).
+	ColumnName string    `json:"column_name,omitempty"`
+	Field      int       `json:"field,omitempty"`
+	Raw        string    `json:"raw"`
+	Reason     string    `json:"reason"`
+	At         time.Time `json:"at,omitzero"`
 }
 
 // AlertFilter selects alerts. Empty strings match all.

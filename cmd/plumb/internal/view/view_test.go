@@ -44,7 +44,7 @@ func TestFragilityString(t *testing.T) {
 		want string
 	}{
 		{Fragility{}, "not computed"},
-		{Fragility{Computed: true, K: 5}, "none within 5"},
+		{Fragility{Computed: true, K: 5}, "no set of up to 5 rows changes a conclusion"},
 		{Fragility{Computed: true, Found: true, Index: 2, K: 5}, "2"},
 	} {
 		if got := tt.f.String(); got != tt.want {

@@ -64,6 +64,7 @@ var pages = template.Must(template.New("").Funcs(template.FuncMap{
 	// rowOf is the file:line of a suspect-point alert's subject.
 	"rowOf": func(a view.AlertView) string { return strings.TrimPrefix(a.Subject, a.Model+"/") },
 	"atval": func(s view.Suggestion) string { return chart.Settings(s.At) },
+	"mtext": view.MeasureText,
 }).ParseFS(assets, "assets/*.html"))
 
 func when(t time.Time) string {
@@ -87,7 +88,7 @@ func staticHandler() http.Handler {
 
 // pageData is what the layout and every page template get.
 type pageData struct {
-	Page      string // overview, model, alerts, error
+	Page      string // overview, model, alerts, alert, error
 	Title     string
 	Caution   string
 	NeedToken bool
@@ -101,6 +102,7 @@ type pageData struct {
 	Models     []view.ModelSummary
 	OpenAlerts []view.AlertView
 	Model      *modelPage
+	Alert      *alertPage
 	Alerts     []view.AlertView
 	State      string
 	States     []string

@@ -32,6 +32,7 @@
 //	GET  /                                      dashboard: all models
 //	GET  /models/{name}                         one model's charts   ?x=predictor
 //	GET  /alerts                                alert list with actions ?state=
+//	GET  /alerts/{id}                           one alert: its evidence, history and actions
 //
 // Lists answer {"items": [...], "next": "<url>"}; next is present when
 // more items may follow. limit defaults to DefaultLimit and is capped at
@@ -166,6 +167,7 @@ func New(src view.Source, opts Options) http.Handler {
 	mux.HandleFunc("GET /{$}", s.pageOverview)
 	mux.HandleFunc("GET /models/{name}", s.pageModel)
 	mux.HandleFunc("GET /alerts", s.pageAlerts)
+	mux.HandleFunc("GET /alerts/{id}", s.pageAlert)
 	mux.Handle("GET /static/", http.StripPrefix("/static/", staticHandler()))
 	mux.HandleFunc("GET /favicon.ico", func(w http.ResponseWriter, r *http.Request) {
 		http.Redirect(w, r, "/static/bob.svg", http.StatusMovedPermanently)

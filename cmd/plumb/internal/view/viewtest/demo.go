@@ -3,6 +3,7 @@ package viewtest
 import (
 	"encoding/json"
 	"fmt"
+	"strings"
 	"time"
 
 	"plumb/cmd/plumb/internal/view"
@@ -49,9 +50,9 @@ func Demo() *Fake {
 			Leverage: p.Leverage, Cook: p.Cook, StudentizedExternal: p.StudentizedExternal,
 		})
 	}
-	f.AddQuarantine(view.QuarantineView{Model: "bench-b", File: "run-0314.csv", Line: 9, Column: 2,
+	f.AddQuarantine(view.QuarantineView{Model: "bench-b", File: "run-0314.csv", Line: 9, Column: 6, ColumnName: "ref_kpa", Field: 2,
 		Raw: "71.4,4O", Reason: `column 2 "ref_kpa": not a number`, At: at.Add(-12 * time.Minute)})
-	f.AddQuarantine(view.QuarantineView{Model: "bench-b", File: "run-0314.csv", Line: 23, Column: 1,
+	f.AddQuarantine(view.QuarantineView{Model: "bench-b", File: "run-0314.csv", Line: 23, Column: 1, ColumnName: "output_mv", Field: 1,
 		Raw: ",105", Reason: `column 1 "output_mv": empty field`, At: at.Add(-2 * time.Minute)})
 
 	f.SetModel(view.ModelDetail{ModelSummary: view.ModelSummary{
@@ -72,14 +73,36 @@ func Demo() *Fake {
 		return b
 	}
 	p := d.Points[16]
+	// The suspect point's document as the alerts package writes it
+	// (alerts/schema/alert.schema.json): measures from the point's flags,
+	// the model's first suggestion, the reading and its history.
+	var measures []map[string]any
+	var words []string
+	for _, fl := range p.Flags {
+		measures = append(measures, map[string]any{"name": fl.Measure, "family": fl.Family, "term": fl.Term, "value": fl.Value, "cutoff": fl.Cutoff})
+		words = append(words, fl.Text())
+	}
+	spDoc := map[string]any{
+		"id": "sp-3c1d9a70b2e45f18", "count": 2,
+		"explanation": "The row newly read from run-0314.csv, line 18, lies far from what the rest of the data predict " +
+			"and pulls the fitted line toward itself (" + strings.Join(words, "; ") + ").",
+		"measures": measures,
+		"point":    map[string]any{"file": "run-0314.csv", "line": 18, "label": "gauge K-0418", "values": map[string]float64{"ref_kpa": DemoX[16], "output_mv": DemoY[16]}},
+		"history":  []map[string]any{{"event": "opened", "at": at.Add(-4 * time.Minute)}},
+	}
+	if len(d.Suggestions) > 0 {
+		spDoc["suggestion"] = map[string]any{"text": d.Suggestions[0].Text, "at": d.Suggestions[0].At}
+	}
 	f.PutAlert(view.AlertView{ID: "sp-3c1d9a70b2e45f18", Model: "bench-b", Kind: "suspect_point", Severity: "warning",
 		Subject: "run-0314.csv:18", State: view.AlertOpen, FirstSeen: at.Add(-4 * time.Minute), LastSeen: at,
 		Summary: fmt.Sprintf("run-0314.csv:18 is an outlier (t = %.2f) and influential (Cook's D = %.2f)", float64(p.StudentizedExternal), float64(p.Cook)),
-		Doc:     doc(map[string]any{"file": "run-0314.csv", "line": 18})})
+		Doc:     doc(spDoc)})
 	f.PutAlert(view.AlertView{ID: "ff-9e02b4c6d1a8f357", Model: "bench-b", Kind: "fragile_fit", Severity: "warning",
 		Subject: "intercept", State: view.AlertOpen, FirstSeen: at.Add(-4 * time.Minute), LastSeen: at.Add(-time.Minute),
 		Summary: "removing 1 row (run-0314.csv:18) changes whether the intercept differs from 0",
-		Doc:     doc(map[string]any{"index": 1})})
+		Doc: doc(map[string]any{"count": 1, "measures": []map[string]any{{"name": "fragility_index", "value": 1, "cutoff": 2}},
+			"fragility": map[string]any{"index": 1, "limit": 2, "removed": []string{"run-0314.csv:18"}, "conclusion": "intercept differs from 0 at 0.05"},
+			"history":   []map[string]any{{"event": "opened", "at": at.Add(-4 * time.Minute)}}})})
 	f.PutAlert(view.AlertView{ID: "bl-51f7e0a2c39d6b84", Model: "oven-3", Kind: "blocked", Severity: "critical",
 		Subject: "fit", State: view.AlertAcknowledged, FirstSeen: at.Add(-3 * time.Hour), LastSeen: at.Add(-2 * time.Hour),
 		Summary: "oven-3 cannot be fitted: temp_c and temp_k are collinear", Note: "config fix pending", By: "shift-lead",

@@ -13,6 +13,7 @@ package viewtest
 import (
 	"cmp"
 	"context"
+	"encoding/json"
 	"fmt"
 	"slices"
 	"sync"
@@ -286,8 +287,26 @@ func (f *Fake) Ack(ctx context.Context, id, note, who string) error {
 		return fmt.Errorf("acknowledge alert %q (%s): %w", id, a.State, view.ErrState)
 	}
 	a.State, a.Note, a.By = view.AlertAcknowledged, note, who
+	a.Doc = withEvent(a.Doc, map[string]any{"event": "acknowledged", "at": time.Now().UTC(), "by": who, "note": note})
 	f.alerts[id] = a
 	return nil
+}
+
+// withEvent appends an entry to the history of an alert document, as the
+// alerts package does on every event (a document that is not a JSON
+// object is left as it is).
+func withEvent(doc json.RawMessage, ev map[string]any) json.RawMessage {
+	var m map[string]any
+	if json.Unmarshal(doc, &m) != nil || m == nil {
+		return doc
+	}
+	h, _ := m["history"].([]any)
+	m["history"] = append(h, ev)
+	b, err := json.Marshal(m)
+	if err != nil {
+		return doc
+	}
+	return b
 }
 
 // Resolve implements view.Source.
@@ -307,6 +326,7 @@ func (f *Fake) Resolve(ctx context.Context, id, note string) error {
 	}
 	a.State, a.Note = view.AlertResolved, note
 	a.LastSeen = a.LastSeen.Add(time.Second)
+	a.Doc = withEvent(a.Doc, map[string]any{"event": "resolved", "at": time.Now().UTC(), "note": note})
 	f.alerts[id] = a
 	return nil
 }
