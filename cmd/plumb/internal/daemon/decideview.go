@@ -19,7 +19,7 @@ var (
 
 // Decisions lists the model's exclusions and reinstatements, oldest first.
 func (v viewSource) Decisions(ctx context.Context, model string) ([]view.DecisionView, error) {
-	if _, err := v.model(model); err != nil {
+	if err := v.exists(ctx, model); err != nil { // a model of the fleet's history too
 		return nil, err
 	}
 	ds := v.d.decisionStore()
