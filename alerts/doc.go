@@ -95,7 +95,7 @@
 //
 // # Caution
 //
-// plumb flags; it alters no data. Every alert document carries the caution
+// plumb flags; it never deletes or alters a measurement. Every alert document carries the caution
 // line Caution: the decision to keep, correct, re-measure or exclude a
 // value belongs to qualified staff under local quality procedures.
 //

@@ -11,8 +11,7 @@ import (
 )
 
 // Caution is carried by every alert document.
-const Caution = "plumb flags; it alters no data. Whether to keep, correct, re-measure or exclude a value " +
-	"is a decision for qualified staff under your local quality procedures."
+const Caution = engine.Caution
 
 // describe renders one crossed measure: an engine measure as the engine
 // words its flags (engine.Flag.Text), e.g. "Cook's distance 3.42, above 1

@@ -237,3 +237,10 @@
 // over a 1,000-point grid at p = 6 under 1 ms (BenchmarkInvert,
 // BenchmarkPredictGrid).
 package engine
+
+// Caution is the one caution every output of plumb carries (pages,
+// reports, alerts, inspect, audit exports): plumb flags, and decisions
+// stay with people.
+const Caution = "plumb flags; it never deletes or alters a measurement. " +
+	"Decisions to keep, correct, re-measure or exclude a value stay with " +
+	"qualified staff under local quality procedures and codes."

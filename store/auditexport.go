@@ -7,6 +7,8 @@ import (
 	"io"
 	"strconv"
 	"time"
+
+	"plumb/engine"
 )
 
 // AuditColumns are the columns of WriteAuditCSV, in order.
@@ -74,8 +76,7 @@ const AuditHashEncoding = "hash = SHA-256(\"plumb audit record v1\" 0x00, seq in
 	"each as uvarint byte length + UTF-8 bytes, then the 32 bytes of prev); prev of the first record is 64 zeros"
 
 // Caution is the note every export and report of decisions carries.
-const Caution = "plumb flags readings; it never deletes or alters a measurement. " +
-	"Decisions stay with qualified staff under local quality procedures and codes."
+const Caution = engine.Caution
 
 // WriteAuditJSON writes recs as one indented JSON document (AuditExport)
 // for the period [from, to) (zero bounds are open).

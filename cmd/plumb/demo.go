@@ -154,7 +154,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 	for _, a := range sum.Alerts {
 		out.printf("  %-20s %-13s %-8s %-13s %s\n", a.ID, a.State, a.Severity, a.Kind, a.Subject)
 	}
-	out.printf("\nplumb flags; it never alters a measurement. Decisions stay with qualified staff under local quality procedures.\n")
+	out.printf("\n%s\n", view.Caution)
 	if *keep != "" {
 		out.printf("kept: %s (config %s, database %s)\n", dir, cfgPath, backend.Describe(cfg.Resolve(cfg.State)))
 	}

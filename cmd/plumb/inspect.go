@@ -93,8 +93,9 @@ FILE:LINE, then an optional note; "#" starts a comment. They are listed as
 left out: in a "left_out" array for json, on standard error otherwise, and
 counted in the table's heading. The file is not changed.
 
-plumb flags rows; it never alters a measurement. Decisions stay with
-qualified staff under local quality procedures.`
+plumb flags; it never deletes or alters a measurement. Decisions to
+keep, correct, re-measure or exclude a value stay with qualified staff
+under local quality procedures and codes.`
 
 // inspectOptions are the parsed flags of one inspect run.
 type inspectOptions struct {

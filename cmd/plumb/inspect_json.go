@@ -235,7 +235,7 @@ type jsonReport struct {
 	Caution      string            `json:"caution"`
 }
 
-const cautionText = "plumb flags rows; it never alters a measurement. Decisions stay with qualified staff under local quality procedures."
+const cautionText = engine.Caution
 
 func writeInspectJSON(w io.Writer, r *inspectResult) error {
 	f := r.Fit

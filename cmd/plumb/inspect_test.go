@@ -282,7 +282,7 @@ func TestInspectHelp(t *testing.T) {
 		}
 		for _, w := range []string{"Usage: plumb inspect", "-response", "-terms", "-no-intercept", "-format", "-delimiter",
 			"-strict", "-alpha", "-cutoffs", "-cook-rule", "-outlier-test", "-fragility", "-max-removed", "-checkpoint",
-			"-suggest", "-region", "-replicates", "never alters a measurement"} {
+			"-suggest", "-region", "-replicates", "never deletes or alters a measurement"} {
 			if !strings.Contains(stderr, w) {
 				t.Errorf("%v: help lacks %q", args, w)
 			}

@@ -53,7 +53,7 @@ func TestWriteContents(t *testing.T) {
 	html := writeDemo(t)
 	for _, want := range []string{
 		"plumb report: bench-b",
-		"never alters a measurement", // the caution
+		"never deletes or alters a measurement", // the caution
 		`data-chart="fit"`, `data-chart="influence"`, `data-chart="cooks"`, `data-chart="history"`,
 		"run-0314.csv:18", // the suspect row with its provenance
 		`class="verdict v-suspect"`,

@@ -24,7 +24,7 @@
 //
 // # Caution
 //
-// plumb flags; it never alters a measurement. Every screen and report built
+// plumb flags; it never deletes or alters a measurement. Every screen and report built
 // from a view carries Caution.
 package view
 
@@ -40,9 +40,7 @@ import (
 )
 
 // Caution is the line every page, chart and report carries.
-const Caution = "plumb flags; it never alters a measurement. " +
-	"Decisions to keep, correct, re-measure or exclude a value stay with " +
-	"qualified staff under local quality procedures."
+const Caution = engine.Caution
 
 // Source is what the daemon offers to the web server and the report writer.
 //

@@ -89,7 +89,7 @@ func TestBrowserDashboard(t *testing.T) {
 	if c := count(t, ctx, `.model-card`); c != 3 {
 		t.Errorf("overview shows %d model cards, want 3", c)
 	}
-	if c := text(t, ctx, `footer[data-caution]`); !strings.Contains(c, "never alters a measurement") {
+	if c := text(t, ctx, `footer[data-caution]`); !strings.Contains(c, "never deletes or alters a measurement") {
 		t.Errorf("caution line missing: %q", c)
 	}
 	screenshot(t, ctx, "dashboard-overview.png")

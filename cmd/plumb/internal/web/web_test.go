@@ -129,7 +129,7 @@ func TestPagesCarryCaution(t *testing.T) {
 	h := New(viewtest.Demo(), Options{})
 	for _, p := range []string{"/", "/models/bench-b", "/models/oven-3", "/alerts", "/models/nope"} {
 		w := serve(t, h, call{method: "GET", path: p})
-		if !strings.Contains(w.Body.String(), "it never alters a measurement") {
+		if !strings.Contains(w.Body.String(), "it never deletes or alters a measurement") {
 			t.Errorf("%s: no caution line", p)
 		}
 	}
