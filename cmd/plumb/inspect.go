@@ -63,6 +63,8 @@ where in the operating region (--region, else the observed range) new
 readings would lower the influence of the worst rows and the fragility.
 With --format csv both are written to standard error.
 
+` + inspectFormDescription + `
+
 Exit status: 0 when the report was written, 1 when the file cannot be
 read or fitted (or a row is bad under --strict), 2 for a bad command line.
 
@@ -86,6 +88,10 @@ type inspectOptions struct {
 	suggest     bool
 	region      engine.Region // columns given with --region
 	replicates  int
+
+	weights   string // --weights as given
+	weighting engine.Weighting
+	poolAlpha float64
 }
 
 func runInspect(ctx context.Context, e *env, args []string) error {
@@ -173,8 +179,12 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 		return nil
 	})
 	fs.IntVar(&opt.replicates, "replicates", engine.DefaultReplicates, "with --suggest: readings proposed at each point")
+	checkForm := formFlags(fs, &opt)
 	pos, err := parseFlags(fs, args)
 	if err != nil {
+		return nil, err
+	}
+	if err := checkForm(); err != nil {
 		return nil, err
 	}
 	bad := func(format string, a ...any) error {
@@ -503,6 +513,7 @@ func inspectModel(opt *inspectOptions) (engine.Model, error) {
 		}
 		return engine.Model{}, fmt.Errorf("inspect: %w: %v", errUsage, err)
 	}
+	m.Weight = opt.weighting
 	return m, nil
 }
 

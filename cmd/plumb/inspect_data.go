@@ -44,6 +44,9 @@ type inspectData struct {
 	names    []string // selected columns: response first, then predictors
 	cols     map[string][]float64
 	vals     [][]float64 // the same columns, in the order of names
+	tnames   []string    // columns kept as text (group labels)
+	text     map[string][]string
+	tvals    [][]string // the same, in the order of tnames
 	rowNo    []int
 	line     []int
 	buf      []byte // the whole file, to find a field of a rejected row
@@ -67,12 +70,12 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 	if err != nil {
 		return nil, fmt.Errorf("inspect: %w", err)
 	}
-	names := append([]string{m.Response}, m.Columns()...)
+	names, tnames := dataColumns(m)
 	dialect := decode.Dialect{Delimiter: opt.delimiter}
 
 	// The header first, alone, so that the rest can be cut into parts.
 	hdr := decode.NewDecoder(name, dialect)
-	if err := hdr.Select(names, nil); err != nil {
+	if err := hdr.Select(names, tnames); err != nil {
 		return nil, fmt.Errorf("inspect: %w", err)
 	}
 	_, err = hdr.Feed(buf, true, func(decode.Record) error { return errHeaderRead })
@@ -89,7 +92,7 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 	store := newRowStore(len(names), buf, parts)
 	results := make([]*inspectData, len(parts))
 	if len(parts) == 1 {
-		results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, parts[0], store.slot(0))
+		results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, tnames, buf, parts[0], store.slot(0))
 	} else {
 		errs := make([]error, len(parts))
 		var wg sync.WaitGroup
@@ -97,7 +100,7 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 			wg.Add(1)
 			go func() {
 				defer wg.Done()
-				results[k], errs[k] = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, parts[k], store.slot(k))
+				results[k], errs[k] = decodePart(name, dialect, header, hdr.HeaderLine(), names, tnames, buf, parts[k], store.slot(k))
 			}()
 		}
 		wg.Wait()
@@ -108,7 +111,7 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 			whole := []part{{off: int(off), end: len(buf), line: line}}
 			store = newRowStore(len(names), buf, whole)
 			results = results[:1]
-			results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, buf, whole[0], store.slot(0))
+			results[0], err = decodePart(name, dialect, header, hdr.HeaderLine(), names, tnames, buf, whole[0], store.slot(0))
 		}
 	}
 	if err != nil {
@@ -120,6 +123,11 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 		ds.cols[n] = ds.vals[i]
 	}
 	ds.vals = nil // cols is the truth from here on (drop edits it)
+	ds.tnames, ds.text = tnames, map[string][]string{}
+	for i, n := range tnames {
+		ds.text[n] = ds.tvals[i]
+	}
+	ds.tvals = nil
 	if ds.total == 0 {
 		return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: the file has a header (line %d) but no data rows", name, hdr.HeaderLine())}
 	}
@@ -245,6 +253,12 @@ func (st *rowStore) merge(parts []*inspectData) *inspectData {
 		for i := range st.cols {
 			copy(st.cols[i][w:], p.vals[i])
 		}
+		if ds.tvals == nil {
+			ds.tvals = make([][]string, len(p.tvals))
+		}
+		for i, v := range p.tvals {
+			ds.tvals[i] = append(ds.tvals[i], v...)
+		}
 		for _, r := range p.rejected {
 			r.Row += base
 			ds.rejected = append(ds.rejected, r)
@@ -262,16 +276,17 @@ func (st *rowStore) merge(parts []*inspectData) *inspectData {
 
 // decodePart decodes the records of one part with its own decoder into
 // slot (see rowStore).
-func decodePart(name string, dialect decode.Dialect, header []string, headerLine int, names []string, buf []byte, pt part, slot *inspectData) (*inspectData, error) {
+func decodePart(name string, dialect decode.Dialect, header []string, headerLine int, names, tnames []string, buf []byte, pt part, slot *inspectData) (*inspectData, error) {
 	dec := decode.NewDecoder(name, dialect)
 	if err := dec.SetHeader(header, headerLine); err != nil {
 		return nil, err
 	}
-	if err := dec.Select(names, nil); err != nil {
+	if err := dec.Select(names, tnames); err != nil {
 		return nil, err
 	}
 	dec.SetOffset(int64(pt.off), pt.line)
 	ds := slot
+	ds.tvals = make([][]string, len(tnames))
 	vals := ds.vals
 	_, err := dec.Feed(buf[pt.off:pt.end], true, func(r decode.Record) error {
 		ds.total++
@@ -284,6 +299,9 @@ func decodePart(name string, dialect decode.Dialect, header []string, headerLine
 		}
 		for i, v := range r.Values {
 			vals[i] = append(vals[i], v)
+		}
+		for i, v := range r.Text {
+			ds.tvals[i] = append(ds.tvals[i], v)
 		}
 		ds.rowNo = append(ds.rowNo, ds.total)
 		ds.line = append(ds.line, r.Line)
@@ -376,11 +394,17 @@ func (ds *inspectData) drop(idx []int) {
 		for _, n := range ds.names {
 			ds.cols[n][w] = ds.cols[n][i]
 		}
+		for _, n := range ds.tnames {
+			ds.text[n][w] = ds.text[n][i]
+		}
 		w++
 	}
 	ds.rowNo, ds.line = ds.rowNo[:w], ds.line[:w]
 	for _, n := range ds.names {
 		ds.cols[n] = ds.cols[n][:w]
+	}
+	for _, n := range ds.tnames {
+		ds.text[n] = ds.text[n][:w]
 	}
 	sort.Slice(ds.rejected, func(a, b int) bool { return ds.rejected[a].Row < ds.rejected[b].Row })
 }

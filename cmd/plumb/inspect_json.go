@@ -203,7 +203,8 @@ type jsonReport struct {
 	Rejected     []rejectedRow     `json:"rejected"`
 	Fragility    *jsonFragility    `json:"fragility,omitempty"`
 	Suggestions  *[]jsonSuggestion `json:"suggestions,omitempty"`
-	Caution      string            `json:"caution"`
+	jsonForm
+	Caution string `json:"caution"`
 }
 
 const cautionText = "plumb flags rows; it never alters a measurement. Decisions stay with qualified staff under local quality procedures."
@@ -244,6 +245,7 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		Rejected:    r.ds.rejected,
 		Fragility:   r.jsonFragility(),
 		Suggestions: r.jsonSuggestions(),
+		jsonForm:    r.jsonForm(),
 		Caution:     cautionText,
 	}
 	rep.Terms = make([]string, len(r.model.Terms))

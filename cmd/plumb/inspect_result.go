@@ -47,18 +47,26 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 		SuggestOptions:   engine.SuggestOptions{Replicates: opt.replicates},
 		Region:           opt.region,
 		Label:            res.rowLabel,
+		Form:             true,
+		Pool:             true,
+		PoolAlpha:        opt.poolAlpha,
 	}}
+	if err := textColumnHint(ds, m); err != nil {
+		return nil, err
+	}
 	for {
 		if len(ds.rowNo) == 0 {
 			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: none of the %d data rows could be used", ds.file, ds.total)}
 		}
-		r, err := a.Run(ctx, ds.cols)
+		r, err := a.RunData(ctx, engine.Data{Num: ds.cols, Text: ds.text})
 		var se *analysis.StepError
 		if !errors.As(err, &se) {
 			if err != nil {
 				return nil, err // cancelled
 			}
 			res.Result = &view.Result{Result: r, Cutoffs: opt.cutoffs, Row: res.row}
+			// The model as built: its group levels name the coefficients.
+			res.model, res.names = r.Model, r.Model.Names()
 			break
 		}
 		var de *engine.DataError

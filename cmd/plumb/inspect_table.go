@@ -250,6 +250,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 		fmt.Fprintf(bw, "  variance inflation: %s\n", strings.Join(parts, ", "))
 	}
 	bw.WriteByte('\n')
+	r.writeFormTable(bw)
 
 	if r.Fragility != nil {
 		bw.WriteString("== How fragile the conclusions are ==\n")

@@ -240,6 +240,13 @@ type ModelDetail struct {
 	Suggestions []Suggestion `json:"suggestions"`
 	// Drift holds the drift band of each coefficient (may be empty).
 	Drift []DriftBand `json:"drift"`
+
+	// Weights is the fit's weighting in plumb's notation ("" unweighted);
+	// Form its checks of the model form; Pool the poolability of its
+	// group (form.go).
+	Weights string       `json:"weights,omitempty"`
+	Form    *FormChecks  `json:"form_checks,omitempty"`
+	Pool    *Poolability `json:"poolability,omitempty"`
 }
 
 // Curve returns the curve over predictor, or false.
@@ -270,17 +277,19 @@ type Point struct {
 	File string `json:"file"`
 	Line int    `json:"line"`
 	// X holds the row's predictor values by column name.
-	X                   map[string]Float `json:"x"`
-	Y                   Float            `json:"y"`
-	Fitted              Float            `json:"fitted"`
-	Residual            Float            `json:"residual"`
-	Leverage            Float            `json:"leverage"`
-	StudentizedExternal Float            `json:"studentized_external"`
-	Cook                Float            `json:"cooks_distance"`
-	DFFITS              Float            `json:"dffits"`
-	BonferroniP         Float            `json:"bonferroni_p"`
-	Verdict             string           `json:"verdict"`
-	Flags               []Flag           `json:"flags,omitempty"`
+	X map[string]Float `json:"x"`
+	// Labels are the row's group labels (text columns), by column.
+	Labels              map[string]string `json:"labels,omitempty"`
+	Y                   Float             `json:"y"`
+	Fitted              Float             `json:"fitted"`
+	Residual            Float             `json:"residual"`
+	Leverage            Float             `json:"leverage"`
+	StudentizedExternal Float             `json:"studentized_external"`
+	Cook                Float             `json:"cooks_distance"`
+	DFFITS              Float             `json:"dffits"`
+	BonferroniP         Float             `json:"bonferroni_p"`
+	Verdict             string            `json:"verdict"`
+	Flags               []Flag            `json:"flags,omitempty"`
 }
 
 // Flag is one cutoff a point crosses, the engine's flag converted
