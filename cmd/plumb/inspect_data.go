@@ -132,6 +132,7 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 		return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: the file has a header (line %d) but no data rows", name, hdr.HeaderLine())}
 	}
 	ds.rejectLogDomain(m, opt.delimiter)
+	ds.rejectBadWeights(m, opt.delimiter)
 	return ds, nil
 }
 

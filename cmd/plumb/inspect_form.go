@@ -219,3 +219,35 @@ func poolWords(v string) string {
 	}
 	return strings.TrimSpace(v)
 }
+
+// rejectBadWeights sets aside, before the design is built, the rows whose
+// weight is zero, negative or not finite (for inverse(x^k), 1/x^k), each
+// with the weight column's place, so that one such row does not stop the
+// fit.
+func (ds *inspectData) rejectBadWeights(m engine.Model, delim byte) {
+	w := m.Weight
+	if !w.Weighted() {
+		return
+	}
+	v, ok := ds.cols[w.Column]
+	if !ok {
+		return
+	}
+	var drop []int
+	for i, x := range v {
+		wi, err := w.RowWeight(func(string) float64 { return x })
+		if err == nil && wi > 0 {
+			continue
+		}
+		what := "weight " + strconv.FormatFloat(x, 'g', -1, 64)
+		if w.Power > 0 {
+			what = fmt.Sprintf("weight %s from %s = %s", strconv.FormatFloat(wi, 'g', -1, 64), w, strconv.FormatFloat(x, 'g', -1, 64))
+			if err != nil {
+				what = fmt.Sprintf("weight %s at %s = %s", w, w.Column, strconv.FormatFloat(x, 'g', -1, 64))
+			}
+		}
+		ds.reject(i, w.Column, what+": a weight must be a positive finite number", delim)
+		drop = append(drop, i)
+	}
+	ds.drop(drop)
+}

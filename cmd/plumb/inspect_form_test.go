@@ -26,12 +26,12 @@ type formReference struct {
 	Names     []string             `json:"coefficient_names"`
 	Form      struct {
 		LackOfFit *struct {
-			Groups       int     `json:"groups"`
-			PureErrorDF  int     `json:"pure_error_df"`
-			LackOfFitDF  int     `json:"lack_of_fit_df"`
-			F, P         float64 `json:"-"`
-			FJ           float64 `json:"f"`
-			PJ           float64 `json:"p"`
+			Groups      int     `json:"groups"`
+			PureErrorDF int     `json:"pure_error_df"`
+			LackOfFitDF int     `json:"lack_of_fit_df"`
+			F, P        float64 `json:"-"`
+			FJ          float64 `json:"f"`
+			PJ          float64 `json:"p"`
 		} `json:"lack_of_fit"`
 		DurbinWatson struct {
 			Statistic float64 `json:"statistic"`
@@ -264,8 +264,8 @@ func TestInspectPoolMatchesR(t *testing.T) {
 		P   float64 `json:"p"`
 	}
 	var ref struct {
-		Assay, Months, W  []float64
-		Batch             []string
+		Assay, Months, W   []float64
+		Batch              []string
 		Slopes, Intercepts ftest
 	}
 	if err := json.Unmarshal(b, &ref); err != nil {
@@ -307,5 +307,73 @@ func TestInspectPoolMatchesR(t *testing.T) {
 	levels := slices.Compact(slices.Sorted(slices.Values(ref.Batch)))
 	if p.Levels != len(levels) {
 		t.Errorf("levels %d, want %d", p.Levels, len(levels))
+	}
+}
+
+// TestInspectBadWeights: a zero, negative or non-finite weight leaves its
+// row out with file:line:column (the weight's field), never a crash;
+// --strict refuses the file; a bad --weights is a usage error.
+func TestInspectBadWeights(t *testing.T) {
+	const csv = "y,x,w\n1,1,1\n2,2,0\n3,3.1,1\n4,4,-2\n5,5.2,1\n6,6,1\n7,7.1,2\n8,8,1e400\n"
+	out, stderr, code := runPlumb(t, csv, "inspect", "-", "--response", "y", "--terms", "x", "--weights", "w", "--format", "json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	var got struct {
+		N        int `json:"n"`
+		Rejected []struct {
+			Line, Column int
+			Field        string
+			Reason       string
+		} `json:"rejected"`
+	}
+	if err := json.Unmarshal([]byte(out), &got); err != nil {
+		t.Fatal(err)
+	}
+	want := []string{"3:5:w", "5:5:w", "9:5:w"}
+	var where []string
+	for _, r := range got.Rejected {
+		where = append(where, strconv.Itoa(r.Line)+":"+strconv.Itoa(r.Column)+":"+r.Field)
+	}
+	if got.N != 5 || !slices.Equal(where, want) {
+		t.Fatalf("n %d, rejected at %v (%+v); want 5 rows, %v", got.N, where, got.Rejected, want)
+	}
+	// 1e400 is refused by the decoder as not finite; 0 and -2 as weights.
+	if !strings.Contains(got.Rejected[0].Reason, "weight 0") || !strings.Contains(got.Rejected[1].Reason, "weight -2") {
+		t.Errorf("reasons %+v", got.Rejected)
+	}
+	_, stderr, code = runPlumb(t, csv, "inspect", "-", "--response", "y", "--terms", "x", "--weights", "w", "--strict")
+	if code != 1 || !strings.Contains(stderr, "stdin:3:5") {
+		t.Errorf("--strict: exit %d, stderr %s", code, stderr)
+	}
+	for _, bad := range []string{"inverse(x", "inverse(x^0)", "inverse()", "1w"} {
+		_, stderr, code = runPlumb(t, csv, "inspect", "-", "--response", "y", "--terms", "x", "--weights", bad)
+		if code != 2 || !strings.Contains(stderr, "--weights") {
+			t.Errorf("--weights %q: exit %d, stderr %s", bad, code, stderr)
+		}
+	}
+	_, stderr, code = runPlumb(t, csv, "inspect", "-", "--response", "y", "--terms", "x", "--weights", "v")
+	if code != 1 || !strings.Contains(stderr, `"v"`) {
+		t.Errorf("unknown weight column: exit %d, stderr %s", code, stderr)
+	}
+}
+
+// TestInspectTextColumn: a text column used as a plain term is refused
+// with a suggestion of group(...); as group(...) it fits, and a group
+// with one level is reported as constant.
+func TestInspectTextColumn(t *testing.T) {
+	const csv = "y,x,lot\n1,1,A\n2.1,2,B\n2.9,3,A\n4.2,4,B\n5,5,A\n5.8,6,B\n"
+	_, stderr, code := runPlumb(t, csv, "inspect", "-", "--response", "y", "--terms", "x, lot")
+	if code != 1 || !strings.Contains(stderr, "group(lot)") {
+		t.Errorf("text as a number: exit %d, stderr %s", code, stderr)
+	}
+	out, stderr, code := runPlumb(t, csv, "inspect", "-", "--response", "y", "--terms", "x, group(lot)", "--format", "json")
+	if code != 0 || !strings.Contains(out, `"lot=B"`) {
+		t.Errorf("group(lot): exit %d, stderr %s", code, stderr)
+	}
+	one := "y,x,lot\n1,1,A\n2.1,2,A\n2.9,3,A\n4.2,4,A\n5,5,A\n"
+	_, stderr, code = runPlumb(t, one, "inspect", "-", "--response", "y", "--terms", "x, group(lot)")
+	if code != 1 || !strings.Contains(stderr, "single level") {
+		t.Errorf("one level: exit %d, stderr %s", code, stderr)
 	}
 }
