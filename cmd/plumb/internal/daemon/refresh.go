@@ -72,6 +72,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 	r.dirty = false
 	win := m.rows.window(m.cfg.Window)
 	cols := m.rows.copyRows(win, m.numeric())
+	text := m.copyLabels(win)
 	lastID := int64(0)
 	if len(m.rows.ids) > 0 {
 		lastID = m.rows.ids[len(m.rows.ids)-1]
@@ -89,7 +90,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 		return nil
 	}
 	label := func(row int) string { return m.labelOf(win, row) }
-	res, err := m.analysis(label).Run(ctx, cols)
+	res, err := m.analysis(label).RunData(ctx, engine.Data{Num: cols, Text: text})
 	if err != nil {
 		var se *analysis.StepError
 		if !errors.As(err, &se) {
@@ -137,7 +138,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 	m.mu.Unlock()
 
 	rec := store.FitRecord{
-		Model: name, At: now, N: fit.N, P: fit.P, Terms: m.spec.Names(), Sigma: fit.Sigma,
+		Model: name, At: now, N: fit.N, P: fit.P, Terms: res.Model.Names(), Sigma: fit.Sigma,
 		RSquared: fit.RSquared, Fragility: -2, LastObsID: lastID,
 	}
 	for _, c := range fit.Coef {
@@ -170,6 +171,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 		}
 		detail["suggestions"] = ss
 	}
+	r.afterRefresh(res, detail)
 	dj, err := json.Marshal(detail)
 	if err != nil {
 		m.log.Error("fit detail", "err", err) // stored without it
@@ -234,8 +236,9 @@ func (r *refresher) refresh(ctx context.Context) error {
 			m.log.Error("alert", "err", err)
 		}
 	}
+	r.reportForm(ctx, res)
 	if base != nil && base.fit != fit {
-		if df := r.driftFit(cols, verdicts, fit); df != nil {
+		if df := r.driftFit(res.Model, cols, text, verdicts, fit); df != nil {
 			if err := m.d.drift(ctx, r.driftCondition(base, df, top)); err != nil {
 				m.log.Error("alert", "err", err)
 			}
@@ -249,7 +252,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 // suspect point has an alert of its own; leaving it out of the drift check
 // keeps one bad reading from raising two alerts. Nothing is removed from
 // the data or the history.
-func (r *refresher) driftFit(cols map[string][]float64, verdicts []engine.Verdict, fit *engine.Fit) *engine.Fit {
+func (r *refresher) driftFit(spec engine.Model, cols map[string][]float64, text map[string][]string, verdicts []engine.Verdict, fit *engine.Fit) *engine.Fit {
 	m := r.m
 	suspects := engine.Flagged(verdicts, engine.WordSuspect)
 	if len(suspects) == 0 {
@@ -257,26 +260,34 @@ func (r *refresher) driftFit(cols map[string][]float64, verdicts []engine.Verdic
 	}
 	keep := make(map[string][]float64, len(cols))
 	for c, v := range cols {
-		kv := make([]float64, 0, len(v)-len(suspects))
-		k := 0
-		for i, x := range v {
-			if k < len(suspects) && suspects[k] == i {
-				k++
-				continue
-			}
-			kv = append(kv, x)
+		keep[c] = without(v, suspects)
+	}
+	var keepText map[string][]string
+	if text != nil {
+		keepText = make(map[string][]string, len(text))
+		for c, v := range text {
+			keepText[c] = without(v, suspects)
 		}
-		keep[c] = kv
 	}
-	X, y, err := m.spec.Design(keep)
-	if err != nil {
-		return nil
-	}
-	f, err := engine.Refit(m.spec, X, y)
+	f, err := m.fitData(spec, keep, keepText)
 	if err != nil {
 		return nil
 	}
 	return f
+}
+
+// without returns v without the elements at the ascending indices drop.
+func without[T any](v []T, drop []int) []T {
+	out := make([]T, 0, len(v)-len(drop))
+	k := 0
+	for i, x := range v {
+		if k < len(drop) && drop[k] == i {
+			k++
+			continue
+		}
+		out = append(out, x)
+	}
+	return out
 }
 
 // labelOf names the 1-based window row as "file:line".
@@ -335,6 +346,9 @@ func (m *watchedModel) analysis(label func(int) string) *analysis.Analysis {
 		SuggestOptions:   engine.SuggestOptions{Replicates: m.cfg.Suggest.Replicates, Top: m.cfg.Suggest.Count},
 		Region:           engine.Region{},
 		Label:            label,
+		Form:             true,
+		Pool:             m.grouped(),
+		PoolAlpha:        m.cfg.PoolLevel,
 	}}
 	for c, b := range m.cfg.Region {
 		if len(b) == 2 {
@@ -400,11 +414,11 @@ func (r *refresher) makeBaseline() *baseline {
 	for j, c := range m.numeric() {
 		cols[c] = m.rows.vals[j][:d.BaselineRows]
 	}
-	X, y, err := m.spec.Design(cols)
-	if err != nil {
-		return nil
+	first := make([]int, d.BaselineRows)
+	for i := range first {
+		first[i] = i
 	}
-	f, err := engine.Refit(m.spec, X, y)
+	f, err := m.fitData(m.spec, cols, m.copyLabels(first))
 	if err != nil {
 		return nil
 	}
