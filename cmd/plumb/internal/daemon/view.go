@@ -126,6 +126,7 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 	d.Curves = vr.Curves(curveSteps)
 	d.Suggestions = vr.SuggestionViews()
 	d.Weights, d.Form, d.Pool = vr.Weights(), vr.FormChecks(), vr.Poolability()
+	d.FormLevel = m.cfg.Alerts.FormLapse.Level
 	if b := m.ref.baseline; b != nil {
 		k := m.cfg.Alerts.Drift.K
 		for i, t := range b.terms {

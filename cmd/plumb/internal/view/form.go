@@ -2,6 +2,7 @@ package view
 
 import (
 	"math"
+	"strconv"
 
 	"plumb/engine"
 )
@@ -171,3 +172,74 @@ func (r *Result) Poolability() *Poolability { return PoolOf(r.Result.Pool) }
 
 // Weights is the model's weighting in plumb's notation ("" unweighted).
 func (r *Result) Weights() string { return r.Model.Weight.String() }
+
+// FormLine is one check of the model form as a page shows it: every
+// check, made or not.
+type FormLine struct {
+	Name      string // the check in words
+	Tested    bool
+	Statistic Float
+	DF        string // "10, 70" for an F, "3" for a chi-square, "" for none
+	P         Float
+	Method    string // how P was computed, when it says something
+	// Significant is P below the level Lines was given.
+	Significant bool
+	// Words says what the check found (or why it was not made); Next, for
+	// a significant check, what a person usually does next.
+	Words, Next string
+}
+
+// Lines lists the three checks in a fixed order, judged at level alpha.
+func (fc *FormChecks) Lines(alpha float64) []FormLine {
+	if fc == nil {
+		return nil
+	}
+	found := map[string]FormFinding{}
+	for _, f := range fc.Findings(alpha) {
+		found[f.Check] = f
+	}
+	var out []FormLine
+	for _, check := range []string{FormLackOfFit, FormDurbinWatson, FormBreuschPagan} {
+		l := FormLine{Name: CheckName(check)}
+		f, ok := found[check]
+		if !ok {
+			switch check {
+			case FormLackOfFit:
+				l.Words = "not tested: no repeated settings, or no more settings than coefficients"
+			case FormBreuschPagan:
+				l.Words = "not tested: one coefficient, or residuals all of one size"
+			default:
+				l.Words = "not computed"
+			}
+			out = append(out, l)
+			continue
+		}
+		l.Tested, l.Statistic, l.P, l.Significant, l.Words = true, Float(f.Statistic), Float(f.P), f.Significant, f.Words
+		if f.Significant {
+			l.Next = f.Next
+		}
+		switch check {
+		case FormLackOfFit:
+			l.DF = strconv.Itoa(fc.LackOfFit.LackOfFitDF) + ", " + strconv.Itoa(fc.LackOfFit.PureErrorDF)
+		case FormDurbinWatson:
+			l.Method = fc.DurbinWatson.Method
+		case FormBreuschPagan:
+			l.DF = strconv.Itoa(fc.BreuschPagan.DF)
+		}
+		out = append(out, l)
+	}
+	return out
+}
+
+// Words explains a poolability verdict in words.
+func (p *Poolability) Words() string {
+	switch p.Verdict {
+	case engine.PoolAll:
+		return "neither the slopes nor the intercepts differ significantly: one line may serve every level"
+	case engine.PoolSlopes:
+		return "the slopes do not differ significantly but the intercepts do: one slope, a line per level"
+	case engine.PoolNone:
+		return "the slopes differ: each level keeps its own line"
+	}
+	return p.Verdict
+}

@@ -245,6 +245,8 @@ type ModelDetail struct {
 	// Form its checks of the model form; Pool the poolability of its
 	// group (form.go).
 	Weights string       `json:"weights,omitempty"`
+	// FormLevel is the level the model judges its form checks at.
+	FormLevel float64 `json:"form_level,omitempty"`
 	Form    *FormChecks  `json:"form_checks,omitempty"`
 	Pool    *Poolability `json:"poolability,omitempty"`
 }
