@@ -244,11 +244,11 @@ type ModelDetail struct {
 	// Weights is the fit's weighting in plumb's notation ("" unweighted);
 	// Form its checks of the model form; Pool the poolability of its
 	// group (form.go).
-	Weights string       `json:"weights,omitempty"`
+	Weights string `json:"weights,omitempty"`
 	// FormLevel is the level the model judges its form checks at.
-	FormLevel float64 `json:"form_level,omitempty"`
-	Form    *FormChecks  `json:"form_checks,omitempty"`
-	Pool    *Poolability `json:"poolability,omitempty"`
+	FormLevel float64      `json:"form_level,omitempty"`
+	Form      *FormChecks  `json:"form_checks,omitempty"`
+	Pool      *Poolability `json:"poolability,omitempty"`
 }
 
 // Curve returns the curve over predictor, or false.
