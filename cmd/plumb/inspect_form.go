@@ -9,7 +9,6 @@ import (
 	"flag"
 	"fmt"
 	"strconv"
-	"strings"
 
 	"plumb/cmd/plumb/internal/view"
 	"plumb/engine"
@@ -195,7 +194,9 @@ func (r *inspectResult) writeFormTable(bw *bufio.Writer) {
 		fmt.Fprintf(bw, "  %d levels of %s, slope on %s, tested at %s\n", p.Levels, p.Group, p.Predictor, strconv.FormatFloat(float64(p.Alpha), 'g', -1, 64))
 		fmt.Fprintf(bw, "  equal slopes: F %s on %d and %d degrees of freedom, p %s\n", num4(float64(p.Slopes.F)), p.Slopes.DF1, p.Slopes.DF2, pval(float64(p.Slopes.P)))
 		fmt.Fprintf(bw, "  equal intercepts: F %s on %d and %d degrees of freedom, p %s\n", num4(float64(p.Intercepts.F)), p.Intercepts.DF1, p.Intercepts.DF2, pval(float64(p.Intercepts.P)))
-		fmt.Fprintf(bw, "  verdict: %s (%s)\n", p.Verdict, poolWords(p.Verdict))
+		fmt.Fprintf(bw, "  verdict: %s (%s)\n", p.Verdict, p.Words())
+	} else if r.poolProblem != "" {
+		fmt.Fprintf(bw, "\n== Can the groups be pooled? ==\n  not tested: %s\n", r.poolProblem)
 	}
 	bw.WriteByte('\n')
 }
@@ -205,19 +206,6 @@ func fixed5(x float64) string {
 		return "undefined"
 	}
 	return strconv.FormatFloat(x, 'f', 5, 64)
-}
-
-// poolWords explains a poolability verdict.
-func poolWords(v string) string {
-	switch v {
-	case engine.PoolAll:
-		return "neither the slopes nor the intercepts differ significantly: one line may serve every level"
-	case engine.PoolSlopes:
-		return "the slopes do not differ significantly but the intercepts do: one slope, a line per level"
-	case engine.PoolNone:
-		return "the slopes differ: each level keeps its own line"
-	}
-	return strings.TrimSpace(v)
 }
 
 // rejectBadWeights sets aside, before the design is built, the rows whose

@@ -24,6 +24,7 @@ type inspectResult struct {
 	cutoffs engine.Cutoffs
 
 	checkpoints []engine.Checkpoint
+	poolProblem string // why the poolability tests were not made
 }
 
 func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspectData) (*inspectResult, error) {
@@ -89,6 +90,12 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 		return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %w", ds.file, se.Err)}
 	}
 	for _, p := range res.Problems {
+		if p.Step == analysis.StepPool {
+			// The poolability tests could not be made (a level too small
+			// for a line of its own, say): the rest of the report stands.
+			res.poolProblem = p.Err.Error()
+			continue
+		}
 		if p.Step == analysis.StepRegion {
 			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %w", ds.file, p.Err)}
 		}
