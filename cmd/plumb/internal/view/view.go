@@ -443,7 +443,7 @@ type AlertFilter struct {
 type AlertView struct {
 	ID        string    `json:"id"`
 	Model     string    `json:"model"`
-	Kind      string    `json:"kind"` // suspect_point, fragile_fit, drift, blocked
+	Kind      string    `json:"kind"` // suspect_point, fragile_fit, drift, blocked, form_lapse
 	Severity  string    `json:"severity"`
 	Subject   string    `json:"subject"`
 	State     string    `json:"state"`
