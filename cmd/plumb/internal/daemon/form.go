@@ -42,6 +42,10 @@ import (
 // check's streak of significant refreshes (alerts.FormCondition); the
 // form_lapse rule decides.
 
+// formInRefresh switches the form checks of a refresh (a variable so that
+// the benchmark can time a refresh without them).
+var formInRefresh = true
+
 // WordNewLevel is the arrival verdict of a row whose group label was not
 // a level of the model when it arrived: new level, not judged. Its
 // measures are undefined; the next refresh judges it.

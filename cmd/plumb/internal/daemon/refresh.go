@@ -346,7 +346,7 @@ func (m *watchedModel) analysis(label func(int) string) *analysis.Analysis {
 		SuggestOptions:   engine.SuggestOptions{Replicates: m.cfg.Suggest.Replicates, Top: m.cfg.Suggest.Count},
 		Region:           engine.Region{},
 		Label:            label,
-		Form:             true,
+		Form:             formInRefresh,
 		Pool:             m.grouped(),
 		PoolAlpha:        m.cfg.PoolLevel,
 	}}
