@@ -455,5 +455,15 @@ func formRule(mc config.Model) alerts.FormRule {
 		Level: f.Level, Refreshes: f.Refreshes}
 }
 
+// groupHint is the suggestion added to a row refused because a column
+// the model uses as a plain term holds text: write group(column) if its
+// values are labels. "" for other errors.
+func (m *watchedModel) groupHint(e *decode.RowError) string {
+	if !errors.Is(e.Err, decode.ErrNotNumber) || !slices.Contains(m.cols, e.Name) || e.Name == m.spec.Weight.Column {
+		return ""
+	}
+	return fmt.Sprintf("; if the column holds labels, write group(%s) in the model's terms", engine.Weighting{Column: e.Name})
+}
+
 // isNewLevel reports whether err is a group label the model lacks.
 func isNewLevel(err error) bool { return errors.Is(err, engine.ErrNewLevel) }

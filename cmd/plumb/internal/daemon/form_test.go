@@ -312,3 +312,27 @@ enabled = false
 		return len(as) == 1 && as[0].State == "resolved"
 	})
 }
+
+// TestTextColumnAsTerm: a text column used as a plain term quarantines
+// its rows with the suggestion to write group(...).
+func TestTextColumnAsTerm(t *testing.T) {
+	dir := t.TempDir()
+	c := testConfig(t, dir, `
+[[model]]
+name = "t"
+folder = "in"
+response = "y"
+terms = ["x", "lot"]
+`)
+	appendFile(t, filepath.Join(dir, "in", "a.csv"), "x,lot,y\n1,A,2\n2,B,3\n")
+	r := start(t, c)
+	ctx := context.Background()
+	waitFor(t, "two rows quarantined", func() bool {
+		q, _ := r.d.store.Quarantined(ctx, "t", 0, 10)
+		return len(q) == 2
+	})
+	q, _ := r.d.store.Quarantined(ctx, "t", 0, 10)
+	if !strings.Contains(q[0].Reason, "write group(lot)") || q[0].Line != 2 || q[0].Column != 3 {
+		t.Errorf("quarantined %+v", q[0])
+	}
+}

@@ -293,7 +293,7 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	missing := 0
 	for _, rec := range b.Records {
 		if rec.Err != nil {
-			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, rec.Err.Column, rec.Err.Error()))
+			quar = append(quar, quarantineRow(m.cfg.Name, b, rec, rec.Err.Column, rec.Err.Error()+m.groupHint(rec.Err)))
 			continue
 		}
 		if rec.Missing != nil {
