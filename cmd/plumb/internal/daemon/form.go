@@ -455,6 +455,16 @@ func formRule(mc config.Model) alerts.FormRule {
 		Level: f.Level, Refreshes: f.Refreshes}
 }
 
+// canSuggest reports whether the engine can propose where to measure:
+// not for group terms (a level is not a point of a region), nor for a
+// column of weights (the weight of a reading not yet taken is unknown);
+// a variance function inverse(x^k) gives it. Asking anyway would log the
+// same refusal at every refresh.
+func (m *watchedModel) canSuggest() bool {
+	w := m.spec.Weight
+	return !m.grouped() && (!w.Weighted() || w.Power > 0)
+}
+
 // groupHint is the suggestion added to a row refused because a column
 // the model uses as a plain term holds text: write group(column) if its
 // values are labels. "" for other errors.

@@ -342,7 +342,7 @@ func (m *watchedModel) analysis(label func(int) string) *analysis.Analysis {
 		Conclusions:      m.conclusions(),
 		Fragility:        *m.cfg.Fragility.Enabled,
 		FragilityOptions: fopt,
-		Suggest:          true,
+		Suggest:          m.canSuggest(),
 		SuggestOptions:   engine.SuggestOptions{Replicates: m.cfg.Suggest.Replicates, Top: m.cfg.Suggest.Count},
 		Region:           engine.Region{},
 		Label:            label,
