@@ -455,6 +455,18 @@ func formRule(mc config.Model) alerts.FormRule {
 		Level: f.Level, Refreshes: f.Refreshes}
 }
 
+// predictors lists the columns the model uses as numeric predictors (the
+// charts' axes): not a weight column only weighing, nor a group column.
+func (m *watchedModel) predictors() []string {
+	var out []string
+	for _, c := range m.spec.Columns() {
+		if !groupOnly(m.spec, c) {
+			out = append(out, c)
+		}
+	}
+	return out
+}
+
 // canSuggest reports whether the engine can propose where to measure:
 // not for group terms (a level is not a point of a region), nor for a
 // column of weights (the weight of a reading not yet taken is unknown);

@@ -128,7 +128,7 @@ weights = "inverse(x^2)"
 	}
 	checkArrivals(10)
 	d, err := r.d.View().Model(ctx, "w")
-	if err != nil || d.Weights != "inverse(x^2)" || d.Form == nil || d.Form.DurbinWatson == nil {
+	if err != nil || d.Weights != "inverse(x^2)" || d.Form == nil || d.Form.DurbinWatson == nil || !slices.Equal(d.Predictors, []string{"x"}) {
 		t.Errorf("model detail weights %q form %+v, %v", d.Weights, d.Form, err)
 	}
 	r.stop(t)
@@ -205,7 +205,7 @@ terms = ["x", "group(lot)"]
 		}
 	}
 	d, err := r.d.View().Model(ctx, "g")
-	if err != nil || len(d.Coefficients) != 4 || d.Coefficients[3].Term != "lot=C" || d.Points[32].Labels["lot"] != "C" {
+	if err != nil || len(d.Coefficients) != 4 || d.Coefficients[3].Term != "lot=C" || d.Points[32].Labels["lot"] != "C" || !slices.Equal(d.Predictors, []string{"x"}) {
 		t.Errorf("model detail: %v, %+v", err, d.Coefficients)
 	}
 	appendFile(t, file, rows("C", 2, false))

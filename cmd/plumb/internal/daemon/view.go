@@ -84,7 +84,7 @@ func (m *watchedModel) summary(openAlerts int) view.ModelSummary {
 	defer m.mu.Unlock()
 	s := view.ModelSummary{
 		Name: m.cfg.Name, State: m.state, Reason: m.reason, Response: m.spec.Response,
-		Terms: m.spec.Names(), Predictors: m.cols, Rows: m.rowsAccepted, Quarantined: m.quarantined,
+		Terms: m.spec.Names(), Predictors: m.predictors(), Rows: m.rowsAccepted, Quarantined: m.quarantined,
 		Fits: m.ref.fits, LastFitAt: m.ref.fitAt, OpenAlerts: openAlerts, MaxCook: view.NaN(),
 	}
 	if vr := m.ref.view(); vr != nil {
