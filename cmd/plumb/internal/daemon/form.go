@@ -149,6 +149,9 @@ func (m *watchedModel) label(lab []string) func(string) string {
 // rowWeight is the weight of the row with design values v (1 when the
 // model is unweighted).
 func (m *watchedModel) rowWeight(v []float64) (float64, error) {
+	if !m.spec.Weight.Weighted() {
+		return 1, nil // no closure to allocate on the unweighted path
+	}
 	return m.spec.Weight.RowWeight(m.value(v))
 }
 
