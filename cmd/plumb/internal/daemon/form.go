@@ -458,6 +458,19 @@ func formRule(mc config.Model) alerts.FormRule {
 		Level: f.Level, Refreshes: f.Refreshes}
 }
 
+// fitSpec is the model the fits of a window use: for a windowed model
+// with groups, without levels, so that the design holds the levels of the
+// rows in the window only (a level that has left the window would give
+// an indicator column of zeros); otherwise the model itself.
+func (m *watchedModel) fitSpec() engine.Model {
+	if !m.grouped() || !m.windowed() {
+		return m.spec
+	}
+	s := m.spec
+	s.Levels = nil
+	return s
+}
+
 // predictors lists the columns the model uses as numeric predictors (the
 // charts' axes): not a weight column only weighing, nor a group column.
 func (m *watchedModel) predictors() []string {

@@ -336,3 +336,55 @@ terms = ["x", "lot"]
 		t.Errorf("quarantined %+v", q[0])
 	}
 }
+
+// TestGroupLeavesWindow: in a windowed model a lot whose rows have all
+// left the window drops out of the fit (no column of zeros) and the
+// model goes on judging.
+func TestGroupLeavesWindow(t *testing.T) {
+	dir := t.TempDir()
+	c := testConfig(t, dir, `
+[[model]]
+name = "gw"
+folder = "in"
+response = "y"
+terms = ["x", "group(lot)"]
+[model.window]
+rows = 20
+[model.fragility]
+enabled = false
+`)
+	rng := rand.New(rand.NewPCG(16, 4))
+	file := filepath.Join(dir, "in", "a.csv")
+	rows := func(lot string, shift float64, n int, header bool) string {
+		var b strings.Builder
+		if header {
+			b.WriteString("x,lot,y\n")
+		}
+		for i := 0; i < n; i++ {
+			x := float64(i % 7)
+			fmt.Fprintf(&b, "%g,%s,%.6f\n", x, lot, 1+shift+0.4*x+0.05*rng.NormFloat64())
+		}
+		return b.String()
+	}
+	appendFile(t, file, rows("A", 0, 10, true)+rows("B", 0.5, 10, false))
+	r := start(t, c)
+	ctx := context.Background()
+	waitFor(t, "a fit with lots A and B", func() bool {
+		f, err := r.d.store.LastFit(ctx, "gw")
+		return err == nil && f.N == 20 && slices.Contains(f.Terms, "lot=B")
+	})
+	appendFile(t, file, rows("B", 0.5, 10, false)+rows("C", -0.3, 10, false))
+	waitFor(t, "a fit of lots B and C", func() bool {
+		f, err := r.d.store.LastFit(ctx, "gw")
+		return err == nil && f.N == 20 && slices.Equal(f.Terms, []string{"intercept", "x", "lot=C"})
+	})
+	st, err := r.d.store.ModelStates(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, s := range st {
+		if s.Model == "gw" && s.State != stateJudging {
+			t.Errorf("state %s: %s", s.State, s.Reason)
+		}
+	}
+}

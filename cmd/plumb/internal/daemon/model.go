@@ -514,7 +514,7 @@ func (m *watchedModel) windowArrival(batch []pending, p pending) (engine.Obs, []
 			text[c] = append(text[c], r.lab[g])
 		}
 	}
-	f, err := m.fitData(m.spec, cols, text)
+	f, err := m.fitData(m.fitSpec(), cols, text)
 	if err != nil {
 		return engine.Obs{}, nil, n, false
 	}

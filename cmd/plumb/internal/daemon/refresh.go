@@ -73,6 +73,8 @@ func (r *refresher) refresh(ctx context.Context) error {
 	win := m.rows.window(m.cfg.Window)
 	cols := m.rows.copyRows(win, m.numeric())
 	text := m.copyLabels(win)
+	// The model is read under the lock: ingest may extend its levels.
+	an := m.analysis(func(row int) string { return m.labelOf(win, row) })
 	lastID := int64(0)
 	if len(m.rows.ids) > 0 {
 		lastID = m.rows.ids[len(m.rows.ids)-1]
@@ -89,8 +91,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 		m.setState(ctx, stateWaiting, reason, "")
 		return nil
 	}
-	label := func(row int) string { return m.labelOf(win, row) }
-	res, err := m.analysis(label).RunData(ctx, engine.Data{Num: cols, Text: text})
+	res, err := an.RunData(ctx, engine.Data{Num: cols, Text: text})
 	if err != nil {
 		var se *analysis.StepError
 		if !errors.As(err, &se) {
@@ -337,7 +338,7 @@ func (r *refresher) reportPoint(ctx context.Context, sp suspect, sugg *alerts.Su
 // operating region (the observed range for the columns it leaves out).
 func (m *watchedModel) analysis(label func(int) string) *analysis.Analysis {
 	fopt := engine.FragilityOptions{MaxRemoved: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit}
-	a := &analysis.Analysis{Model: m.spec, Options: analysis.Options{
+	a := &analysis.Analysis{Model: m.fitSpec(), Options: analysis.Options{
 		Cutoffs:          m.cut,
 		Conclusions:      m.conclusions(),
 		Fragility:        *m.cfg.Fragility.Enabled,
