@@ -92,6 +92,7 @@ type inspectOptions struct {
 	weights   string // --weights as given
 	weighting engine.Weighting
 	poolAlpha float64
+	formLevel float64
 }
 
 func runInspect(ctx context.Context, e *env, args []string) error {
@@ -138,6 +139,9 @@ func runInspect(ctx context.Context, e *env, args []string) error {
 			for _, l := range res.suggestionLines() {
 				fmt.Fprintln(e.stderr, "suggestion:", l)
 			}
+		}
+		for _, l := range res.formLines() {
+			fmt.Fprintln(e.stderr, "form:", l)
 		}
 		return nil
 	default:

@@ -37,6 +37,7 @@ R-squared (weighted versions for a weighted fit).`
 func formFlags(fs *flag.FlagSet, opt *inspectOptions) func() error {
 	fs.StringVar(&opt.weights, "weights", "", "weighted fit: a `column` of weights, or inverse(x) / inverse(x^2) for w = 1/x, 1/x^2")
 	fs.Float64Var(&opt.poolAlpha, "pool-alpha", engine.DefaultPoolAlpha, "significance `level` of the poolability tests (one group and one numeric predictor)")
+	fs.Float64Var(&opt.formLevel, "form-level", 0.05, "significance `level` at which the table and csv words call a check of the model form significant")
 	return func() error {
 		w, err := engine.ParseWeighting(opt.weights)
 		if err != nil {
@@ -47,6 +48,9 @@ func formFlags(fs *flag.FlagSet, opt *inspectOptions) func() error {
 			return fmt.Errorf("inspect: %w: --weights %q: %v", errUsage, opt.weights, err)
 		}
 		opt.weighting = w
+		if !(opt.formLevel > 0 && opt.formLevel < 1) {
+			return fmt.Errorf("inspect: %w: --form-level %v: want a level strictly between 0 and 1", errUsage, opt.formLevel)
+		}
 		if !(opt.poolAlpha > 0 && opt.poolAlpha < 1) {
 			return fmt.Errorf("inspect: %w: --pool-alpha %v: want a level strictly between 0 and 1", errUsage, opt.poolAlpha)
 		}
@@ -159,7 +163,7 @@ func (r *inspectResult) writeFormTable(bw *bufio.Writer) {
 	if fc.LackOfFit == nil {
 		bw.WriteString("  lack of fit: not tested (no repeated settings, or no more settings than coefficients)\n")
 	}
-	for _, f := range fc.Findings(0.05) {
+	for _, f := range fc.Findings(r.formLevel) {
 		switch f.Check {
 		case view.FormLackOfFit:
 			l := fc.LackOfFit
@@ -167,10 +171,7 @@ func (r *inspectResult) writeFormTable(bw *bufio.Writer) {
 				num4(float64(l.F)), l.LackOfFitDF, l.PureErrorDF, l.Groups, pval(float64(l.P)))
 		case view.FormDurbinWatson:
 			d := fc.DurbinWatson
-			p := pval(float64(d.P))
-			if d.Method == engine.DWExact && float64(d.P) < 1e-8 {
-				p = "< 1e-8" // the exact route's accuracy (engine.DurbinWatson)
-			}
+			p := dwPval(float64(d.P), d.Method)
 			fmt.Fprintf(bw, "  Durbin-Watson (rows in file order): %s, p %s (%s)\n", num4(float64(d.Statistic)), p, d.Method)
 		case view.FormBreuschPagan:
 			b := fc.BreuschPagan
@@ -188,7 +189,7 @@ func (r *inspectResult) writeFormTable(bw *bufio.Writer) {
 		bw.WriteString("  Breusch-Pagan: not computed (one coefficient, or residuals all of one size)\n")
 	}
 	fmt.Fprintf(bw, "  PRESS %s, predicted R-squared %s (leave-one-out prediction)\n", num4(float64(fc.PRESS)), fixed5(float64(fc.PredictedRSquared)))
-	bw.WriteString("  (judged at the 0.05 level; a significant check is a reason to look, not a verdict)\n")
+	fmt.Fprintf(bw, "  (judged at the %s level, --form-level; a significant check is a reason to look, not a verdict)\n", strconv.FormatFloat(r.formLevel, 'g', -1, 64))
 	if p := r.Poolability(); p != nil {
 		bw.WriteString("\n== Can the groups be pooled? ==\n")
 		fmt.Fprintf(bw, "  %d levels of %s, slope on %s, tested at %s\n", p.Levels, p.Group, p.Predictor, strconv.FormatFloat(float64(p.Alpha), 'g', -1, 64))
@@ -199,6 +200,48 @@ func (r *inspectResult) writeFormTable(bw *bufio.Writer) {
 		fmt.Fprintf(bw, "\n== Can the groups be pooled? ==\n  not tested: %s\n", r.poolProblem)
 	}
 	bw.WriteByte('\n')
+}
+
+// formLines are the checks of the model form in words, one line each,
+// for the csv format's standard error.
+func (r *inspectResult) formLines() []string {
+	fc := r.FormChecks()
+	if fc == nil {
+		return nil
+	}
+	var out []string
+	if w := r.Weights(); w != "" {
+		out = append(out, "weighted fit, weights "+w+"; each check is its weighted version")
+	}
+	for _, l := range fc.Lines(r.formLevel) {
+		s := l.Name + ": " + l.Words
+		if l.Tested {
+			s = fmt.Sprintf("%s: statistic %s", l.Name, num4(float64(l.Statistic)))
+			if l.DF != "" {
+				s += " on " + l.DF + " df"
+			}
+			s += ", p " + dwPval(float64(l.P), l.Method) + ": " + l.Words
+		}
+		if l.Next != "" {
+			s += "; a usual next step: " + l.Next
+		}
+		out = append(out, s)
+	}
+	out = append(out, fmt.Sprintf("PRESS %s, predicted R-squared %s", num4(float64(fc.PRESS)), fixed5(float64(fc.PredictedRSquared))))
+	if p := r.Poolability(); p != nil {
+		out = append(out, fmt.Sprintf("poolability of %s (%d levels) at %s: slopes p %s, intercepts p %s: %s (%s)",
+			p.Group, p.Levels, strconv.FormatFloat(float64(p.Alpha), 'g', -1, 64), pval(float64(p.Slopes.P)), pval(float64(p.Intercepts.P)), p.Verdict, p.Words()))
+	}
+	return out
+}
+
+// dwPval writes a check's p; an exact Durbin-Watson p below 1e-8, the
+// exact route's accuracy (engine.DurbinWatson), as "< 1e-8".
+func dwPval(p float64, method string) string {
+	if method == engine.DWExact && p < 1e-8 {
+		return "< 1e-8"
+	}
+	return pval(p)
 }
 
 func fixed5(x float64) string {

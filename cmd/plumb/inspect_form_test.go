@@ -377,3 +377,24 @@ func TestInspectTextColumn(t *testing.T) {
 		t.Errorf("one level: exit %d, stderr %s", code, stderr)
 	}
 }
+
+// TestInspectFormWords: with --format csv the checks go to standard
+// error in words, judged at --form-level; a bad level is a usage error.
+func TestInspectFormWords(t *testing.T) {
+	args := []string{"inspect", fixture("co2.csv"), "--response", "uptake", "--terms", "group(treatment), conc, group(treatment)*conc", "--format", "csv"}
+	_, stderr, code := runPlumb(t, "", append(args, "--form-level", "0.01")...)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	for _, want := range []string{"form: lack of fit: statistic 2.851 on 10, 70 df, p 0.00493", "adding a term",
+		"form: Durbin-Watson: statistic 0.5417, p < 1e-8",                 // exact p, below its accuracy
+		"form: Breusch-Pagan: statistic 10.58 on 3 df, p 0.0142: no sign", // not significant at 0.01
+		"form: poolability of treatment (2 levels) at 0.25", "common slope"} {
+		if !strings.Contains(stderr, want) {
+			t.Errorf("stderr lacks %q:\n%s", want, stderr)
+		}
+	}
+	if _, stderr, code := runPlumb(t, "", append(args, "--form-level", "1")...); code != 2 || !strings.Contains(stderr, "--form-level") {
+		t.Errorf("--form-level 1: exit %d, %s", code, stderr)
+	}
+}

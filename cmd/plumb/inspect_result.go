@@ -24,7 +24,8 @@ type inspectResult struct {
 	cutoffs engine.Cutoffs
 
 	checkpoints []engine.Checkpoint
-	poolProblem string // why the poolability tests were not made
+	poolProblem string  // why the poolability tests were not made
+	formLevel   float64 // --form-level
 }
 
 func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspectData) (*inspectResult, error) {
@@ -36,7 +37,7 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 			}
 		}
 	}
-	res := &inspectResult{file: ds.file, ds: ds, model: m, names: m.Names(), cutoffs: opt.cutoffs, checkpoints: opt.checkpoints}
+	res := &inspectResult{file: ds.file, ds: ds, model: m, names: m.Names(), cutoffs: opt.cutoffs, checkpoints: opt.checkpoints, formLevel: opt.formLevel}
 	conc := engine.DefaultConclusions()
 	conc.Checkpoints = opt.checkpoints
 	a := analysis.Analysis{Model: m, Options: analysis.Options{
