@@ -75,6 +75,11 @@ func TestInspectGolden(t *testing.T) {
 			"--fragility", "--checkpoint", "emf_mv=48.2:0.5", "--suggest", "--region", "emf_mv=0:65", "--format", "json"}, "thermo_fragility.json.golden"},
 		{"table absolute cutoffs grubbs", []string{"inspect", fixture("stackloss.csv"), "--response", "stack.loss",
 			"--terms", "Air.Flow, Water.Temp, Acid.Conc.", "--cutoffs", "absolute", "--cook-rule", "one", "--outlier-test", "grubbs", "--alpha", "0.1"}, "stackloss_absolute.table.golden"},
+		// co2.csv is R's datasets::CO2 (uptake, conc, treatment) as
+		// testdata/reference/co2_group_slopes.json holds it; stability.csv
+		// the invented stability study of testdata/reference/pool; both
+		// are checked against R in TestInspectFormMatchesR and
+		// TestInspectPoolMatchesR.
 		{"table groups", []string{"inspect", fixture("co2.csv"), "--response", "uptake", "--terms", "group(treatment), conc, group(treatment)*conc"}, "co2_groups.table.golden"},
 		{"json groups", []string{"inspect", fixture("co2.csv"), "--response", "uptake", "--terms", "group(treatment), conc, group(treatment)*conc", "--format", "json"}, "co2_groups.json.golden"},
 		{"table weighted groups", []string{"inspect", fixture("stability.csv"), "--response", "assay", "--terms", "group(batch), months, months*group(batch)", "--weights", "w"}, "stability_weighted.table.golden"},
