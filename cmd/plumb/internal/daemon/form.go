@@ -505,3 +505,55 @@ func (m *watchedModel) groupHint(e *decode.RowError) string {
 
 // isNewLevel reports whether err is a group label the model lacks.
 func isNewLevel(err error) bool { return errors.Is(err, engine.ErrNewLevel) }
+
+// movedByReference returns the names of cur's coefficients whose meaning
+// depends on the reference level (the first in byte order) of a group
+// column whose reference differs in base: the intercept, the
+// coefficients of every term with that group, and the terms whose slope
+// such a term adjusts (months for months*group(batch)). A drift check
+// compares those with the baseline no more: they no longer measure the
+// same thing. Empty when no reference moved.
+func movedByReference(base, cur engine.Model) map[string]bool {
+	changed := map[string]bool{}
+	for col, lv := range cur.Levels {
+		if bl := base.Levels[col]; len(lv) > 0 && len(bl) > 0 && bl[0] != lv[0] {
+			changed[col] = true
+		}
+	}
+	if len(changed) == 0 {
+		return nil
+	}
+	moved := map[string]bool{"intercept": true}
+	key := func(t engine.Term) string {
+		var fs []string
+		for _, f := range t.Factors {
+			if !f.Group {
+				fs = append(fs, f.Text)
+			}
+		}
+		slices.Sort(fs)
+		return strings.Join(fs, "*")
+	}
+	adjusted := map[string]bool{}
+	for _, t := range cur.Terms {
+		for _, f := range t.Factors {
+			if f.Group && changed[f.Column] {
+				adjusted[key(t)] = true
+			}
+		}
+	}
+	names := cur.Names()
+	for _, n := range names {
+		for col := range changed {
+			if strings.Contains(n, col+"=") {
+				moved[n] = true
+			}
+		}
+	}
+	for _, t := range cur.Terms {
+		if !t.HasGroup() && adjusted[key(t)] {
+			moved[t.Text] = true
+		}
+	}
+	return moved
+}

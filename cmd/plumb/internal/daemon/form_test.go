@@ -388,3 +388,88 @@ enabled = false
 		}
 	}
 }
+
+// TestGroupDriftByName: a group model's drift baseline is the fit of its
+// first rows with their levels. Drift compares coefficients by name, and
+// not those a new reference level changes the meaning of (a lot A that
+// sorts first becomes the reference: the intercept and lot=C now measure
+// against A), so a new lot raises no drift alert by itself.
+func TestGroupDriftByName(t *testing.T) {
+	dir := t.TempDir()
+	c := testConfig(t, dir, `
+[[model]]
+name = "gd"
+folder = "in"
+response = "y"
+terms = ["x", "group(lot)"]
+[model.fragility]
+enabled = false
+[model.alerts.drift]
+baseline_rows = 20
+`)
+	rng := rand.New(rand.NewPCG(16, 5))
+	file := filepath.Join(dir, "in", "a.csv")
+	rows := func(lot string, shift float64, n int, header bool) string {
+		var b strings.Builder
+		if header {
+			b.WriteString("x,lot,y\n")
+		}
+		for i := 0; i < n; i++ {
+			x := float64(i % 7)
+			fmt.Fprintf(&b, "%g,%s,%.6f\n", x, lot, 1+shift+0.4*x+0.05*rng.NormFloat64())
+		}
+		return b.String()
+	}
+	appendFile(t, file, rows("B", 0, 12, true)+rows("C", 0.5, 12, false))
+	r := start(t, c)
+	ctx := context.Background()
+	waitFor(t, "a fit of 24 rows", func() bool {
+		f, err := r.d.store.LastFit(ctx, "gd")
+		return err == nil && f.N == 24
+	})
+	appendFile(t, file, rows("A", -0.2, 12, false))
+	waitFor(t, "a fit with lot A", func() bool {
+		f, err := r.d.store.LastFit(ctx, "gd")
+		return err == nil && f.N == 36
+	})
+	appendFile(t, file, rows("B", 0, 5, false))
+	waitFor(t, "a fit of 41 rows", func() bool {
+		f, err := r.d.store.LastFit(ctx, "gd")
+		return err == nil && f.N == 41
+	})
+	f, _ := r.d.store.LastFit(ctx, "gd")
+	if !slices.Equal(f.Terms, []string{"intercept", "x", "lot=B", "lot=C"}) {
+		t.Fatalf("terms %v", f.Terms)
+	}
+	as, err := r.d.store.Alerts(ctx, store.AlertQuery{Model: "gd", Kind: "drift"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, a := range as {
+		if a.State == "open" {
+			t.Errorf("drift alert: %s", a.Doc)
+		}
+	}
+}
+
+func TestMovedByReference(t *testing.T) {
+	m, err := engine.NewModel("y", []string{"x", "z", "group(lot)", "x*group(lot)"}, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	base := m.WithLevels("lot", "B", "C")
+	if got := movedByReference(base, base.WithLevels("lot", "D")); got != nil {
+		t.Errorf("same reference: %v", got)
+	}
+	cur := base.WithLevels("lot", "A")
+	got := movedByReference(base, cur)
+	var names []string
+	for n := range got {
+		names = append(names, n)
+	}
+	slices.Sort(names)
+	want := []string{"intercept", "lot=B", "lot=C", "x", "x*lot=B", "x*lot=C"}
+	if !slices.Equal(names, want) {
+		t.Errorf("moved %v, want %v (z keeps its meaning)", names, want)
+	}
+}

@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strings"
 	"time"
@@ -419,11 +420,15 @@ func (r *refresher) makeBaseline() *baseline {
 	for i := range first {
 		first[i] = i
 	}
-	f, err := m.fitData(m.spec, cols, m.copyLabels(first))
+	spec := m.spec
+	if m.grouped() {
+		spec.Levels = nil // the levels of these rows; later ones are not compared
+	}
+	f, err := m.fitData(spec, cols, m.copyLabels(first))
 	if err != nil {
 		return nil
 	}
-	b := &baseline{label: fmt.Sprintf("fit after the first %d rows", d.BaselineRows), terms: names, fit: f}
+	b := &baseline{label: fmt.Sprintf("fit after the first %d rows", d.BaselineRows), terms: f.Model.Names(), fit: f}
 	for _, c := range f.Coef {
 		b.est = append(b.est, c.Estimate)
 		b.se = append(b.se, c.StdError)
@@ -434,8 +439,16 @@ func (r *refresher) makeBaseline() *baseline {
 func (r *refresher) driftCondition(b *baseline, f *engine.Fit, sugg *alerts.Suggestion) alerts.DriftCondition {
 	m := r.m
 	c := alerts.DriftCondition{Model: m.cfg.Name, Baseline: b.label, Suggestion: sugg}
-	for i, c0 := range f.Coef {
-		if i >= len(b.est) || math.IsNaN(b.est[i]) {
+	var moved map[string]bool
+	if b.fit != nil {
+		moved = movedByReference(b.fit.Model, f.Model)
+	}
+	for _, c0 := range f.Coef {
+		// By name: a group level added since the baseline adds
+		// coefficients, one the baseline lacks is not compared; a new
+		// reference level changes what some mean (movedByReference).
+		i := slices.Index(b.terms, c0.Term)
+		if i < 0 || i >= len(b.est) || math.IsNaN(b.est[i]) || moved[c0.Term] {
 			continue
 		}
 		se := b.se[i]
