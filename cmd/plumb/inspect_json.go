@@ -215,7 +215,8 @@ type jsonReport struct {
 	Units        map[string]string `json:"units,omitempty"`
 	Predictions  []view.Prediction `json:"predictions,omitempty"`
 	Inverse      []view.Inverse    `json:"inverse,omitempty"`
-	Caution      string            `json:"caution"`
+	jsonForm
+	Caution string `json:"caution"`
 }
 
 const cautionText = "plumb flags rows; it never alters a measurement. Decisions stay with qualified staff under local quality procedures."
@@ -262,6 +263,7 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		Units:       r.units,
 		Predictions: r.Predictions(),
 		Inverse:     r.Inverses(),
+		jsonForm:    r.jsonForm(),
 		Caution:     cautionText,
 	}
 	if r.filter {
