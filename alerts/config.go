@@ -168,7 +168,7 @@ func (c RouteConfig) Validate() error {
 	}
 	for _, k := range c.Kinds {
 		if !Kind(k).Valid() {
-			return cfgErr(sec, "kinds", ErrInvalid, "%q (want suspect_point, fragile_fit, drift or blocked)", k)
+			return cfgErr(sec, "kinds", ErrInvalid, "%q (want suspect_point, fragile_fit, drift, blocked or form_lapse)", k)
 		}
 	}
 	for _, m := range c.Models {

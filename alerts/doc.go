@@ -10,6 +10,7 @@
 //	mgr.Fragility(ctx, alerts.FragilityCondition{Model: "bench-b", Index: 1, ...})
 //	mgr.Drift(ctx, alerts.DriftCondition{Model: "bench-b", Measures: ...})
 //	mgr.Blocked(ctx, alerts.BlockedCondition{Model: "bench-b", Blocked: true, Reason: "..."})
+//	mgr.Form(ctx, alerts.FormCondition{Model: "bench-b", Checks: ...})
 //	mgr.Activity(ctx, "bench-b", arrivedAt)   // the feed is alive
 //	mgr.Tick(ctx, now)                        // silence and reminders
 //
@@ -23,6 +24,9 @@
 //	               k standard errors, or a tolerance in units, from baseline
 //	blocked        the model cannot be fitted, or its feed has been silent
 //	               longer than the configured time
+//	form_lapse     a check of the model form (lack of fit, Durbin-Watson,
+//	               Breusch-Pagan) is significant at the rule's level on
+//	               consecutive refreshes (2 by default)
 //
 // # One alert per thing
 //

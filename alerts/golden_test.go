@@ -63,13 +63,15 @@ func goldenAlerts(t *testing.T) *memLedger {
 		Reason: "3 rows for 3 coefficients"}))
 	h.clock.Add(time.Minute)
 	must(h.m.Fragility(ctx, FragilityCondition{Model: "bench-b", Index: 5}))
+	h.clock.Add(time.Minute)
+	must(h.m.Form(ctx, formRefresh(2)))
 	return h.l
 }
 
 func TestGoldenPayloads(t *testing.T) {
 	l := goldenAlerts(t)
 	ds := l.all()
-	names := []string{"suspect_point.opened", "fragile_fit.opened", "drift.opened", "blocked.opened", "fragile_fit.resolved"}
+	names := []string{"suspect_point.opened", "fragile_fit.opened", "drift.opened", "blocked.opened", "fragile_fit.resolved", "form_lapse.opened"}
 	if len(ds) != len(names) {
 		t.Fatalf("%d deliveries, want %d", len(ds), len(names))
 	}
@@ -222,6 +224,22 @@ func TestSchemaRequired(t *testing.T) {
 				continue
 			}
 			check(e.ID+"."+k, obj, s.Required)
+			if k == "form" {
+				var form sub
+				json.Unmarshal(subs["form"].Properties["checks"], &form)
+				var items []map[string]json.RawMessage
+				json.Unmarshal(obj["checks"], &items)
+				if len(items) == 0 {
+					t.Errorf("%s.form: no checks", e.ID)
+				}
+				for _, it := range items {
+					for _, rk := range form.Items.Required {
+						if _, ok := it[rk]; !ok {
+							t.Errorf("%s.form.checks: %q missing", e.ID, rk)
+						}
+					}
+				}
+			}
 			if k == "drift" {
 				var items []map[string]json.RawMessage
 				json.Unmarshal(obj["measures"], &items)
@@ -251,7 +269,7 @@ func TestSchemaRequired(t *testing.T) {
 			seenKinds = append(seenKinds, kind)
 		}
 	}
-	if len(seenKinds) != 4 {
-		t.Errorf("kinds checked %v, want all 4", seenKinds)
+	if len(seenKinds) != len(Kinds) {
+		t.Errorf("kinds checked %v, want all %d", seenKinds, len(Kinds))
 	}
 }

@@ -107,6 +107,7 @@ type Rules struct {
 	FragileFit   FragilityRule `toml:"fragile_fit" json:"fragile_fit"`
 	Drift        DriftRule     `toml:"drift" json:"drift"`
 	Blocked      BlockedRule   `toml:"blocked" json:"blocked"`
+	FormLapse    FormRule      `toml:"form_lapse" json:"form_lapse"`
 }
 
 // Defaults of the rules.
@@ -131,6 +132,7 @@ func DefaultRules() Rules {
 		FragileFit: FragilityRule{Rule: base(SeverityWarning), Limit: DefaultFragileLimit},
 		Drift:      DriftRule{Rule: base(SeverityCritical), K: DefaultDriftK, BaselineRows: DefaultBaselineRows},
 		Blocked:    BlockedRule{Rule: base(SeverityWarning), Silence: DefaultSilence},
+		FormLapse:  FormRule{Rule: base(SeverityWarning), Level: DefaultFormLevel, Refreshes: DefaultFormRefreshes},
 	}
 }
 
@@ -191,7 +193,7 @@ func (r Rules) Validate() error {
 	if r.Blocked.Silence < 0 {
 		return cfgErr("rules.blocked", "silence", ErrInvalid, "%v is negative", r.Blocked.Silence)
 	}
-	return nil
+	return r.FormLapse.validate()
 }
 
 func (r Rules) rule(k Kind) Rule {
@@ -204,6 +206,8 @@ func (r Rules) rule(k Kind) Rule {
 		return r.Drift.Rule
 	case KindBlocked:
 		return r.Blocked.Rule
+	case KindFormLapse:
+		return r.FormLapse.Rule
 	}
 	return Rule{}
 }

@@ -22,15 +22,19 @@ const (
 	KindFragileFit   Kind = "fragile_fit"
 	KindDrift        Kind = "drift"
 	KindBlocked      Kind = "blocked"
+	// KindFormLapse: a check of the model form (lack of fit,
+	// Durbin-Watson, Breusch-Pagan) is significant on consecutive
+	// refreshes (form.go).
+	KindFormLapse Kind = "form_lapse"
 )
 
 // Kinds lists every alert kind.
-var Kinds = []Kind{KindSuspectPoint, KindFragileFit, KindDrift, KindBlocked}
+var Kinds = []Kind{KindSuspectPoint, KindFragileFit, KindDrift, KindBlocked, KindFormLapse}
 
 // Valid reports whether k is a known kind.
 func (k Kind) Valid() bool {
 	switch k {
-	case KindSuspectPoint, KindFragileFit, KindDrift, KindBlocked:
+	case KindSuspectPoint, KindFragileFit, KindDrift, KindBlocked, KindFormLapse:
 		return true
 	}
 	return false
@@ -46,6 +50,8 @@ func (k Kind) prefix() string {
 		return "dr"
 	case KindBlocked:
 		return "bl"
+	case KindFormLapse:
+		return "fl"
 	}
 	return "al"
 }
@@ -273,6 +279,7 @@ type Alert struct {
 	Fragility *FragilityDetail `json:"fragility,omitempty"`
 	Drift     *DriftDetail     `json:"drift,omitempty"`
 	Blocked   *BlockedDetail   `json:"blocked,omitempty"`
+	Form      *FormDetail      `json:"form,omitempty"`
 
 	Ack        *AckInfo        `json:"acknowledgement,omitempty"`
 	Resolution *ResolutionInfo `json:"resolution,omitempty"`

@@ -24,6 +24,8 @@ func runConfig(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "config", "check --config FILE",
 		"Check validates a configuration file: unknown keys, wrong types and bad values are\n"+
 			"reported with the key and the line they stand on, and every model's terms are parsed.\n"+
+			"The first rows of each model's first file, when there is one, are read to find a\n"+
+			"text column used as a plain term (write group(column) for labels).\n"+
 			"It exits 0 when the file is valid and 1 when it is not.")
 	path := fs.String("config", "plumb.toml", "the configuration `file`")
 	pos, err := parseFlags(fs, args)
@@ -39,6 +41,9 @@ func runConfig(ctx context.Context, e *env, args []string) error {
 	}
 	if err != nil {
 		return &exitError{code: 1, err: err}
+	}
+	if errs := textTermProblems(*path, c); len(errs) > 0 {
+		return &exitError{code: 1, err: errors.Join(errs...)}
 	}
 	fmt.Fprintf(e.stdout, "%s: valid: %d model(s), %d route(s), state %s\n", *path, len(c.Models), len(c.Routes), backend.Describe(c.Resolve(c.State)))
 	return nil

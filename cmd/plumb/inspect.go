@@ -84,6 +84,8 @@ calibrated range. --unit COL=UNIT labels a column's values. The json
 format has them as "predictions" and "inverse"; with --format csv they
 go to standard error in words.
 
+` + inspectFormDescription + `
+
 Exit status: 0 when the report was written, 1 when the file cannot be
 read or fitted (or a row is bad under --strict), 2 for a bad command line.
 
@@ -120,6 +122,11 @@ type inspectOptions struct {
 	leaveOut    string // --leave-out list
 
 	calibOptions // --at, --reading, --unit (inspect_calib.go)
+
+	weights   string // --weights as given
+	weighting engine.Weighting
+	poolAlpha float64
+	formLevel float64
 }
 
 func runInspect(ctx context.Context, e *env, args []string) error {
@@ -176,6 +183,9 @@ func runInspect(ctx context.Context, e *env, args []string) error {
 			for _, l := range res.suggestionLines() {
 				fmt.Fprintln(e.stderr, "suggestion:", l)
 			}
+		}
+		for _, l := range res.formLines() {
+			fmt.Fprintln(e.stderr, "form:", l)
 		}
 		return res.answersTo(e.stderr)
 	default:
@@ -236,8 +246,12 @@ func parseInspectFlags(e *env, args []string) (*inspectOptions, error) {
 	fs.IntVar(&opt.replicates, "replicates", engine.DefaultReplicates, "with --suggest: readings proposed at each point")
 	calib := addCalibFlags(fs)
 	fs.StringVar(&opt.leaveOut, "leave-out", "", "leave out the rows a `LIST` file names, one a line: a data row number or FILE:LINE, then an optional note; they are listed in the output")
+	checkForm := formFlags(fs, &opt)
 	pos, err := parseFlags(fs, args)
 	if err != nil {
+		return nil, err
+	}
+	if err := checkForm(); err != nil {
 		return nil, err
 	}
 	bad := func(format string, a ...any) error {
@@ -551,6 +565,7 @@ func inspectModel(opt *inspectOptions) (engine.Model, error) {
 		}
 		return engine.Model{}, fmt.Errorf("inspect: %w: %v", errUsage, err)
 	}
+	m.Weight = opt.weighting
 	return m, nil
 }
 

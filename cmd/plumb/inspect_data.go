@@ -77,6 +77,9 @@ type inspectData struct {
 	names    []string // selected columns: response first, then predictors
 	cols     map[string][]float64
 	vals     [][]float64 // the same columns, in the order of names
+	tnames   []string    // columns kept as text (group labels)
+	text     map[string][]string
+	tvals    [][]string // the same, in the order of tnames
 	rowNo    []int
 	line     []int
 	labels   []string // --id-column text of each kept row; nil without one
@@ -99,7 +102,8 @@ type inspectData struct {
 }
 
 // readSpec is what every part's decoder reads: the numeric columns, the
-// text columns (the id column, then the filter column) and the filter.
+// text columns (the group columns, then the id column and the filter
+// column unless already among them) and the filter.
 type readSpec struct {
 	file       string
 	dialect    decode.Dialect
@@ -107,6 +111,7 @@ type readSpec struct {
 	headerLine int
 	names      []string
 	text       []string
+	groups     int // text[:groups] are the group columns
 	idAt       int // index of the id column in text, -1 if none
 	filterAt   int // index of the filter column in text, -1 if none
 	keep       map[string]bool
@@ -127,16 +132,24 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 	if err != nil {
 		return nil, fmt.Errorf("inspect: %w", err)
 	}
-	names := append([]string{m.Response}, m.Columns()...)
+	names, tnames := dataColumns(m)
 	dialect := opt.dialect
-	spec := readSpec{file: name, dialect: dialect, names: names, idAt: -1, filterAt: -1}
+	// The text columns: the group columns (labels for the design), then
+	// the id column and the filter column when not among them.
+	spec := readSpec{file: name, dialect: dialect, names: names, groups: len(tnames), idAt: -1, filterAt: -1}
+	spec.text = append(spec.text, tnames...)
+	textAt := func(c string) int {
+		if k := slices.Index(spec.text, c); k >= 0 {
+			return k
+		}
+		spec.text = append(spec.text, c)
+		return len(spec.text) - 1
+	}
 	if opt.idColumn != "" {
-		spec.idAt = len(spec.text)
-		spec.text = append(spec.text, opt.idColumn)
+		spec.idAt = textAt(opt.idColumn)
 	}
 	if opt.filter != nil {
-		spec.filterAt = len(spec.text)
-		spec.text = append(spec.text, opt.filter.Column)
+		spec.filterAt = textAt(opt.filter.Column)
 		spec.keep = map[string]bool{}
 		for _, v := range opt.filter.Values {
 			spec.keep[v] = true
@@ -194,10 +207,16 @@ func loadInspectData(e *env, opt *inspectOptions, m engine.Model) (*inspectData,
 		ds.cols[n] = ds.vals[i]
 	}
 	ds.vals = nil // cols is the truth from here on (drop edits it)
+	ds.tnames, ds.text = tnames, map[string][]string{}
+	for i, n := range tnames {
+		ds.text[n] = ds.tvals[i]
+	}
+	ds.tvals = nil
 	if ds.total == 0 {
 		return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: the file has a header (line %d) but no data rows", name, hdr.HeaderLine())}
 	}
 	ds.rejectLogDomain(m, opt.delimiter)
+	ds.rejectBadWeights(m, opt.delimiter)
 	if name != "stdin" {
 		if fi, err := os.Stat(name); err == nil && fi.Mode().IsRegular() && fi.Size() == int64(len(buf)) {
 			ds.reread, ds.size = name, len(buf)
@@ -335,6 +354,12 @@ func (st *rowStore) merge(parts []*inspectData) *inspectData {
 		for i := range st.cols {
 			copy(st.cols[i][w:], p.vals[i])
 		}
+		if ds.tvals == nil {
+			ds.tvals = make([][]string, len(p.tvals))
+		}
+		for i, v := range p.tvals {
+			ds.tvals[i] = append(ds.tvals[i], v...)
+		}
 		for _, r := range p.rejected {
 			r.Row += base
 			ds.rejected = append(ds.rejected, r)
@@ -365,6 +390,13 @@ func (st *rowStore) merge(parts []*inspectData) *inspectData {
 
 // decodePart decodes the records of one part with its own decoder into
 // slot (see rowStore).
+// missingText reports whether a group label is one of the dialect's
+// missing-value tokens (spaces around it ignored), as the decoder judges a
+// number cell: such a row is left out and counted, not given a level.
+func (sp *readSpec) missingText(v string) bool {
+	return len(sp.dialect.Missing) > 0 && slices.Contains(sp.dialect.Missing, strings.Trim(v, " \t"))
+}
+
 func decodePart(sp *readSpec, buf []byte, pt part, slot *inspectData) (*inspectData, error) {
 	dec := decode.NewDecoder(sp.file, sp.dialect)
 	if err := dec.SetHeader(sp.header, sp.headerLine); err != nil {
@@ -375,6 +407,7 @@ func decodePart(sp *readSpec, buf []byte, pt part, slot *inspectData) (*inspectD
 	}
 	dec.SetOffset(int64(pt.off), pt.line)
 	ds := slot
+	ds.tvals = make([][]string, sp.groups)
 	vals := ds.vals
 	_, err := dec.Feed(buf[pt.off:pt.end], true, func(r decode.Record) error {
 		ds.total++
@@ -394,21 +427,32 @@ func decodePart(sp *readSpec, buf []byte, pt part, slot *inspectData) (*inspectD
 			ds.filtered++ // left out on purpose, whatever else it holds
 			return nil
 		}
+		miss := -1 // index in names, then the group columns
 		if r.Missing != nil {
-			ds.missing++
-			if ds.missingCols == nil {
-				ds.missingCols = make([]int, len(sp.names))
-			}
-			for i, n := range sp.names {
-				if n == r.Missing.Name {
-					ds.missingCols[i]++
+			miss = slices.Index(sp.names, r.Missing.Name)
+		} else {
+			for g, v := range r.Text[:sp.groups] {
+				if sp.missingText(v) {
+					miss = len(sp.names) + g
 					break
 				}
+			}
+		}
+		if r.Missing != nil || miss >= 0 {
+			ds.missing++
+			if ds.missingCols == nil {
+				ds.missingCols = make([]int, len(sp.names)+sp.groups)
+			}
+			if miss >= 0 {
+				ds.missingCols[miss]++
 			}
 			return nil
 		}
 		for i, v := range r.Values {
 			vals[i] = append(vals[i], v)
+		}
+		for i, v := range r.Text[:sp.groups] {
+			ds.tvals[i] = append(ds.tvals[i], v)
 		}
 		ds.rowNo = append(ds.rowNo, ds.total)
 		ds.line = append(ds.line, r.Line)
@@ -507,6 +551,9 @@ func (ds *inspectData) drop(idx []int) {
 		for _, n := range ds.names {
 			ds.cols[n][w] = ds.cols[n][i]
 		}
+		for _, n := range ds.tnames {
+			ds.text[n][w] = ds.text[n][i]
+		}
 		w++
 	}
 	ds.rowNo, ds.line = ds.rowNo[:w], ds.line[:w]
@@ -515,6 +562,9 @@ func (ds *inspectData) drop(idx []int) {
 	}
 	for _, n := range ds.names {
 		ds.cols[n] = ds.cols[n][:w]
+	}
+	for _, n := range ds.tnames {
+		ds.text[n] = ds.text[n][:w]
 	}
 	sort.Slice(ds.rejected, func(a, b int) bool { return ds.rejected[a].Row < ds.rejected[b].Row })
 }

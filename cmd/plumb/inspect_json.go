@@ -232,7 +232,8 @@ type jsonReport struct {
 	Units        map[string]string `json:"units,omitempty"`
 	Predictions  []view.Prediction `json:"predictions,omitempty"`
 	Inverse      []view.Inverse    `json:"inverse,omitempty"`
-	Caution      string            `json:"caution"`
+	jsonForm
+	Caution string `json:"caution"`
 }
 
 const cautionText = engine.Caution
@@ -279,6 +280,7 @@ func writeInspectJSON(w io.Writer, r *inspectResult) error {
 		Units:       r.units,
 		Predictions: r.Predictions(),
 		Inverse:     r.Inverses(),
+		jsonForm:    r.jsonForm(),
 		Caution:     cautionText,
 	}
 	if r.filter {

@@ -28,6 +28,8 @@ type inspectResult struct {
 	units         map[string]string
 	missingTokens []string // --missing
 	filter        bool     // --filter given
+	poolProblem   string   // why the poolability tests were not made
+	formLevel     float64  // --form-level
 }
 
 func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspectData) (*inspectResult, error) {
@@ -45,7 +47,7 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 	if err := checkAt(m, opt.answers.At); err != nil {
 		return nil, err
 	}
-	res := &inspectResult{file: ds.file, ds: ds, model: m, names: m.Names(), cutoffs: opt.cutoffs, checkpoints: opt.checkpoints, units: opt.units, missingTokens: opt.dialect.Missing, filter: opt.filter != nil}
+	res := &inspectResult{file: ds.file, ds: ds, model: m, names: m.Names(), cutoffs: opt.cutoffs, checkpoints: opt.checkpoints, units: opt.units, missingTokens: opt.dialect.Missing, filter: opt.filter != nil, formLevel: opt.formLevel}
 	conc := engine.DefaultConclusions()
 	conc.Checkpoints = opt.checkpoints
 	a := analysis.Analysis{Model: m, Options: analysis.Options{
@@ -58,18 +60,26 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 		Region:           opt.region,
 		Answers:          opt.answers,
 		Label:            res.rowLabel,
+		Form:             true,
+		Pool:             true,
+		PoolAlpha:        opt.poolAlpha,
 	}}
+	if err := textColumnHint(ds, m); err != nil {
+		return nil, err
+	}
 	for {
 		if len(ds.rowNo) == 0 {
 			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: none of the %d data rows could be used%s", ds.file, ds.total, ds.leftOutWords())}
 		}
-		r, err := a.Run(ctx, ds.cols)
+		r, err := a.RunData(ctx, engine.Data{Num: ds.cols, Text: ds.text})
 		var se *analysis.StepError
 		if !errors.As(err, &se) {
 			if err != nil {
 				return nil, err // cancelled
 			}
 			res.Result = &view.Result{Result: r, Cutoffs: opt.cutoffs, Row: res.row}
+			// The model as built: its group levels name the coefficients.
+			res.model, res.names = r.Model, r.Model.Names()
 			break
 		}
 		var de *engine.DataError
@@ -92,6 +102,12 @@ func analyze(ctx context.Context, opt *inspectOptions, m engine.Model, ds *inspe
 		return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %w", ds.file, se.Err)}
 	}
 	for _, p := range res.Problems {
+		if p.Step == analysis.StepPool {
+			// The poolability tests could not be made (a level too small
+			// for a line of its own, say): the rest of the report stands.
+			res.poolProblem = p.Err.Error()
+			continue
+		}
 		if p.Step == analysis.StepRegion {
 			return nil, &exitError{code: 1, err: fmt.Errorf("inspect: %s: %w", ds.file, p.Err)}
 		}

@@ -260,6 +260,7 @@ func writeInspectTable(w io.Writer, r *inspectResult) error {
 		fmt.Fprintf(bw, "    inflation      %s (variance inflation of each term)\n", strings.Join(parts, ", "))
 	}
 	bw.WriteByte('\n')
+	r.writeFormTable(bw)
 	r.writeAnswers(bw)
 
 	if r.Fragility != nil {
@@ -321,7 +322,14 @@ func (r *inspectResult) missingWords() string {
 	var parts []string
 	for i, c := range r.ds.missingCols {
 		if c > 0 {
-			parts = append(parts, fmt.Sprintf("%s %d", r.ds.names[i], c))
+			// names, then the group columns (text labels)
+			col := ""
+			if i < len(r.ds.names) {
+				col = r.ds.names[i]
+			} else {
+				col = r.ds.tnames[i-len(r.ds.names)]
+			}
+			parts = append(parts, fmt.Sprintf("%s %d", col, c))
 		}
 	}
 	toks := make([]string, len(r.missingTokens))

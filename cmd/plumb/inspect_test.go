@@ -86,6 +86,16 @@ func TestInspectGolden(t *testing.T) {
 		{"csv id column", []string{"inspect", rdata("mtcars.csv"), "--response", "mpg", "--terms", "wt, hp", "--id-column", "model", "--format", "csv"}, "mtcars_id.csv.golden"},
 		{"table missing values decimal comma", []string{"inspect", rdata("airquality_csv2.csv"), "--delimiter", ";", "--decimal-comma", "--missing", "NA",
 			"--response", "Ozone", "--terms", "Solar.R, Wind, Temp", "--cutoffs", "size_adjusted"}, "airquality_csv2.table.golden"},
+		// co2.csv is R's datasets::CO2 (uptake, conc, treatment) as
+		// testdata/reference/co2_group_slopes.json holds it; stability.csv
+		// the invented stability study of testdata/reference/pool; both
+		// are checked against R in TestInspectFormMatchesR and
+		// TestInspectPoolMatchesR.
+		{"table groups", []string{"inspect", fixture("co2.csv"), "--response", "uptake", "--terms", "group(treatment), conc, group(treatment)*conc"}, "co2_groups.table.golden"},
+		{"json groups", []string{"inspect", fixture("co2.csv"), "--response", "uptake", "--terms", "group(treatment), conc, group(treatment)*conc", "--format", "json"}, "co2_groups.json.golden"},
+		{"table weighted groups", []string{"inspect", fixture("stability.csv"), "--response", "assay", "--terms", "group(batch), months, months*group(batch)", "--weights", "w"}, "stability_weighted.table.golden"},
+		{"json weighted groups", []string{"inspect", fixture("stability.csv"), "--response", "assay", "--terms", "group(batch), months, months*group(batch)", "--weights", "w", "--format", "json"}, "stability_weighted.json.golden"},
+		{"json weighted inverse", []string{"inspect", fixture("cars.csv"), "--response", "dist", "--terms", "speed", "--weights", "inverse(speed)", "--format", "json"}, "cars_inverse_speed.json.golden"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

@@ -62,6 +62,13 @@ type Options struct {
 
 	// Label names the k-th fitted row (1-based) in words, e.g. "feed.csv:212".
 	Label func(row int) string
+
+	// Form asks for the checks of the model form (engine.CheckForm);
+	// Pool for the poolability tests at PoolAlpha (0: engine's default)
+	// when the model has one group and one numeric predictor (form.go).
+	Form      bool
+	Pool      bool
+	PoolAlpha float64
 }
 
 // Analysis is one model with its options. Run may be called many times,
@@ -75,8 +82,13 @@ type Analysis struct {
 // asked for, or that failed, are nil.
 type Result struct {
 	Model engine.Model
-	// Cols are the columns the run was given (not copied).
+	// Cols are the columns the run was given (not copied); Text the text
+	// columns (group labels), nil when none.
 	Cols map[string][]float64
+	Text map[string][]string
+	// Weights are the rows' weights (nil when the model is unweighted).
+	// Model is the model as built: its group levels are those found.
+	Weights []float64
 
 	Fit       *engine.Fit
 	Influence *engine.Influence
@@ -96,6 +108,10 @@ type Result struct {
 	// in the order asked.
 	Predictions []Prediction
 	Inverse     []engine.Inverse
+	// Form holds the checks of the model form, Pool the poolability
+	// tests, when asked (Pool nil also when the model lacks the shape).
+	Form *engine.FormChecks
+	Pool *engine.Poolability
 
 	// Problems are the failures of optional steps, in step order.
 	Problems []*StepError
@@ -111,6 +127,8 @@ const (
 	StepFragility Step = "fragility"
 	StepRegion    Step = "region"
 	StepSuggest   Step = "suggest"
+	StepForm      Step = "form"
+	StepPool      Step = "pool"
 )
 
 // StepError is the failure of one step; it wraps the engine's error.
@@ -126,7 +144,13 @@ func (e *StepError) Unwrap() error { return e.Err }
 // the model, of equal length. The error, from design or refit, is a
 // *StepError wrapping the engine's; ctx is checked between steps.
 func (a *Analysis) Run(ctx context.Context, cols map[string][]float64) (*Result, error) {
-	r := &Result{Model: a.Model, Cols: cols}
+	return a.RunData(ctx, engine.Data{Num: cols})
+}
+
+// RunData is Run on numeric and text columns (the labels of group
+// terms; engine.Model.Build).
+func (a *Analysis) RunData(ctx context.Context, d engine.Data) (*Result, error) {
+	r := &Result{Model: a.Model, Cols: d.Num, Text: d.Text}
 	for _, st := range a.steps() {
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -160,6 +184,12 @@ func (a *Analysis) steps() []step {
 		{StepRefit, false, a.refit}, // design and refit: one step, see refit
 		{"assess", false, a.assess},
 	}
+	if a.Form {
+		s = append(s, step{StepForm, true, a.form})
+	}
+	if a.Pool {
+		s = append(s, step{StepPool, true, a.pool})
+	}
 	if a.Fragility {
 		s = append(s, step{StepFragility, true, a.fragility})
 	}
@@ -172,14 +202,15 @@ func (a *Analysis) steps() []step {
 	return s
 }
 
-// refit builds the design and fits it. A design error is reported as
-// StepDesign.
+// refit builds the design (engine.Model.Build: weights and group levels)
+// and fits it. A design error is reported as StepDesign.
 func (a *Analysis) refit(r *Result) error {
-	X, y, err := a.Model.Design(r.Cols)
+	ds, err := a.Model.Build(engine.Data{Num: r.Cols, Text: r.Text})
 	if err != nil {
 		return &StepError{Step: StepDesign, Err: err}
 	}
-	r.Fit, err = engine.Refit(a.Model, X, y)
+	r.Model, r.Weights = ds.Model, ds.W
+	r.Fit, err = ds.Fit()
 	return err
 }
 

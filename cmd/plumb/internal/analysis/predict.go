@@ -47,7 +47,18 @@ const (
 func Answer(f *engine.Fit, q Answers) ([]Prediction, []engine.Inverse, error) {
 	var preds []Prediction
 	for k, at := range q.At {
-		p, err := f.PredictAt(at, q.Interval)
+		o := q.Interval
+		if w := f.Model.Weight; w.Power > 0 && o.Weight == 0 {
+			// A variance function of a column: a new reading there has
+			// the weight the function gives at the point (a column of
+			// weights says nothing of a reading not yet taken: weight 1).
+			w0, err := w.RowWeight(func(c string) float64 { return at[c] })
+			if err != nil {
+				return nil, nil, &StepError{Step: StepPredict, Err: fmt.Errorf("point %d: %w", k+1, err)}
+			}
+			o.Weight = w0
+		}
+		p, err := f.PredictAt(at, o)
 		if err != nil {
 			return nil, nil, &StepError{Step: StepPredict, Err: fmt.Errorf("point %d: %w", k+1, err)}
 		}

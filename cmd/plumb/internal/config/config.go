@@ -109,6 +109,11 @@ type Model struct {
 	Response  string   `toml:"response"`
 	Terms     []string `toml:"terms"`
 	Intercept *bool    `toml:"intercept"` // default true
+	// Weights makes the fit weighted: a column of weights, or
+	// inverse(x) / inverse(x^2) (form.go). Default unweighted.
+	Weights string `toml:"weights"`
+	// PoolLevel is the level of the poolability tests. Default 0.25.
+	PoolLevel float64 `toml:"pool_level"`
 
 	// CSV dialect.
 	Delimiter    string `toml:"delimiter"`     // one character; default ","
@@ -214,10 +219,11 @@ type Suggest struct {
 
 // ModelAlerts holds the per-kind alert rules of a model.
 type ModelAlerts struct {
-	SuspectPoint Rule  `toml:"suspect_point"`
-	FragileFit   Rule  `toml:"fragile_fit"`
-	Drift        Drift `toml:"drift"`
-	Blocked      Rule  `toml:"blocked"`
+	SuspectPoint Rule      `toml:"suspect_point"`
+	FragileFit   Rule      `toml:"fragile_fit"`
+	Drift        Drift     `toml:"drift"`
+	Blocked      Rule      `toml:"blocked"`
+	FormLapse    FormLapse `toml:"form_lapse"`
 	// Renotify is how often a still-open alert is sent again. Default 0
 	// (never).
 	Renotify Duration `toml:"renotify"`
@@ -472,6 +478,7 @@ func (c *Config) applyDefaults() {
 			m.Alerts.Drift.BaselineRows = 30
 		}
 		m.Calibration.applyDefaults()
+		formDefaults(m)
 	}
 	for i := range c.Routes {
 		r := &c.Routes[i]
@@ -770,6 +777,7 @@ func (c *Config) validate(check ModelCheck) (notes []string, err error) {
 		if m.Alerts.Drift.BaselineRows < 1 {
 			v.add(at("alerts", "drift", "baseline_rows"), i, ErrBadValue, "must be at least 1")
 		}
+		v.validateForm(i, m)
 		for _, rn := range m.Routes {
 			if !routes[rn] {
 				v.add(at("routes"), i, ErrBadValue, "no route is named %q", rn)
@@ -814,7 +822,7 @@ func (c *Config) validate(check ModelCheck) (notes []string, err error) {
 }
 
 // AlertKinds lists the alert kinds a route may filter on.
-var AlertKinds = []string{"suspect_point", "fragile_fit", "drift", "blocked"}
+var AlertKinds = []string{"suspect_point", "fragile_fit", "drift", "blocked", "form_lapse"}
 
 type validator struct {
 	c    *Config

@@ -149,7 +149,7 @@ func TestMemoryPerObservation(t *testing.T) {
 	runtime.ReadMemStats(&before)
 	m.mu.Lock()
 	for i := 0; i < n; i++ {
-		m.appendRow(int64(i+1), "feed.csv", i+2, "", 0, 0, []float64{float64(i), 1}, "ordinary", "ordinary")
+		m.appendRow(int64(i+1), "feed.csv", i+2, "", 0, 0, []float64{float64(i), 1}, nil, "ordinary", "ordinary")
 	}
 	m.mu.Unlock()
 	runtime.GC()

@@ -79,13 +79,19 @@ func TestCalibrationAnswersAndDriftShift(t *testing.T) {
 	feedShifted(t, file, rng, 0, 50, 0)
 	r := start(t, c)
 	ctx := context.Background()
+	m := r.d.models["cal"]
 	waitFor(t, "a fit of 50 rows", func() bool {
 		f, err := r.d.store.LastFit(ctx, "cal")
-		return err == nil && f.N == 50
+		if err != nil || f.N != 50 {
+			return false
+		}
+		// The refresh records the fit, then makes it the model's.
+		m.mu.Lock()
+		defer m.mu.Unlock()
+		return m.ref.res != nil && m.ref.res.Fit.N == 50
 	})
 
 	// The fit history holds the answers of the fit it records.
-	m := r.d.models["cal"]
 	m.mu.Lock()
 	fit := m.ref.res.Fit
 	m.mu.Unlock()

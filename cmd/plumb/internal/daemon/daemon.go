@@ -283,6 +283,7 @@ func rulesFor(mc config.Model) alerts.Rules {
 		}
 	}
 	r.Blocked.Silence = a.Silence.Duration
+	r.FormLapse = formRule(mc)
 	return r
 }
 

@@ -109,6 +109,7 @@ func (r *refresher) reseedOnline(fit *engine.Fit, since int) {
 	r.dec.reseed = false
 	m.online.Seed(fit)
 	v := make([]float64, len(m.rows.vals))
+	lab := make([]string, len(m.form.groups))
 	for i := since; i < m.rows.len(); i++ {
 		if r.excludedRow(i) {
 			continue
@@ -116,8 +117,14 @@ func (r *refresher) reseedOnline(fit *engine.Fit, since int) {
 		for j := range v {
 			v[j] = m.rows.vals[j][i]
 		}
-		if m.designRow(v) == nil {
-			m.online.Add(m.xrow, v[0])
+		for g := range lab {
+			lab[g] = m.form.labels[g][i]
+		}
+		if m.designRow(v, lab) != nil {
+			continue
+		}
+		if w, err := m.rowWeight(v); err == nil {
+			m.online.AddWeighted(m.xrow, v[0], w)
 		}
 	}
 }

@@ -5,7 +5,6 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
-	"math"
 	"slices"
 	"strings"
 	"sync"
@@ -35,8 +34,10 @@ type watchedModel struct {
 	d    *Daemon
 	cfg  config.Model
 	spec engine.Model
-	// cols are the model's predictor columns, in spec.Columns() order; the
-	// decoder's numeric selection is the response, then cols.
+	// cols are the model's numeric columns besides the response: the
+	// predictors used as numbers, in spec.Columns() order, then a weight
+	// column not among them (form.go); the decoder's numeric selection is
+	// the response, then cols.
 	cols    []string
 	cut     engine.Cutoffs
 	minRows int
@@ -67,6 +68,9 @@ type watchedModel struct {
 	// ref is the refresh loop's side: what the next refresh must do and
 	// what the latest one found.
 	ref refresher
+
+	// form holds the group labels and the form checks' streaks (form.go).
+	form formState
 }
 
 // suspect is a row judged suspect at arrival, with the cutoffs it crossed
@@ -86,29 +90,33 @@ type baseline struct {
 }
 
 func newWatchedModel(d *Daemon, mc config.Model) (*watchedModel, error) {
-	spec, err := engine.NewModel(mc.Response, mc.Terms, *mc.Intercept)
+	spec, err := specFor(mc)
 	if err != nil {
 		return nil, fmt.Errorf("model %q: %w", mc.Name, err)
 	}
 	if err := CheckCalibration(spec, mc); err != nil {
 		return nil, fmt.Errorf("model %q: %w", mc.Name, err)
 	}
+	num, groups := splitColumns(spec)
 	m := &watchedModel{
 		d:             d,
 		cfg:           mc,
 		spec:          spec,
-		cols:          spec.Columns(),
+		cols:          num,
 		cut:           cutoffsFor(mc.Judge),
 		minRows:       mc.MinRowsFor(spec.P()),
 		log:           d.log.With("model", mc.Name),
 		state:         stateWaiting,
 		headerBlocked: map[string]string{},
-		rows:          newColumns(1+len(spec.Columns()), mc.IDColumn != ""),
+		rows:          newColumns(1+len(num), mc.IDColumn != ""),
 		online:        engine.NewOnline(spec.P()),
 		xrow:          make([]float64, spec.P()),
 	}
 	m.arrive = engine.NewArrivalJudge(spec, m.cut)
 	m.ref.m = m
+	m.form.groups = groups
+	m.form.labels = make([][]string, len(groups))
+	m.form.textBase = len(m.text()) - len(groups)
 	if mc.MinRows > 0 && m.minRows > mc.MinRows {
 		m.log.Warn("min_rows raised to what the model needs", "min_rows", mc.MinRows, "coefficients", spec.P(), "waits_for", m.minRows)
 	}
@@ -137,7 +145,7 @@ func (m *watchedModel) text() []string {
 	if m.cfg.IDColumn != "" && !slices.Contains(t, m.cfg.IDColumn) {
 		t = append(t, m.cfg.IDColumn)
 	}
-	return t
+	return append(t, m.form.groups...)
 }
 
 // textIndex is the place of column c in text(), or -1.
@@ -148,16 +156,13 @@ func (m *watchedModel) textIndex(c string) int {
 	return slices.Index(m.text(), c)
 }
 
-// value returns column c of the design values v (response first).
-func (m *watchedModel) designRow(v []float64) error {
-	return m.spec.DesignRow(m.xrow, func(col string) float64 {
-		for j, c := range m.cols {
-			if c == col {
-				return v[1+j]
-			}
-		}
-		return math.NaN()
-	})
+// designRow builds the design row of the values v (response first) and
+// the group labels lab (in form.groups order) into m.xrow.
+func (m *watchedModel) designRow(v []float64, lab []string) error {
+	if !m.grouped() {
+		return m.spec.DesignRow(m.xrow, m.value(v))
+	}
+	return m.spec.DesignRowData(m.xrow, m.value(v), m.label(lab))
 }
 
 // restore loads the model's rows from the store and rebuilds the online
@@ -171,6 +176,10 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 	const page = 50000
 	m.mu.Lock()
 	defer m.mu.Unlock()
+	lr, err := m.labelReader(ctx, s)
+	if err != nil {
+		return err
+	}
 	for {
 		obs, err := s.Observations(ctx, m.cfg.Name, store.ObsQuery{AfterID: after, Limit: page})
 		if err != nil {
@@ -183,11 +192,27 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 				after = o.ID
 				continue
 			}
-			if err := m.designRow(o.Values); err != nil {
+			lab, ok := lr.labels(o)
+			if !ok {
 				after = o.ID
 				continue
 			}
-			m.online.Add(m.xrow, o.Values[0])
+			w, err := m.rowWeight(o.Values)
+			if err != nil {
+				after = o.ID
+				continue
+			}
+			if m.grouped() {
+				// The levels are known once every row is read: the
+				// online fit is built after the loop.
+				m.noteLevels(lab)
+			} else {
+				if err := m.designRow(o.Values, nil); err != nil {
+					after = o.ID
+					continue
+				}
+				m.online.AddWeighted(m.xrow, o.Values[0], w)
+			}
 			var arr engine.Word
 			if o.Arrival != nil {
 				arr = o.Arrival.Verdict
@@ -200,7 +225,7 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 			if !o.Time.IsZero() {
 				t = o.Time.UnixNano()
 			}
-			m.appendRow(o.ID, o.Path, o.Line, o.Label, t, o.ArrivedAt.UnixNano(), o.Values, arr, now)
+			m.appendRow(o.ID, o.Path, o.Line, o.Label, t, o.ArrivedAt.UnixNano(), o.Values, lab, arr, now)
 			after = o.ID
 			if o.ArrivedAt.After(m.lastArrival) {
 				m.lastArrival = o.ArrivedAt
@@ -209,6 +234,14 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 		if len(obs) < page {
 			break
 		}
+	}
+	if m.grouped() && len(m.form.newLevels) > 0 {
+		spec := m.spec
+		for col, ls := range m.form.newLevels {
+			spec = spec.WithLevels(col, ls...)
+		}
+		m.form.newLevels = nil
+		m.adopt(spec)
 	}
 	q, err := s.CountQuarantined(ctx, m.cfg.Name)
 	if err != nil {
@@ -236,8 +269,9 @@ func (m *watchedModel) restore(ctx context.Context, s store.Store) error {
 	return nil
 }
 
-func (m *watchedModel) appendRow(id int64, path string, line int, label string, t, arrived int64, v []float64, arrival, current engine.Word) {
+func (m *watchedModel) appendRow(id int64, path string, line int, label string, t, arrived int64, v []float64, lab []string, arrival, current engine.Word) {
 	m.rows.add(id, path, line, label, t, arrived, v, arrival, current)
+	m.appendLabels(lab)
 	m.rowsAccepted++
 }
 
@@ -245,6 +279,8 @@ func (m *watchedModel) appendRow(id int64, path string, line int, label string, 
 type pending struct {
 	rec   decode.Record
 	vals  []float64
+	lab   []string
+	w     float64
 	t     int64
 	label string // the id column's text
 	diag  *store.Diagnostics
@@ -308,7 +344,7 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 	}
 	for _, rec := range b.Records {
 		if rec.Err != nil {
-			q := quarantineRow(m.cfg.Name, b, rec, now, rec.Err.Error())
+			q := quarantineRow(m.cfg.Name, b, rec, now, rec.Err.Error()+m.groupHint(rec.Err))
 			q.Column, q.ColumnName, q.Field = rec.Err.Column, rec.Err.Name, rec.Err.Field
 			quar = append(quar, q)
 			continue
@@ -321,6 +357,10 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 			// uses: the row is left out of the fit and counted, not
 			// quarantined.
 			missing++
+			continue
+		}
+		if m.missingLabel(rec) {
+			missing++ // a group label that means "no value", likewise
 			continue
 		}
 		var t int64
@@ -337,16 +377,34 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 			}
 			t = tt.UnixNano()
 		}
-		if err := m.designRow(rec.Values); err != nil {
+		lab := m.labelsOf(rec)
+		var label string
+		if idi >= 0 {
+			label = strings.TrimSpace(rec.Text[idi])
+		}
+		w, err := m.rowWeight(rec.Values)
+		if err != nil {
+			quar = append(quar, m.weightQuarantine(b, rec, rec.Values, now))
+			continue
+		}
+		if m.grouped() && m.noteLevels(lab) {
+			if m.online.N() >= m.minRows && m.ref.res != nil {
+				// Judging: the model extends at the next refresh; the row
+				// is kept but not judged against a model without its level.
+				m.log.Info("new group level; the model extends at the next refresh", "file", b.Path, "line", rec.Line, "levels", fmtLevels(m.form.newLevels))
+				rows = append(rows, pending{rec: rec, vals: rec.Values, lab: lab, w: w, t: t, label: label, diag: newLevelDiagnostics()})
+				continue
+			}
+			m.extendLevels(lab) // nothing judged yet: extend now
+			m.log.Info("new group level", "file", b.Path, "line", rec.Line, "levels", fmtLevels(m.form.newLevels))
+		}
+		if err := m.designRow(rec.Values, lab); err != nil {
 			at, why := m.designError(b, rec, err)
 			quar = append(quar, at.row(quarantineRow(m.cfg.Name, b, rec, now, why)))
 			continue
 		}
-		p := pending{rec: rec, vals: rec.Values, t: t}
-		if idi >= 0 {
-			p.label = strings.TrimSpace(rec.Text[idi])
-		}
-		o, ok := m.online.Add(m.xrow, rec.Values[0])
+		p := pending{rec: rec, vals: rec.Values, lab: lab, w: w, t: t, label: label}
+		o, ok := m.online.AddWeighted(m.xrow, rec.Values[0], w)
 		dfb := m.online.DFBETAS()
 		n := m.online.N()
 		if m.windowed() {
@@ -385,7 +443,7 @@ func (m *watchedModel) ingest(ctx context.Context, b watcher.Batch) error {
 		if p.diag != nil {
 			arr = p.diag.Verdict
 		}
-		m.appendRow(ids[i], b.Path, p.rec.Line, p.label, p.t, now.UnixNano(), p.vals, arr, arr)
+		m.appendRow(ids[i], b.Path, p.rec.Line, p.label, p.t, now.UnixNano(), p.vals, p.lab, arr, arr)
 		if arr == engine.WordSuspect {
 			m.ref.pendingSuspects = append(m.ref.pendingSuspects, suspect{row: len(m.rows.ids) - 1, flags: p.diag.Flags})
 		}
@@ -434,13 +492,17 @@ func (m *watchedModel) windowed() bool {
 func (m *watchedModel) windowArrival(batch []pending, p pending) (engine.Obs, []float64, int, bool) {
 	type row struct {
 		vals []float64
+		lab  []string
 		t    int64
 	}
 	all := make([]row, 0, len(batch)+1)
 	for _, b := range batch {
-		all = append(all, row{b.vals, b.t})
+		if b.diag != nil && b.diag.Verdict == WordNewLevel {
+			continue // not in the fit until the model has its level
+		}
+		all = append(all, row{b.vals, b.lab, b.t})
 	}
-	all = append(all, row{p.vals, p.t})
+	all = append(all, row{p.vals, p.lab, p.t})
 	var stored []int
 	switch {
 	case m.cfg.Window.Rows > 0:
@@ -486,11 +548,13 @@ func (m *watchedModel) windowArrival(batch []pending, p pending) (engine.Obs, []
 		}
 		cols[c] = v
 	}
-	X, y, err := m.spec.Design(cols)
-	if err != nil {
-		return engine.Obs{}, nil, n, false
+	text := m.copyLabels(stored)
+	for g, c := range m.form.groups {
+		for _, r := range all {
+			text[c] = append(text[c], r.lab[g])
+		}
 	}
-	f, err := engine.Refit(m.spec, X, y)
+	f, err := m.fitData(m.fitSpec(), cols, text)
 	if err != nil {
 		return engine.Obs{}, nil, n, false
 	}

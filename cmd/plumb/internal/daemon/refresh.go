@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strings"
 	"time"
@@ -80,6 +81,9 @@ func (r *refresher) refresh(ctx context.Context) error {
 	win := r.keepIncluded(m.rows.window(m.cfg.Window))
 	nAtCopy := m.rows.len()
 	cols := m.rows.copyRows(win, m.numeric())
+	text := m.copyLabels(win)
+	// The model is read under the lock: ingest may extend its levels.
+	an := m.analysis(func(row int) string { return m.labelOf(win, row) })
 	lastID := int64(0)
 	if len(m.rows.ids) > 0 {
 		lastID = m.rows.ids[len(m.rows.ids)-1]
@@ -96,8 +100,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 		m.setState(ctx, stateWaiting, reason, "")
 		return nil
 	}
-	label := func(row int) string { return m.labelOf(win, row) }
-	res, err := m.analysis(label).Run(ctx, cols)
+	res, err := an.RunData(ctx, engine.Data{Num: cols, Text: text})
 	if err != nil {
 		var se *analysis.StepError
 		if !errors.As(err, &se) {
@@ -150,7 +153,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 	m.mu.Unlock()
 
 	rec := store.FitRecord{
-		Model: name, At: now, N: fit.N, P: fit.P, Terms: m.spec.Names(), Sigma: fit.Sigma,
+		Model: name, At: now, N: fit.N, P: fit.P, Terms: res.Model.Names(), Sigma: fit.Sigma,
 		RSquared: fit.RSquared, Fragility: -2, LastObsID: lastID,
 	}
 	for _, c := range fit.Coef {
@@ -185,6 +188,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 		detail["suggestions"] = ss
 	}
 	recordAnswers(detail, res)
+	r.afterRefresh(res, detail)
 	dj, err := json.Marshal(detail)
 	if err != nil {
 		m.log.Error("fit detail", "err", err) // stored without it
@@ -251,8 +255,9 @@ func (r *refresher) refresh(ctx context.Context) error {
 			m.log.Error("alert", "err", err)
 		}
 	}
+	r.reportForm(ctx, res)
 	if base != nil && base.fit != fit {
-		if df := r.driftFit(cols, verdicts, fit); df != nil {
+		if df := r.driftFit(res.Model, cols, text, verdicts, fit); df != nil {
 			// The baseline's rows are all in the drift fit when the
 			// window starts at the first row and no suspect was left out.
 			nested := len(win) > 0 && win[0] == 0 && len(engine.Flagged(verdicts, engine.WordSuspect)) == 0
@@ -269,7 +274,7 @@ func (r *refresher) refresh(ctx context.Context) error {
 // suspect point has an alert of its own; leaving it out of the drift check
 // keeps one bad reading from raising two alerts. Nothing is removed from
 // the data or the history.
-func (r *refresher) driftFit(cols map[string][]float64, verdicts []engine.Verdict, fit *engine.Fit) *engine.Fit {
+func (r *refresher) driftFit(spec engine.Model, cols map[string][]float64, text map[string][]string, verdicts []engine.Verdict, fit *engine.Fit) *engine.Fit {
 	m := r.m
 	suspects := engine.Flagged(verdicts, engine.WordSuspect)
 	if len(suspects) == 0 {
@@ -277,26 +282,34 @@ func (r *refresher) driftFit(cols map[string][]float64, verdicts []engine.Verdic
 	}
 	keep := make(map[string][]float64, len(cols))
 	for c, v := range cols {
-		kv := make([]float64, 0, len(v)-len(suspects))
-		k := 0
-		for i, x := range v {
-			if k < len(suspects) && suspects[k] == i {
-				k++
-				continue
-			}
-			kv = append(kv, x)
+		keep[c] = without(v, suspects)
+	}
+	var keepText map[string][]string
+	if text != nil {
+		keepText = make(map[string][]string, len(text))
+		for c, v := range text {
+			keepText[c] = without(v, suspects)
 		}
-		keep[c] = kv
 	}
-	X, y, err := m.spec.Design(keep)
-	if err != nil {
-		return nil
-	}
-	f, err := engine.Refit(m.spec, X, y)
+	f, err := m.fitData(spec, keep, keepText)
 	if err != nil {
 		return nil
 	}
 	return f
+}
+
+// without returns v without the elements at the ascending indices drop.
+func without[T any](v []T, drop []int) []T {
+	out := make([]T, 0, len(v)-len(drop))
+	k := 0
+	for i, x := range v {
+		if k < len(drop) && drop[k] == i {
+			k++
+			continue
+		}
+		out = append(out, x)
+	}
+	return out
 }
 
 // labelOf names the 1-based window row as "file:line".
@@ -346,16 +359,19 @@ func (r *refresher) reportPoint(ctx context.Context, sp suspect, sugg *alerts.Su
 // operating region (the observed range for the columns it leaves out).
 func (m *watchedModel) analysis(label func(int) string) *analysis.Analysis {
 	fopt := engine.FragilityOptions{MaxRemoved: m.cfg.Fragility.MaxRemoved, Limit: m.cfg.Fragility.Limit}
-	a := &analysis.Analysis{Model: m.spec, Options: analysis.Options{
+	a := &analysis.Analysis{Model: m.fitSpec(), Options: analysis.Options{
 		Cutoffs:          m.cut,
 		Conclusions:      m.conclusions(),
 		Fragility:        *m.cfg.Fragility.Enabled,
 		FragilityOptions: fopt,
-		Suggest:          true,
+		Suggest:          m.canSuggest(),
 		SuggestOptions:   engine.SuggestOptions{Replicates: m.cfg.Suggest.Replicates, Top: m.cfg.Suggest.Count},
 		Region:           engine.Region{},
 		Answers:          m.answers(),
 		Label:            label,
+		Form:             formInRefresh,
+		Pool:             m.grouped(),
+		PoolAlpha:        m.cfg.PoolLevel,
 	}}
 	for c, b := range m.cfg.Region {
 		if len(b) == 2 {
@@ -419,15 +435,15 @@ func (r *refresher) makeBaseline() *baseline {
 		return nil
 	}
 	cols := m.rows.copyRows(rows, m.numeric())
-	X, y, err := m.spec.Design(cols)
+	spec := m.spec
+	if m.grouped() {
+		spec.Levels = nil // the levels of these rows; later ones are not compared
+	}
+	f, err := m.fitData(spec, cols, m.copyLabels(rows))
 	if err != nil {
 		return nil
 	}
-	f, err := engine.Refit(m.spec, X, y)
-	if err != nil {
-		return nil
-	}
-	b := &baseline{label: r.baselineLabel(d.BaselineRows), terms: names, fit: f}
+	b := &baseline{label: r.baselineLabel(d.BaselineRows), terms: f.Model.Names(), fit: f}
 	for _, c := range f.Coef {
 		b.est = append(b.est, c.Estimate)
 		b.se = append(b.se, c.StdError)
@@ -443,8 +459,16 @@ func (r *refresher) makeBaseline() *baseline {
 func (r *refresher) driftCondition(b *baseline, f *engine.Fit, region engine.Region, nested bool) alerts.DriftCondition {
 	m := r.m
 	c := alerts.DriftCondition{Model: m.cfg.Name, Baseline: b.label}
-	for i, c0 := range f.Coef {
-		if i >= len(b.est) || math.IsNaN(b.est[i]) {
+	var moved map[string]bool
+	if b.fit != nil {
+		moved = movedByReference(b.fit.Model, f.Model)
+	}
+	for _, c0 := range f.Coef {
+		// By name: a group level added since the baseline adds
+		// coefficients, one the baseline lacks is not compared; a new
+		// reference level changes what some mean (movedByReference).
+		i := slices.Index(b.terms, c0.Term)
+		if i < 0 || i >= len(b.est) || math.IsNaN(b.est[i]) || moved[c0.Term] {
 			continue
 		}
 		se := b.se[i]

@@ -88,7 +88,7 @@ func (m *watchedModel) summary(openAlerts int) view.ModelSummary {
 	defer m.mu.Unlock()
 	s := view.ModelSummary{
 		Name: m.cfg.Name, State: m.state, Reason: m.reason, Response: m.spec.Response,
-		Terms: m.spec.Names(), Predictors: m.cols, Rows: m.rowsAccepted, Quarantined: m.quarantined, Missing: m.missing,
+		Terms: m.spec.Names(), Predictors: m.predictors(), Rows: m.rowsAccepted, Quarantined: m.quarantined, Missing: m.missing,
 		Fits: m.ref.fits, LastFitAt: m.ref.fitAt, OpenAlerts: openAlerts, MaxCook: view.NaN(),
 	}
 	if until, ok := m.d.QuietUntil(m.cfg.Name); ok {
@@ -147,6 +147,8 @@ func (v viewSource) Model(ctx context.Context, name string) (view.ModelDetail, e
 	d.Curves = vr.Curves(curveSteps)
 	d.Suggestions = vr.SuggestionViews()
 	d.Predictions, d.Inverse = vr.Predictions(), vr.Inverses()
+	d.Weights, d.Form, d.Pool = vr.Weights(), vr.FormChecks(), vr.Poolability()
+	d.FormLevel = m.cfg.Alerts.FormLapse.Level
 	if b := m.ref.baseline; b != nil {
 		k := m.cfg.Alerts.Drift.K
 		for i, t := range b.terms {

@@ -314,6 +314,19 @@ footer { margin-top: 32px; border-top: 1px solid var(--rule); padding-top: 8px; 
 {{else}}<p class="empty">No row of this model has been quarantined.</p>{{end}}
 {{end}}
 
+<h2>Does the model form hold?</h2>
+{{with .D.Form}}
+<p class="meta">Checks of the current fit at level {{$.D.FormLevel}}{{if $.D.Weights}}; the fit is weighted by {{$.D.Weights}} and each check is its weighted version{{end}}. A significant check is a reason to look, not a verdict.</p>
+<table>
+<thead><tr><th>check</th><th>statistic</th><th>df</th><th>p</th><th>in words</th></tr></thead>
+<tbody>{{range .Lines $.D.FormLevel}}<tr data-check="{{.Name}}"><td class="m">{{.Name}}</td>{{if .Tested}}<td class="n">{{num .Statistic}}</td><td class="n">{{.DF}}</td><td class="n">{{num .P}}</td>{{else}}<td class="n">—</td><td></td><td class="n">—</td>{{end}}<td>{{if .Significant}}<b class="hot">{{.Words}}</b>{{else}}{{.Words}}{{end}}{{if .Next}}. A usual next step: {{.Next}}{{end}}{{if .Method}} (p: {{.Method}}){{end}}</td></tr>{{end}}</tbody>
+</table>
+<p class="meta">PRESS = {{num .PRESS}}, predicted R² = {{num6 .PredictedRSquared}} (leave-one-out prediction).</p>
+{{else}}<p class="empty">Not computed for this fit.</p>{{end}}
+{{with .D.Pool}}
+<h2>Can the groups be pooled?</h2>
+<p data-pool>{{.Levels}} levels of {{.Group}}, slope on {{.Predictor}}, tested at {{num .Alpha}}: equal slopes F = {{num .Slopes.F}} on {{.Slopes.DF1}} and {{.Slopes.DF2}} degrees of freedom, p = {{num .Slopes.P}}; equal intercepts F = {{num .Intercepts.F}} on {{.Intercepts.DF1}} and {{.Intercepts.DF2}}, p = {{num .Intercepts.P}}. Verdict: <b>{{.Verdict}}</b> ({{.Words}}). A suggestion for qualified staff, who decide.</p>
+{{end}}
 <h2 id="decisions">Decisions</h2>
 <p class="meta" data-decisions-caution>Decisions recorded by named staff after an alert. A reading set aside stays stored with its values and provenance, is drawn hollow and is left out of the fit, the drift check, fragility and suggestions from the refresh after the decision; plumb never deleted or altered a measurement. Decisions stay with qualified staff under local quality procedures and codes; the audit trail (<span class="m">plumb audit export</span>) holds who, when, why, before and after.</p>
 {{if .D.SetAside}}

@@ -43,7 +43,14 @@ func (r *Result) Point(i int) Point {
 		StudentizedExternal: Float(o.StudentExternal), Cook: Float(o.Cook),
 		DFFITS: Float(o.DFFITS), BonferroniP: Float(o.BonferroniP), Verdict: string(v.Word())}
 	for _, c := range r.Model.Columns() {
-		p.X[c] = Float(r.Cols[c][i])
+		if v, ok := r.Cols[c]; ok {
+			p.X[c] = Float(v[i])
+		} else if t, ok := r.Text[c]; ok {
+			if p.Labels == nil {
+				p.Labels = map[string]string{}
+			}
+			p.Labels[c] = t[i]
+		}
 	}
 	for _, fl := range v.Flags {
 		p.Flags = append(p.Flags, Flag(fl))
@@ -124,11 +131,17 @@ func (r *Result) SuggestionViews() []Suggestion {
 }
 
 // Curves evaluates the fitted mean, its 95 % confidence band and the 95 %
-// prediction band of one new reading over each predictor column at
-// steps+1 points across its observed range, the other predictors held at
-// their means.
+// prediction band of one new reading over each numeric predictor column
+// at steps+1 points across its observed range, the other predictors held
+// at their means and each group at its reference level (the first in
+// byte order).
 func (r *Result) Curves(steps int) []Curve {
-	cols := r.Model.Columns()
+	var cols []string
+	for _, c := range r.Model.Columns() {
+		if _, ok := r.Cols[c]; ok && !r.groupOnly(c) {
+			cols = append(cols, c)
+		}
+	}
 	means := map[string]float64{}
 	lo, hi := map[string]float64{}, map[string]float64{}
 	for _, c := range cols {
@@ -155,12 +168,12 @@ func (r *Result) Curves(steps int) []Curve {
 		}
 		for k := 0; k <= steps; k++ {
 			xv := lo[c] + (hi[c]-lo[c])*float64(k)/float64(steps)
-			err := r.Model.DesignRow(x, func(col string) float64 {
+			err := r.Model.DesignRowData(x, func(col string) float64 {
 				if col == c {
 					return xv
 				}
 				return means[col]
-			})
+			}, r.reference)
 			if err != nil {
 				continue
 			}
@@ -177,4 +190,26 @@ func (r *Result) Curves(steps int) []Curve {
 		out = append(out, cv)
 	}
 	return out
+}
+
+// groupOnly reports whether column c enters the model only through
+// group(...) factors.
+func (r *Result) groupOnly(c string) bool {
+	for _, t := range r.Model.Terms {
+		for _, f := range t.Factors {
+			if f.Column == c && !f.Group {
+				return false
+			}
+		}
+	}
+	return true
+}
+
+// reference is a group column's reference level, the label curves hold
+// it at.
+func (r *Result) reference(col string) string {
+	if lv := r.Model.Levels[col]; len(lv) > 0 {
+		return lv[0]
+	}
+	return ""
 }

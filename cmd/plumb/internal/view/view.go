@@ -286,6 +286,15 @@ type ModelDetail struct {
 	SetAside []SetAsidePoint `json:"set_aside_points,omitempty"`
 	// Rebaselines are the model's re-baseline events, oldest first.
 	Rebaselines []RebaselineView `json:"rebaselines,omitempty"`
+
+	// Weights is the fit's weighting in plumb's notation ("" unweighted);
+	// Form its checks of the model form; Pool the poolability of its
+	// group (form.go).
+	Weights string `json:"weights,omitempty"`
+	// FormLevel is the level the model judges its form checks at.
+	FormLevel float64      `json:"form_level,omitempty"`
+	Form      *FormChecks  `json:"form_checks,omitempty"`
+	Pool      *Poolability `json:"poolability,omitempty"`
 }
 
 // Curve returns the curve over predictor, or false.
@@ -318,17 +327,19 @@ type Point struct {
 	// Label is the row's id-column text ("" when the model has none).
 	Label string `json:"label,omitempty"`
 	// X holds the row's predictor values by column name.
-	X                   map[string]Float `json:"x"`
-	Y                   Float            `json:"y"`
-	Fitted              Float            `json:"fitted"`
-	Residual            Float            `json:"residual"`
-	Leverage            Float            `json:"leverage"`
-	StudentizedExternal Float            `json:"studentized_external"`
-	Cook                Float            `json:"cooks_distance"`
-	DFFITS              Float            `json:"dffits"`
-	BonferroniP         Float            `json:"bonferroni_p"`
-	Verdict             string           `json:"verdict"`
-	Flags               []Flag           `json:"flags,omitempty"`
+	X map[string]Float `json:"x"`
+	// Labels are the row's group labels (text columns), by column.
+	Labels              map[string]string `json:"labels,omitempty"`
+	Y                   Float             `json:"y"`
+	Fitted              Float             `json:"fitted"`
+	Residual            Float             `json:"residual"`
+	Leverage            Float             `json:"leverage"`
+	StudentizedExternal Float             `json:"studentized_external"`
+	Cook                Float             `json:"cooks_distance"`
+	DFFITS              Float             `json:"dffits"`
+	BonferroniP         Float             `json:"bonferroni_p"`
+	Verdict             string            `json:"verdict"`
+	Flags               []Flag            `json:"flags,omitempty"`
 }
 
 // Flag is one cutoff a point crosses, the engine's flag converted
@@ -500,7 +511,7 @@ type AlertFilter struct {
 type AlertView struct {
 	ID        string    `json:"id"`
 	Model     string    `json:"model"`
-	Kind      string    `json:"kind"` // suspect_point, fragile_fit, drift, blocked
+	Kind      string    `json:"kind"` // suspect_point, fragile_fit, drift, blocked, form_lapse
 	Severity  string    `json:"severity"`
 	Subject   string    `json:"subject"`
 	State     string    `json:"state"`
