@@ -75,32 +75,6 @@ func axpy(a float64, x, y []float64) {
 // bl is gonum's BLAS (Go with assembly kernels on amd64, no cgo).
 var bl gonum.Implementation
 
-// applyQT overwrites x (length m) with Q'x for the reflectors stored in the
-// m x p block a.
-func applyQT(a []float64, m, p int, tau []float64, x []float64) {
-	for j := 0; j < p; j++ {
-		applyH(a[j*m+j+1:(j+1)*m], tau[j], x[j:])
-	}
-}
-
-// applyQ overwrites x (length m) with Qx.
-func applyQ(a []float64, m, p int, tau []float64, x []float64) {
-	for j := p - 1; j >= 0; j-- {
-		applyH(a[j*m+j+1:(j+1)*m], tau[j], x[j:])
-	}
-}
-
-// applyH applies I - tau [1;v][1;v]' to x.
-func applyH(v []float64, tau float64, x []float64) {
-	if tau == 0 {
-		return
-	}
-	rest := x[1 : len(v)+1]
-	w := (x[0] + dot(v, rest)) * tau
-	x[0] -= w
-	axpy(-w, v, rest)
-}
-
 // chunking splits n rows into nc chunks of at least max(chunkRows, p) rows
 // each (one chunk when n is smaller).
 type chunking struct {

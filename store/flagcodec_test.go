@@ -13,7 +13,7 @@ import (
 // need escaping, and for every kind of number a flag can hold.
 func TestAppendFlagsMatchesEncode(t *testing.T) {
 	names := []string{"x", "x^2", "log(x)*z", `"flow rate (l/min)"`, "a<b", "a&b", "tab\there", "é", "\u2028", "bad\xffutf8", "a\\b", "nl\n"}
-	values := []float64{0, 1, -1, 0.1, 1e-5, 1e21, 123456789, 5e-324, math.MaxFloat64, math.NaN(), math.Inf(1), math.Inf(-1), -0.0}
+	values := []float64{0, 1, -1, 0.1, 1e-5, 1e21, 123456789, 5e-324, math.MaxFloat64, math.NaN(), math.Inf(1), math.Inf(-1), math.Copysign(0, -1)}
 	rng := rand.New(rand.NewPCG(3, 4))
 	check := func(fs []engine.Flag) {
 		t.Helper()

@@ -139,14 +139,6 @@ func (r *inspectResult) withUnit(col string, s string) string {
 	return s
 }
 
-// unitWords is " (UNIT)" for a column with a unit, else "".
-func (r *inspectResult) unitWords(col string) string {
-	if u := r.units[col]; u != "" {
-		return " (" + u + ")"
-	}
-	return ""
-}
-
 // pointWords is "emf_mv = 10 mV, bath_c = 20" in model column order.
 func (r *inspectResult) pointWords(at map[string]float64) string {
 	var parts []string

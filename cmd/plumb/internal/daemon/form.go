@@ -530,9 +530,6 @@ func (m *watchedModel) groupHint(e *decode.RowError) string {
 	return fmt.Sprintf("; if the column holds labels, write group(%s) in the model's terms", engine.Weighting{Column: e.Name})
 }
 
-// isNewLevel reports whether err is a group label the model lacks.
-func isNewLevel(err error) bool { return errors.Is(err, engine.ErrNewLevel) }
-
 // movedByReference returns the names of cur's coefficients whose meaning
 // depends on the reference level (the first in byte order) of a group
 // column whose reference differs in base: the intercept, the
