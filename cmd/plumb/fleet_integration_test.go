@@ -262,6 +262,14 @@ func TestPostgresFleet(t *testing.T) {
 		}
 		return string(out)
 	}
+	// The owner that took line-a over last judges its rows at its next
+	// refresh: wait for each line's first alert before listing them.
+	for _, model := range []string{"line-a", "line-b"} {
+		waitUntil(t, time.Minute, model+"'s alerts", func() bool {
+			as, err := db.Alerts(ctx, store.AlertQuery{Model: model})
+			return err == nil && len(as) > 0
+		})
+	}
 	if out := plumbOut("alerts", "--config", cfgB, "--state", "all"); !strings.Contains(out, "line-a") || !strings.Contains(out, "line-b") {
 		t.Errorf("alerts --config b.toml does not list both lines' alerts:\n%s", out)
 	}
