@@ -17,12 +17,17 @@ type alertState struct {
 	By    string `json:"by,omitempty"`
 	Note  string `json:"note,omitempty"`
 	Auto  bool   `json:"auto,omitempty"`
+	// DocError says why the alert's document could not be read, so a
+	// record that lacks who acted and the note says so rather than
+	// passing for an unnamed change.
+	DocError string `json:"doc_error,omitempty"`
 }
 
 func stateOf(r *store.AlertRecord) (alertState, *alerts.Alert) {
 	s := alertState{State: r.State}
 	a, err := alerts.DecodeAlert([]byte(r.Doc))
 	if err != nil {
+		s.DocError = err.Error()
 		return s, nil
 	}
 	switch {

@@ -72,3 +72,20 @@ func TestAlertAudit(t *testing.T) {
 }
 
 func ptrTo[T any](v T) *T { return &v }
+
+// An alert whose document cannot be read still gets its record, and the
+// record says why it names nobody.
+func TestAlertAuditUnreadableDocument(t *testing.T) {
+	after := store.AlertRecord{ID: "al-2", Model: "cal", State: string(alerts.StateAcknowledged), Doc: "{not json"}
+	rec, ok := AlertAudit(nil, after)
+	if !ok {
+		t.Fatal("no audit record for an acknowledgement with an unreadable document")
+	}
+	var st alertState
+	if err := json.Unmarshal([]byte(rec.After), &st); err != nil {
+		t.Fatal(err)
+	}
+	if st.State != string(alerts.StateAcknowledged) || st.DocError == "" || rec.Actor != "unnamed" {
+		t.Errorf("record %+v, state %+v: want the acknowledged state, the document's error and actor unnamed", rec, st)
+	}
+}
