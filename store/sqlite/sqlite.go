@@ -61,14 +61,12 @@ import (
 	"embed"
 	"errors"
 	"fmt"
-	"io/fs"
-	"path"
-	"strconv"
 	"strings"
 	"sync"
 	"time"
 
 	"plumb/store"
+	migrate "plumb/store/internal/migrations"
 
 	_ "modernc.org/sqlite" // registers the "sqlite" driver (the only package that imports it)
 )
@@ -188,46 +186,16 @@ func (db *DB) SchemaVersion(ctx context.Context) (int, error) {
 	return v, nil
 }
 
-// migration is one embedded schema step.
-type migration struct {
-	version int
-	name    string
-	sql     string
-}
-
 // migrations returns the embedded migrations in version order.
-func migrations() ([]migration, error) {
-	entries, err := fs.ReadDir(migrationFS, "migrations")
-	if err != nil {
-		return nil, err
-	}
-	var ms []migration
-	for _, e := range entries {
-		name := e.Name()
-		num, _, ok := strings.Cut(name, "_")
-		v, err := strconv.Atoi(num)
-		if !ok || err != nil || v <= 0 {
-			return nil, fmt.Errorf("migration %s: name must be NNNN_name.sql", name)
-		}
-		b, err := migrationFS.ReadFile(path.Join("migrations", name))
-		if err != nil {
-			return nil, err
-		}
-		if len(ms) > 0 && ms[len(ms)-1].version >= v {
-			return nil, fmt.Errorf("migration %s: version %d out of order", name, v)
-		}
-		ms = append(ms, migration{version: v, name: name, sql: string(b)})
-	}
-	return ms, nil
-}
+func migrations() ([]migrate.Migration, error) { return migrate.Load(migrationFS, "migrations") }
 
 // LatestSchemaVersion is the schema version this binary migrates to.
 func LatestSchemaVersion() int {
 	ms, err := migrations()
-	if err != nil || len(ms) == 0 {
+	if err != nil {
 		return 0
 	}
-	return ms[len(ms)-1].version
+	return migrate.Latest(ms)
 }
 
 func (db *DB) migrate(ctx context.Context) error {
@@ -254,10 +222,7 @@ func (db *DB) migrate(ctx context.Context) error {
 	if err := tx.QueryRowContext(ctx, "SELECT COALESCE(MAX(version), 0) FROM schema_version").Scan(&cur); err != nil {
 		return fmt.Errorf("migrate: %w", err)
 	}
-	latest := 0
-	if len(ms) > 0 {
-		latest = ms[len(ms)-1].version
-	}
+	latest := migrate.Latest(ms)
 	if cur > latest {
 		return fmt.Errorf("migrate: database is at schema version %d, this binary knows up to %d (upgrade plumb or open a backup): %w",
 			cur, latest, ErrSchemaTooNew)
@@ -284,15 +249,15 @@ func (db *DB) migrate(ctx context.Context) error {
 		return fmt.Errorf("migrate: %w", err)
 	}
 	for _, m := range ms {
-		if applied[m.version] {
+		if applied[m.Version] {
 			continue
 		}
-		if _, err := tx.ExecContext(ctx, m.sql); err != nil {
-			return fmt.Errorf("migrate: apply %s: %w", m.name, err)
+		if _, err := tx.ExecContext(ctx, m.SQL); err != nil {
+			return fmt.Errorf("migrate: apply %s: %w", m.Name, err)
 		}
 		if _, err := tx.ExecContext(ctx, "INSERT INTO schema_version (version, name, applied_at) VALUES (?, ?, ?)",
-			m.version, m.name, db.now().UTC().UnixNano()); err != nil {
-			return fmt.Errorf("migrate: record %s: %w", m.name, err)
+			m.Version, m.Name, db.now().UTC().UnixNano()); err != nil {
+			return fmt.Errorf("migrate: record %s: %w", m.Name, err)
 		}
 	}
 	if err := tx.Commit(); err != nil {
